@@ -1,0 +1,1 @@
+"""Loop models: bare airframe, hardware elements and the assembled pitch-rate loop (batched)."""
