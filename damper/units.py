@@ -14,25 +14,25 @@ from functools import lru_cache
 
 from .errors import CaseError
 
-#: Dimensions (pint dimensionality strings) by name, used by the case schema.
+#: Reference SI unit of each named dimension, used by the case schema.
 DIMENSIONS = {
-    "dimensionless": "dimensionless",
-    "length": "[length]",
-    "time": "[time]",
-    "speed": "[length] / [time]",
-    "frequency": "1 / [time]",
-    "frequency2": "1 / [time] ** 2",
-    "mass": "[mass]",
-    "area": "[length] ** 2",
-    "inertia": "[mass] * [length] ** 2",
-    "acceleration": "[length] / [time] ** 2",
-    "force": "[length] * [mass] / [time] ** 2",
-    "force_time": "[length] * [mass] / [time]",
-    "moment": "[length] ** 2 * [mass] / [time] ** 2",
-    "moment_time": "[length] ** 2 * [mass] / [time]",
-    "pressure": "[mass] / [length] / [time] ** 2",
-    "angular_rate": "1 / [time]",
-    "angular_acceleration": "1 / [time] ** 2",
+    "dimensionless": "1",
+    "length": "m",
+    "time": "s",
+    "speed": "m/s",
+    "frequency": "1/s",
+    "frequency2": "1/s**2",
+    "mass": "kg",
+    "area": "m**2",
+    "inertia": "kg*m**2",
+    "acceleration": "m/s**2",
+    "force": "N",
+    "force_time": "N*s",
+    "moment": "N*m",
+    "moment_time": "N*m*s",
+    "pressure": "Pa",
+    "angular_rate": "rad/s",
+    "angular_acceleration": "rad/s**2",
 }
 
 #: Documented SI unit of each dimension, for messages and docs.
@@ -72,7 +72,12 @@ def _parse(text: str):
     ureg = _registry()
     quantity = ureg.Quantity(text)
     base = quantity.to_base_units()
-    return float(base.magnitude), str(base.dimensionality)
+    return float(base.magnitude), base.dimensionality
+
+
+@lru_cache(maxsize=64)
+def _dimensionality(name: str):
+    return _registry().Quantity(DIMENSIONS[name]).dimensionality
 
 
 def parse_quantity(value, allowed, path="") -> tuple[float, str]:
@@ -109,6 +114,12 @@ def parse_quantity(value, allowed, path="") -> tuple[float, str]:
         text = value.strip()
         if not text:
             raise CaseError("empty value; expected a number or a string with units", path, value)
+        try:  # YAML 1.1 reads '1e4' (no dot) as text: accept it as a plain number
+            plain = float(text)
+        except ValueError:
+            plain = None
+        if plain is not None:
+            return parse_quantity(plain, allowed, path)
         if not _SAFE_UNIT_TEXT.match(text) or "__" in text:
             raise CaseError("not a number with units (unexpected characters)", path, value)
         try:
@@ -117,12 +128,12 @@ def parse_quantity(value, allowed, path="") -> tuple[float, str]:
             raise CaseError(f"cannot read this as a quantity ({_short(exc)})", path, value) from None
         dimension = None
         for name in allowed:
-            if dimensionality == DIMENSIONS[name]:
+            if dimensionality == _dimensionality(name):
                 dimension = name
                 break
         if dimension is None:
             wanted = " or ".join(SI_UNIT_TEXT[a] for a in allowed)
-            got = dimensionality if dimensionality != "dimensionless" else "no dimension"
+            got = str(dimensionality) if len(dimensionality) else "no dimension"
             raise CaseError(f"wrong dimension {got}; expected {wanted}", path, value)
     else:
         raise CaseError(

@@ -1,0 +1,1 @@
+"""Analyses built on the measures: assess given gains, search, schedule, robustness, responses."""

@@ -1,0 +1,252 @@
+"""The validated, immutable case (SI units throughout)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..model.airframe import Derivatives
+from ..model.elements import Delay, Lag, LeadLag, Notch, SecondOrderLag, Washout
+from ..model.loop import Hardware
+
+
+@dataclass(frozen=True)
+class Aircraft:
+    """Mass properties and reference geometry.
+
+    Attributes
+    ----------
+    name : str or None
+    mass : float
+        kg.
+    pitch_inertia : float
+        kg m^2.
+    wing_area : float or None
+        m^2.
+    mean_chord : float or None
+        m.
+    """
+
+    name: str | None
+    mass: float
+    pitch_inertia: float
+    wing_area: float | None
+    mean_chord: float | None
+
+
+@dataclass(frozen=True)
+class Condition:
+    """One flight condition with its resolved dimensional derivatives.
+
+    Attributes
+    ----------
+    name : str
+    airspeed : float
+        True airspeed, m/s.
+    altitude : float
+        Geopotential altitude, m.
+    altitude_input : float
+        Altitude as given (geometric or geopotential, per the case), m.
+    density : float
+        kg/m^3.
+    speed_of_sound : float
+        m/s.
+    mach : float
+    dynamic_pressure : float
+        Pa.
+    mass : float
+        kg.
+    pitch_inertia : float
+        kg m^2.
+    derivatives : Derivatives
+        Scalars, per unit mass/inertia, SI.
+    source : str
+        ``"derivatives"`` or ``"coefficients"``.
+    note : str or None
+    """
+
+    name: str
+    airspeed: float
+    altitude: float
+    altitude_input: float
+    density: float
+    speed_of_sound: float
+    mach: float
+    dynamic_pressure: float
+    mass: float
+    pitch_inertia: float
+    derivatives: Derivatives
+    source: str
+    note: str | None = None
+
+    @property
+    def equivalent_airspeed(self) -> float:
+        """Equivalent airspeed, m/s."""
+        from ..atmosphere import RHO0
+
+        return float(self.airspeed * np.sqrt(self.density / RHO0))
+
+
+@dataclass(frozen=True)
+class ElementSpec:
+    """One hardware element as the case gave it.
+
+    Attributes
+    ----------
+    kind : str
+        ``lag``, ``second_order``, ``lead_lag``, ``notch`` or ``washout``.
+    params : tuple of (name, float)
+        SI parameters.
+    """
+
+    kind: str
+    params: tuple
+
+    def get(self, name, default=None):
+        return dict(self.params).get(name, default)
+
+    def build(self):
+        """The model element (see :mod:`damper.model.elements`)."""
+        p = dict(self.params)
+        if self.kind == "lag":
+            return Lag(p["time_constant"])
+        if self.kind == "second_order":
+            return SecondOrderLag(p["natural_frequency"], p["damping_ratio"])
+        if self.kind == "lead_lag":
+            return LeadLag(p["lead_time_constant"], p["lag_time_constant"])
+        if self.kind == "notch":
+            return Notch(p["frequency"], p["depth_damping"], p["width_damping"])
+        if self.kind == "washout":
+            return Washout(p["time_constant"])
+        raise ValueError(self.kind)
+
+    def describe(self) -> str:
+        p = dict(self.params)
+        if self.kind == "lag":
+            return f"first-order lag, time constant {p['time_constant']:.4g} s ({1 / p['time_constant']:.4g} rad/s)"
+        if self.kind == "second_order":
+            return f"second-order, {p['natural_frequency']:.4g} rad/s, damping {p['damping_ratio']:.3g}"
+        if self.kind == "lead_lag":
+            return f"lead-lag ({p['lead_time_constant']:.4g} s + 1)/({p['lag_time_constant']:.4g} s + 1)"
+        if self.kind == "notch":
+            return (
+                f"notch at {p['frequency']:.4g} rad/s, damping {p['depth_damping']:.3g}/{p['width_damping']:.3g}"
+            )
+        if self.kind == "washout":
+            return f"washout, time constant {p['time_constant']:.4g} s"
+        return self.kind
+
+
+@dataclass(frozen=True)
+class LoopSpec:
+    """The loop hardware as given (SI).
+
+    Attributes
+    ----------
+    actuator, sensor, washout : ElementSpec or None
+        None is ideal.
+    filters : tuple of ElementSpec
+    delay : float
+        Computation delay, s.
+    sample_rate : float or None
+        Hz.
+    pade_order : int
+    rate_limit : float or None
+        Actuator rate limit, rad/s.
+    travel : float or None
+        Damper authority, +/- rad.
+    """
+
+    actuator: ElementSpec | None = None
+    sensor: ElementSpec | None = None
+    washout: ElementSpec | None = None
+    filters: tuple = ()
+    delay: float = 0.0
+    sample_rate: float | None = None
+    pade_order: int = 2
+    rate_limit: float | None = None
+    travel: float | None = None
+
+    @property
+    def total_delay(self) -> float:
+        """Computation delay plus half a sample (zero-order hold), s."""
+        half = 0.5 / self.sample_rate if self.sample_rate else 0.0
+        return self.delay + half
+
+    def hardware(self) -> Hardware:
+        """Model hardware (scalar parameters; broadcast against any batch)."""
+        delay = Delay(np.asarray(self.total_delay), self.pade_order) if self.total_delay > 0 else None
+        return Hardware(
+            actuator=self.actuator.build() if self.actuator else None,
+            sensor=self.sensor.build() if self.sensor else None,
+            washout=self.washout.build() if self.washout else None,
+            filters=tuple(f.build() for f in self.filters),
+            delay=delay,
+        )
+
+
+@dataclass(frozen=True)
+class Settings:
+    """Numerical settings.
+
+    Attributes
+    ----------
+    frequency_low, frequency_high : float
+        Margin-search grid limits, rad/s.
+    points_per_decade : int
+    """
+
+    frequency_low: float = 1e-3
+    frequency_high: float = 1e3
+    points_per_decade: int = 100
+
+    def grid(self) -> np.ndarray:
+        """The margin-search frequency grid, rad/s."""
+        decades = np.log10(self.frequency_high / self.frequency_low)
+        n = max(2, int(round(decades * self.points_per_decade)) + 1)
+        return np.logspace(np.log10(self.frequency_low), np.log10(self.frequency_high), n)
+
+
+@dataclass(frozen=True)
+class Case:
+    """A validated case.
+
+    Attributes
+    ----------
+    title : str
+    file : str
+        Where it was read from.
+    sha256 : str
+        SHA-256 of the file's bytes.
+    aircraft : Aircraft
+    altitude_kind : str
+    conditions : tuple of Condition
+    loop : LoopSpec
+    settings : Settings
+    warnings : tuple of str
+        Suspicious physics (analysed anyway).
+    raw : dict
+        The validated SI values of every section (for later layers' sections).
+    """
+
+    title: str
+    file: str
+    sha256: str
+    aircraft: Aircraft
+    altitude_kind: str
+    conditions: tuple
+    loop: LoopSpec
+    settings: Settings = field(default_factory=Settings)
+    warnings: tuple = ()
+    raw: dict = field(default_factory=dict, compare=False, repr=False)
+
+    @property
+    def names(self) -> tuple:
+        return tuple(c.name for c in self.conditions)
+
+    def derivatives(self) -> Derivatives:
+        """All conditions' derivatives as one batch of shape (n_conditions,)."""
+        ds = [c.derivatives for c in self.conditions]
+        fields = Derivatives.__dataclass_fields__
+        return Derivatives(**{f: np.array([float(getattr(d, f)) for d in ds]) for f in fields})

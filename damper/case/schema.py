@@ -1,0 +1,468 @@
+"""The case-file schema: every section, key, unit and default, as data.
+
+The validator (:func:`check`) walks a parsed YAML document against these
+specs and returns plain Python values in SI. Unknown keys are errors with a
+suggestion; every error names the key path and the value. docs/case-file.md
+is generated from this module (``python -m damper.case.docgen``).
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+from dataclasses import dataclass, field
+
+from ..errors import CaseError
+from ..units import SI_UNIT_TEXT, parse_quantity
+
+REQUIRED = object()
+
+
+@dataclass(frozen=True)
+class Quantity:
+    """A physical quantity: a plain number in ``dims[0]``'s SI unit or a string with units.
+
+    ``dims`` lists the accepted dimensions; the first is the plain-number unit.
+    The validated value is ``(si_value, dimension)`` when several dimensions are
+    accepted, else the SI float.
+    """
+
+    dims: tuple
+    doc: str = ""
+    default: object = REQUIRED
+    positive: bool = False
+    nonnegative: bool = False
+    low: float | None = None
+    high: float | None = None
+    nonzero: bool = False
+
+    def check(self, value, path):
+        si, dim = parse_quantity(value, self.dims, path)
+        if self.positive and not si > 0:
+            raise CaseError("must be positive", path, value)
+        if self.nonnegative and not si >= 0:
+            raise CaseError("must not be negative", path, value)
+        if self.nonzero and si == 0:
+            raise CaseError("must not be zero", path, value)
+        if self.low is not None and si < self.low:
+            raise CaseError(f"must be at least {self.low:g} {SI_UNIT_TEXT[self.dims[0]]}", path, value)
+        if self.high is not None and si > self.high:
+            raise CaseError(f"must be at most {self.high:g} {SI_UNIT_TEXT[self.dims[0]]}", path, value)
+        return (si, dim) if len(self.dims) > 1 else si
+
+    def describe(self) -> str:
+        units = " or ".join(SI_UNIT_TEXT[d] for d in self.dims)
+        return f"quantity ({units})"
+
+
+@dataclass(frozen=True)
+class Text:
+    """A string."""
+
+    doc: str = ""
+    default: object = REQUIRED
+    max_length: int = 200
+
+    def check(self, value, path):
+        if not isinstance(value, str):
+            raise CaseError(f"expected text, got {_kind(value)}", path, value)
+        if not value.strip():
+            raise CaseError("must not be empty", path, value)
+        if len(value) > self.max_length:
+            raise CaseError(f"is longer than {self.max_length} characters", path, value)
+        return value
+
+    def describe(self) -> str:
+        return "text"
+
+
+@dataclass(frozen=True)
+class Integer:
+    """A whole number within [low, high]."""
+
+    doc: str = ""
+    default: object = REQUIRED
+    low: int = 0
+    high: int = 10**9
+
+    def check(self, value, path):
+        if isinstance(value, bool) or not isinstance(value, int):
+            if isinstance(value, float) and value.is_integer():
+                value = int(value)
+            else:
+                raise CaseError(f"expected a whole number, got {_kind(value)}", path, value)
+        if not self.low <= value <= self.high:
+            raise CaseError(f"must be between {self.low} and {self.high}", path, value)
+        return value
+
+    def describe(self) -> str:
+        return f"whole number {self.low}-{self.high}"
+
+
+@dataclass(frozen=True)
+class Number:
+    """A plain dimensionless number (no unit string)."""
+
+    doc: str = ""
+    default: object = REQUIRED
+    low: float | None = None
+    high: float | None = None
+
+    def check(self, value, path):
+        if isinstance(value, str):
+            try:
+                value = float(value)
+            except ValueError:
+                raise CaseError("expected a plain number", path, value) from None
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise CaseError(f"expected a number, got {_kind(value)}", path, value)
+        value = float(value)
+        if not math.isfinite(value):
+            raise CaseError("must be a finite number", path, value)
+        if self.low is not None and value < self.low:
+            raise CaseError(f"must be at least {self.low:g}", path, value)
+        if self.high is not None and value > self.high:
+            raise CaseError(f"must be at most {self.high:g}", path, value)
+        return value
+
+    def describe(self) -> str:
+        return "number"
+
+
+@dataclass(frozen=True)
+class Choice:
+    """One of a fixed set of words."""
+
+    options: tuple
+    doc: str = ""
+    default: object = REQUIRED
+
+    def check(self, value, path):
+        if value not in self.options:
+            hint = _suggest(str(value), self.options)
+            raise CaseError(f"must be one of {', '.join(self.options)}{hint}", path, value)
+        return value
+
+    def describe(self) -> str:
+        return " | ".join(self.options)
+
+
+@dataclass(frozen=True)
+class Section:
+    """A mapping with known keys.
+
+    ``exactly_one`` lists groups of keys of which exactly one must be given;
+    ``at_most_one`` groups of which at most one may be given.
+    """
+
+    fields: dict
+    doc: str = ""
+    default: object = REQUIRED
+    exactly_one: tuple = ()
+    at_most_one: tuple = ()
+
+    def check(self, value, path):
+        if not isinstance(value, dict):
+            raise CaseError(f"expected a section of keys, got {_kind(value)}", path, value)
+        lines = getattr(value, "lines", {})
+        for key in value:
+            if key not in self.fields:
+                hint = _suggest(str(key), self.fields)
+                raise CaseError(
+                    f"unknown key {key!r}{hint}", _join(path, str(key)), line=lines.get(key)
+                )
+        for group in self.exactly_one:
+            given = [k for k in group if k in value]
+            if len(given) != 1:
+                what = "give exactly one of " + ", ".join(group)
+                if given:
+                    what += f" (found {', '.join(given)})"
+                raise CaseError(what, path, line=_first_line(value))
+        for group in self.at_most_one:
+            given = [k for k in group if k in value]
+            if len(given) > 1:
+                raise CaseError(f"give at most one of {', '.join(group)} (found {', '.join(given)})", path)
+        out = {}
+        for key, spec in self.fields.items():
+            sub = _join(path, key)
+            if key in value:
+                item = value[key]
+                try:
+                    if item is None and spec.default is not REQUIRED and not isinstance(spec, Section):
+                        out[key] = spec.default
+                    elif item is None:
+                        raise CaseError("has no value", sub, None)
+                    else:
+                        out[key] = spec.check(item, sub)
+                except CaseError as exc:
+                    if exc.line is None and key in lines:
+                        exc = exc.with_location(line=lines[key])
+                    raise exc from None
+            elif spec.default is REQUIRED:
+                in_group = any(key in g for g in self.exactly_one)
+                if not in_group:
+                    raise CaseError(f"missing required key {key!r}", path or "(top level)", line=_first_line(value))
+                out[key] = None
+            elif isinstance(spec, Section) and isinstance(spec.default, dict):
+                out[key] = spec.check(spec.default, sub)
+            else:
+                out[key] = spec.default
+        return out
+
+    def describe(self) -> str:
+        return "section"
+
+
+@dataclass(frozen=True)
+class Items:
+    """A list of items of one spec."""
+
+    item: object
+    doc: str = ""
+    default: object = REQUIRED
+    min_items: int = 1
+    max_items: int = 10_000
+
+    def check(self, value, path):
+        if not isinstance(value, list):
+            raise CaseError(f"expected a list, got {_kind(value)}", path, value)
+        if len(value) < self.min_items:
+            raise CaseError(f"needs at least {self.min_items} item(s)", path, value if value else [])
+        if len(value) > self.max_items:
+            raise CaseError(f"has more than {self.max_items} items", path)
+        lines = getattr(value, "lines", [])
+        out = []
+        for i, item in enumerate(value):
+            sub = f"{path}[{i}]"
+            try:
+                if item is None:
+                    raise CaseError("empty list item", sub)
+                out.append(self.item.check(item, sub))
+            except CaseError as exc:
+                if exc.line is None and i < len(lines):
+                    exc = exc.with_location(line=lines[i])
+                raise exc from None
+        return out
+
+    def describe(self) -> str:
+        return "list"
+
+
+def _kind(value) -> str:
+    if value is None:
+        return "nothing"
+    if isinstance(value, bool):
+        return "true/false"
+    if isinstance(value, dict):
+        return "a section"
+    if isinstance(value, list):
+        return "a list"
+    if isinstance(value, str):
+        return "text"
+    if isinstance(value, (int, float)):
+        return "a number"
+    return type(value).__name__
+
+
+def _join(path, key):
+    return f"{path}.{key}" if path else key
+
+
+def _first_line(value):
+    lines = getattr(value, "lines", None)
+    if isinstance(lines, dict) and lines:
+        return min(lines.values())
+    return None
+
+
+def _suggest(word, options):
+    close = difflib.get_close_matches(word, list(options), n=1, cutoff=0.6)
+    if close:
+        return f"; did you mean {close[0]!r}?"
+    return ""
+
+
+# ---------------------------------------------------------------------------
+# The schema
+# ---------------------------------------------------------------------------
+
+_POS = dict(positive=True)
+
+AIRCRAFT = Section(
+    {
+        "name": Text("Free-text name of the (invented or real) configuration.", default=None),
+        "mass": Quantity(("mass",), "Mass, kg.", **_POS),
+        "pitch_inertia": Quantity(("inertia",), "Pitch moment of inertia Iy, kg m^2.", **_POS),
+        "wing_area": Quantity(("area",), "Reference wing area S, m^2 (needed for coefficients).", default=None, **_POS),
+        "mean_chord": Quantity(
+            ("length",), "Mean aerodynamic chord c, m (needed for coefficients).", default=None, **_POS
+        ),
+    },
+    "The airframe's mass properties and reference geometry.",
+)
+
+ATMOSPHERE = Section(
+    {
+        "altitude_kind": Choice(
+            ("geopotential", "geometric"),
+            "How condition altitudes are meant: geopotential (pressure altitude in the "
+            "standard atmosphere, what flight manuals use) or geometric.",
+            default="geopotential",
+        ),
+    },
+    "Standard atmosphere options (U.S. Standard Atmosphere 1976).",
+    default={"altitude_kind": "geopotential"},
+)
+
+_DERIV_DOC = "per unit {0} ({1}), or the {2} form ({3}), divided by the {0}"
+DERIVATIVES = Section(
+    {
+        "Z_alpha": Quantity(("acceleration", "force"), "Z_alpha: m/s^2 per rad, or N per rad (divided by mass)."),
+        "Z_q": Quantity(("speed", "force_time"), "Z_q: m/s per rad/s, or N s per rad (divided by mass).", default=0.0),
+        "Z_delta": Quantity(("acceleration", "force"), "Z_delta: m/s^2 per rad, or N per rad (divided by mass).", default=0.0),
+        "M_alpha": Quantity(("frequency2", "moment"), "M_alpha: 1/s^2, or N m per rad (divided by pitch inertia)."),
+        "M_alpha_dot": Quantity(
+            ("frequency", "moment_time"), "M_alpha_dot: 1/s, or N m s per rad (divided by pitch inertia).", default=0.0
+        ),
+        "M_q": Quantity(("frequency", "moment_time"), "M_q: 1/s, or N m s per rad (divided by pitch inertia)."),
+        "M_delta": Quantity(("frequency2", "moment"), "M_delta: 1/s^2, or N m per rad (divided by pitch inertia).", nonzero=True),
+    },
+    "Dimensional stability derivatives, stability axes, per radian.",
+)
+
+_COEF = ("dimensionless",)
+COEFFICIENTS = Section(
+    {
+        "CL_alpha": Quantity(_COEF, "Lift-curve slope, per rad (or e.g. '0.09 1/deg')."),
+        "CD": Quantity(_COEF, "Trim drag coefficient.", nonnegative=True),
+        "CL_delta": Quantity(_COEF, "Lift per elevator, per rad.", default=0.0),
+        "Cm_alpha": Quantity(_COEF, "Pitching moment per angle of attack, per rad."),
+        "Cm_alpha_dot": Quantity(_COEF, "Per rad, with alpha_dot made non-dimensional by c/(2V).", default=0.0),
+        "Cm_q": Quantity(_COEF, "Per rad, with q made non-dimensional by c/(2V)."),
+        "Cm_delta": Quantity(_COEF, "Pitching moment per elevator, per rad.", nonzero=True),
+        "CL_q": Quantity(_COEF, "Lift per non-dimensional pitch rate, per rad.", default=0.0),
+    },
+    "Non-dimensional coefficients (stability axes); need wing_area and mean_chord.",
+)
+
+CONDITION = Section(
+    {
+        "name": Text("Unique name of the flight condition."),
+        "airspeed": Quantity(("speed",), "True airspeed, m/s.", default=REQUIRED, **_POS),
+        "equivalent_airspeed": Quantity(("speed",), "Equivalent airspeed, m/s (instead of airspeed).", default=REQUIRED, **_POS),
+        "mach": Quantity(("dimensionless",), "Mach number (instead of airspeed).", default=REQUIRED, positive=True, high=5.0),
+        "altitude": Quantity(
+            ("length",), "Altitude, m (see atmosphere.altitude_kind).", low=-2000.0, high=80000.0
+        ),
+        "mass": Quantity(("mass",), "Mass at this condition, kg (default: aircraft.mass).", default=None, **_POS),
+        "pitch_inertia": Quantity(
+            ("inertia",), "Pitch inertia at this condition, kg m^2 (default: aircraft.pitch_inertia).", default=None, **_POS
+        ),
+        "note": Text("Free text shown in reports (e.g. the CG position).", default=None),
+        "derivatives": Section(DERIVATIVES.fields, DERIVATIVES.doc, default=REQUIRED),
+        "coefficients": Section(COEFFICIENTS.fields, COEFFICIENTS.doc, default=REQUIRED),
+    },
+    "One flight condition.",
+    exactly_one=(("airspeed", "equivalent_airspeed", "mach"), ("derivatives", "coefficients")),
+)
+
+_SECOND_ORDER = {
+    "natural_frequency": Quantity(("frequency",), "Natural frequency, rad/s (second-order form).", default=None, **_POS),
+    "damping_ratio": Number("Damping ratio (second-order form).", default=None, low=1e-3, high=10.0),
+}
+
+ACTUATOR = Section(
+    {
+        "bandwidth": Quantity(("frequency",), "First-order servo bandwidth, rad/s (1/time constant).", default=None, **_POS),
+        "time_constant": Quantity(("time",), "First-order servo time constant, s.", default=None, **_POS),
+        **_SECOND_ORDER,
+        "rate_limit": Quantity(
+            ("angular_rate",), "Surface rate limit, rad/s (e.g. '60 deg/s'); used in time responses.", default=None, **_POS
+        ),
+        "travel": Quantity(
+            ("dimensionless",), "Damper authority: +/- surface travel, rad (e.g. '10 deg'); used in time responses.",
+            default=None, **_POS,
+        ),
+    },
+    "Servo actuator, from damper command to surface; absent = ideal.",
+    default=None,
+    at_most_one=(("bandwidth", "time_constant", "natural_frequency"),),
+)
+
+RATE_SENSOR = Section(
+    {
+        "time_constant": Quantity(("time",), "First-order rate-gyro lag, s.", default=None, **_POS),
+        **_SECOND_ORDER,
+    },
+    "Rate gyro; absent = ideal.",
+    default=None,
+    at_most_one=(("time_constant", "natural_frequency"),),
+)
+
+WASHOUT = Section(
+    {"time_constant": Quantity(("time",), "Washout time constant T of T s/(T s + 1), s.", **_POS)},
+    "Washout (high-pass) filter so the damper does not oppose steady pitch rates; absent = none.",
+    default=None,
+)
+
+FILTER = Section(
+    {
+        "kind": Choice(("lag", "lead_lag", "notch", "second_order"), "Filter type."),
+        "time_constant": Quantity(("time",), "lag: time constant, s.", default=None, **_POS),
+        "lead_time_constant": Quantity(("time",), "lead_lag: numerator time constant, s.", default=None, nonnegative=True),
+        "lag_time_constant": Quantity(("time",), "lead_lag: denominator time constant, s.", default=None, **_POS),
+        "frequency": Quantity(("frequency",), "notch: centre frequency, rad/s.", default=None, **_POS),
+        "depth_damping": Number("notch: numerator damping (0 = infinitely deep).", default=None, low=0.0, high=10.0),
+        "width_damping": Number("notch: denominator damping (sets the width).", default=None, low=1e-3, high=10.0),
+        **_SECOND_ORDER,
+    },
+    "A filter in the feedback path (noise or structural filter).",
+)
+
+LOOP = Section(
+    {
+        "actuator": ACTUATOR,
+        "rate_sensor": RATE_SENSOR,
+        "washout": WASHOUT,
+        "filters": Items(FILTER, "Further filters in the feedback path, in signal order.", default=(), min_items=0, max_items=20),
+        "delay": Quantity(("time",), "Computation / transport delay, s.", default=0.0, nonnegative=True, high=1.0),
+        "sample_rate": Quantity(
+            ("frequency",), "Digital sample rate, Hz (adds half a sample of delay for the zero-order hold).", default=None, **_POS
+        ),
+        "pade_order": Integer("Order of the Pade approximant of the delay in eigenvalue work.", default=2, low=1, high=8),
+    },
+    "The pitch-rate loop's hardware; every missing element is ideal.",
+    default={},
+)
+
+ANALYSIS = Section(
+    {
+        "frequency_low": Quantity(("frequency",), "Lowest frequency of the margin search, rad/s.", default=1e-3, **_POS),
+        "frequency_high": Quantity(("frequency",), "Highest frequency of the margin search, rad/s.", default=1e3, **_POS),
+        "points_per_decade": Integer("Margin-search grid density.", default=100, low=20, high=2000),
+    },
+    "Numerical settings.",
+    default={},
+)
+
+CASE = Section(
+    {
+        "title": Text("Title of the study, shown in every output."),
+        "aircraft": AIRCRAFT,
+        "atmosphere": ATMOSPHERE,
+        "conditions": Items(CONDITION, "Flight conditions.", max_items=2000),
+        "loop": LOOP,
+        "analysis": ANALYSIS,
+    },
+    "A damper case.",
+)
+
+
+def check(data, extra_fields=None):
+    """Validate a parsed case document; return SI values (dicts and lists)."""
+    if not isinstance(data, dict):
+        raise CaseError(f"the file must be a section of keys (title, aircraft, conditions, ...), got {_kind(data)}")
+    spec = CASE
+    if extra_fields:
+        spec = Section({**CASE.fields, **extra_fields}, CASE.doc)
+    return spec.check(data, "")

@@ -1,0 +1,1 @@
+"""Outputs: JSON structures, terminal tables, files, plots and the report. No measure is computed here."""

@@ -1,0 +1,166 @@
+"""JSON structures of results (NaN and infinities become ``null``)."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+
+
+def num(x):
+    """A JSON number or ``None`` for NaN/inf."""
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def clean(obj):
+    """Recursively turn numpy values into JSON-ready Python values."""
+    if isinstance(obj, dict):
+        return {str(k): clean(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [clean(v) for v in obj]
+    if isinstance(obj, (np.bool_, bool)):
+        return bool(obj)
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        return num(obj)
+    if isinstance(obj, np.ndarray):
+        return clean(obj.tolist())
+    return obj
+
+
+def dumps(obj) -> str:
+    """Deterministic JSON text (sorted keys off: our dicts are built in a fixed order)."""
+    return json.dumps(clean(obj), indent=2, allow_nan=False) + "\n"
+
+
+def _finite(values):
+    return [num(v) for v in np.asarray(values).ravel() if math.isfinite(float(v))]
+
+
+def condition_result(case, result, index) -> dict:
+    """The ``assess`` structure of one (condition, gain) point.
+
+    Parameters
+    ----------
+    case : Case
+    result : Assessment
+    index : tuple
+        Batch index; its first entry is the condition.
+    """
+    i = index[0]
+    cond = case.conditions[i]
+    bare = result.bare
+    modes = result.modes
+    mg = result.margins
+    bi = (i,) + (0,) * (np.ndim(bare.damping_ratio) - 1) if np.ndim(bare.damping_ratio) else ()
+    sp = modes.short_period
+    eig = modes.eigenvalues[index]
+    gx = mg.gain_crossings_rad_s[index]
+    gpm = mg.phase_margins_deg[index]
+    px = mg.phase_crossings_rad_s[index]
+    pgm = mg.gain_margins_db[index]
+    return {
+        "name": cond.name,
+        "gain_s": num(result.gains[index]),
+        "flight": {
+            "airspeed_m_s": num(cond.airspeed),
+            "equivalent_airspeed_m_s": num(cond.equivalent_airspeed),
+            "altitude_m": num(cond.altitude_input),
+            "mach": num(cond.mach),
+            "dynamic_pressure_pa": num(cond.dynamic_pressure),
+            "mass_kg": num(cond.mass),
+        },
+        "bare": {
+            "short_period": {
+                "damping_ratio": num(bare.damping_ratio[bi]),
+                "natural_frequency_rad_s": num(bare.natural_frequency[bi]),
+                "period_s": num(bare.period[bi]),
+                "time_to_half_s": num(bare.time_to_half[bi]),
+                "time_to_double_s": num(bare.time_to_double[bi]),
+                "roots": [[num(z.real), num(z.imag)] for z in bare.roots[bi]],
+            }
+        },
+        "closed_loop": {
+            "stable": bool(modes.stable[index]),
+            "eigenvalues": [[num(z.real), num(z.imag)] for z in eig],
+            "short_period": {
+                "damping_ratio": num(sp.damping_ratio[index]),
+                "natural_frequency_rad_s": num(sp.natural_frequency[index]),
+                "period_s": num(sp.period[index]),
+                "time_to_half_s": num(sp.time_to_half[index]),
+                "ambiguous": bool(modes.ambiguous[index]),
+            },
+            "least_damped_other_mode": {
+                "damping_ratio": num(modes.other_damping_ratio[index]),
+                "eigenvalue": [num(modes.other_eigenvalue[index].real), num(modes.other_eigenvalue[index].imag)],
+            },
+            "delay_model": "none" if result.pade_order is None else f"pade order {result.pade_order}",
+        },
+        "margins": {
+            "gain_margin_db": num(mg.gain_margin_db[index]),
+            "gain_margin_low_db": num(mg.gain_margin_low_db[index]),
+            "phase_margin_deg": num(mg.phase_margin_deg[index]),
+            "gain_crossover_rad_s": num(mg.gain_crossover_rad_s[index]),
+            "phase_crossover_rad_s": num(mg.phase_crossover_rad_s[index]),
+            "delay_margin_s": num(mg.delay_margin_s[index]),
+            "disk_margin": num(mg.disk_margin[index]),
+            "disk_gain_margin_db": num(mg.disk_gain_margin_db[index]),
+            "disk_phase_margin_deg": num(mg.disk_phase_margin_deg[index]),
+            "gain_crossings": [
+                {"frequency_rad_s": num(w), "phase_margin_deg": num(p)}
+                for w, p in zip(gx, gpm)
+                if math.isfinite(w)
+            ],
+            "phase_crossings": [
+                {"frequency_rad_s": num(w), "gain_margin_db": num(g)}
+                for w, g in zip(px, pgm)
+                if math.isfinite(w)
+            ],
+            "delay_model": "exact",
+        },
+    }
+
+
+def provenance(case, command=None, seed=None) -> dict:
+    """Input hash, tool and library versions, seed and command line."""
+    import platform
+    import sys
+
+    import scipy
+
+    from .. import __version__
+
+    return {
+        "input_file": case.file,
+        "input_sha256": case.sha256,
+        "tool": "damper",
+        "tool_version": __version__,
+        "python": platform.python_version(),
+        "numpy": np.__version__,
+        "scipy": scipy.__version__,
+        "seed": seed,
+        "command": command if command is not None else " ".join(["damper", *sys.argv[1:]]),
+    }
+
+
+def assess_document(case, result, command=None) -> dict:
+    """The whole ``damper assess --json`` document."""
+    n = len(case.conditions)
+    conds = [condition_result(case, result, (i,)) for i in range(n)]
+    return {
+        "title": case.title,
+        "caution": CAUTION,
+        "warnings": list(case.warnings),
+        "conditions": conds,
+        "provenance": provenance(case, command),
+    }
+
+
+CAUTION = (
+    "Preliminary engineering analysis. Flight-control changes affect the safety of flight: "
+    "validate by simulation, ground and flight test, and have the design approved under the "
+    "applicable airworthiness rules by qualified engineers."
+)
