@@ -1,8 +1,15 @@
-"""Command line: parses arguments and calls the library. Heavy imports happen inside commands."""
+"""Command line: parses arguments and calls the library.
+
+Each sub-command lives in :mod:`damper.commands` as a module with
+``register(subparsers)`` (argument definitions, no heavy imports) and
+``run(args, argv) -> int``. Heavy imports (numpy, scipy, matplotlib,
+python-control) happen inside ``run`` so that ``damper --help`` stays fast.
+"""
 
 from __future__ import annotations
 
 import argparse
+import importlib
 import sys
 
 CAUTION_SHORT = (
@@ -10,8 +17,13 @@ CAUTION_SHORT = (
     "the applicable airworthiness rules and qualified engineers decide."
 )
 
+#: Sub-command modules, in the order ``--help`` lists them.
+COMMAND_MODULES = (
+    "damper.commands.assess",
+)
 
-def _parser() -> argparse.ArgumentParser:
+
+def _parser():
     p = argparse.ArgumentParser(
         prog="damper",
         description="Design and check pitch-rate dampers (pitch stability augmentation) from a YAML case file.",
@@ -20,17 +32,18 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--version", action="store_true", help="print the version and exit")
     p.add_argument("--debug", action="store_true", help="show a traceback on errors")
     sub = p.add_subparsers(dest="command", metavar="COMMAND")
-
-    a = sub.add_parser("assess", help="measure the loop with a given gain at every condition")
-    a.add_argument("case", help="case file (YAML)")
-    a.add_argument("--gain", required=True, type=float, metavar="K", help="pitch-rate gain K in seconds (deg per deg/s)")
-    a.add_argument("--json", action="store_true", help="print the results as JSON on standard output")
-    return p
+    runners = {}
+    for name in COMMAND_MODULES:
+        module = importlib.import_module(name)
+        command = module.register(sub)
+        runners[command] = module.run
+    return p, runners
 
 
 def main(argv=None) -> int:
+    """Run the command line; returns the exit code (0 ok, 2 bad input, 1 internal error)."""
     argv = sys.argv[1:] if argv is None else list(argv)
-    parser = _parser()
+    parser, runners = _parser()
     args = parser.parse_args(argv)
     if args.version:
         from . import __version__
@@ -41,7 +54,15 @@ def main(argv=None) -> int:
         parser.print_help()
         return 0
     try:
-        return _COMMANDS[args.command](args, argv)
+        return runners[args.command](args, argv)
+    except KeyboardInterrupt:
+        print("damper: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:  # output piped into e.g. `head`
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
     except Exception as exc:  # noqa: BLE001 - the user sees one line, --debug shows all
         from .errors import DamperError
 
@@ -50,37 +71,14 @@ def main(argv=None) -> int:
         if isinstance(exc, DamperError):
             print(f"damper: error: {exc}", file=sys.stderr)
             return 2
-        print(f"damper: internal error: {type(exc).__name__}: {exc} (run with --debug for details)", file=sys.stderr)
+        print(
+            f"damper: internal error: {type(exc).__name__}: {exc} (run with --debug for the traceback)",
+            file=sys.stderr,
+        )
         return 1
 
 
-def _warn(case):
+def warn_case(case):
+    """Print a case's physics warnings on standard error."""
     for w in case.warnings:
         print(f"damper: warning: {w}", file=sys.stderr)
-
-
-def _cmd_assess(args, argv) -> int:
-    import math
-
-    from .analysis.assess import assess
-    from .case import load_case
-    from .errors import DamperError
-    from .output.jsonout import assess_document, dumps
-    from .output.text import assess_table
-
-    if not math.isfinite(args.gain):
-        raise DamperError(f"--gain = {args.gain}: must be a finite number of seconds")
-    case = load_case(args.case)
-    _warn(case)
-    result = assess(case, args.gain)
-    doc = assess_document(case, result, command=" ".join(["damper", *argv]))
-    if args.json:
-        sys.stdout.write(dumps(doc))
-    else:
-        print(f"{case.title}: loop with K = {args.gain:g} s")
-        print(assess_table(doc))
-        print(CAUTION_SHORT)
-    return 0
-
-
-_COMMANDS = {"assess": _cmd_assess}

@@ -1,0 +1,1 @@
+"""Sub-commands of the command line (one module each: ``register`` and ``run``)."""

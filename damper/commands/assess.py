@@ -1,0 +1,40 @@
+"""``damper assess CASE --gain K``: measure the loop with a given gain at every condition."""
+
+from __future__ import annotations
+
+import sys
+
+NAME = "assess"
+
+
+def register(sub) -> str:
+    a = sub.add_parser(NAME, help="measure the loop with a given gain at every condition")
+    a.add_argument("case", help="case file (YAML)")
+    a.add_argument("--gain", required=True, type=float, metavar="K", help="pitch-rate gain K in seconds (deg per deg/s)")
+    a.add_argument("--json", action="store_true", help="print the results as JSON on standard output")
+    return NAME
+
+
+def run(args, argv) -> int:
+    import math
+
+    from ..analysis.assess import assess
+    from ..case import load_case
+    from ..cli import CAUTION_SHORT, warn_case
+    from ..errors import DamperError
+    from ..output.jsonout import assess_document, dumps
+    from ..output.text import assess_table
+
+    if not math.isfinite(args.gain):
+        raise DamperError(f"--gain = {args.gain}: must be a finite number of seconds")
+    case = load_case(args.case)
+    warn_case(case)
+    result = assess(case, args.gain)
+    doc = assess_document(case, result, command=" ".join(["damper", *argv]))
+    if args.json:
+        sys.stdout.write(dumps(doc))
+    else:
+        print(f"{case.title}: loop with K = {args.gain:g} s")
+        print(assess_table(doc))
+        print(CAUTION_SHORT)
+    return 0

@@ -1,0 +1,1 @@
+"""Handling-qualities measures computed from frequency responses (batched, numpy)."""

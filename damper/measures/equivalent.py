@@ -1,0 +1,449 @@
+"""Low-order equivalent system (LOES) fit of the pitch-rate frequency response.
+
+Method
+------
+The augmented aircraft's pitch-rate response to the pilot command, ``H(jw)``,
+is matched over a band of frequencies (by default 30 log-spaced points from
+0.1 to 10 rad/s) by the low-order form used in the handling-qualities
+guidance of MIL-STD-1797A::
+
+    H_e(s) = Kq (s + 1/T_theta2) exp(-tau_e s) / (s^2 + 2 zeta_e w_e s + w_e^2)
+
+The mismatch (cost) is, as recalled from that guidance (from memory),
+
+    J = (20 / n) * sum_i ( dG_i^2 + 0.01745 * dPhi_i^2 )
+
+with ``dG_i`` the gain difference in dB and ``dPhi_i`` the phase difference
+in degrees at the ``n`` fit frequencies.  The phase difference is the wrapped
+angle of ``H_e / H`` (in (-180, 180] deg), so the data never need unwrapping.
+
+The numerator zero ``1/T_theta2`` is held at a value supplied by the caller
+(normally the bare-airframe value) unless ``free_zero=True``.
+
+All systems of a batch are fitted at once by a vectorised, projected
+Levenberg-Marquardt iteration: per system the residual vector is
+``sqrt(20/n) * [dG_1..dG_n, sqrt(0.01745) * dPhi_1..dPhi_n]`` so that its
+squared norm is ``J``; the Jacobians are stacked to shape (M, 2n, p) and the
+small damped normal equations are solved with one ``np.linalg.solve`` call
+per iteration.  The parameters are ``ln w_e``, ``ln zeta_e`` (so both stay
+positive; ``zeta_e > 1`` is allowed), ``tau_e`` itself (projected onto
+``tau_e >= 0``, with the bound treated as an active constraint when the
+gradient pushes against it), ``ln |Kq|`` (the sign of ``Kq`` is chosen per
+start from the data) and, with a free zero, ``ln(1/T_theta2)``.  Several
+starting points per system (one derived from the data, the others a small
+spread of damping ratios and frequencies around it) are iterated in the same
+batch and the lowest-cost result is kept per system.
+
+The functions are pure; results are returned in a frozen dataclass.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["EquivalentFit", "fit_frequencies", "fit_equivalent_system"]
+
+#: Phase weight of the mismatch cost, 1/deg^2 relative to dB^2 (from memory
+#: of the MIL-STD-1797A guidance; numerically close to pi/180).
+PHASE_WEIGHT = 0.01745
+
+_DB_PER_NEPER = 20.0 / np.log(10.0)  # dB per natural-log unit of gain
+_DEG_PER_RAD = 180.0 / np.pi
+
+# Levenberg-Marquardt controls (dimensionless).
+_LAMBDA_START = 1e-3
+_LAMBDA_DOWN = 1.0 / 3.0
+_LAMBDA_UP = 8.0
+_LAMBDA_MIN = 1e-12
+_LAMBDA_MAX = 1e12
+_FTOL = 1e-14  # relative cost reduction regarded as no progress
+_XTOL = 1e-11  # step size (log units / s) regarded as no progress
+_COST_FLOOR = 1e-26  # cost regarded as an exact fit
+
+# Indices into the parameter vector.
+_LN_W, _LN_Z, _TAU, _LN_K, _LN_ZERO = 0, 1, 2, 3, 4
+
+
+@dataclass(frozen=True)
+class EquivalentFit:
+    """Result of a batched LOES fit; every field has the batch shape ``(...)``.
+
+    Attributes
+    ----------
+    damping_ratio : numpy.ndarray
+        Equivalent short-period damping ratio ``zeta_e`` (dimensionless, > 0;
+        values above 1 mean an overdamped equivalent pair).
+    natural_frequency : numpy.ndarray
+        Equivalent short-period natural frequency ``w_e``, rad/s.
+    time_delay : numpy.ndarray
+        Equivalent time delay ``tau_e``, s (>= 0).
+    gain : numpy.ndarray
+        Numerator gain ``Kq`` (sign included).  Its unit is the unit of the
+        response multiplied by rad/s: for ``q/command`` in (rad/s)/rad it is
+        1/s^2; for (rad/s) per unit of command it is (rad/s^2) per unit.
+    inv_t_theta2 : numpy.ndarray
+        Numerator zero ``1/T_theta2``, 1/s (the fixed input, or the fitted
+        value when ``free_zero=True``).
+    mismatch : numpy.ndarray
+        Cost ``J = (20/n) sum(dG^2 + 0.01745 dPhi^2)`` with ``dG`` in dB and
+        ``dPhi`` in deg; dimensionless as defined (mixed dB^2 and deg^2).
+    converged : numpy.ndarray
+        bool; True when the iteration of the retained start met a stopping
+        test before ``max_iterations``.
+    """
+
+    damping_ratio: np.ndarray
+    natural_frequency: np.ndarray
+    time_delay: np.ndarray
+    gain: np.ndarray
+    inv_t_theta2: np.ndarray
+    mismatch: np.ndarray
+    converged: np.ndarray
+
+
+def fit_frequencies(n: int = 30, low: float = 0.1, high: float = 10.0) -> np.ndarray:
+    """Log-spaced fit frequencies.
+
+    Parameters
+    ----------
+    n : int
+        Number of frequencies (>= 2).
+    low, high : float
+        First and last frequency, rad/s (0 < low < high).
+
+    Returns
+    -------
+    numpy.ndarray
+        Shape (n,), rad/s, from ``low`` to ``high`` inclusive.
+    """
+    n = int(n)
+    if n < 2:
+        raise ValueError("n must be at least 2")
+    if not (0.0 < low < high) or not np.isfinite(high):
+        raise ValueError("need 0 < low < high < inf (rad/s)")
+    return np.logspace(np.log10(low), np.log10(high), n)
+
+
+# ---------------------------------------------------------------------------
+# model, residuals, Jacobian
+
+
+def _wrap(x: np.ndarray) -> np.ndarray:
+    """Wrap an angle in rad into [-pi, pi)."""
+    return (x + np.pi) % (2.0 * np.pi) - np.pi
+
+
+def _evaluate(params, sign, zero_fixed, jw, log_h, free_zero, scale, want_jac=True):
+    """Residuals, cost and (optionally) Jacobian for a stack of parameter rows.
+
+    ``params`` (M, p); ``sign`` (M,) +-1; ``zero_fixed`` (M,) 1/s; ``jw``
+    (nw,) complex rad/s; ``log_h`` (M, nw) complex natural log of the data.
+    Returns residuals (M, 2 nw), cost (M,) and Jacobian (M, 2 nw, p).
+    """
+    w_e = np.exp(params[:, _LN_W])[:, None]
+    zeta = np.exp(params[:, _LN_Z])[:, None]
+    tau = params[:, _TAU][:, None]
+    ln_k = params[:, _LN_K][:, None]
+    zero = np.exp(params[:, _LN_ZERO])[:, None] if free_zero else zero_fixed[:, None]
+
+    num = jw + zero  # (M, nw)
+    two_zw_jw = 2.0 * zeta * w_e * jw
+    den = jw * jw + two_zw_jw + w_e * w_e
+    log_model = ln_k + np.log(num) - tau * jw - np.log(den)
+    log_model = log_model + np.where(sign < 0, 1j * np.pi, 0.0)[:, None]
+    diff = log_model - log_h
+    d_gain = _DB_PER_NEPER * diff.real  # dB
+    d_phase = _DEG_PER_RAD * _wrap(diff.imag)  # deg
+    root_w = np.sqrt(PHASE_WEIGHT)
+    res = scale * np.concatenate([d_gain, root_w * d_phase], axis=1)
+    cost = np.einsum("ij,ij->i", res, res)
+    if not want_jac:
+        return res, cost, None
+
+    # d(ln H_e)/d(parameter), complex, each (M, nw)
+    cols = [
+        -(two_zw_jw + 2.0 * w_e * w_e) / den,  # d/d ln w_e
+        -two_zw_jw / den,  # d/d ln zeta
+        -jw * np.ones_like(den),  # d/d tau
+        np.ones_like(den),  # d/d ln|K|
+    ]
+    if free_zero:
+        cols.append(zero / num)  # d/d ln(1/T_theta2)
+    dlog = np.stack(cols, axis=-1)  # (M, nw, p)
+    jac = scale * np.concatenate(
+        [_DB_PER_NEPER * dlog.real, root_w * _DEG_PER_RAD * dlog.imag], axis=1
+    )
+    return res, cost, jac
+
+
+# ---------------------------------------------------------------------------
+# starting points
+
+
+def _interp_log_crossing(w, y, level):
+    """First downward crossing of ``level`` by rows of ``y`` (M, nw).
+
+    Returns the log-interpolated frequency (rad/s), ``w[-1]`` when the level
+    is never reached, and ``w[0]`` when ``y`` starts at or below it.
+    """
+    below = y <= level
+    first = np.argmax(below, axis=1)
+    never = ~below.any(axis=1)
+    at_start = below[:, 0]
+    lo = np.clip(first - 1, 0, w.size - 2)
+    rows = np.arange(y.shape[0])
+    y0, y1 = y[rows, lo], y[rows, lo + 1]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        frac = np.clip((y0 - level) / (y0 - y1), 0.0, 1.0)
+    frac = np.where(np.isfinite(frac), frac, 0.5)
+    lw = np.log(w)
+    out = np.exp(lw[lo] + frac * (lw[lo + 1] - lw[lo]))
+    out = np.where(never, w[-1], out)
+    out = np.where(at_start, w[0], out)
+    return out
+
+
+def _data_start(w, log_h, zero):
+    """Data-derived (w_e rad/s, zeta_e) for each row, assuming tau_e = 0.
+
+    Removes the numerator zero from the data, measures the phase relative to
+    the low-frequency branch (0 or 180 deg), takes the -90 deg point as w_e
+    and the gain drop from the low-frequency level at that point as
+    ``1 / (2 zeta_e)``.
+    """
+    log_r = log_h - np.log(1j * w + zero[:, None])
+    phase = np.unwrap(log_r.imag, axis=1)
+    phase = phase - np.pi * np.round(phase[:, :1] / np.pi)
+    w_d = _interp_log_crossing(w, phase, -0.5 * np.pi)
+    lw = np.log(w)
+    level_at = _interp_rows(lw, log_r.real, np.log(w_d))
+    zeta_d = 0.5 * np.exp(log_r.real[:, 0] - level_at)
+    zeta_d = np.clip(zeta_d, 0.05, 5.0)
+    return w_d, zeta_d
+
+
+def _interp_rows(x, y, xq):
+    """Row-wise linear interpolation of ``y`` (M, n) on common ``x`` at ``xq`` (M,)."""
+    idx = np.clip(np.searchsorted(x, xq) - 1, 0, x.size - 2)
+    rows = np.arange(y.shape[0])
+    t = np.clip((xq - x[idx]) / (x[idx + 1] - x[idx]), 0.0, 1.0)
+    return y[rows, idx] + t * (y[rows, idx + 1] - y[rows, idx])
+
+
+# (zeta multiplier or absolute value, w_e multiplier) for the starts; the
+# first entry is the data-derived pair itself.
+_START_SPREAD = (
+    ("data", 1.0),
+    (0.3, 1.0),
+    (0.7, 1.0),
+    (1.5, 1.0),
+    (0.7, 0.5),
+    (0.7, 2.0),
+)
+
+
+def _starting_points(w, log_h, zero, free_zero):
+    """Stacked starting parameters, shape (N, S, p), for S starts per system.
+
+    ``tau_e`` starts at 0 s; ``ln|Kq|`` of each start is the closed-form
+    least-squares fit of the dB level given the start's w_e and zeta_e.
+    """
+    n_sys = log_h.shape[0]
+    w_d, zeta_d = _data_start(w, log_h, zero)
+    p = 5 if free_zero else 4
+    starts = []
+    for zeta_spec, w_mult in _START_SPREAD:
+        zeta = zeta_d if zeta_spec == "data" else np.full(n_sys, float(zeta_spec))
+        w_e = w_d * w_mult
+        par = np.zeros((n_sys, p))
+        par[:, _LN_W] = np.log(w_e)
+        par[:, _LN_Z] = np.log(zeta)
+        par[:, _TAU] = 0.0
+        if free_zero:
+            par[:, _LN_ZERO] = np.log(zero)
+        jw = 1j * w
+        den = jw**2 + 2.0 * (zeta * w_e)[:, None] * jw + (w_e**2)[:, None]
+        shape = np.log(jw + zero[:, None]) - np.log(den)
+        par[:, _LN_K] = np.mean(log_h.real - shape.real, axis=1)
+        starts.append(par)
+    params = np.stack(starts, axis=1)  # (N, S, p)
+    return params
+
+
+# ---------------------------------------------------------------------------
+# the batched solver
+
+
+def _levenberg_marquardt(params, sign, zero, jw, log_h, free_zero, scale, max_iterations):
+    """Projected Levenberg-Marquardt on a stack of independent problems.
+
+    Every row is iterated with its own damping and its own stopping test; a
+    row that has stopped is no longer updated, so the result of a row does
+    not depend on the other rows of the stack.
+    """
+    m_rows, p = params.shape
+    params = params.copy()
+    res, cost, jac = _evaluate(params, sign, zero, jw, log_h, free_zero, scale)
+    lam = np.full(m_rows, _LAMBDA_START)
+    done = cost <= _COST_FLOOR
+    converged = done.copy()
+    eye = np.eye(p)
+
+    for _ in range(max_iterations):
+        act = np.nonzero(~done)[0]
+        if act.size == 0:
+            break
+        j_a, r_a, p_a = jac[act], res[act], params[act]
+        a_mat = np.matmul(np.swapaxes(j_a, 1, 2), j_a)  # (A, p, p)
+        grad = np.einsum("imk,im->ik", j_a, r_a)  # (A, p)
+        # tau at its bound with the gradient pushing it negative: freeze it.
+        frozen = (p_a[:, _TAU] <= 0.0) & (grad[:, _TAU] > 0.0)
+        keep = np.ones((act.size, p))
+        keep[frozen, _TAU] = 0.0
+        a_mat = a_mat * keep[:, :, None] * keep[:, None, :]
+        grad = grad * keep
+        diag = np.einsum("ikk->ik", a_mat)
+        diag_floor = 1e-12 * np.maximum(diag.max(axis=1, keepdims=True), 1e-300)
+        damp = lam[act, None] * np.maximum(diag, diag_floor)
+        lhs = a_mat + damp[:, :, None] * eye + (1.0 - keep)[:, :, None] * eye
+        step = -np.linalg.solve(lhs, grad[:, :, None])[:, :, 0]
+        trial = p_a + step
+        trial[:, _TAU] = np.maximum(trial[:, _TAU], 0.0)
+        actual_step = trial - p_a
+
+        res_t, cost_t, jac_t = _evaluate(
+            trial, sign[act], zero[act], jw, log_h[act], free_zero, scale
+        )
+        cost_a = cost[act]
+        ok = np.isfinite(cost_t) & (cost_t < cost_a)
+        small_step = np.max(np.abs(actual_step), axis=1) <= _XTOL
+        small_gain = (cost_a - cost_t) <= _FTOL * cost_a
+
+        acc = act[ok]
+        params[acc] = trial[ok]
+        res[acc] = res_t[ok]
+        jac[acc] = jac_t[ok]
+        cost[acc] = cost_t[ok]
+        lam[acc] = np.maximum(lam[acc] * _LAMBDA_DOWN, _LAMBDA_MIN)
+        rej = act[~ok]
+        lam[rej] = lam[rej] * _LAMBDA_UP
+
+        stop = (ok & (small_step | small_gain)) | (~ok & small_step)
+        stop |= cost[act] <= _COST_FLOOR
+        stop |= lam[act] > _LAMBDA_MAX
+        done[act[stop]] = True
+        converged[act[stop]] = True
+
+    return params, cost, converged
+
+
+def fit_equivalent_system(
+    w,
+    response,
+    inv_t_theta2,
+    *,
+    free_zero: bool = False,
+    max_iterations: int = 60,
+) -> EquivalentFit:
+    """Fit the pitch-rate LOES to a batch of high-order frequency responses.
+
+    Parameters
+    ----------
+    w : array_like
+        Shape (nw,), fit frequencies, rad/s (> 0), e.g. from
+        :func:`fit_frequencies`.
+    response : array_like of complex
+        Shape (..., nw): the high-order system's pitch-rate response to the
+        pilot command at ``w`` (e.g. (rad/s) per unit of command), for any
+        number of leading batch axes.  Must be finite and non-zero.
+    inv_t_theta2 : array_like
+        ``1/T_theta2``, 1/s, broadcastable to the batch shape ``(...)``.  The
+        fixed numerator zero, or the starting value (> 0) when
+        ``free_zero=True``.
+    free_zero : bool, optional
+        Fit ``1/T_theta2`` as well (kept > 0).  Default False.
+    max_iterations : int, optional
+        Maximum Levenberg-Marquardt iterations (accepted or rejected trial
+        steps) per start.  Default 60.
+
+    Returns
+    -------
+    EquivalentFit
+        Fields of shape ``(...)``: ``damping_ratio`` (-), ``natural_frequency``
+        (rad/s), ``time_delay`` (s), ``gain`` (response unit x rad/s),
+        ``inv_t_theta2`` (1/s), ``mismatch`` (J, dimensionless) and
+        ``converged`` (bool).
+
+    Notes
+    -----
+    The cost is ``J = (20/n) sum(dG^2 + 0.01745 dPhi^2)`` with ``dG`` in dB
+    and ``dPhi = angle(H_e/H)`` in deg (wrapped).  Each system is started
+    from several points in the same batch and the lowest ``J`` is kept; the
+    result of a system does not depend on the other systems of the batch.
+    """
+    w = np.asarray(w, dtype=float)
+    if w.ndim != 1 or w.size < 3:
+        raise ValueError("w must be 1-D with at least 3 frequencies (rad/s)")
+    if not np.all(np.isfinite(w)) or np.any(w <= 0.0):
+        raise ValueError("w must be finite and positive (rad/s)")
+    h = np.asarray(response)
+    if h.shape[-1:] != w.shape:
+        raise ValueError(f"response last axis {h.shape[-1:]} does not match w {w.shape}")
+    h = h.astype(complex)
+    if not np.all(np.isfinite(h)) or np.any(h == 0):
+        raise ValueError("response must be finite and non-zero")
+    batch = h.shape[:-1]
+    zero_b = np.broadcast_to(np.asarray(inv_t_theta2, dtype=float), batch)
+    if not np.all(np.isfinite(zero_b)):
+        raise ValueError("inv_t_theta2 must be finite (1/s)")
+    if free_zero and np.any(zero_b <= 0.0):
+        raise ValueError("with free_zero=True, inv_t_theta2 (start) must be > 0 (1/s)")
+    max_iterations = int(max_iterations)
+    if max_iterations < 0:
+        raise ValueError("max_iterations must be >= 0")
+
+    n_sys = int(np.prod(batch, dtype=int))
+    nw = w.size
+    log_h = np.log(h.reshape(n_sys, nw))
+    zero = zero_b.reshape(n_sys).astype(float)
+    jw = 1j * w
+    scale = np.sqrt(20.0 / nw)
+
+    start = _starting_points(w, log_h, zero, free_zero)  # (N, S, p)
+    n_start, p = start.shape[1], start.shape[2]
+    rows = start.reshape(n_sys * n_start, p)
+    log_h_rows = np.repeat(log_h, n_start, axis=0)
+    zero_rows = np.repeat(zero, n_start)
+
+    # Sign of Kq per start: the better of the two at the starting point.
+    cost_sign = []
+    for s in (1.0, -1.0):
+        sgn = np.full(rows.shape[0], s)
+        cost_sign.append(
+            _evaluate(rows, sgn, zero_rows, jw, log_h_rows, free_zero, scale, want_jac=False)[1]
+        )
+    sign_rows = np.where(cost_sign[1] < cost_sign[0], -1.0, 1.0)
+
+    par, cost, conv = _levenberg_marquardt(
+        rows, sign_rows, zero_rows, jw, log_h_rows, free_zero, scale, max_iterations
+    )
+    cost = np.where(np.isfinite(cost), cost, np.inf).reshape(n_sys, n_start)
+    best = np.argmin(cost, axis=1)
+    idx = np.arange(n_sys) * n_start + best
+    par_b, sign_b, conv_b = par[idx], sign_rows[idx], conv[idx]
+
+    def shaped(x):
+        return np.asarray(x).reshape(batch)
+
+    zero_out = np.exp(par_b[:, _LN_ZERO]) if free_zero else zero
+    return EquivalentFit(
+        damping_ratio=shaped(np.exp(par_b[:, _LN_Z])),
+        natural_frequency=shaped(np.exp(par_b[:, _LN_W])),
+        time_delay=shaped(par_b[:, _TAU]),
+        gain=shaped(sign_b * np.exp(par_b[:, _LN_K])),
+        inv_t_theta2=shaped(zero_out),
+        mismatch=shaped(cost[np.arange(n_sys), best]),
+        converged=shaped(conv_b),
+    )
