@@ -150,13 +150,13 @@ def _touch_brackets(f, lw, rows_ok, tol, fn_builder):
     sign = np.where(peak[r, i], 1.0, -1.0)
     fn = fn_builder(r, i + 1)
     x, fx = _golden_max(lambda z: sign * fn(z), lw[i], lw[i + 2])
-    crossed = fx * 1.0 >= 0.0
-    r, i, x, sign = r[crossed], i[crossed], x[crossed], sign[crossed]
+    crossed = fx >= 0.0
+    r, i, x, sign, fx = r[crossed], i[crossed], x[crossed], sign[crossed], fx[crossed]
     lo = np.concatenate([lw[i], x])
     hi = np.concatenate([x, lw[i + 2]])
     rows = np.concatenate([r, r])
     ii = np.concatenate([i, i])
-    f_lo = f[rows, ii]
+    f_lo = np.concatenate([f[r, i], sign * fx])  # value at each bracket's left end
     return rows, lo, hi, f_lo, ii + 1
 
 

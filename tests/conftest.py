@@ -1,0 +1,49 @@
+"""Shared test helpers."""
+
+import os
+import sys
+
+import numpy as np
+import pytest
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+if ROOT not in sys.path:
+    sys.path.insert(0, ROOT)
+
+from damper.model.airframe import Derivatives  # noqa: E402
+
+#: Textbook general-aviation example (Nelson, Flight Stability and Automatic Control,
+#: 2nd ed., chapter 4): published dimensional derivatives, from memory, converted
+#: from ft to m. u0 = 176 ft/s.
+FT = 0.3048
+TEXTBOOK_GA = Derivatives(
+    airspeed=np.asarray(176 * FT),
+    Z_alpha=np.asarray(-355.42 * FT),
+    Z_q=np.asarray(0.0),
+    Z_delta=np.asarray(-28.17 * FT),
+    M_alpha=np.asarray(-8.80),
+    M_alpha_dot=np.asarray(-0.90),
+    M_q=np.asarray(-2.05),
+    M_delta=np.asarray(-11.87),
+)
+
+
+@pytest.fixture
+def rng():
+    return np.random.default_rng(20261202)
+
+
+def random_derivatives(rng, n, unstable_fraction=0.0):
+    """Invented, physically plausible random derivatives (test data only)."""
+    v = rng.uniform(30, 250, n)
+    d = Derivatives(
+        airspeed=v,
+        Z_alpha=-rng.uniform(50, 1500, n),
+        Z_q=-rng.uniform(0, 5, n),
+        Z_delta=-rng.uniform(0, 60, n),
+        M_alpha=-rng.uniform(0.5, 40, n) * np.where(rng.uniform(size=n) < unstable_fraction, -0.3, 1.0),
+        M_alpha_dot=-rng.uniform(0, 1.5, n),
+        M_q=-rng.uniform(0.3, 5, n),
+        M_delta=-rng.uniform(3, 60, n),
+    )
+    return d
