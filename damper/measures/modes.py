@@ -94,7 +94,8 @@ class ClosedLoopModes:
     airframe_share : ndarray, shape (..., n)
         Participation of alpha and q in each eigenvalue's mode, 0..1.
     short_period : SecondOrderMode
-        The pair with the largest airframe participation (a complex pair or two real roots).
+        The pair with the largest airframe participation (a complex pair or two
+        real roots), judged by its weaker member.
     ambiguous : ndarray of bool
         Another mode shares the airframe states strongly (coalescence with the
         actuator/sensor/filter modes); the modal short period is then not well defined.
@@ -138,7 +139,8 @@ def closed_loop_modes(A, alpha_index: int, q_index: int) -> ClosedLoopModes:
     The short-period pair is picked by modal participation factors
     ``p_ki = |v_ki w_ik|`` (right and left eigenvectors) summed over alpha and
     q, normalised per mode. Candidates are the best complex pair and the best
-    two real roots; the larger summed share wins.
+    two real roots; the candidate whose weaker member has the larger share wins
+    (both roots of a short-period pair must be mostly airframe motion).
     """
     A = np.asarray(A, dtype=float)
     shape = A.shape[:-2]
@@ -161,7 +163,7 @@ def closed_loop_modes(A, alpha_index: int, q_index: int) -> ClosedLoopModes:
     upper = (~is_real) & (lam.imag > 0)
     share_c = np.where(upper, share, -np.inf)
     ic = np.argmax(share_c, -1)
-    score_c = 2.0 * np.take_along_axis(share_c, ic[..., None], -1)[..., 0]
+    score_c = np.take_along_axis(share_c, ic[..., None], -1)[..., 0]
     lam_c = np.take_along_axis(lam, ic[..., None], -1)[..., 0]
     # its conjugate partner: the lower-half eigenvalue closest to conj(lam_c)
     dist = np.where((~is_real) & (lam.imag < 0), np.abs(lam - np.conj(lam_c)[..., None]), np.inf)
@@ -172,9 +174,10 @@ def closed_loop_modes(A, alpha_index: int, q_index: int) -> ClosedLoopModes:
     order_r = np.argsort(-share_r, -1, kind="stable")
     ir1 = order_r[..., 0]
     ir2 = order_r[..., 1] if n > 1 else order_r[..., 0]
-    score_r = np.take_along_axis(share_r, ir1[..., None], -1)[..., 0] + np.take_along_axis(
-        share_r, ir2[..., None], -1
-    )[..., 0]
+    score_r = np.minimum(
+        np.take_along_axis(share_r, ir1[..., None], -1)[..., 0],
+        np.take_along_axis(share_r, ir2[..., None], -1)[..., 0],
+    )
 
     use_c = score_c >= score_r
     i1 = np.where(use_c, ic, ir1)
