@@ -7,37 +7,70 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..case.model import Case
+from ..measures.handling import control_anticipation, equivalent_system, load_factor_per_alpha, pitch_bandwidth
 from ..measures.margins import Margins, loop_margins
 from ..measures.modes import ClosedLoopModes, SecondOrderMode, bare_short_period, closed_loop_modes
+from ..model import airframe as af
+from ..model.batch import batch_shape, map_arrays
 from ..model.loop import Loop, StateLayout, closed_loop_matrix
+from ..requirements.criteria import CriteriaResult, evaluate
+from ..requirements.spec import Requirements, build_requirements, levels
 
 
 @dataclass(frozen=True)
 class Assessment:
-    """Measures of the loop at a batch of (condition, gain) points.
+    """Measures of the loop at a batch of (condition, gain) points (arrays of batch shape ``S``).
 
     Attributes
     ----------
     gains : ndarray
-        Pitch-rate gain K, s; shape ``S`` (the batch shape, conditions first).
+        Pitch-rate gain K, s.
     bare : SecondOrderMode
-        Bare-airframe short period (conditions only, broadcast to ``S``).
+        Bare-airframe short period (broadcasts against ``S``).
     modes : ClosedLoopModes
         Closed-loop eigen-analysis (delays as Pade of ``pade_order``).
     margins : Margins
         Loop broken at the actuator input (exact delays).
+    equivalent : EquivalentFit
+        Low-order equivalent system of q / pilot command (exact delays).
+    bandwidth : AttitudeBandwidth or None
+        Pitch-attitude bandwidth and phase delay, when computed.
+    n_alpha : ndarray
+        n/alpha of the bare airframe, g per rad.
+    inv_t_theta2 : ndarray
+        1/T_theta2 of the bare airframe, 1/s.
     layout : StateLayout
-        State order of the closed-loop model.
     pade_order : int or None
-        Pade order used for the delay in eigenvalue work (None: no delay).
+    criteria : CriteriaResult or None
+        Requirements evaluated, when requirements were given.
+    levels : dict or None
+        Best level met per criterion and overall (when a preset category is known).
     """
 
     gains: np.ndarray
     bare: SecondOrderMode
     modes: ClosedLoopModes
     margins: Margins
+    equivalent: object
+    bandwidth: object
+    n_alpha: np.ndarray
+    inv_t_theta2: np.ndarray
     layout: StateLayout
     pade_order: int | None
+    criteria: CriteriaResult | None = None
+    levels: dict | None = None
+
+    def damping_ratio(self, measure="equivalent"):
+        """Short-period damping ratio by `measure` ('equivalent' or 'modal')."""
+        return self.equivalent.damping_ratio if measure == "equivalent" else self.modes.short_period.damping_ratio
+
+    def natural_frequency(self, measure="equivalent"):
+        """Short-period natural frequency, rad/s, by `measure`."""
+        return self.equivalent.natural_frequency if measure == "equivalent" else self.modes.short_period.natural_frequency
+
+    def cap(self, measure="equivalent"):
+        """Control anticipation parameter, (rad/s^2)/g, with the `measure` frequency."""
+        return self.natural_frequency(measure) ** 2 / self.n_alpha
 
 
 def build_loop(case: Case, gains) -> Loop:
@@ -47,7 +80,7 @@ def build_loop(case: Case, gains) -> Loop:
     ----------
     case : Case
     gains : array_like
-        Shape ``()``, ``(n_conditions,)`` or ``(n_conditions, n_gains)``.
+        Shape ``()``, ``(n_conditions,)`` or ``(n_conditions, ...)``.
     """
     d = case.derivatives()
     g = np.asarray(gains, dtype=float)
@@ -57,37 +90,49 @@ def build_loop(case: Case, gains) -> Loop:
     if g.shape[0] != n:
         raise ValueError(f"gains have {g.shape[0]} rows for {n} conditions")
     extra = g.ndim - 1
-    d = _expand(d, extra)
+    if extra:
+        d = map_arrays(d, lambda a: a.reshape(a.shape + (1,) * extra))
     return Loop(d, case.loop.hardware(), g)
 
 
-def _expand(obj, extra):
-    from ..model.batch import map_arrays
-
-    return map_arrays(obj, lambda a: a.reshape(a.shape + (1,) * extra)) if extra else obj
-
-
-def assess_loop(loop: Loop, w=None) -> Assessment:
-    """Every measure of a batch of loops (any batch shape)."""
+def assess_loop(loop: Loop, w=None, requirements: Requirements | None = None, with_bandwidth=False) -> Assessment:
+    """Every measure of a batch of loops (any batch shape ``S``)."""
     A, _, layout = closed_loop_matrix(loop)
-    from ..model.batch import batch_shape
-
     shape = batch_shape(loop)
     A = np.broadcast_to(A, shape + A.shape[-2:])
     modes = closed_loop_modes(A, layout.alpha, layout.q)
     margins = loop_margins(loop, stable=modes.stable, w=w)
-    bare = bare_short_period(loop.airframe)
+    free_zero = bool(requirements.free_zero) if requirements is not None else False
+    equivalent = equivalent_system(loop, free_zero=free_zero)
+    need_bw = with_bandwidth or (requirements is not None and requirements.needs_bandwidth)
+    bandwidth = pitch_bandwidth(loop) if need_bw else None
     delay = loop.hardware.delay
-    return Assessment(
+    result = Assessment(
         gains=np.broadcast_to(np.asarray(loop.gain, dtype=float), shape),
-        bare=bare,
+        bare=bare_short_period(loop.airframe),
         modes=modes,
         margins=margins,
+        equivalent=equivalent,
+        bandwidth=bandwidth,
+        n_alpha=np.broadcast_to(load_factor_per_alpha(loop.airframe), shape),
+        inv_t_theta2=np.broadcast_to(af.inverse_t_theta2(loop.airframe), shape),
         layout=layout,
         pade_order=None if delay is None else int(delay.pade_order),
     )
+    if requirements is None:
+        return result
+    crit = evaluate(requirements.criteria, result)
+    lv = levels(requirements, result)
+    from dataclasses import replace
+
+    return replace(result, criteria=crit, levels=lv)
 
 
-def assess(case: Case, gains) -> Assessment:
-    """Assess `gains` (s) at every condition of `case`; see :func:`build_loop` for shapes."""
-    return assess_loop(build_loop(case, gains), w=case.settings.grid())
+def assess(case: Case, gains, with_bandwidth=True) -> Assessment:
+    """Assess `gains` (s) at every condition of `case` against its requirements."""
+    return assess_loop(
+        build_loop(case, gains), w=case.settings.grid(), requirements=case.requirements, with_bandwidth=with_bandwidth
+    )
+
+
+__all__ = ["Assessment", "assess", "assess_loop", "build_loop", "control_anticipation", "Margins", "ClosedLoopModes"]

@@ -12,10 +12,16 @@ import difflib
 import math
 from dataclasses import dataclass, field
 
-from ..errors import CaseError
+from ..errors import CaseError, kind
 from ..units import SI_UNIT_TEXT, parse_quantity
 
 REQUIRED = object()
+
+#: Keys whose frequency counts cycles per second (Hz), not radians per second.
+#: Every other ``frequency`` quantity is angular (rad/s) and refuses Hz, which
+#: pint would otherwise take as 1 rad/s (wrong by 2 pi). ``Quantity(cycles=...)``
+#: overrides this per spec.
+CYCLE_RATE_KEYS = frozenset({"sample_rate"})
 
 
 @dataclass(frozen=True)
@@ -24,7 +30,8 @@ class Quantity:
 
     ``dims`` lists the accepted dimensions; the first is the plain-number unit.
     The validated value is ``(si_value, dimension)`` when several dimensions are
-    accepted, else the SI float.
+    accepted, else the SI float. ``cycles`` marks a frequency counted in Hz
+    (None: decided by the key name, see :data:`CYCLE_RATE_KEYS`).
     """
 
     dims: tuple
@@ -35,9 +42,14 @@ class Quantity:
     low: float | None = None
     high: float | None = None
     nonzero: bool = False
+    cycles: bool | None = None
 
     def check(self, value, path):
-        si, dim = parse_quantity(value, self.dims, path)
+        cycles = self.cycles if self.cycles is not None else _last_key(path) in CYCLE_RATE_KEYS
+        si, dim = parse_quantity(value, self.dims, path, cycles)
+        got = ""
+        if isinstance(value, str) and dim == self.dims[0] and " ".join(value.split()) != _with_unit(si, dim):
+            got = f" (it is {_with_unit(si, dim)})"  # the user's unit converted, e.g. '300000 ft'
         if self.positive and not si > 0:
             raise CaseError("must be positive", path, value)
         if self.nonnegative and not si >= 0:
@@ -45,9 +57,9 @@ class Quantity:
         if self.nonzero and si == 0:
             raise CaseError("must not be zero", path, value)
         if self.low is not None and si < self.low:
-            raise CaseError(f"must be at least {self.low:g} {SI_UNIT_TEXT[self.dims[0]]}", path, value)
+            raise CaseError(f"must be at least {_with_unit(self.low, self.dims[0])}{got}", path, value)
         if self.high is not None and si > self.high:
-            raise CaseError(f"must be at most {self.high:g} {SI_UNIT_TEXT[self.dims[0]]}", path, value)
+            raise CaseError(f"must be at most {_with_unit(self.high, self.dims[0])}{got}", path, value)
         return (si, dim) if len(self.dims) > 1 else si
 
     def describe(self) -> str:
@@ -65,7 +77,12 @@ class Text:
 
     def check(self, value, path):
         if not isinstance(value, str):
-            raise CaseError(f"expected text, got {_kind(value)}", path, value)
+            hint = ""
+            if isinstance(value, bool):
+                hint = " (YAML reads yes, no, on, off, true, false that way; put the text in quotes)"
+            elif not isinstance(value, (dict, list)):
+                hint = " (put it in quotes to use it as text)"
+            raise CaseError(f"expected text, got {_kind(value)}{hint}", path, value)
         if not value.strip():
             raise CaseError("must not be empty", path, value)
         if len(value) > self.max_length:
@@ -89,6 +106,8 @@ class Integer:
         if isinstance(value, bool) or not isinstance(value, int):
             if isinstance(value, float) and value.is_integer():
                 value = int(value)
+            elif isinstance(value, float):
+                raise CaseError("must be a whole number", path, value)
             else:
                 raise CaseError(f"expected a whole number, got {_kind(value)}", path, value)
         if not self.low <= value <= self.high:

@@ -34,7 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..model.batch import flatten, take
-from ..model.loop import loop_response, loop_response_at_zero
+from ..model.loop import loop_response, loop_response_at_zero, loop_response_function
 
 DEFAULT_GRID = np.logspace(-3.0, 3.0, 601)  # rad/s
 TOUCH_DB = 1.0
@@ -204,9 +204,15 @@ def _margins_flat(loop, w, stable):
     g = turns + 0.5  # integer values of g are phase crossings (-180 deg mod 360)
     ok = np.all(np.isfinite(L), -1) & (np.asarray(loop.gain) != 0)
 
+    cache = {}
+
     def eval_L(rows, lwq):
-        sub = take(loop, rows)
-        return loop_response(sub, (10.0 ** lwq)[:, None])[:, 0]
+        key = id(rows)
+        hit = cache.get(key)
+        if hit is None or hit[0] is not rows:
+            hit = (rows, loop_response_function(take(loop, rows)))
+            cache[key] = hit
+        return hit[1]((10.0**lwq)[:, None])[:, 0]
 
     # ---- gain crossings -------------------------------------------------
     def gain_fn(rows, _i):

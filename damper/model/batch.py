@@ -18,11 +18,23 @@ def _is_array_like(value) -> bool:
     )
 
 
+_FIELDS: dict = {}
+
+
+def _fields_of(cls):
+    names = _FIELDS.get(cls)
+    if names is None:
+        skip = getattr(cls, "_structure", ())
+        names = tuple(f.name for f in dataclasses.fields(cls) if f.name not in skip)
+        _FIELDS[cls] = names
+    return names
+
+
 def map_arrays(obj, fn):
     """Return a copy of `obj` with `fn` applied to every numeric field, recursively.
 
-    Dataclasses are rebuilt with :func:`dataclasses.replace`; tuples are mapped
-    element-wise; other values (strings, ints marked as structure, None) are kept.
+    Dataclasses are rebuilt with the same field values except the numeric ones;
+    tuples are mapped element-wise; other values (strings, None) are kept.
     Fields listed in a class attribute ``_structure`` are never mapped.
     """
     if obj is None:
@@ -30,17 +42,17 @@ def map_arrays(obj, fn):
     if isinstance(obj, tuple):
         return tuple(map_arrays(o, fn) for o in obj)
     if dataclasses.is_dataclass(obj):
-        skip = getattr(obj, "_structure", ())
-        changes = {}
-        for field in dataclasses.fields(obj):
-            if field.name in skip:
-                continue
-            value = getattr(obj, field.name)
+        cls = type(obj)
+        values = dict(obj.__dict__)
+        for name in _fields_of(cls):
+            value = values[name]
             if _is_array_like(value):
-                changes[field.name] = fn(np.asarray(value, dtype=float))
-            elif dataclasses.is_dataclass(value) or isinstance(value, tuple):
-                changes[field.name] = map_arrays(value, fn)
-        return dataclasses.replace(obj, **changes)
+                values[name] = fn(np.asarray(value, dtype=float))
+            elif value is not None and (isinstance(value, tuple) or dataclasses.is_dataclass(value)):
+                values[name] = map_arrays(value, fn)
+        new = object.__new__(cls)
+        new.__dict__.update(values)
+        return new
     return obj
 
 

@@ -106,6 +106,15 @@ def feedback_response(loop: Loop, s):
     return out
 
 
+def _plant_expanded(x: Loop, s):
+    return actuator_response(x, s) * af.pitch_rate_response(x.airframe, s) * feedback_response(x, s)
+
+
+def _loop_expanded(x: Loop, s):
+    k = feedback_sign(x.airframe) * np.asarray(x.gain, dtype=float)
+    return k * _plant_expanded(x, s)
+
+
 def plant_response(loop: Loop, w):
     """``P(jw)``: filtered, delayed pitch-rate measurement per actuator command (1/s).
 
@@ -120,9 +129,7 @@ def plant_response(loop: Loop, w):
     -------
     ndarray of complex, shape ``S + (k,)``
     """
-    x = _with_axis(loop)
-    s = 1j * np.asarray(w, dtype=float)
-    return actuator_response(x, s) * af.pitch_rate_response(x.airframe, s) * feedback_response(x, s)
+    return _plant_expanded(_with_axis(loop), 1j * np.asarray(w, dtype=float))
 
 
 def loop_response(loop: Loop, w):
@@ -130,9 +137,16 @@ def loop_response(loop: Loop, w):
 
     Returns complex array of shape ``S + (k,)`` (dimensionless).
     """
+    return _loop_expanded(_with_axis(loop), 1j * np.asarray(w, dtype=float))
+
+
+def loop_response_function(loop: Loop):
+    """A fast evaluator ``f(w) -> L(jw)`` for a fixed loop (the expansion is done once).
+
+    ``w`` must broadcast against ``S + (k,)``.
+    """
     x = _with_axis(loop)
-    k = feedback_sign(x.airframe) * np.asarray(x.gain, dtype=float)
-    return k * plant_response(loop, w)
+    return lambda w: _loop_expanded(x, 1j * np.asarray(w, dtype=float))
 
 
 def loop_response_at_zero(loop: Loop):

@@ -1,0 +1,90 @@
+"""Generate docs/case-file.md from the schema: ``python -m damper.case.docgen > docs/case-file.md``."""
+
+from __future__ import annotations
+
+import math
+
+from . import schema
+
+HEADER = """# Case-file reference
+
+A case is one YAML file (loaded safely: plain data only, no tags that build objects; a key
+given twice in one section is an error). Every quantity is either a **plain number in the SI
+unit shown** or a **string with units** parsed by the pint units library, e.g. `"120 kt"`,
+`"8000 ft"`, `"1475 slug*ft**2"`, `"-2.1e6 N*m/rad"`, `"0.09 1/deg"`. Angles are radians
+when plain (`"10 deg"` is converted). Unknown keys are errors, with a suggestion for typos.
+
+**Derivatives** take their form from their dimension: per unit mass (Z) or per unit pitch
+inertia (M) when given as plain numbers or in `m/s^2`, `1/s^2`, `1/s`; with force or moment
+dimensions (`N/rad`, `N*m/rad`, `N*m*s/rad`) they are divided by the condition's mass or
+pitch inertia.
+
+**Altitude** is geopotential (pressure altitude in the standard atmosphere, what flight
+manuals use) unless `atmosphere.altitude_kind: geometric`.
+
+This page is generated from `damper/case/schema.py` (`python -m damper.case.docgen`);
+`tests/test_docs.py` checks it is current.
+"""
+
+
+def _default(spec):
+    d = spec.default
+    if d is schema.REQUIRED:
+        return "required"
+    if d is None:
+        return "absent"
+    if isinstance(d, dict):
+        return "see keys"
+    if isinstance(d, tuple) and not d:
+        return "none"
+    if isinstance(d, float):
+        return "0" if d == 0 else (f"{d:g}" if math.isfinite(d) else str(d))
+    return f"`{d}`"
+
+
+def _rows(section, path, out, groups):
+    grouped = {k for g in section.exactly_one for k in g}
+    for key, spec in section.fields.items():
+        full = f"{path}.{key}" if path else key
+        if isinstance(spec, schema.Section):
+            out.append(("section", full, spec, key in grouped))
+            _rows(spec, full, out, groups)
+        elif isinstance(spec, schema.Items) and isinstance(spec.item, schema.Section):
+            out.append(("list", full, spec, False))
+            _rows(spec.item, f"{full}[]", out, groups)
+        else:
+            out.append(("key", full, spec, key in grouped))
+
+
+def render() -> str:
+    rows = []
+    _rows(schema.CASE, "", rows, None)
+    lines = [HEADER]
+    table_open = False
+    for kind, path, spec, grouped in rows:
+        if kind in ("section", "list"):
+            doc = spec.doc if kind == "section" else (spec.doc or "") + " (a list)"
+            if isinstance(spec, schema.Items):
+                doc = (spec.item.doc or "") + " A list; each item has the keys below."
+            if grouped:
+                doc += " (one of a group: see above)"
+            lines.append(f"\n## `{path}`\n\n{doc}\n")
+            sec = spec if isinstance(spec, schema.Section) else spec.item
+            for group in getattr(sec, "exactly_one", ()):
+                lines.append(f"Give exactly one of: {', '.join('`' + g + '`' for g in group)}.\n")
+            for group in getattr(sec, "at_most_one", ()):
+                lines.append(f"Give at most one of: {', '.join('`' + g + '`' for g in group)}.\n")
+            lines.append("| key | type | default | meaning |\n|---|---|---|---|")
+            table_open = True
+            continue
+        if not table_open:
+            lines.append("\n## top level\n\n| key | type | default | meaning |\n|---|---|---|---|")
+            table_open = True
+        name = path.rsplit(".", 1)[-1]
+        default = "one of a group" if grouped else _default(spec)
+        lines.append(f"| `{name}` | {spec.describe().replace('|', '/')} | {default} | {spec.doc} |")
+    return "\n".join(lines) + "\n"
+
+
+if __name__ == "__main__":
+    print(render(), end="")

@@ -1,0 +1,61 @@
+"""Handling-qualities measures of the augmented aircraft (batched).
+
+* low-order equivalent system of the pitch-rate response to the pilot command
+  (pilot command summed with the damper at the actuator input), see
+  :mod:`damper.measures.equivalent`;
+* control anticipation parameter ``CAP = wn^2 / (n/alpha)`` with
+  ``n/alpha = (V / g) (1/T_theta2)`` from the bare airframe (equal to
+  ``-Z_alpha / g`` when ``Z_delta`` = 0; MIL-F-8785C usage, from memory);
+* pitch-attitude bandwidth and phase delay of ``theta / command = (q / command) / s``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..atmosphere import G0
+from ..model import airframe as af
+from ..model.batch import batch_shape, flatten, map_arrays
+from ..model.loop import Loop, pilot_pitch_rate_response
+from .equivalent import fit_equivalent_system, fit_frequencies
+
+BANDWIDTH_GRID = np.logspace(-2.0, 3.0, 501)  # rad/s
+
+
+def load_factor_per_alpha(d: af.Derivatives):
+    """n/alpha, g per rad: ``(V / g) (1/T_theta2)`` of the bare airframe."""
+    return np.asarray(d.airspeed) / G0 * af.inverse_t_theta2(d)
+
+
+def control_anticipation(natural_frequency, d: af.Derivatives):
+    """CAP = wn^2 / (n/alpha), (rad/s^2) per g."""
+    return np.asarray(natural_frequency) ** 2 / load_factor_per_alpha(d)
+
+
+def equivalent_system(loop: Loop, free_zero=False, w=None):
+    """Low-order equivalent system fit of every loop in the batch.
+
+    Returns
+    -------
+    EquivalentFit
+        Arrays with the loop's batch shape.
+    """
+    w = fit_frequencies() if w is None else np.asarray(w, dtype=float)
+    shape = batch_shape(loop)
+    H = pilot_pitch_rate_response(loop, w)
+    H = np.broadcast_to(H, shape + (w.size,))
+    zero = np.broadcast_to(af.inverse_t_theta2(loop.airframe), shape)
+    return fit_equivalent_system(w, H, zero, free_zero=free_zero)
+
+
+def pitch_bandwidth(loop: Loop):
+    """Pitch-attitude bandwidth and phase delay of every loop in the batch (arrays of the batch shape)."""
+    from .bandwidth import attitude_bandwidth
+
+    flat, shape = flatten(loop)
+
+    def response(w):  # w: (N, k) rad/s, one row per flat batch member
+        return pilot_pitch_rate_response(flat, w) / (1j * w)
+
+    result = attitude_bandwidth(response, BANDWIDTH_GRID)
+    return map_arrays(result, lambda a: a.reshape(shape))
