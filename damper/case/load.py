@@ -10,6 +10,7 @@ import numpy as np
 from ..atmosphere import RHO0, geopotential_from_geometric, standard_atmosphere
 from ..errors import CaseError
 from ..model.airframe import Derivatives, from_coefficients
+from ..requirements.spec import build_requirements
 from . import schema
 from .model import Aircraft, Case, Condition, ElementSpec, LoopSpec, Settings
 from .yamlio import read_yaml
@@ -30,13 +31,15 @@ def load_case(path) -> Case:
     path = os.fspath(path)
     try:
         with open(path, "rb") as fh:
-            data = fh.read(schema_max_bytes() + 1)
+            data = fh.read(schema_max_bytes() + 1)  # never read more than the limit
     except FileNotFoundError:
         raise CaseError("no such file", file=path) from None
     except IsADirectoryError:
         raise CaseError("is a directory, not a case file", file=path) from None
     except OSError as exc:
         raise CaseError(f"cannot read the file ({exc.strerror})", file=path) from None
+    except ValueError:  # e.g. a NUL character in the name
+        raise CaseError("is not a usable file name", file=path) from None
     return load_case_text(data, path)
 
 
@@ -49,20 +52,38 @@ def schema_max_bytes() -> int:
 def load_case_text(data, file="<case>") -> Case:
     """Validate a case given as bytes or text. `file` names it in messages."""
     if isinstance(data, str):
-        data = data.encode("utf-8")
+        data = data.encode("utf-8", "surrogatepass")
     sha = hashlib.sha256(data).hexdigest()
     try:
+        if len(data) > schema_max_bytes():
+            raise CaseError(f"is too large for a case file (more than {schema_max_bytes()} bytes)")
         try:
             text = data.decode("utf-8")
-        except UnicodeDecodeError:
-            raise CaseError("is not UTF-8 text") from None
+        except UnicodeDecodeError as exc:
+            line = data[: exc.start].count(b"\n") + 1
+            raise CaseError(
+                f"is not UTF-8 text (byte 0x{data[exc.start]:02x} on this line); save the file as UTF-8", line=line
+            ) from None
+        if text.startswith("\ufeff"):  # a byte-order mark some editors write
+            text = text[1:]
         doc = read_yaml(text)
         if doc is None:
-            raise CaseError("the file is empty")
+            raise CaseError("the file is empty (a case needs at least title, aircraft and conditions)")
         values = schema.check(doc)
         return _build(values, file, sha, doc)
     except CaseError as exc:
         raise exc.with_location(file=file) from None
+
+
+def _raw(doc, *keys):
+    """The value at a key path as the user wrote it (None if absent)."""
+    node = doc
+    for key in keys:
+        try:
+            node = node[key]
+        except (KeyError, IndexError, TypeError):
+            return None
+    return node
 
 
 def _line(doc, *keys):
@@ -135,10 +156,11 @@ def _build_loop(values, doc) -> LoopSpec:
             )
         if f["kind"] == "notch" and not f["depth_damping"] < f["width_damping"]:
             raise CaseError(
-                "a notch needs depth_damping < width_damping",
+                f"must be less than width_damping ({f['width_damping']:g}) for a notch (equal is no notch; "
+                "larger is a peak)",
                 f"loop.filters[{i}].depth_damping",
-                f["depth_damping"],
-                line=_line(doc, "loop", "filters", i),
+                _raw(doc, "loop", "filters", i, "depth_damping"),
+                line=_line(doc, "loop", "filters", i, "depth_damping") or _line(doc, "loop", "filters", i),
             )
         filters.append(ElementSpec(f["kind"], tuple((k, f[k]) for k in needed)))
     washout = values["washout"]
@@ -190,7 +212,12 @@ def _build(values, file, sha, doc) -> Case:
         try:
             air = standard_atmosphere(h)
         except ValueError as exc:
-            raise CaseError(str(exc), f"{path}.altitude", c["altitude"], line=line) from None
+            raise CaseError(
+                f"is {float(h):.6g} m geopotential: {exc}",
+                f"{path}.altitude",
+                _raw(doc, "conditions", i, "altitude"),
+                line=_line(doc, "conditions", i, "altitude") or line,
+            ) from None
         rho = float(air.density)
         a_sound = float(air.speed_of_sound)
         if c["airspeed"] is not None:
@@ -204,11 +231,13 @@ def _build(values, file, sha, doc) -> Case:
         mass = c["mass"] if c["mass"] is not None else aircraft.mass
         inertia = c["pitch_inertia"] if c["pitch_inertia"] is not None else aircraft.pitch_inertia
         if c["coefficients"] is not None:
-            for key in ("wing_area", "mean_chord"):
-                if getattr(aircraft, key) is None:
-                    raise CaseError(
-                        f"coefficients need aircraft.{key}", f"{path}.coefficients", line=_line(doc, "conditions", i, "coefficients")
-                    )
+            absent = [f"aircraft.{k}" for k in ("wing_area", "mean_chord") if getattr(aircraft, k) is None]
+            if absent:
+                raise CaseError(
+                    f"coefficients need {' and '.join(absent)}, which {'is' if len(absent) == 1 else 'are'} not given",
+                    f"{path}.coefficients",
+                    line=_line(doc, "conditions", i, "coefficients"),
+                )
             d = from_coefficients(
                 dynamic_pressure=qbar,
                 airspeed=v,
@@ -223,7 +252,10 @@ def _build(values, file, sha, doc) -> Case:
             d = _resolve_derivatives(c["derivatives"], mass, inertia, v)
             source = "derivatives"
         d = Derivatives(**{k: np.asarray(float(getattr(d, k))) for k in Derivatives.__dataclass_fields__})
+        _check_finite_model(d, path, name, line)
         warnings.extend(_physics_warnings(d, f"{path} ({name})"))
+        if c["coefficients"] is not None:
+            warnings.extend(_coefficient_warnings(c["coefficients"], f"{path} ({name})"))
         conditions.append(
             Condition(
                 name=name,
@@ -242,15 +274,36 @@ def _build(values, file, sha, doc) -> Case:
             )
         )
     loop = _build_loop(values["loop"], doc)
+    warnings.extend(_loop_warnings(loop))
     s = values["analysis"]
     if not s["frequency_low"] < s["frequency_high"]:
+        # blame the key the user wrote (both: frequency_low)
+        low_given = _raw(doc, "analysis", "frequency_low") is not None
+        high_given = _raw(doc, "analysis", "frequency_high") is not None
+        if low_given or not high_given:
+            other = "" if high_given else ", the default"
+            raise CaseError(
+                f"must be below analysis.frequency_high ({s['frequency_high']:g} 1/s{other})",
+                "analysis.frequency_low",
+                _raw(doc, "analysis", "frequency_low"),
+                line=_line(doc, "analysis", "frequency_low"),
+            )
         raise CaseError(
-            "analysis.frequency_low must be below analysis.frequency_high",
-            "analysis.frequency_low",
-            s["frequency_low"],
-            line=_line(doc, "analysis", "frequency_low"),
+            f"must be above analysis.frequency_low ({s['frequency_low']:g} 1/s, the default)",
+            "analysis.frequency_high",
+            _raw(doc, "analysis", "frequency_high"),
+            line=_line(doc, "analysis", "frequency_high"),
         )
     settings = Settings(s["frequency_low"], s["frequency_high"], s["points_per_decade"])
+    n_grid = len(settings.grid()) if np.log10(s["frequency_high"] / s["frequency_low"]) < 1e4 else np.inf
+    if n_grid > MAX_GRID_POINTS:
+        raise CaseError(
+            f"the margin-search grid would have {n_grid:.6g} points (decades x points_per_decade); at most "
+            f"{MAX_GRID_POINTS}: narrow frequency_low..frequency_high or lower points_per_decade",
+            "analysis",
+            line=_line(doc, "analysis"),
+        )
+    requirements = build_requirements(values["requirements"])
     return Case(
         title=values["title"],
         file=file,
@@ -260,9 +313,58 @@ def _build(values, file, sha, doc) -> Case:
         conditions=tuple(conditions),
         loop=loop,
         settings=settings,
+        requirements=requirements,
         warnings=tuple(warnings),
         raw=values,
     )
+
+
+#: Most margin-search grid points accepted (the default grid has 601).
+MAX_GRID_POINTS = 100_001
+
+
+def _check_finite_model(d: Derivatives, path, name, line):
+    """Refuse a condition whose numbers overflow (every input finite, their combination not)."""
+    from ..model.airframe import state_matrices
+
+    with np.errstate(all="ignore"):
+        A, B = state_matrices(d)
+        values = [float(getattr(d, k)) for k in Derivatives.__dataclass_fields__]
+        ok = np.all(np.isfinite(A)) and np.all(np.isfinite(B)) and all(np.isfinite(values))
+    if not ok:
+        raise CaseError(
+            "the short-period model of this condition is not finite (its numbers overflow); check the "
+            "magnitudes of airspeed, mass, inertia and derivatives",
+            path,
+            line=line,
+        )
+
+
+def _coefficient_warnings(coefficients, where):
+    """Per-degree values given as plain numbers (which are per radian) are the usual slip."""
+    out = []
+    cla = coefficients["CL_alpha"]
+    if 0 < cla < 0.5:
+        out.append(
+            f"{where}: CL_alpha = {cla:.4g} per rad is very small (usual 2 to 6 per rad): a per-degree value? "
+            f"write e.g. '{cla:.4g} 1/deg'"
+        )
+    return out
+
+
+def _loop_warnings(loop):
+    out = []
+    if loop.travel is not None and loop.travel > 1.0:
+        out.append(
+            f"loop.actuator.travel = {loop.travel:.4g} rad ({np.degrees(loop.travel):.4g} deg) is unusually large: "
+            "plain numbers are radians; write e.g. '10 deg'"
+        )
+    if loop.rate_limit is not None and loop.rate_limit > 10.0:
+        out.append(
+            f"loop.actuator.rate_limit = {loop.rate_limit:.4g} rad/s ({np.degrees(loop.rate_limit):.4g} deg/s) is "
+            "unusually large: plain numbers are rad/s; write e.g. '60 deg/s'"
+        )
+    return out
 
 
 def _physics_warnings(d: Derivatives, where: str):

@@ -224,6 +224,7 @@ class Case:
     conditions : tuple of Condition
     loop : LoopSpec
     settings : Settings
+    requirements : damper.requirements.spec.Requirements
     warnings : tuple of str
         Suspicious physics (analysed anyway).
     raw : dict
@@ -238,6 +239,7 @@ class Case:
     conditions: tuple
     loop: LoopSpec
     settings: Settings = field(default_factory=Settings)
+    requirements: object = None
     warnings: tuple = ()
     raw: dict = field(default_factory=dict, compare=False, repr=False)
 
