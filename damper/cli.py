@@ -19,7 +19,9 @@ CAUTION_SHORT = (
 
 #: Sub-command modules, in the order ``--help`` lists them.
 COMMAND_MODULES = (
+    "damper.commands.design",
     "damper.commands.assess",
+    "damper.commands.sweep",
 )
 
 

@@ -98,6 +98,8 @@ def condition_result(case, result, index) -> dict:
                 "eigenvalue": [num(modes.other_eigenvalue[index].real), num(modes.other_eigenvalue[index].imag)],
             },
             "delay_model": "none" if result.pade_order is None else f"pade order {result.pade_order}",
+            "equivalent": _equivalent(result, index),
+            "handling": _handling(result, index),
         },
         "margins": {
             "gain_margin_db": num(mg.gain_margin_db[index]),
@@ -121,7 +123,80 @@ def condition_result(case, result, index) -> dict:
             ],
             "delay_model": "exact",
         },
+        "criteria": _criteria(result, index),
+        "level": _level(result, index),
     }
+
+
+def _equivalent(result, index):
+    eq = result.equivalent
+    if eq is None:
+        return None
+    return {
+        "damping_ratio": num(eq.damping_ratio[index]),
+        "natural_frequency_rad_s": num(eq.natural_frequency[index]),
+        "time_delay_s": num(eq.time_delay[index]),
+        "gain_1_s": num(eq.gain[index]),
+        "inv_t_theta2_1_s": num(eq.inv_t_theta2[index]),
+        "mismatch": num(eq.mismatch[index]),
+        "converged": bool(eq.converged[index]),
+        "large_mismatch": bool(eq.mismatch[index] > MISMATCH_WARNING),
+        "delay_model": "exact",
+    }
+
+
+#: Mismatch above which a low-order equivalent system is said not to describe the
+#: aircraft well (a commonly quoted guideline of the LOES method; from memory).
+MISMATCH_WARNING = 10.0
+
+
+def _handling(result, index):
+    out = {
+        "n_alpha_g_per_rad": num(result.n_alpha[index]),
+        "cap_equivalent": num(result.cap("equivalent")[index]),
+        "cap_modal": num(result.cap("modal")[index]),
+    }
+    bw = result.bandwidth
+    if bw is not None:
+        out.update(
+            {
+                "attitude_phase_crossover_rad_s": num(bw.phase_crossover[index]),
+                "bandwidth_phase_rad_s": num(bw.bandwidth_phase[index]),
+                "bandwidth_gain_rad_s": num(bw.bandwidth_gain[index]),
+                "bandwidth_rad_s": num(bw.bandwidth[index]),
+                "phase_delay_s": num(bw.phase_delay[index]),
+            }
+        )
+    return out
+
+
+def _criteria(result, index):
+    cr = result.criteria
+    if cr is None:
+        return None
+    out = []
+    for k, c in enumerate(cr.criteria):
+        out.append(
+            {
+                "name": c.name,
+                "measure": c.measure or None,
+                "value": num(cr.values[(k,) + tuple(index)]),
+                "unit": c.kind.unit,
+                "lower": num(c.lower),
+                "upper": num(c.upper),
+                "slack": num(cr.slacks[(k,) + tuple(index)]),
+                "met": bool(cr.met[(k,) + tuple(index)]),
+                "source": c.source,
+            }
+        )
+    return out
+
+
+def _level(result, index):
+    lv = result.levels
+    if lv is None:
+        return None
+    return {k: int(v[index]) if int(v[index]) <= 3 else "worse than 3" for k, v in lv.items()}
 
 
 def provenance(case, command=None, seed=None) -> dict:

@@ -146,5 +146,7 @@ def levels(requirements: Requirements, measures, category=None):
                 met = evaluate([c], measures).met[0]
             best = np.where(met, level, 4 if best is None else best)
         per[name] = best
+    arrays = np.broadcast_arrays(*per.values(), np.asarray(measures.gains))[:-1]
+    per = {k: np.array(a) for k, a in zip(per, arrays)}
     overall = np.max(np.stack(list(per.values())), 0)
     return {"overall": overall, **per}

@@ -1,0 +1,84 @@
+"""``damper design CASE --out DIR``: choose the gain at every condition and write the run."""
+
+from __future__ import annotations
+
+import os
+import sys
+
+NAME = "design"
+
+
+def register(sub) -> str:
+    p = sub.add_parser(NAME, help="find the feasible gains and choose one at every condition; write a run directory")
+    p.add_argument("case", help="case file (YAML)")
+    p.add_argument("--out", required=True, metavar="DIR", help="run directory to create (refused if it holds an earlier run)")
+    p.add_argument("--force", action="store_true", help="replace the files of an earlier run in DIR")
+    p.add_argument(
+        "--policy",
+        choices=("balanced", "least_gain", "damping_target"),
+        default="balanced",
+        help="how to choose the gain inside the feasible set (default: balanced = most slack to the tightest requirement)",
+    )
+    p.add_argument("--target-damping", type=float, metavar="ZETA", help="damping ratio for --policy damping_target")
+    p.add_argument("--gain-min", type=float, metavar="K", help="lowest gain of the sweep, s")
+    p.add_argument("--gain-max", type=float, metavar="K", help="highest gain of the sweep, s")
+    p.add_argument("--points", type=int, default=161, help="gains in the sweep (default 161)")
+    p.add_argument("--no-plots", action="store_true", help="skip the plots")
+    return NAME
+
+
+def _check_args(args):
+    import math
+
+    from ..errors import DamperError
+
+    if args.policy == "damping_target" and args.target_damping is None:
+        raise DamperError("--policy damping_target needs --target-damping ZETA")
+    if args.target_damping is not None and not (math.isfinite(args.target_damping) and args.target_damping > 0):
+        raise DamperError(f"--target-damping = {args.target_damping}: must be a positive number")
+    for name in ("gain_min", "gain_max"):
+        v = getattr(args, name)
+        if v is not None and not (math.isfinite(v) and v > 0):
+            raise DamperError(f"--{name.replace('_', '-')} = {v}: must be a positive number of seconds")
+    if args.gain_min and args.gain_max and not args.gain_min < args.gain_max:
+        raise DamperError(f"--gain-min ({args.gain_min:g}) must be below --gain-max ({args.gain_max:g})")
+    if not 8 <= args.points <= 5000:
+        raise DamperError(f"--points = {args.points}: must be between 8 and 5000")
+
+
+def run(args, argv) -> int:
+    _check_args(args)
+    from ..analysis.search import SearchSettings, search
+    from ..case import load_case
+    from ..cli import CAUTION_SHORT, warn_case
+    from ..output.design_doc import design_document, design_table
+    from ..output.files import prepare_run_dir, write_atomic
+    from ..output.jsonout import dumps
+
+    case = load_case(args.case)
+    out = prepare_run_dir(args.out, force=args.force)
+    warn_case(case)
+    settings = SearchSettings(
+        gain_min=args.gain_min,
+        gain_max=args.gain_max,
+        points=args.points,
+        policy=args.policy,
+        damping_target=args.target_damping,
+    )
+    design = search(case, settings)
+    doc = design_document(case, design, command=" ".join(["damper", *argv]))
+    write_atomic(os.path.join(out, "design.json"), dumps(doc))
+    written = ["design.json"]
+    if not args.no_plots:
+        from ..output.plots import design_plots
+
+        paths = design_plots(case, design, out)
+        written.append(f"{len(paths)} plot files in plots/")
+    print(f"{case.title}")
+    print(design_table(doc))
+    print(f"wrote {', '.join(written)} to {out}")
+    print(CAUTION_SHORT)
+    bad = [c.name for c in design.conditions if not c.feasible]
+    if bad:
+        print(f"damper: {len(bad)} condition(s) have no gain meeting every requirement: {', '.join(bad)}", file=sys.stderr)
+    return 0

@@ -1,0 +1,109 @@
+"""Gain search: feasible intervals against an independent dense sweep with python-control."""
+
+import control
+import numpy as np
+import pytest
+
+from damper.analysis.assess import build_loop
+from damper.analysis.search import SearchSettings, search
+from damper.case import load_case_text
+from damper.model.loop import to_control
+
+# Invented test airframe (derivatives per unit mass/inertia); a slow servo (6 rad/s) makes
+# the modal damping rise to a peak of about 0.495 and fall again as the gain grows.
+BASE = """
+title: search test
+aircraft: {mass: 1000, pitch_inertia: 1500}
+conditions:
+  - name: c1
+    airspeed: 60
+    altitude: 0
+    derivatives: {Z_alpha: -120, M_alpha: -9, M_q: -0.8, M_delta: -14}
+loop:
+  actuator: {bandwidth: 6}
+"""
+
+
+def _case(requirements):
+    return load_case_text(BASE + requirements, "search-test.yaml")
+
+
+def _oracle_damping(case, gains):
+    """Damping of the complex short-period pair from python-control's closed-loop poles."""
+    loop = build_loop(case, np.asarray(gains)[None, :])
+    out = []
+    for j in range(len(gains)):
+        poles = control.feedback(to_control(loop, (0, j), "loop"), 1).poles()
+        pair = poles[np.abs(poles.imag) > 1e-9]
+        out.append(-pair[0].real / abs(pair[0]) if pair.size else np.nan)
+    return np.array(out)
+
+
+def _oracle_edges(case, lo, hi, zeta_lo, zeta_hi, n=4001):
+    k = np.logspace(np.log10(lo), np.log10(hi), n)
+    z = _oracle_damping(case, k)
+    ok = (z >= zeta_lo) & (z <= zeta_hi)
+    idx = np.nonzero(ok[:-1] != ok[1:])[0]
+    edges = []
+    for i in idx:  # linear interpolation of the crossing on the dense grid
+        target = zeta_lo if min(z[i], z[i + 1]) < zeta_lo <= max(z[i], z[i + 1]) else zeta_hi
+        t = (target - z[i]) / (z[i + 1] - z[i])
+        edges.append(k[i] * (k[i + 1] / k[i]) ** t)
+    return np.array(edges)
+
+
+def test_two_disjoint_intervals_match_the_oracle():
+    case = _case("requirements:\n  damping_measure: modal\n  damping_ratio: {min: 0.45, max: 0.49}\n")
+    res = search(case, SearchSettings(gain_min=1e-3, gain_max=10.0, points=121))
+    d = res.conditions[0]
+    assert len(d.intervals) == 2
+    ours = np.array([e for iv in d.intervals for e in iv])
+    want = _oracle_edges(case, 1e-2, 1.0, 0.45, 0.49)
+    assert want.size == 4
+    # Oracle: python-control closed-loop poles on a dense grid; tolerance 1e-3 relative
+    np.testing.assert_allclose(ours, want, rtol=1e-3)
+    bindings = [(lo.binding, hi.binding) for lo, hi in d.edges]
+    assert bindings == [("damping_ratio", "damping_ratio")] * 2
+    # the chosen gain lies inside the feasible set
+    assert any(a <= d.chosen_gain <= b for a, b in d.intervals)
+
+
+def test_edges_refined_to_1e4_relative():
+    case = _case("requirements:\n  damping_measure: modal\n  damping_ratio: {min: 0.45, max: 0.49}\n")
+    res = search(case, SearchSettings(gain_min=1e-3, gain_max=10.0, points=41))
+    d = res.conditions[0]
+    lo = d.intervals[0][0]
+    # just inside is feasible, 1e-4 outside is not [derived from the definition of an edge]
+    from damper.analysis.search import evaluate_points
+
+    inside = evaluate_points(case, np.array([0, 0]), np.array([lo * (1 + 2e-4), lo * (1 - 1e-4)]))
+    assert inside.criteria.all_met.tolist() == [True, False]
+
+
+def test_infeasible_condition_names_the_binding_requirement():
+    # By construction the damping peaks near 0.495 (see BASE): a 0.9 minimum cannot be met.
+    case = _case("requirements:\n  damping_measure: modal\n  damping_ratio: {min: 0.9, max: 1.3}\n  gain_margin: {min: 6}\n")
+    res = search(case, SearchSettings(gain_min=1e-3, gain_max=10.0, points=81))
+    d = res.conditions[0]
+    assert not d.feasible and d.intervals == ()
+    assert d.binding[0][0] == "damping_ratio"
+    # closest miss: the chosen gain sits at the damping peak, missing 0.9 by (0.9 - 0.495)/0.9
+    assert d.binding[0][1] == pytest.approx((0.495 - 0.9) / 0.9, abs=0.01)
+
+
+def test_policies():
+    req = "requirements:\n  damping_measure: modal\n  damping_ratio: {min: 0.45, max: 0.49}\n"
+    case = _case(req)
+    least = search(case, SearchSettings(gain_min=1e-3, gain_max=10.0, points=81, policy="least_gain")).conditions[0]
+    assert least.chosen_gain == pytest.approx(least.intervals[0][0], rel=1e-12)
+    target = search(
+        case, SearchSettings(gain_min=1e-3, gain_max=10.0, points=161, policy="damping_target", damping_target=0.47)
+    )
+    d = target.conditions[0]
+    z = target.chosen.modes.short_period.damping_ratio[0]
+    assert z == pytest.approx(0.47, abs=0.003)
+    assert any(a <= d.chosen_gain <= b for a, b in d.intervals)
+    balanced = search(case, SearchSettings(gain_min=1e-3, gain_max=10.0, points=81))
+    chosen_worst = balanced.chosen.criteria.worst_slack[0]
+    # balanced: no swept feasible gain has more worst-case slack than the chosen one
+    assert chosen_worst >= balanced.sweep.criteria.worst_slack[0][balanced.sweep.criteria.all_met[0]].max() - 1e-9
