@@ -6,7 +6,9 @@
 * control anticipation parameter ``CAP = wn^2 / (n/alpha)`` with
   ``n/alpha = (V / g) (1/T_theta2)`` from the bare airframe (equal to
   ``-Z_alpha / g`` when ``Z_delta`` = 0; MIL-F-8785C usage, from memory);
-* pitch-attitude bandwidth and phase delay of ``theta / command = (q / command) / s``.
+* pitch-attitude bandwidth and phase delay of ``theta / command = (q / command) / s``,
+  with the command counted positive nose-up (``-sign(M_delta)`` times the surface
+  command) so that the attitude response starts from -90 deg.
 """
 
 from __future__ import annotations
@@ -54,8 +56,12 @@ def pitch_bandwidth(loop: Loop):
 
     flat, shape = flatten(loop)
 
+    # pilot command counted positive nose-up: -sign(M_delta) times the surface command,
+    # so the attitude response starts at -90 deg like the criterion assumes
+    sense = -np.sign(np.asarray(flat.airframe.M_delta, dtype=float))[:, None]
+
     def response(w):  # w: (N, k) rad/s, one row per flat batch member
-        return pilot_pitch_rate_response(flat, w) / (1j * w)
+        return sense * pilot_pitch_rate_response(flat, w) / (1j * w)
 
     result = attitude_bandwidth(response, BANDWIDTH_GRID)
     return map_arrays(result, lambda a: a.reshape(shape))

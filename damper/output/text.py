@@ -77,7 +77,7 @@ def assess_table(doc) -> str:
                 fmt(m["disk_margin"], ".2f"),
             ]
         )
-    out = table(headers, rows)
+    out = table(headers, rows) + "\n\n" + handling_table(doc)
     legend = [
         "zeta: damping ratio; wn: natural frequency. Loop modes use a Pade delay; margins use the exact delay.",
         "GM/PM 'none': no such crossing (unbounded in that direction). Loop broken at the actuator input.",
@@ -85,3 +85,51 @@ def assess_table(doc) -> str:
     if notes:
         legend.append("* modal short period ambiguous (coalesces with a hardware mode): " + ", ".join(notes))
     return out + "\n" + "\n".join(legend)
+
+
+def handling_table(doc) -> str:
+    """Equivalent system, CAP, level and the requirements' verdict per condition."""
+    headers = [
+        "condition",
+        "equiv.\nzeta",
+        "equiv. wn\nrad/s",
+        "tau_e\ns",
+        "mismatch",
+        "CAP\n1/(s^2 g)",
+        "bandwidth\nrad/s",
+        "phase del.\ns",
+        "level",
+        "requirements",
+    ]
+    rows = []
+    for c in doc["conditions"]:
+        eq = c["closed_loop"].get("equivalent") or {}
+        h = c["closed_loop"].get("handling") or {}
+        crit = c.get("criteria") or []
+        failing = [k for k in crit if not k["met"]]
+        if not crit:
+            verdict = "-"
+        elif not failing:
+            verdict = "all met"
+        else:
+            verdict = "fails: " + ", ".join(
+                f"{k['name']} ({fmt(k['slack'], '+.2f', 'undefined')})" for k in failing
+            )
+        level = (c.get("level") or {}).get("overall", "-")
+        rows.append(
+            [
+                c["name"],
+                fmt(eq.get("damping_ratio"), ".3f"),
+                fmt(eq.get("natural_frequency_rad_s"), ".3g"),
+                fmt(eq.get("time_delay_s"), ".3f"),
+                fmt(eq.get("mismatch"), ".2f") + ("!" if eq.get("large_mismatch") else ""),
+                fmt(h.get("cap_equivalent"), ".3g"),
+                fmt(h.get("bandwidth_rad_s"), ".3g"),
+                fmt(h.get("phase_delay_s"), ".3f"),
+                str(level),
+                verdict,
+            ]
+        )
+    aligns = ["<"] + [">"] * 8 + ["<"]
+    note = "Equivalent system: pitch rate to pilot command, exact delays. ! mismatch large: a low-order equivalent does not describe the response well."
+    return table(headers, rows, aligns) + "\n" + note
