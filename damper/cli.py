@@ -22,6 +22,7 @@ COMMAND_MODULES = (
     "damper.commands.design",
     "damper.commands.assess",
     "damper.commands.sweep",
+    "damper.commands.respond",
 )
 
 

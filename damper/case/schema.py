@@ -464,6 +464,8 @@ ANALYSIS = Section(
     default={},
 )
 
+from .responses_schema import RESPONSES  # noqa: E402 (needs the spec classes above)
+
 CASE = Section(
     {
         "title": Text("Title of the study, shown in every output."),
@@ -471,6 +473,7 @@ CASE = Section(
         "atmosphere": ATMOSPHERE,
         "conditions": Items(CONDITION, "Flight conditions.", max_items=2000),
         "loop": LOOP,
+        "responses": RESPONSES,
         "analysis": ANALYSIS,
     },
     "A damper case.",

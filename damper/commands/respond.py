@@ -1,0 +1,73 @@
+"""``damper respond CASE --gain K``: time responses to pilot inputs and gusts with actuator limits."""
+
+from __future__ import annotations
+
+NAME = "respond"
+
+
+def register(sub) -> str:
+    a = sub.add_parser(
+        NAME,
+        help="simulate pilot inputs and gusts with the actuator's rate and travel limits, bare and with the damper",
+    )
+    a.add_argument("case", help="case file (YAML); inputs from its 'responses' section (default: a 2 deg doublet)")
+    a.add_argument(
+        "--gain", required=True, type=float, metavar="K", help="pitch-rate gain K in seconds (deg per deg/s)"
+    )
+    a.add_argument("--out", metavar="DIR", help="write CSV (one per condition and input), JSON and PNG/SVG plots here")
+    a.add_argument("--force", action="store_true", help="replace the files of an earlier run in DIR")
+    a.add_argument("--no-plots", action="store_true", help="with --out: skip the plots")
+    return NAME
+
+
+def run(args, argv) -> int:
+    import math
+    import os
+
+    from ..analysis.response import respond_case, response_spec
+    from ..case import load_case
+    from ..cli import CAUTION_SHORT, warn_case
+    from ..errors import DamperError
+    from ..output.files import prepare_run_dir, write_atomic
+    from ..output.jsonout import dumps
+    from ..output.response_plots import file_stem, plot_response, response_csv, response_document, response_table
+
+    if not math.isfinite(args.gain):
+        raise DamperError(f"--gain = {args.gain}: must be a finite number of seconds")
+    case = load_case(args.case)
+    warn_case(case)
+    out = prepare_run_dir(args.out, force=args.force) if args.out else None
+    spec = response_spec(case)
+    result = respond_case(case, args.gain, spec)
+    command = " ".join(["damper", *argv])
+    files = {}
+    if out:
+        stride = max(1, int(round(spec.output_step / spec.step)))
+        lim_r, lim_t = result.rate_limit, result.travel
+        for j, res in enumerate(result.responses):
+            for i, cond in enumerate(case.conditions):
+                bare, aug = res.bare.take(i), res.augmented.take(i)
+                stem = os.path.join(out, file_stem(i, cond.name, j, res.input.label))
+                paths = [write_atomic(stem + ".csv", response_csv(bare, aug, stride))]
+                if not args.no_plots:
+                    paths += plot_response(
+                        stem, bare, aug,
+                        title=f"{case.title}: {cond.name}",
+                        subtitle=f"{res.input.label}; K = {args.gain:g} s; dashed: actuator limits",
+                        rate_limit=lim_r, travel=lim_t, stride=stride,
+                    )
+                files[(i, j)] = [os.path.basename(p) for p in paths]
+    doc = response_document(case, result, command=command, files=files)
+    if out:
+        write_atomic(os.path.join(out, "responses.json"), dumps(doc))
+    print(f"{case.title}: time responses with K = {args.gain:g} s" + (" (default doublet)" if spec.default else ""))
+    print(response_table(doc))
+    for note in result.notes:
+        print(f"note: {note}")
+    if out:
+        n = sum(len(v) for v in files.values()) + 1
+        print(f"wrote {n} files to {out}")
+    else:
+        print("no files written (give --out DIR for CSV, JSON and plots)")
+    print(CAUTION_SHORT)
+    return 0
