@@ -46,6 +46,9 @@ def write_atomic(path, data) -> str:
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes 0600; give the usual file mode
         os.replace(tmp, path)
     except BaseException:
         try:
