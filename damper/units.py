@@ -58,6 +58,37 @@ SI_UNIT_TEXT = {
 
 _SAFE_UNIT_TEXT = re.compile(r"^[\w\s.*/()+\-^%]*$")
 
+#: The number a quantity string must start with (or inf/nan, refused later as non-finite).
+_LEADING_NUMBER = re.compile(
+    r"^[+-]?(?:(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?|inf(?:inity)?(?![\w])|nan(?![\w]))", re.IGNORECASE
+)
+#: A further number in the unit part; allowed only as an exponent (``m**2``, ``m^2``) or in ``1/s``.
+_INNER_NUMBER = re.compile(r"(?<![\w.])(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?")
+
+#: Longest quantity string accepted (a quantity is a number and a unit).
+MAX_QUANTITY_TEXT = 100
+
+#: Human name of each dimension, for "wrong kind of unit" messages.
+DIMENSION_WORDS = {
+    "dimensionless": "a plain number or an angle",
+    "length": "a length",
+    "time": "a time",
+    "speed": "a speed",
+    "frequency": "a frequency",
+    "frequency2": "1/s^2",
+    "mass": "a mass",
+    "area": "an area",
+    "inertia": "a moment of inertia",
+    "acceleration": "an acceleration",
+    "force": "a force",
+    "force_time": "a force times time",
+    "moment": "a moment",
+    "moment_time": "a moment times time",
+    "pressure": "a pressure",
+    "angular_rate": "an angular rate",
+    "angular_acceleration": "an angular acceleration",
+}
+
 
 @lru_cache(maxsize=1)
 def _registry():
@@ -72,7 +103,8 @@ def _parse(text: str):
     ureg = _registry()
     quantity = ureg.Quantity(text)
     base = quantity.to_base_units()
-    return float(base.magnitude), base.dimensionality
+    names = tuple(name for name, _ in quantity.unit_items())
+    return float(base.magnitude), base.dimensionality, names
 
 
 @lru_cache(maxsize=64)
@@ -80,7 +112,7 @@ def _dimensionality(name: str):
     return _registry().Quantity(DIMENSIONS[name]).dimensionality
 
 
-def parse_quantity(value, allowed, path="") -> tuple[float, str]:
+def parse_quantity(value, allowed, path="", cycles=False) -> tuple[float, str]:
     """Convert a case-file value to SI.
 
     Parameters
@@ -92,6 +124,12 @@ def parse_quantity(value, allowed, path="") -> tuple[float, str]:
         taken in the first one.
     path : str
         Key path, for error messages.
+    cycles : bool
+        For a ``frequency`` value: True if it counts cycles per second (a sample
+        rate, in Hz), False if it is an angular frequency (rad/s). pint takes
+        ``1 Hz = 1 rad/s`` (both are 1/s), which is wrong by 2 pi for an angular
+        frequency, so Hz is refused for angular frequencies and angle units are
+        refused for cycle rates.
 
     Returns
     -------
@@ -106,26 +144,49 @@ def parse_quantity(value, allowed, path="") -> tuple[float, str]:
         Wrong type, unparseable unit, wrong dimension or non-finite value.
     """
     if isinstance(value, bool):
-        raise CaseError("expected a number or a string with units, got true/false", path, value)
+        raise CaseError("expected a number or a string with units, got a yes/no value", path, value)
     if isinstance(value, (int, float)):
-        magnitude = float(value)
+        try:
+            magnitude = float(value)
+        except OverflowError:
+            raise CaseError("is too large (not a finite number)", path, value) from None
         dimension = allowed[0]
     elif isinstance(value, str):
         text = value.strip()
         if not text:
             raise CaseError("empty value; expected a number or a string with units", path, value)
+        if len(text) > MAX_QUANTITY_TEXT:
+            raise CaseError(f"is too long for a number with units (more than {MAX_QUANTITY_TEXT} characters)", path, value)
         try:  # YAML 1.1 reads '1e4' (no dot) as text: accept it as a plain number
             plain = float(text)
         except ValueError:
             plain = None
         if plain is not None:
-            return parse_quantity(plain, allowed, path)
+            if not math.isfinite(plain):  # '1e400', 'inf', 'nan': name the text as written
+                raise CaseError("must be a finite number", path, value)
+            return parse_quantity(plain, allowed, path, cycles)
         if not _SAFE_UNIT_TEXT.match(text) or "__" in text:
             raise CaseError("not a number with units (unexpected characters)", path, value)
+        lead = _LEADING_NUMBER.match(text)
+        if not lead:
+            raise CaseError(
+                f"needs a number before the unit (e.g. '1 {text}'; a unit alone is not a value)", path, value
+            )
+        unit_part = text[lead.end():]
+        for extra in _INNER_NUMBER.finditer(unit_part):
+            before = unit_part[: extra.start()].rstrip().rstrip("+-").rstrip()
+            if before.endswith("^") or before.endswith("**"):
+                continue  # an exponent: "m**2", "s^-1"
+            rest = unit_part[extra.end():].lstrip()
+            if extra.group() == "1" and rest.startswith("/"):
+                continue  # "1/deg", "1/s**2"
+            raise CaseError(
+                f"has a second number {extra.group()!r} after the first; write one number and a unit", path, value
+            )
         try:
-            magnitude, dimensionality = _parse(text)
+            magnitude, dimensionality, unit_names = _parse(text)
         except Exception as exc:  # pint raises many types; all mean "cannot parse"
-            raise CaseError(f"cannot read this as a quantity ({_short(exc)})", path, value) from None
+            raise CaseError(f"cannot read this as a number with units ({_short(exc)})", path, value) from None
         dimension = None
         for name in allowed:
             if dimensionality == _dimensionality(name):
@@ -133,17 +194,49 @@ def parse_quantity(value, allowed, path="") -> tuple[float, str]:
                 break
         if dimension is None:
             wanted = " or ".join(SI_UNIT_TEXT[a] for a in allowed)
-            got = str(dimensionality) if len(dimensionality) else "no dimension"
-            raise CaseError(f"wrong dimension {got}; expected {wanted}", path, value)
+            got = _dimension_word(dimensionality)
+            raise CaseError(f"wrong kind of unit ({got}); expected {wanted}", path, value)
+        if dimension == "frequency" and math.isfinite(magnitude):
+            hertz = any(n.endswith("hertz") for n in unit_names)
+            if hertz and not cycles:
+                raise CaseError(
+                    f"Hz is ambiguous for an angular frequency; write rad/s ({magnitude:.6g} Hz = "
+                    f"{2 * math.pi * magnitude:.6g} rad/s)",
+                    path,
+                    value,
+                )
+            if cycles and _has_angle(unit_names):
+                raise CaseError("is a rate of samples: give it in Hz (or 1/s), not as an angle per time", path, value)
     else:
-        raise CaseError(
-            f"expected a number or a string with units, got {type(value).__name__}", path, value
-        )
+        from .errors import kind
+
+        raise CaseError(f"expected a number or a string with units, got {kind(value)}", path, value)
     if not math.isfinite(magnitude):
         raise CaseError("must be a finite number", path, value)
     return magnitude, dimension
 
 
+def _dimension_word(dimensionality) -> str:
+    for name, word in DIMENSION_WORDS.items():
+        if dimensionality == _dimensionality(name):
+            return word
+    return str(dimensionality) if len(dimensionality) else "no dimension"
+
+
+@lru_cache(maxsize=256)
+def _is_angle_unit(name: str) -> bool:
+    _, root = _registry().get_root_units(name)
+    return "radian" in str(root)
+
+
+def _has_angle(unit_names) -> bool:
+    return any(_is_angle_unit(n) for n in unit_names)
+
+
 def _short(exc: Exception) -> str:
-    text = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-    return text[:80]
+    names = getattr(exc, "unit_names", None)
+    if names and isinstance(names, (tuple, list)):
+        return f"unknown unit {names[0]!r}"
+    if isinstance(exc, (ArithmeticError, ValueError)) and "too large" in str(exc):
+        return "a number is too large"
+    return "not a valid unit expression"

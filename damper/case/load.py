@@ -143,7 +143,8 @@ def _build_loop(values, doc) -> LoopSpec:
         for key in needed:
             if f.get(key) is None:
                 raise CaseError(
-                    f"a {f['kind']} filter needs {', '.join(needed)}; {key} is missing",
+                    f"a {f['kind']} filter needs {' and '.join(needed) if len(needed) < 3 else ', '.join(needed)}; "
+                    f"{key} is missing",
                     f"loop.filters[{i}]",
                     line=_line(doc, "loop", "filters", i),
                 )
@@ -163,6 +164,7 @@ def _build_loop(values, doc) -> LoopSpec:
                 line=_line(doc, "loop", "filters", i, "depth_damping") or _line(doc, "loop", "filters", i),
             )
         filters.append(ElementSpec(f["kind"], tuple((k, f[k]) for k in needed)))
+    _check_hardware_range(values, doc)
     washout = values["washout"]
     return LoopSpec(
         actuator=_element("lag", act),
@@ -322,19 +324,77 @@ def _build(values, file, sha, doc) -> Case:
 #: Most margin-search grid points accepted (the default grid has 601).
 MAX_GRID_POINTS = 100_001
 
+#: Largest magnitude of a short-period matrix entry (1/s, 1/s^2) damper computes with.
+#: Real airframes are below 1e4; far beyond, products in the loop overflow.
+MAX_MODEL_ENTRY = 1e8
+
+#: Range of hardware time constants (s) and frequencies (rad/s) damper computes with.
+HARDWARE_RANGE = (1e-6, 1e6)
+
+#: Longest and shortest non-zero total delay (computation delay plus half a sample), s.
+MAX_TOTAL_DELAY = 1.0
+MIN_TOTAL_DELAY = 1e-6
+
+_TIME_KEYS = ("time_constant", "lead_time_constant", "lag_time_constant")
+_FREQUENCY_KEYS = ("bandwidth", "natural_frequency", "frequency")
+
+
+def _check_hardware_range(values, doc):
+    """Refuse positive but absurd hardware numbers (e.g. 5e-324 s) before they overflow the loop model."""
+    low, high = HARDWARE_RANGE
+    sections = [(("loop", k), values[k]) for k in ("actuator", "rate_sensor", "washout")]
+    sections += [(("loop", "filters", i), f) for i, f in enumerate(values["filters"])]
+    for where, sec in sections:
+        if not sec:
+            continue
+        for key in _TIME_KEYS + _FREQUENCY_KEYS:
+            v = sec.get(key)
+            if v is None or (v == 0 and key == "lead_time_constant"):
+                continue
+            if not low <= v <= high:
+                unit = "s" if key in _TIME_KEYS else "rad/s"
+                path = ".".join(str(w) if not isinstance(w, int) else f"[{w}]" for w in where).replace(".[", "[")
+                raise CaseError(
+                    f"is outside the range damper computes with ({low:g} to {high:g} {unit})",
+                    f"{path}.{key}",
+                    _raw(doc, *where, key),
+                    line=_line(doc, *where, key) or _line(doc, *where),
+                )
+    total = values["delay"] + (0.5 / values["sample_rate"] if values["sample_rate"] else 0.0)
+    if 0.0 < total < MIN_TOTAL_DELAY:
+        key = "delay" if values["delay"] > 0 else "sample_rate"
+        raise CaseError(
+            f"gives a delay of {total:.3g} s, shorter than damper computes with ({MIN_TOTAL_DELAY:g} s; its Pade "
+            f"approximant would overflow): {'use 0' if key == 'delay' else 'leave the sample rate out'} for no delay",
+            f"loop.{key}",
+            _raw(doc, "loop", key),
+            line=_line(doc, "loop", key),
+        )
+    if total > MAX_TOTAL_DELAY:
+        raise CaseError(
+            f"half a sample ({0.5 / values['sample_rate']:.4g} s) plus the delay is {total:.4g} s; at most "
+            f"{MAX_TOTAL_DELAY:g} s",
+            "loop.sample_rate",
+            _raw(doc, "loop", "sample_rate"),
+            line=_line(doc, "loop", "sample_rate"),
+        )
+
 
 def _check_finite_model(d: Derivatives, path, name, line):
-    """Refuse a condition whose numbers overflow (every input finite, their combination not)."""
+    """Refuse a condition whose numbers overflow or are far outside physics (every input finite)."""
     from ..model.airframe import state_matrices
 
     with np.errstate(all="ignore"):
         A, B = state_matrices(d)
         values = [float(getattr(d, k)) for k in Derivatives.__dataclass_fields__]
-        ok = np.all(np.isfinite(A)) and np.all(np.isfinite(B)) and all(np.isfinite(values))
-    if not ok:
+        entries = np.abs(np.concatenate([np.ravel(A), np.ravel(B)]))
+        finite = bool(np.all(np.isfinite(entries))) and all(np.isfinite(values))
+        largest = float(np.max(entries)) if finite else np.inf
+    if not finite or largest > MAX_MODEL_ENTRY:
+        size = "is not finite (its numbers overflow)" if not finite else f"has an entry of {largest:.3g}"
         raise CaseError(
-            "the short-period model of this condition is not finite (its numbers overflow); check the "
-            "magnitudes of airspeed, mass, inertia and derivatives",
+            f"the short-period model of this condition {size}; damper computes with entries up to "
+            f"{MAX_MODEL_ENTRY:g}: check the units and magnitudes of airspeed, mass, inertia and derivatives",
             path,
             line=line,
         )

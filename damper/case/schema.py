@@ -12,7 +12,7 @@ import difflib
 import math
 from dataclasses import dataclass, field
 
-from ..errors import CaseError, kind
+from ..errors import CaseError, Raw, kind
 from ..units import SI_UNIT_TEXT, parse_quantity
 
 REQUIRED = object()
@@ -128,20 +128,24 @@ class Number:
     high: float | None = None
 
     def check(self, value, path):
+        raw = value
         if isinstance(value, str):
             try:
                 value = float(value)
             except ValueError:
-                raise CaseError("expected a plain number", path, value) from None
+                raise CaseError("expected a plain number (no units)", path, raw) from None
         if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise CaseError(f"expected a number, got {_kind(value)}", path, value)
-        value = float(value)
+            raise CaseError(f"expected a number, got {_kind(value)}", path, raw)
+        try:
+            value = float(value)
+        except OverflowError:
+            raise CaseError("is too large (not a finite number)", path, raw) from None
         if not math.isfinite(value):
-            raise CaseError("must be a finite number", path, value)
+            raise CaseError("must be a finite number", path, raw)
         if self.low is not None and value < self.low:
-            raise CaseError(f"must be at least {self.low:g}", path, value)
+            raise CaseError(f"must be at least {self.low:g}", path, raw)
         if self.high is not None and value > self.high:
-            raise CaseError(f"must be at most {self.high:g}", path, value)
+            raise CaseError(f"must be at most {self.high:g}", path, raw)
         return value
 
     def describe(self) -> str:
@@ -157,8 +161,8 @@ class Choice:
     default: object = REQUIRED
 
     def check(self, value, path):
-        if value not in self.options:
-            hint = _suggest(str(value), self.options)
+        if not isinstance(value, str) or value not in self.options:
+            hint = _suggest(str(value), self.options) if isinstance(value, str) else ""
             raise CaseError(f"must be one of {', '.join(self.options)}{hint}", path, value)
         return value
 
@@ -186,41 +190,54 @@ class Section:
         lines = getattr(value, "lines", {})
         for key in value:
             if key not in self.fields:
-                hint = _suggest(str(key), self.fields)
+                hint = _suggest(key, self.fields) if isinstance(key, str) else ""
+                if not hint:
+                    hint = _belongs_elsewhere(key, path)
+                if not hint and len(self.fields) <= 12:
+                    hint = f" (the keys here are {', '.join(self.fields)})"
                 raise CaseError(
-                    f"unknown key {key!r}{hint}", _join(path, str(key)), line=lines.get(key)
+                    f"unknown key {_show_key(key)}{hint}", _join(path, str(key)), line=lines.get(key)
                 )
         for group in self.exactly_one:
             given = [k for k in group if k in value]
-            if len(given) != 1:
-                what = "give exactly one of " + ", ".join(group)
-                if given:
-                    what += f" (found {', '.join(given)})"
-                raise CaseError(what, path, line=_first_line(value))
+            if not given:
+                raise CaseError(f"needs one of {_or(group)} (none is given)", path, line=_first_line(value))
+            if len(given) > 1:
+                raise CaseError(
+                    f"give only one of {_or(group)} (found {' and '.join(given)})",
+                    path,
+                    line=lines.get(given[1], _first_line(value)),
+                )
         for group in self.at_most_one:
             given = [k for k in group if k in value]
             if len(given) > 1:
-                raise CaseError(f"give at most one of {', '.join(group)} (found {', '.join(given)})", path)
+                raise CaseError(
+                    f"give at most one of {_or(group)} (found {' and '.join(given)})",
+                    path,
+                    line=lines.get(given[1], _first_line(value)),
+                )
         out = {}
         for key, spec in self.fields.items():
             sub = _join(path, key)
             if key in value:
                 item = value[key]
                 try:
-                    if item is None and spec.default is not REQUIRED and not isinstance(spec, Section):
-                        out[key] = spec.default
-                    elif item is None:
-                        raise CaseError("has no value", sub, None)
+                    if item is None:
+                        out[key] = _null(spec, sub)
                     else:
                         out[key] = spec.check(item, sub)
                 except CaseError as exc:
                     if exc.line is None and key in lines:
                         exc = exc.with_location(line=lines[key])
+                    texts = getattr(value, "texts", {})
+                    if isinstance(item, bool) and key in texts and exc.path == sub:
+                        exc = CaseError(exc.message, exc.path, Raw(texts[key]), exc.file, exc.line)
                     raise exc from None
             elif spec.default is REQUIRED:
                 in_group = any(key in g for g in self.exactly_one)
                 if not in_group:
-                    raise CaseError(f"missing required key {key!r}", path or "(top level)", line=_first_line(value))
+                    where = f"in {path}" if path else "at the top level"
+                    raise CaseError(f"missing required key {key!r} {where}", line=_first_line(value))
                 out[key] = None
             elif isinstance(spec, Section) and isinstance(spec.default, dict):
                 out[key] = spec.check(spec.default, sub)
@@ -244,18 +261,18 @@ class Items:
 
     def check(self, value, path):
         if not isinstance(value, list):
-            raise CaseError(f"expected a list, got {_kind(value)}", path, value)
+            raise CaseError(f"expected a list (items starting with '- '), got {_kind(value)}", path, value)
         if len(value) < self.min_items:
-            raise CaseError(f"needs at least {self.min_items} item(s)", path, value if value else [])
+            raise CaseError(f"needs at least {self.min_items} item{'s' if self.min_items > 1 else ''}", path, value)
         if len(value) > self.max_items:
-            raise CaseError(f"has more than {self.max_items} items", path)
+            raise CaseError(f"has more than {self.max_items} items ({len(value)})", path)
         lines = getattr(value, "lines", [])
         out = []
         for i, item in enumerate(value):
             sub = f"{path}[{i}]"
             try:
                 if item is None:
-                    raise CaseError("empty list item", sub)
+                    raise CaseError("empty list item (a '-' with nothing after it)", sub)
                 out.append(self.item.check(item, sub))
             except CaseError as exc:
                 if exc.line is None and i < len(lines):
@@ -268,23 +285,15 @@ class Items:
 
 
 def _kind(value) -> str:
-    if value is None:
-        return "nothing"
-    if isinstance(value, bool):
-        return "true/false"
-    if isinstance(value, dict):
-        return "a section"
-    if isinstance(value, list):
-        return "a list"
-    if isinstance(value, str):
-        return "text"
-    if isinstance(value, (int, float)):
-        return "a number"
-    return type(value).__name__
+    return kind(value)
 
 
 def _join(path, key):
     return f"{path}.{key}" if path else key
+
+
+def _last_key(path: str) -> str:
+    return path.rsplit(".", 1)[-1].split("[", 1)[0]
 
 
 def _first_line(value):
@@ -295,10 +304,72 @@ def _first_line(value):
 
 
 def _suggest(word, options):
-    close = difflib.get_close_matches(word, list(options), n=1, cutoff=0.6)
+    lower = {o.lower(): o for o in options}
+    if word.lower() in lower:  # case slips first: 'm_q' is 'M_q', not 'Z_q'
+        close = [lower[word.lower()]]
+    else:
+        close = difflib.get_close_matches(word, list(options), n=1, cutoff=0.6)
     if close:
         return f"; did you mean {close[0]!r}?"
     return ""
+
+
+def _or(keys) -> str:
+    keys = list(keys)
+    return ", ".join(keys[:-1]) + " or " + keys[-1] if len(keys) > 1 else "".join(keys)
+
+
+def _show_key(key) -> str:
+    from ..errors import _show
+
+    return _show(key)
+
+
+def _with_unit(si: float, dim: str) -> str:
+    unit = SI_UNIT_TEXT[dim]
+    return f"{si:g}" if dim == "dimensionless" else f"{si:g} {unit}"
+
+
+def _null(spec, path):
+    """The value of a key written with nothing after it (YAML null)."""
+    if spec.default is None or (isinstance(spec, Items) and spec.default in ((), [])):
+        if not isinstance(spec, Section):
+            return spec.default  # optional with no default value: empty means absent
+    if spec.default is REQUIRED or isinstance(spec, Section):
+        raise CaseError("has no value", path)
+    default = spec.default
+    if isinstance(spec, Quantity) and isinstance(default, (int, float)):
+        default = _with_unit(float(default), spec.dims[0])
+    raise CaseError(f"has no value; give one, or remove the key to use the default ({default})", path)
+
+
+def _belongs_elsewhere(key, path) -> str:
+    """'; it belongs in aircraft' when `key` is a known key of another section."""
+    root = globals().get("CASE")
+    if root is None or not isinstance(key, str):
+        return ""
+    found = []
+    stack = [("", root)]
+    while stack:
+        where, spec = stack.pop()
+        if isinstance(spec, Items):
+            stack.append((where + "[]", spec.item))
+        elif isinstance(spec, Section):
+            if key in spec.fields and where != _generic(path):
+                found.append(where or "the top level")
+            for k, sub in spec.fields.items():
+                stack.append((_join(where, k), sub))
+    if not found:
+        return ""
+    found = sorted(set(found))
+    return f"; it belongs in {' or '.join(found[:2])}"
+
+
+def _generic(path: str) -> str:
+    """``conditions[3].derivatives`` -> ``conditions[].derivatives``."""
+    import re
+
+    return re.sub(r"\[\d+\]", "[]", path)
 
 
 # ---------------------------------------------------------------------------
