@@ -1,0 +1,154 @@
+"""Design plots: files written and readable; the Bode annotations agree with the drawn curve."""
+
+import os
+import subprocess
+import sys
+import xml.etree.ElementTree as ET
+
+import numpy as np
+import pytest
+
+from damper.analysis.assess import assess
+from damper.analysis.search import SearchSettings, search
+from damper.case import load_case
+from damper.output import plots
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
+KINDS = ("root-locus", "loop-response", "gain-sweep")
+
+
+@pytest.fixture(scope="module")
+def demo():
+    case = load_case(DEMO)
+    return case, search(case)
+
+
+@pytest.fixture(scope="module")
+def written(demo, tmp_path_factory):
+    case, design = demo
+    out = tmp_path_factory.mktemp("run")
+    return out, plots.design_plots(case, design, out)
+
+
+def test_every_condition_gets_three_plots_in_two_formats(demo, written):
+    case, design = demo
+    out, paths = written
+    expected = {
+        os.path.join(str(out), "plots", f"{plots.safe_name(c.name)}-{kind}.{ext}")
+        for c in design.conditions
+        for kind in KINDS
+        for ext in ("png", "svg")
+    }
+    assert set(paths) == expected  # [derived] 3 plots x 2 formats per condition
+    assert len(paths) == 6 * len(case.conditions)
+    for p in paths:
+        assert os.path.getsize(p) > 5000, p  # [derived] an empty figure is already several kB
+    leftovers = [f for f in os.listdir(os.path.join(str(out), "plots")) if f.startswith(".tmp-")]
+    assert leftovers == []  # atomic writes leave no temporary file behind
+
+
+def test_png_files_are_images_of_sensible_size(written):
+    import matplotlib.image as mpimg
+
+    _, paths = written
+    for p in paths:
+        if not p.endswith(".png"):
+            continue
+        img = mpimg.imread(p)
+        h, w = img.shape[:2]
+        # [derived] figures are 10.5-11.5 in wide and 6.6-11 in high (the sweep grows with its notes) at 120 dpi
+        assert 1100 <= w <= 1500 and 700 <= h <= 1400, (p, img.shape)
+        assert img.shape[2] in (3, 4)
+        assert float(np.std(img[..., :3])) > 0.02, p  # not a blank canvas
+
+
+def test_svg_files_parse_as_xml(written):
+    _, paths = written
+    for p in paths:
+        if p.endswith(".svg"):
+            root = ET.parse(p).getroot()
+            assert root.tag.endswith("svg"), p
+            text = "".join(root.itertext())
+            assert "(rad/s)" in text or "gain K (s)" in text, p  # units on the axes (text kept as text)
+
+
+def _bode_at(case, assessment, i):
+    """Bode data on the case grid plus every annotated crossing frequency (exact points)."""
+    m = assessment.margins
+    extra = np.concatenate([m.gain_crossings_rad_s[i], m.phase_crossings_rad_s[i]])
+    extra = extra[np.isfinite(extra) & (extra > 0)]
+    w = np.unique(np.concatenate([case.settings.grid(), extra]))
+    return plots.bode_data(case, assessment, i, w=w)
+
+
+def _check_annotations(b, tol_db=0.02, tol_deg=0.05):
+    w = b.frequency_rad_s
+    for wc, pm in b.gain_crossings:
+        k = int(np.argmin(np.abs(w - wc)))
+        # [derived] a gain crossing is |L| = 1, i.e. 0 dB on the drawn curve
+        assert abs(b.gain_db[k]) < tol_db, (wc, b.gain_db[k])
+        # [derived] PM = phase + 180 deg (mod 360): the drawn phase minus PM is -180 (mod 360)
+        off = np.mod(b.phase_deg[k] - pm + 180.0 + 180.0, 360.0) - 180.0
+        assert abs(off) < tol_deg, (wc, b.phase_deg[k], pm)
+    for wp, gm in b.phase_crossings:
+        if wp == 0.0:
+            continue
+        k = int(np.argmin(np.abs(w - wp)))
+        # [derived] a phase crossing is phase = -180 deg (mod 360) on the drawn curve
+        off = np.mod(b.phase_deg[k] + 180.0 + 180.0, 360.0) - 180.0
+        assert abs(off) < tol_deg, (wp, b.phase_deg[k])
+        # [derived] GM = -20 log10 |L| at that frequency
+        assert abs(-b.gain_db[k] - gm) < tol_db, (wp, b.gain_db[k], gm)
+
+
+def test_bode_annotations_agree_with_the_drawn_response_at_the_chosen_gains(demo):
+    case, design = demo
+    for i in range(len(design.conditions)):
+        b = _bode_at(case, design.chosen, i)
+        assert b.gain == pytest.approx(design.conditions[i].chosen_gain, rel=1e-12)
+        gm = design.chosen.margins.gain_margin_db[i]
+        if np.isfinite(gm):
+            assert b.gain_margin_db == pytest.approx(gm)
+            assert any(g == pytest.approx(gm) for _, g in b.phase_crossings)  # the headline one is annotated
+        _check_annotations(b)
+
+
+def test_bode_annotations_with_gain_crossings(demo):
+    """At a high gain the loop crosses 0 dB (twice, with the washout): the PM annotations hold too."""
+    case, _ = demo
+    a = assess(case, np.full(len(case.conditions), 0.8), with_bandwidth=False)
+    seen = 0
+    for i in range(len(case.conditions)):
+        b = _bode_at(case, a, i)
+        _check_annotations(b)
+        seen += len(b.gain_crossings)
+        if np.isfinite(b.phase_margin_deg):
+            assert any(p == pytest.approx(b.phase_margin_deg) for _, p in b.gain_crossings)
+    assert seen >= len(case.conditions)  # [derived] 0.8 s is well above where |L| first reaches 1 (sweep data)
+
+
+def test_an_infeasible_condition_still_gets_its_plots(demo, tmp_path):
+    """Gains far above the feasible range (1-6 s, [derived] from the demo sweep): the closest miss is drawn."""
+    case, _ = demo
+    design = search(case, SearchSettings(gain_min=1.0, gain_max=6.0, points=21))
+    assert not design.conditions[0].feasible
+    paths = plots.root_locus(case, design, 0, tmp_path / "rl")
+    paths += plots.loop_response_plot(case, design, 0, tmp_path / "bode")
+    paths += plots.gain_sweep_plot(case, design, 0, tmp_path / "sweep")
+    assert len(paths) == 6 and all(os.path.getsize(p) > 5000 for p in paths)
+    text = "".join(ET.parse(str(tmp_path / "sweep.svg")).getroot().itertext())
+    assert "closest miss" in text
+
+
+def test_safe_names():
+    assert plots.safe_name("SL climb / fwd: 20 %") == "sl-climb-fwd-20"
+    assert plots.safe_name("../..") == "condition"
+    assert plots.safe_name("CON") == "condition-con"
+    assert plots.safe_name("10kft-cruise-aft") == "10kft-cruise-aft"
+
+
+def test_importing_the_module_does_not_import_matplotlib():
+    code = "import sys, damper.output.plots; print('matplotlib' in sys.modules)"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT, check=True)
+    assert out.stdout.strip() == "False"
