@@ -535,6 +535,12 @@ ANALYSIS = Section(
     default={},
 )
 
+def _requirements_spec():
+    from .requirements_schema import REQUIREMENTS
+
+    return REQUIREMENTS
+
+
 from .responses_schema import RESPONSES  # noqa: E402 (needs the spec classes above)
 
 CASE = Section(
@@ -544,6 +550,7 @@ CASE = Section(
         "atmosphere": ATMOSPHERE,
         "conditions": Items(CONDITION, "Flight conditions.", max_items=2000),
         "loop": LOOP,
+        "requirements": _requirements_spec(),
         "responses": RESPONSES,
         "analysis": ANALYSIS,
     },
