@@ -29,6 +29,7 @@ from .assess import Assessment, assess_loop
 
 POLICIES = ("balanced", "least_gain", "damping_target")
 EDGE_TOLERANCE = 1e-4  # relative, on the gain
+BARE_MEETS = "none: the bare airframe (K = 0) meets every requirement"
 _REFINE_STEPS = 40  # bisection steps in log10(K): ample for 1e-4 relative at any grid step
 
 
@@ -197,13 +198,29 @@ def search(case: Case, settings: SearchSettings | None = None) -> DesignResult:
         evaluate_points(case, r, outside).criteria.binding() if r.size else np.zeros(0, int)
     )
 
+    # --- the bare airframe (K = 0): does the first feasible interval reach down to it? ------
+    bare = evaluate_points(case, np.arange(n), np.zeros(n))
+    bare_ok = bare.criteria.all_met & ok[:, 0]
+
     designs = []
-    chosen_gain = np.empty(n)
     for i in range(n):  # bookkeeping per condition (no measures computed here)
         intervals, edges = _intervals(i, ok[i], gains[i], r, j, edge_gain, ok_a, binding_idx, names)
+        if bare_ok[i] and intervals:
+            intervals[0] = (0.0, intervals[0][1])
+            edges[0] = (Edge(0.0, "lower", BARE_MEETS), edges[0][1])
         designs.append((intervals, edges))
     # --- chosen gains ----------------------------------------------------------------------
     chosen_gain, reasons, feasible = _choose(case, settings, designs, gains, sweep, worst)
+    # where the most slack is at the bottom of the sweep and the bare airframe has more, K = 0
+    zero_better = bare_ok & (bare.criteria.worst_slack >= worst[:, 0]) & (np.argmax(np.where(ok, worst, -np.inf), 1) == 0)
+    if settings.policy == "balanced":
+        for i in np.nonzero(zero_better & feasible)[0]:
+            chosen_gain[i] = 0.0
+            reasons[i] = "the bare airframe already has the most slack: no damper gain needed here (K = 0)"
+    if settings.policy == "least_gain":
+        for i in np.nonzero(bare_ok & feasible)[0]:
+            chosen_gain[i] = 0.0
+            reasons[i] = "the bare airframe meets every requirement: least gain is K = 0"
     chosen = evaluate_points(case, np.arange(n), chosen_gain)
     out = []
     for i in range(n):

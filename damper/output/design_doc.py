@@ -57,6 +57,12 @@ def design_document(case, design, command=None) -> dict:
     }
 
 
+def _short(binding: str) -> str:
+    from ..analysis.search import BARE_MEETS
+
+    return {BARE_MEETS: "K=0 meets all", "sweep range": "end of sweep"}.get(binding, binding)
+
+
 def design_table(doc) -> str:
     """Terminal summary of a design: failing conditions first."""
     headers = [
@@ -80,7 +86,7 @@ def design_table(doc) -> str:
         eq = m["closed_loop"]["equivalent"] or {}
         sp = m["closed_loop"]["short_period"]
         intervals = ", ".join(f"{fmt(a, '.3g')}-{fmt(b, '.3g')}" for a, b in c["feasible_gains_s"]) or "none"
-        closed = "; ".join(f"{e['lower']['binding']} / {e['upper']['binding']}" for e in c["edges"]) or "-"
+        closed = "; ".join(f"{_short(e['lower']['binding'])} / {_short(e['upper']['binding'])}" for e in c["edges"]) or "-"
         if not c["feasible"]:
             closed = "misses: " + ", ".join(f"{f['name']} ({fmt(f['slack'], '+.2f')})" for f in c["failing_at_chosen_gain"])
         level = m["level"]["overall"] if m.get("level") else "-"
