@@ -273,8 +273,20 @@ def _build(values, file, sha, doc) -> Case:
                 derivatives=d,
                 source=source,
                 note=c["note"],
+                configuration=c.get("configuration"),
             )
         )
+    if not conditions and values["envelope"] is None:
+        raise CaseError("give a list of conditions, or an envelope with aerodynamics", "conditions", line=_line(doc, "title"))
+    if values["envelope"] is not None:
+        for key in ("wing_area", "mean_chord"):
+            if getattr(aircraft, key) is None:
+                raise CaseError(f"an envelope needs aircraft.{key} (its derivatives come from coefficients)", "envelope",
+                                line=_line(doc, "envelope"))
+        if values["aerodynamics"] is None:
+            raise CaseError("an envelope needs an aerodynamics section (coefficient tables against Mach)", "envelope",
+                            line=_line(doc, "envelope"))
+        _check_aero_tables(values["aerodynamics"], doc)
     loop = _build_loop(values["loop"], doc)
     warnings.extend(_loop_warnings(loop))
     s = values["analysis"]
@@ -449,3 +461,21 @@ def _physics_warnings(d: Derivatives, where: str):
     if float(d.Z_alpha) > 0:
         out.append(f"{where}: Z_alpha = {float(d.Z_alpha):.4g} m/s^2 is positive (lift normally gives Z_alpha < 0)")
     return out
+
+
+_TABLE_KEYS = ("CL_alpha", "CD", "CL_delta", "Cm_alpha", "Cm_alpha_dot", "Cm_q", "Cm_delta", "CL_q")
+
+
+def _check_aero_tables(aero, doc):
+    """Every coefficient table has one value per Mach breakpoint; Mach ascends."""
+    mach = aero["mach"]
+    if any(b <= a for a, b in zip(mach, mach[1:])):
+        raise CaseError("Mach breakpoints must ascend", "aerodynamics.mach", list(mach), line=_line(doc, "aerodynamics", "mach"))
+    for key in _TABLE_KEYS:
+        table = aero.get(key)
+        if table is not None and len(table) != len(mach):
+            raise CaseError(
+                f"has {len(table)} values for {len(mach)} Mach breakpoints",
+                f"aerodynamics.{key}",
+                line=_line(doc, "aerodynamics", key),
+            )

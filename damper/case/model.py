@@ -64,6 +64,8 @@ class Condition:
     source : str
         ``"derivatives"`` or ``"coefficients"``.
     note : str or None
+    configuration : str or None
+        Mass / CG configuration label (schedules interpolate within one configuration).
     """
 
     name: str
@@ -79,6 +81,7 @@ class Condition:
     derivatives: Derivatives
     source: str
     note: str | None = None
+    configuration: str | None = None
 
     @property
     def equivalent_airspeed(self) -> float:

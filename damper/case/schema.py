@@ -449,6 +449,8 @@ CONDITION = Section(
             ("inertia",), "Pitch inertia at this condition, kg m^2 (default: aircraft.pitch_inertia).", default=None, **_POS
         ),
         "note": Text("Free text shown in reports (e.g. the CG position).", default=None),
+        "configuration": Text("Mass / CG configuration this condition belongs to (a schedule interpolates "
+                              "derivatives only between conditions of the same configuration).", default=None),
         "derivatives": Section(DERIVATIVES.fields, DERIVATIVES.doc, default=REQUIRED),
         "coefficients": Section(COEFFICIENTS.fields, COEFFICIENTS.doc, default=REQUIRED),
     },
@@ -535,6 +537,12 @@ ANALYSIS = Section(
     default={},
 )
 
+def _envelope_specs():
+    from .envelope_schema import AERODYNAMICS, ENVELOPE, SCHEDULE
+
+    return ENVELOPE, AERODYNAMICS, SCHEDULE
+
+
 def _requirements_spec():
     from .requirements_schema import REQUIREMENTS
 
@@ -548,7 +556,10 @@ CASE = Section(
         "title": Text("Title of the study, shown in every output."),
         "aircraft": AIRCRAFT,
         "atmosphere": ATMOSPHERE,
-        "conditions": Items(CONDITION, "Flight conditions.", max_items=2000),
+        "conditions": Items(CONDITION, "Flight conditions (optional when an envelope is given).", max_items=2000, default=()),
+        "envelope": _envelope_specs()[0],
+        "aerodynamics": _envelope_specs()[1],
+        "schedule": _envelope_specs()[2],
         "loop": LOOP,
         "requirements": _requirements_spec(),
         "responses": RESPONSES,
