@@ -53,7 +53,7 @@ KINDS = {
         CriterionKind("cap", "control anticipation parameter", "(rad/s^2)/g", 0.05, False),
         CriterionKind("equivalent_time_delay", "equivalent time delay", "s", 0.02, False),
         CriterionKind("gain_margin", "gain margin (smallest of up and down)", "dB", 1.0, True),
-        CriterionKind("phase_margin", "phase margin", "deg", 5.0, True),
+        CriterionKind("phase_margin", "phase margin (magnitude at the nearest crossing)", "deg", 5.0, True),
         CriterionKind("delay_margin", "delay margin", "s", 0.01, True),
         CriterionKind("disk_margin", "symmetric disk margin", "-", 0.1, False),
         CriterionKind("other_mode_damping", "least damping of the other closed-loop modes", "-", 0.05, True),
@@ -126,7 +126,10 @@ def measure_values(criterion: Criterion, m) -> np.ndarray:
         both = np.minimum(up, down)
         return np.where(np.isinf(both), np.nan, both)
     if name == "phase_margin":
-        return m.margins.phase_margin_deg
+        # distance of the phase from -180 deg in either direction at the nearest gain
+        # crossing: a crossing with leading phase (e.g. the washout's low one, PM near -170)
+        # tolerates that much phase change; closed-loop stability is its own criterion
+        return np.abs(m.margins.phase_margin_deg)
     if name == "delay_margin":
         return m.margins.delay_margin_s
     if name == "disk_margin":
