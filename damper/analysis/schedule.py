@@ -207,6 +207,24 @@ def _smallest_margin_db(res):
     return np.where(np.isinf(out), np.nan, out)
 
 
+def _first_interval_best(score):
+    """Per row: the best score inside the lowest-gain feasible run (or the global best if none).
+
+    Keeping every breakpoint on the lowest feasible branch (least authority) keeps the
+    table smooth: a far larger gain elsewhere in the sweep may score as well but would make
+    the interpolation between breakpoints jump.
+    """
+    feasible = score >= 0
+    best = np.argmax(score, 1)
+    any_ok = feasible.any(1)
+    first = np.argmax(feasible, 1)
+    # end of the run starting at `first`
+    after = np.cumsum(~feasible & (np.arange(score.shape[1])[None, :] > first[:, None]), 1) > 0
+    in_run = feasible & ~after & (np.arange(score.shape[1])[None, :] >= first[:, None])
+    run_best = np.argmax(np.where(in_run, score, -np.inf), 1)
+    return np.where(any_ok, run_best, best)
+
+
 def design_gains(case, pts: PointSet, group, n_groups):
     """Max-min-slack gain per group of design points (batched sweep, then golden refinement)."""
     n = len(pts.labels)
@@ -221,7 +239,7 @@ def design_gains(case, pts: PointSet, group, n_groups):
     # group minimum over design points
     gw = np.full((n_groups, k.size), np.inf)
     np.minimum.at(gw, group, worst)
-    best = np.argmax(gw, 1)
+    best = _first_interval_best(gw)
     # golden refinement of log K in the neighbouring grid cells, all groups at once
     a = np.log10(k[np.clip(best - 1, 0, k.size - 1)])
     b = np.log10(k[np.clip(best + 1, 0, k.size - 1)])

@@ -24,6 +24,7 @@ def register(sub) -> str:
     p.add_argument("--gain-max", type=float, metavar="K", help="highest gain of the sweep, s")
     p.add_argument("--points", type=int, default=161, help="gains in the sweep (default 161)")
     p.add_argument("--no-plots", action="store_true", help="skip the plots")
+    p.add_argument("--no-report", action="store_true", help="skip the HTML report (rebuild it later with 'damper report DIR')")
     return NAME
 
 
@@ -65,20 +66,42 @@ def run(args, argv) -> int:
         policy=args.policy,
         damping_target=args.target_damping,
     )
-    design = search(case, settings)
-    doc = design_document(case, design, command=" ".join(["damper", *argv]))
+    command = " ".join(["damper", *argv])
+    design = search(case, settings) if case.conditions else None
+    doc = design_document(case, design, command=command)
     write_atomic(os.path.join(out, "design.json"), dumps(doc))
     written = ["design.json"]
-    if not args.no_plots:
+    if design is not None and not args.no_plots:
         from ..output.plots import design_plots
 
         paths = design_plots(case, design, out)
         written.append(f"{len(paths)} plot files in plots/")
+    schedule = None
+    if case.raw.get("schedule") is not None:
+        from ..analysis.schedule import design_schedule
+        from ..output.schedule_out import schedule_summary, write_schedule
+
+        schedule = design_schedule(case)
+        written += write_schedule(out, case, schedule, command=command)
+        if not args.no_plots:
+            from ..output.schedule_plots import schedule_plots
+
+            written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
+    if not args.no_report:
+        from ..output.report import write_report
+
+        write_report(out)
+        written.append("report.html")
     print(f"{case.title}")
-    print(design_table(doc))
+    if design is not None:
+        print(design_table(doc))
+    if schedule is not None:
+        print(schedule_summary(schedule))
     print(f"wrote {', '.join(written)} to {out}")
     print(CAUTION_SHORT)
-    bad = [c.name for c in design.conditions if not c.feasible]
+    bad = [c.name for c in design.conditions if not c.feasible] if design is not None else []
     if bad:
         print(f"damper: {len(bad)} condition(s) have no gain meeting every requirement: {', '.join(bad)}", file=sys.stderr)
+    if schedule is not None and not schedule.passed:
+        print(f"damper: the gain schedule fails verification: {schedule.message}", file=sys.stderr)
     return 0

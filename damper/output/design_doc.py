@@ -22,10 +22,75 @@ def requirements_list(case) -> list:
     ]
 
 
+def case_summary(case) -> dict:
+    """What the case describes (aircraft, flight conditions, loop hardware), SI, for the report."""
+    a, loop = case.aircraft, case.loop
+
+    def element(spec):
+        return spec.describe() if spec is not None else "ideal (unity)"
+
+    conds = []
+    for c in case.conditions:
+        d = c.derivatives
+        conds.append(
+            {
+                "name": c.name,
+                "note": c.note,
+                "derivative_source": c.source,
+                "airspeed_m_s": num(c.airspeed),
+                "equivalent_airspeed_m_s": num(c.equivalent_airspeed),
+                "altitude_m": num(c.altitude_input),
+                "geopotential_altitude_m": num(c.altitude),
+                "density_kg_m3": num(c.density),
+                "mach": num(c.mach),
+                "dynamic_pressure_pa": num(c.dynamic_pressure),
+                "mass_kg": num(c.mass),
+                "pitch_inertia_kg_m2": num(c.pitch_inertia),
+                "derivatives": {
+                    "Z_alpha_m_s2": num(d.Z_alpha),
+                    "Z_q_m_s": num(d.Z_q),
+                    "Z_delta_m_s2": num(d.Z_delta),
+                    "M_alpha_1_s2": num(d.M_alpha),
+                    "M_alpha_dot_1_s": num(d.M_alpha_dot),
+                    "M_q_1_s": num(d.M_q),
+                    "M_delta_1_s2": num(d.M_delta),
+                },
+            }
+        )
+    return {
+        "aircraft": {
+            "name": a.name,
+            "mass_kg": num(a.mass),
+            "pitch_inertia_kg_m2": num(a.pitch_inertia),
+            "wing_area_m2": None if a.wing_area is None else num(a.wing_area),
+            "mean_chord_m": None if a.mean_chord is None else num(a.mean_chord),
+        },
+        "altitude_kind": case.altitude_kind,
+        "conditions": conds,
+        "loop": {
+            "actuator": element(loop.actuator),
+            "actuator_rate_limit_rad_s": None if loop.rate_limit is None else num(loop.rate_limit),
+            "actuator_travel_rad": None if loop.travel is None else num(loop.travel),
+            "rate_sensor": element(loop.sensor),
+            "washout": element(loop.washout),
+            "filters": [f.describe() for f in loop.filters],
+            "computation_delay_s": num(loop.delay),
+            "sample_rate_hz": None if loop.sample_rate is None else num(loop.sample_rate),
+            "total_delay_s": num(loop.total_delay),
+            "pade_order": loop.pade_order,
+        },
+        "frequency_grid_rad_s": {
+            "low": num(case.settings.frequency_low),
+            "high": num(case.settings.frequency_high),
+            "points_per_decade": case.settings.points_per_decade,
+        },
+    }
+
+
 def design_document(case, design, command=None) -> dict:
     """Per condition: chosen gain, feasible intervals, edges and the measures at the chosen gain."""
     conds = []
-    for i, d in enumerate(design.conditions):
+    for i, d in enumerate(design.conditions if design is not None else ()):
         conds.append(
             {
                 "name": d.name,
@@ -54,6 +119,7 @@ def design_document(case, design, command=None) -> dict:
         "requirements": requirements_list(case),
         "conditions": conds,
         "provenance": provenance(case, command),
+        "case_summary": case_summary(case),
     }
 
 
