@@ -140,6 +140,21 @@ def loop_response(loop: Loop, w):
     return _loop_expanded(_with_axis(loop), 1j * np.asarray(w, dtype=float))
 
 
+def loop_response_rational(loop: Loop, w):
+    """``L(jw)`` without its pure delay (the rational part), shape ``S + (k,)``.
+
+    ``|L| = |rational part|`` (a delay is all-pass) and ``arg L = arg(rational) - w T``.
+    """
+    x = _with_axis(loop)
+    s = 1j * np.asarray(w, dtype=float)
+    k = feedback_sign(x.airframe) * np.asarray(x.gain, dtype=float)
+    out = k * actuator_response(x, s) * af.pitch_rate_response(x.airframe, s)
+    for element in x.hardware.feedback_elements():
+        if element is not x.hardware.delay:
+            out = out * element.response(s)
+    return out
+
+
 def loop_response_function(loop: Loop):
     """A fast evaluator ``f(w) -> L(jw)`` for a fixed loop (the expansion is done once).
 
