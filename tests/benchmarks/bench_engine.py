@@ -1,0 +1,193 @@
+"""Speed benchmark: damper's batched engine against the per-case python-control workflow
+and against the numerical floor, measured in ONE run on the same cases (ratios, not
+absolute times, are the result; the machine is shared and noisy).
+
+    python tests/benchmarks/bench_engine.py [--quick]
+
+(a) per-case python-control: build the loop from blocks (tf/ss, pade, series), close it
+    with ``feedback``, take the poles and the short-period damping, ``stability_margins``;
+(b) damper: ``closed_loop_matrix`` + ``closed_loop_modes`` + ``loop_margins`` on the batch
+    (every crossing, gain/phase/delay/disk margins);
+(c) floor: ``np.linalg.eigvals`` on the same stack + the loop's frequency response on the
+    same grid.
+Also the batched equivalent-system fit against a per-system scipy least_squares loop,
+``damper --help`` start-up and ``damper design`` on the largest demo case.
+Not collected by pytest (tests/benchmarks is excluded in pyproject.toml).
+"""
+
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+import time
+
+import numpy as np
+
+ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+sys.path.insert(0, ROOT)
+
+from damper.measures.margins import DEFAULT_GRID, loop_margins  # noqa: E402
+from damper.measures.modes import closed_loop_modes  # noqa: E402
+from damper.model.airframe import Derivatives, state_matrices  # noqa: E402
+from damper.model.elements import Delay, Lag, Washout  # noqa: E402
+from damper.model.loop import Hardware, Loop, closed_loop_matrix, loop_response  # noqa: E402
+
+TAU_ACT, TAU_GYRO, TAU_WASH, DELAY, PADE = 1 / 20.0, 0.01, 1.0, 0.02, 2
+
+
+def cases(n, seed=7):
+    """Invented random airframes and gains (benchmark data only)."""
+    rng = np.random.default_rng(seed)
+    d = Derivatives(
+        airspeed=rng.uniform(40, 250, n),
+        Z_alpha=-rng.uniform(80, 1500, n),
+        Z_q=np.zeros(n),
+        Z_delta=-rng.uniform(0, 40, n),
+        M_alpha=-rng.uniform(1, 30, n),
+        M_alpha_dot=-rng.uniform(0, 1, n),
+        M_q=-rng.uniform(0.4, 4, n),
+        M_delta=-rng.uniform(5, 50, n),
+    )
+    hw = Hardware(actuator=Lag(TAU_ACT), sensor=Lag(TAU_GYRO), washout=Washout(TAU_WASH), delay=Delay(np.asarray(DELAY), PADE))
+    return Loop(d, hw, rng.uniform(0.05, 0.6, n))
+
+
+def per_case_control(loop, idx):
+    """The idiomatic script: python-control objects per case."""
+    import control
+
+    A, B = state_matrices(loop.airframe)
+    act = control.tf([1], [TAU_ACT, 1])
+    gyro = control.tf([1], [TAU_GYRO, 1])
+    wash = control.tf([TAU_WASH, 0], [TAU_WASH, 1])
+    num, den = control.pade(DELAY, PADE)
+    dly = control.tf(num, den)
+    out = []
+    for i in idx:
+        air = control.ss(A[i], B[i], [[0.0, 1.0]], [[0.0]])
+        k = np.sign(loop.airframe.M_delta[i]) * loop.gain[i]
+        L = control.series(act, air, gyro, wash, dly) * k
+        cl = control.feedback(L, 1)
+        poles = cl.poles()
+        # short period: the complex pair nearest the bare airframe's frequency
+        wn, zeta, _ = control.damp(cl, doprint=False)
+        gm, pm, _, wpc, wgc, _ = control.stability_margins(L)
+        out.append((np.sort_complex(poles), gm, pm))
+    return out
+
+
+def damper_engine(loop):
+    A, _, lay = closed_loop_matrix(loop)
+    modes = closed_loop_modes(A, lay.alpha, lay.q)
+    margins = loop_margins(loop, stable=modes.stable)
+    return modes, margins
+
+
+def floor(loop):
+    A, _, _ = closed_loop_matrix(loop)
+    lam = np.linalg.eigvals(A)
+    L = loop_response(loop, DEFAULT_GRID[None, :])
+    return lam, L
+
+
+def timed(fn, *args, repeat=1):
+    best = np.inf
+    out = None
+    for _ in range(repeat):
+        t = time.perf_counter()
+        out = fn(*args)
+        best = min(best, time.perf_counter() - t)
+    return best, out
+
+
+def take(loop, sl):
+    from damper.model.batch import flatten, take as tk
+
+    flat, _ = flatten(loop)
+    return tk(flat, sl)
+
+
+def check_agreement(loop, sample):
+    """Poles and margins of (a) and (b) agree on a sample."""
+    sub = take(loop, sample)
+    ref = per_case_control(loop, sample)
+    modes, margins = damper_engine(sub)
+    worst_pole = 0.0
+    for j, (poles, gm, pm) in enumerate(ref):
+        ours = np.sort_complex(modes.eigenvalues[j])
+        worst_pole = max(worst_pole, np.max(np.abs(ours - poles) / np.maximum(1, np.abs(poles))))
+        if np.isfinite(gm) and gm > 1:
+            assert abs(margins.gain_margin_db[j] - 20 * np.log10(gm)) < 0.05, (j, margins.gain_margin_db[j], gm)
+    return worst_pole
+
+
+def bench_equivalent(n):
+    from scipy.optimize import least_squares
+
+    from damper.measures.equivalent import fit_equivalent_system, fit_frequencies
+    from damper.measures.handling import equivalent_system
+    from damper.model.airframe import inverse_t_theta2
+    from damper.model.loop import pilot_pitch_rate_response
+
+    loop = cases(n, seed=11)
+    t_batch, fit = timed(equivalent_system, loop)
+    w = fit_frequencies()
+    H = pilot_pitch_rate_response(loop, w)
+    z = inverse_t_theta2(loop.airframe)
+    m = min(n, 100)
+
+    def resid(p, h, zero):
+        kq, zeta, wn, tau = p
+        s = 1j * w
+        he = kq * (s + zero) * np.exp(-tau * s) / (s * s + 2 * zeta * wn * s + wn * wn)
+        r = he / h
+        return np.concatenate([20 * np.log10(np.abs(r)), np.sqrt(0.01745) * np.degrees(np.angle(r))])
+
+    t = time.perf_counter()
+    for i in range(m):
+        x0 = [fit.gain[i], np.clip(fit.damping_ratio[i] * 1.2, 0.01, 40), np.clip(fit.natural_frequency[i] * 0.9, 0.01, 400), 0.01]
+        least_squares(resid, x0, args=(H[i], z[i]), bounds=([-np.inf, 1e-3, 1e-3, 0], [np.inf, 50, 500, 1]))
+    t_loop = (time.perf_counter() - t) / m * n
+    return t_batch, t_loop
+
+
+def main(quick=False):
+    print(f"damper engine benchmark, {time.strftime('%Y-%m-%d')}, {os.cpu_count()} cores, numpy {np.__version__}")
+    sizes = [2000] if quick else [2000, 200_000]
+    m = 100 if quick else 300
+    for n in sizes:
+        loop = cases(n)
+        sample = np.arange(min(m, n))
+        t_a_sub, _ = timed(per_case_control, loop, sample)
+        t_a = t_a_sub / len(sample) * n  # per-case cost extrapolated from the sample
+        t_b, _ = timed(damper_engine, loop)
+        t_c, _ = timed(floor, loop)
+        err = check_agreement(loop, np.arange(min(50, n)))
+        print(f"N = {n:>7}: (a) python-control per case {t_a / n * 1e6:8.1f} us/case (measured on {len(sample)})")
+        print(f"           (b) damper batched          {t_b / n * 1e6:8.1f} us/case")
+        print(f"           (c) floor eigvals + L(jw)    {t_c / n * 1e6:8.1f} us/case")
+        print(f"           a/b = {t_a / t_b:7.1f}   b/c = {t_b / t_c:5.2f}   (poles agree to {err:.1e} relative)")
+    t_batch, t_loop = bench_equivalent(2000)
+    print(f"equivalent-system fit, 2000 systems: batched {t_batch:.2f} s, per-system least_squares {t_loop:.1f} s "
+          f"(extrapolated from 100): ratio {t_loop / t_batch:.0f}")
+    help_times = []
+    for _ in range(5):
+        t = time.perf_counter()
+        subprocess.run([sys.executable, "-m", "damper", "--help"], capture_output=True, check=True, cwd=ROOT)
+        help_times.append(time.perf_counter() - t)
+    print(f"damper --help: {min(help_times):.3f} s (best of 5)")
+    import tempfile
+
+    for case in ("cases/regional_twinjet_envelope.yaml", "cases/utility_single_uncertain.yaml"):
+        if not os.path.exists(os.path.join(ROOT, case)):
+            continue
+        with tempfile.TemporaryDirectory() as tmp:
+            t = time.perf_counter()
+            subprocess.run([sys.executable, "-m", "damper", "design", case, "--out", os.path.join(tmp, "run")],
+                           capture_output=True, check=True, cwd=ROOT)
+            print(f"damper design {case}: {time.perf_counter() - t:.1f} s")
+
+
+if __name__ == "__main__":
+    main(quick="--quick" in sys.argv)
