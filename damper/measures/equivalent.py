@@ -15,7 +15,7 @@ The mismatch (cost) is, as recalled from that guidance (from memory),
 
 with ``dG_i`` the gain difference in dB and ``dPhi_i`` the phase difference
 in degrees at the ``n`` fit frequencies.  The phase difference is the wrapped
-angle of ``H_e / H`` (in (-180, 180] deg), so the data never need unwrapping.
+angle of ``H_e / H`` (in [-180, 180) deg), so the data never need unwrapping.
 
 The numerator zero ``1/T_theta2`` is held at a value supplied by the caller
 (normally the bare-airframe value) unless ``free_zero=True``.
@@ -29,10 +29,23 @@ per iteration.  The parameters are ``ln w_e``, ``ln zeta_e`` (so both stay
 positive; ``zeta_e > 1`` is allowed), ``tau_e`` itself (projected onto
 ``tau_e >= 0``, with the bound treated as an active constraint when the
 gradient pushes against it), ``ln |Kq|`` (the sign of ``Kq`` is chosen per
-start from the data) and, with a free zero, ``ln(1/T_theta2)``.  Several
+start from the data) and, with a free zero, ``ln(1/T_theta2)``; a wide box
+(``zeta_e`` in [1e-4, 1e4], ``w_e`` and a free zero within a factor 1e4 of
+the fit band) only keeps degenerate fits finite.  Several
 starting points per system (one derived from the data, the others a small
 spread of damping ratios and frequencies around it) are iterated in the same
-batch and the lowest-cost result is kept per system.
+batch and the lowest-cost result is kept per system.  Because the phase
+mismatch is wrapped, ``J`` is multi-modal in ``tau_e`` once ``tau_e w``
+exceeds about 180 deg in the band; each start's delay and gain sign are
+therefore taken from a cheap scan of the phase part of ``J`` (0 to 0.5 s
+for the default band) before the iteration.  Each system keeps its
+own damping and stopping test and is frozen once stopped, so its result does
+not depend on the rest of the batch.
+
+When the best match is really first-order (a real pole pair whose fast pole
+leaves the band), ``zeta_e`` and ``w_e`` drift together to large values
+along a flat valley of ``J``; they are then not meaningful one by one and
+``converged`` may be False at the default iteration limit.
 
 The functions are pure; results are returned in a frozen dataclass.
 """
@@ -61,6 +74,11 @@ _LAMBDA_MAX = 1e12
 _FTOL = 1e-14  # relative cost reduction regarded as no progress
 _XTOL = 1e-11  # step size (log units / s) regarded as no progress
 _COST_FLOOR = 1e-26  # cost regarded as an exact fit
+
+# Parameter box (only reached by degenerate fits): w_e and a free 1/T_theta2
+# within [w[0] * 1e-4, w[-1] * 1e4] rad/s, zeta_e within [1e-4, 1e4].
+_W_RANGE = 1e-4
+_ZETA_RANGE = (1e-4, 1e4)
 
 # Indices into the parameter vector.
 _LN_W, _LN_Z, _TAU, _LN_K, _LN_ZERO = 0, 1, 2, 3, 4
@@ -135,46 +153,57 @@ def _wrap(x: np.ndarray) -> np.ndarray:
     return (x + np.pi) % (2.0 * np.pi) - np.pi
 
 
-def _evaluate(params, sign, zero_fixed, jw, log_h, free_zero, scale, want_jac=True):
+def _evaluate(params, target, zero_fixed, w, free_zero, scale, want_jac=True):
     """Residuals, cost and (optionally) Jacobian for a stack of parameter rows.
 
-    ``params`` (M, p); ``sign`` (M,) +-1; ``zero_fixed`` (M,) 1/s; ``jw``
-    (nw,) complex rad/s; ``log_h`` (M, nw) complex natural log of the data.
-    Returns residuals (M, 2 nw), cost (M,) and Jacobian (M, 2 nw, p).
+    ``params`` (M, p); ``target`` (M, nw) complex: natural log of the data
+    minus ``i pi`` for a negative gain sign and, with a fixed zero, minus
+    ``ln(jw + 1/T_theta2)``; ``zero_fixed`` (M,) 1/s (unused when the zero is
+    free); ``w`` (nw,) rad/s.  Returns residuals (M, 2 nw), cost (M,) and
+    Jacobian (M, 2 nw, p), all in real arithmetic.
     """
     w_e = np.exp(params[:, _LN_W])[:, None]
     zeta = np.exp(params[:, _LN_Z])[:, None]
     tau = params[:, _TAU][:, None]
     ln_k = params[:, _LN_K][:, None]
-    zero = np.exp(params[:, _LN_ZERO])[:, None] if free_zero else zero_fixed[:, None]
 
-    num = jw + zero  # (M, nw)
-    two_zw_jw = 2.0 * zeta * w_e * jw
-    den = jw * jw + two_zw_jw + w_e * w_e
-    log_model = ln_k + np.log(num) - tau * jw - np.log(den)
-    log_model = log_model + np.where(sign < 0, 1j * np.pi, 0.0)[:, None]
-    diff = log_model - log_h
-    d_gain = _DB_PER_NEPER * diff.real  # dB
-    d_phase = _DEG_PER_RAD * _wrap(diff.imag)  # deg
-    root_w = np.sqrt(PHASE_WEIGHT)
-    res = scale * np.concatenate([d_gain, root_w * d_phase], axis=1)
+    # denominator D(jw) = (w_e^2 - w^2) + j (2 zeta w_e w)
+    w_e2 = w_e * w_e
+    d_re = w_e2 - w * w
+    d_im = 2.0 * zeta * w_e * w
+    mag2 = d_re * d_re + d_im * d_im
+    log_gain = ln_k - 0.5 * np.log(mag2) - target.real  # natural-log units
+    phase = -tau * w - np.arctan2(d_im, d_re) - target.imag  # rad
+    if free_zero:
+        zero = np.exp(params[:, _LN_ZERO])[:, None]
+        n_mag2 = zero * zero + w * w
+        log_gain = log_gain + 0.5 * np.log(n_mag2)
+        phase = phase + np.arctan2(w, zero)
+    nw = w.size
+    c_gain = scale * _DB_PER_NEPER
+    c_phase = scale * np.sqrt(PHASE_WEIGHT) * _DEG_PER_RAD
+    res = np.empty((params.shape[0], 2 * nw))
+    res[:, :nw] = c_gain * log_gain
+    res[:, nw:] = c_phase * _wrap(phase)
     cost = np.einsum("ij,ij->i", res, res)
     if not want_jac:
         return res, cost, None
 
-    # d(ln H_e)/d(parameter), complex, each (M, nw)
-    cols = [
-        -(two_zw_jw + 2.0 * w_e * w_e) / den,  # d/d ln w_e
-        -two_zw_jw / den,  # d/d ln zeta
-        -jw * np.ones_like(den),  # d/d tau
-        np.ones_like(den),  # d/d ln|K|
-    ]
-    if free_zero:
-        cols.append(zero / num)  # d/d ln(1/T_theta2)
-    dlog = np.stack(cols, axis=-1)  # (M, nw, p)
-    jac = scale * np.concatenate(
-        [_DB_PER_NEPER * dlog.real, root_w * _DEG_PER_RAD * dlog.imag], axis=1
-    )
+    # d ln H_e / d p = -(dD/dp) conj(D) / |D|^2 for the denominator parameters
+    jac = np.empty((params.shape[0], 2 * nw, params.shape[1]))
+    inv = 1.0 / mag2
+    a_re = 2.0 * w_e2  # dD/d ln w_e = 2 w_e^2 + j d_im
+    jac[:, :nw, _LN_W] = -c_gain * (a_re * d_re + d_im * d_im) * inv
+    jac[:, nw:, _LN_W] = -c_phase * (d_im * d_re - a_re * d_im) * inv
+    jac[:, :nw, _LN_Z] = -c_gain * (d_im * d_im) * inv  # dD/d ln zeta = j d_im
+    jac[:, nw:, _LN_Z] = -c_phase * (d_im * d_re) * inv
+    jac[:, :nw, _TAU] = 0.0  # d/d tau = -j w
+    jac[:, nw:, _TAU] = -c_phase * w
+    jac[:, :nw, _LN_K] = c_gain  # d/d ln|K| = 1
+    jac[:, nw:, _LN_K] = 0.0
+    if free_zero:  # d ln(jw + z)/d ln z = z (z - jw) / (z^2 + w^2)
+        jac[:, :nw, _LN_ZERO] = c_gain * zero * zero / n_mag2
+        jac[:, nw:, _LN_ZERO] = -c_phase * zero * w / n_mag2
     return res, cost, jac
 
 
@@ -232,8 +261,8 @@ def _interp_rows(x, y, xq):
     return y[rows, idx] + t * (y[rows, idx + 1] - y[rows, idx])
 
 
-# (zeta multiplier or absolute value, w_e multiplier) for the starts; the
-# first entry is the data-derived pair itself.
+# Starts as (zeta_e, multiplier of the data-derived w_e); "data" stands for
+# the data-derived damping ratio.
 _START_SPREAD = (
     ("data", 1.0),
     (0.3, 1.0),
@@ -272,20 +301,55 @@ def _starting_points(w, log_h, zero, free_zero):
     return params
 
 
+def _scan_delay_and_sign(rows, target, zero, w, free_zero, scale):
+    """Starting ``tau_e`` (s) and sign of ``Kq`` for each start row.
+
+    The gain part of the cost does not depend on ``tau_e`` or the sign, so
+    the phase part alone is scanned over the sign (+-1) and a grid of delays
+    ``0 .. 5 / w[-1]`` s (0 to 0.5 s for the default band) in steps of
+    ``0.1 / w[-1]`` s (0.01 s; 0.1 rad of phase at the top frequency).  The
+    wrapped phase mismatch makes the cost multi-modal in ``tau_e`` once
+    ``tau_e w`` exceeds about pi, so starting every row at zero delay can
+    trap large-delay systems in a poor basin.  Returns (tau (M,), sign (M,)).
+    """
+    start = rows.copy()
+    start[:, _TAU] = 0.0
+    nw = w.size
+    res0 = _evaluate(start, target, zero, w, free_zero, scale, want_jac=False)[0]
+    c_phase = scale * np.sqrt(PHASE_WEIGHT) * _DEG_PER_RAD
+    phase0 = res0[:, nw:] / c_phase  # rad, wrapped, at tau = 0 and sign +
+    best_cost = np.full(rows.shape[0], np.inf)
+    best_tau = np.zeros(rows.shape[0])
+    best_sign = np.ones(rows.shape[0])
+    for tau in np.arange(51) * (0.1 / w[-1]):
+        for sgn, shift in ((1.0, 0.0), (-1.0, np.pi)):
+            cost = np.sum(_wrap(phase0 - tau * w - shift) ** 2, axis=1)
+            better = cost < best_cost
+            best_cost = np.where(better, cost, best_cost)
+            best_tau = np.where(better, tau, best_tau)
+            best_sign = np.where(better, sgn, best_sign)
+    return best_tau, best_sign
+
+
 # ---------------------------------------------------------------------------
 # the batched solver
 
 
-def _levenberg_marquardt(params, sign, zero, jw, log_h, free_zero, scale, max_iterations):
+def _levenberg_marquardt(
+    params, target, zero, w, free_zero, scale, max_iterations, lower, upper
+):
     """Projected Levenberg-Marquardt on a stack of independent problems.
 
-    Every row is iterated with its own damping and its own stopping test; a
-    row that has stopped is no longer updated, so the result of a row does
-    not depend on the other rows of the stack.
+    ``lower``/``upper`` (p,) are box bounds on the parameters; a parameter
+    at a bound whose gradient points out of the box is frozen for the step
+    (active set) and every trial point is projected onto the box.  Every row
+    is iterated with its own damping and its own stopping test; a row that
+    has stopped is no longer updated, so the result of a row does not depend
+    on the other rows of the stack.
     """
     m_rows, p = params.shape
     params = params.copy()
-    res, cost, jac = _evaluate(params, sign, zero, jw, log_h, free_zero, scale)
+    res, cost, jac = _evaluate(params, target, zero, w, free_zero, scale)
     lam = np.full(m_rows, _LAMBDA_START)
     done = cost <= _COST_FLOOR
     converged = done.copy()
@@ -298,10 +362,9 @@ def _levenberg_marquardt(params, sign, zero, jw, log_h, free_zero, scale, max_it
         j_a, r_a, p_a = jac[act], res[act], params[act]
         a_mat = np.matmul(np.swapaxes(j_a, 1, 2), j_a)  # (A, p, p)
         grad = np.einsum("imk,im->ik", j_a, r_a)  # (A, p)
-        # tau at its bound with the gradient pushing it negative: freeze it.
-        frozen = (p_a[:, _TAU] <= 0.0) & (grad[:, _TAU] > 0.0)
-        keep = np.ones((act.size, p))
-        keep[frozen, _TAU] = 0.0
+        # Parameters at a bound with the descent direction leaving the box.
+        frozen = ((p_a <= lower) & (grad > 0.0)) | ((p_a >= upper) & (grad < 0.0))
+        keep = np.where(frozen, 0.0, 1.0)
         a_mat = a_mat * keep[:, :, None] * keep[:, None, :]
         grad = grad * keep
         diag = np.einsum("ikk->ik", a_mat)
@@ -310,12 +373,10 @@ def _levenberg_marquardt(params, sign, zero, jw, log_h, free_zero, scale, max_it
         lhs = a_mat + damp[:, :, None] * eye + (1.0 - keep)[:, :, None] * eye
         step = -np.linalg.solve(lhs, grad[:, :, None])[:, :, 0]
         trial = p_a + step
-        trial[:, _TAU] = np.maximum(trial[:, _TAU], 0.0)
+        trial = np.clip(trial, lower, upper)
         actual_step = trial - p_a
 
-        res_t, cost_t, jac_t = _evaluate(
-            trial, sign[act], zero[act], jw, log_h[act], free_zero, scale
-        )
+        res_t, cost_t, jac_t = _evaluate(trial, target[act], zero[act], w, free_zero, scale)
         cost_a = cost[act]
         ok = np.isfinite(cost_t) & (cost_t < cost_a)
         small_step = np.max(np.abs(actual_step), axis=1) <= _XTOL
@@ -352,8 +413,8 @@ def fit_equivalent_system(
     Parameters
     ----------
     w : array_like
-        Shape (nw,), fit frequencies, rad/s (> 0), e.g. from
-        :func:`fit_frequencies`.
+        Shape (nw,), strictly increasing fit frequencies, rad/s (> 0),
+        e.g. from :func:`fit_frequencies`.
     response : array_like of complex
         Shape (..., nw): the high-order system's pitch-rate response to the
         pilot command at ``w`` (e.g. (rad/s) per unit of command), for any
@@ -386,8 +447,8 @@ def fit_equivalent_system(
     w = np.asarray(w, dtype=float)
     if w.ndim != 1 or w.size < 3:
         raise ValueError("w must be 1-D with at least 3 frequencies (rad/s)")
-    if not np.all(np.isfinite(w)) or np.any(w <= 0.0):
-        raise ValueError("w must be finite and positive (rad/s)")
+    if not np.all(np.isfinite(w)) or w[0] <= 0.0 or np.any(np.diff(w) <= 0.0):
+        raise ValueError("w must be finite, positive and strictly increasing (rad/s)")
     h = np.asarray(response)
     if h.shape[-1:] != w.shape:
         raise ValueError(f"response last axis {h.shape[-1:]} does not match w {w.shape}")
@@ -408,7 +469,6 @@ def fit_equivalent_system(
     nw = w.size
     log_h = np.log(h.reshape(n_sys, nw))
     zero = zero_b.reshape(n_sys).astype(float)
-    jw = 1j * w
     scale = np.sqrt(20.0 / nw)
 
     start = _starting_points(w, log_h, zero, free_zero)  # (N, S, p)
@@ -417,18 +477,29 @@ def fit_equivalent_system(
     log_h_rows = np.repeat(log_h, n_start, axis=0)
     zero_rows = np.repeat(zero, n_start)
 
-    # Sign of Kq per start: the better of the two at the starting point.
-    cost_sign = []
-    for s in (1.0, -1.0):
-        sgn = np.full(rows.shape[0], s)
-        cost_sign.append(
-            _evaluate(rows, sgn, zero_rows, jw, log_h_rows, free_zero, scale, want_jac=False)[1]
-        )
-    sign_rows = np.where(cost_sign[1] < cost_sign[0], -1.0, 1.0)
+    # Box: tau_e >= 0; zeta_e, w_e, 1/T_theta2 within wide limits that only
+    # keep degenerate fits (a real pole pair drifting apart) finite.
+    lower = np.full(p, -np.inf)
+    upper = np.full(p, np.inf)
+    lower[_LN_W], upper[_LN_W] = np.log(w[0] * _W_RANGE), np.log(w[-1] / _W_RANGE)
+    lower[_LN_Z], upper[_LN_Z] = np.log(_ZETA_RANGE[0]), np.log(_ZETA_RANGE[1])
+    lower[_TAU] = 0.0
+    if free_zero:
+        lower[_LN_ZERO], upper[_LN_ZERO] = np.log(w[0] * _W_RANGE), np.log(w[-1] / _W_RANGE)
+    rows = np.clip(rows, lower, upper)
 
-    par, cost, conv = _levenberg_marquardt(
-        rows, sign_rows, zero_rows, jw, log_h_rows, free_zero, scale, max_iterations
-    )
+    # Data side of the log residual; the fixed zero is moved onto it.
+    target = log_h_rows if free_zero else log_h_rows - np.log(1j * w + zero_rows[:, None])
+    # Sign of Kq and starting tau_e per start: the best pair of a scan.
+    tau0, sign_rows = _scan_delay_and_sign(rows, target, zero_rows, w, free_zero, scale)
+    rows[:, _TAU] = tau0
+    target = target - 1j * np.pi * (sign_rows < 0)[:, None]
+
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        par, cost, conv = _levenberg_marquardt(
+            rows, target, zero_rows, w, free_zero, scale, max_iterations,
+            lower, upper,
+        )
     cost = np.where(np.isfinite(cost), cost, np.inf).reshape(n_sys, n_start)
     best = np.argmin(cost, axis=1)
     idx = np.arange(n_sys) * n_start + best

@@ -1,0 +1,221 @@
+"""Pitch-attitude bandwidth and phase delay from the theta/command response.
+
+Method
+------
+The bandwidth criterion of the MIL-STD-1797A guidance (recalled from
+memory) is evaluated on the pitch-ATTITUDE response to the pilot command,
+``H(jw) = theta/command``:
+
+* ``omega_180`` (phase crossover, rad/s): the lowest frequency at which the
+  phase, unwrapped continuously from the low-frequency end of the grid,
+  reaches -180 deg;
+* ``omega_BW,phase`` (rad/s): the lowest frequency at which that phase
+  reaches -135 deg;
+* ``omega_BW,gain`` (rad/s): defined here as the frequency at which the gain
+  equals ``G(omega_180) + 6 dB`` (exactly 6 dB), taking the crossing nearest
+  below ``omega_180`` (scanning the grid downwards from ``omega_180``, the
+  first interval where the gain rises to that level);
+* ``omega_BW = min(omega_BW,phase, omega_BW,gain)`` (rad/s), ignoring an
+  undefined (nan) member, so that it is the phase bandwidth when
+  ``omega_180`` does not exist;
+* phase delay ``tau_p = -(Phi(2 omega_180) + 180 deg) / (57.3 * 2 omega_180)``
+  (s).  The exact factor 180/pi is used in place of 57.3, i.e.
+  ``tau_p = -(phi(2 omega_180) + pi) / (2 omega_180)`` with ``phi`` in rad.
+
+The phase branch is fixed by the principal value (-180, 180] deg of the
+phase at the lowest grid frequency and continued by ``np.unwrap`` along the
+grid, so the grid must be dense enough for the phase to change by less than
+180 deg between neighbouring points, and the command sign convention must make
+the low-frequency attitude response lag by about 90 deg (not lead).
+
+Crossings are located on the grid for all systems at once and then refined
+by 40 steps of vectorised bisection in log-frequency, all brackets together,
+through calls to the caller's ``response`` function; the phase at each new
+point is put on the branch nearest to the bracket's unwrapped phases.  The
+phase at ``2 omega_180`` is continued from ``omega_180`` along a short
+log-spaced sub-grid.  Undefined quantities are nan.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+
+__all__ = ["AttitudeBandwidth", "attitude_bandwidth"]
+
+BISECTION_ITERATIONS = 40
+#: Gain margin defining the gain bandwidth, dB (from memory of the guidance).
+GAIN_MARGIN_DB = 6.0
+#: Phase levels, rad.
+PHASE_CROSSOVER = -np.pi  # -180 deg
+PHASE_BANDWIDTH = -0.75 * np.pi  # -135 deg
+
+
+@dataclass(frozen=True)
+class AttitudeBandwidth:
+    """Bandwidth measures of a batch of theta/command responses, shape (N,).
+
+    Attributes
+    ----------
+    phase_crossover : numpy.ndarray
+        ``omega_180``, rad/s; nan when the phase does not reach -180 deg on
+        the grid (or already starts beyond it).
+    bandwidth_phase : numpy.ndarray
+        ``omega_BW,phase`` (phase = -135 deg), rad/s; nan if not on the grid.
+    bandwidth_gain : numpy.ndarray
+        ``omega_BW,gain`` (gain = G(omega_180) + 6 dB, nearest crossing below
+        omega_180), rad/s; nan when omega_180 is nan or no crossing exists.
+    bandwidth : numpy.ndarray
+        ``omega_BW = min(bandwidth_phase, bandwidth_gain)`` ignoring nan,
+        rad/s.
+    phase_delay : numpy.ndarray
+        ``tau_p``, s; nan when omega_180 is nan.
+    """
+
+    phase_crossover: np.ndarray
+    bandwidth_phase: np.ndarray
+    bandwidth_gain: np.ndarray
+    bandwidth: np.ndarray
+    phase_delay: np.ndarray
+
+
+def _nearest_branch(raw, reference):
+    """Add the multiple of 2 pi to ``raw`` (rad) that brings it nearest ``reference``."""
+    return raw + 2.0 * np.pi * np.round((reference - raw) / (2.0 * np.pi))
+
+
+def _first_down_crossing(values, level):
+    """Grid interval of the first crossing of ``level`` from above, per row.
+
+    Returns ``(valid, lo)``: the crossing lies in ``[lo, lo + 1]`` with
+    ``values[lo] > level >= values[lo + 1]``; ``valid`` is False when the
+    row never reaches the level or starts at or below it.
+    """
+    reached = values <= level
+    first = np.argmax(reached, axis=1)
+    valid = reached.any(axis=1) & (first > 0)
+    lo = np.where(valid, first - 1, 0)
+    return valid, lo
+
+
+def _final_point(log_lo, log_hi, f_lo, f_hi, level):
+    """Linear interpolation of the last bracket (log-frequency), rad/s."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        t = (f_lo - level) / (f_lo - f_hi)
+    t = np.where(np.isfinite(t), np.clip(t, 0.0, 1.0), 0.5)
+    return np.exp(log_lo + t * (log_hi - log_lo))
+
+
+def attitude_bandwidth(
+    response: Callable[[np.ndarray], np.ndarray], w_grid
+) -> AttitudeBandwidth:
+    """Bandwidth, phase crossover and phase delay of theta/command responses.
+
+    Parameters
+    ----------
+    response : callable
+        ``response(w)`` with ``w`` a real array of frequencies, rad/s, of
+        shape (N, k) (one row per system, N the flat batch size) returns the
+        complex pitch-attitude response to the pilot command (e.g. rad per
+        unit of command) of shape (N, k).  The first call passes the common
+        grid as shape (1, nw); the callable must broadcast it over its N
+        systems (NumPy broadcasting does this for expressions such as
+        ``K / (1j*w * (1j*w + a[:, None]))``).
+    w_grid : array_like
+        Shape (nw,), strictly increasing positive frequencies, rad/s, dense
+        and log-spaced (e.g. ``np.logspace(-2, 3, 600)``).
+
+    Returns
+    -------
+    AttitudeBandwidth
+        Fields of shape (N,): ``phase_crossover`` (rad/s),
+        ``bandwidth_phase`` (rad/s), ``bandwidth_gain`` (rad/s),
+        ``bandwidth`` (rad/s) and ``phase_delay`` (s); nan where undefined.
+
+    Notes
+    -----
+    Crossings are searched on ``w_grid`` only: a crossing below ``w_grid[0]``
+    or above ``w_grid[-1]`` is reported as nan.
+    """
+    w_grid = np.asarray(w_grid, dtype=float)
+    if w_grid.ndim != 1 or w_grid.size < 2:
+        raise ValueError("w_grid must be 1-D with at least 2 frequencies (rad/s)")
+    if not np.all(np.isfinite(w_grid)) or w_grid[0] <= 0.0 or np.any(np.diff(w_grid) <= 0.0):
+        raise ValueError("w_grid must be finite, positive and strictly increasing (rad/s)")
+
+    h_grid = np.asarray(response(w_grid[None, :]))
+    if h_grid.ndim == 1:
+        h_grid = h_grid[None, :]
+    if h_grid.ndim != 2 or h_grid.shape[1] != w_grid.size:
+        raise ValueError(f"response returned shape {h_grid.shape}, expected (N, {w_grid.size})")
+    n_sys = h_grid.shape[0]
+
+    def call(w):
+        out = np.asarray(response(w))
+        if out.shape != w.shape:
+            out = np.broadcast_to(out, w.shape)
+        return out
+
+    log_w = np.log(w_grid)
+    phase = np.unwrap(np.angle(h_grid), axis=1)  # rad
+    gain_db = 20.0 * np.log10(np.abs(h_grid))
+    rows = np.arange(n_sys)
+    safe_w = w_grid[0]  # harmless frequency for rows with nothing to refine
+
+    def refine_phase(level):
+        valid, lo = _first_down_crossing(phase, level)
+        a, b = log_w[lo].copy(), log_w[lo + 1].copy()
+        pa, pb = phase[rows, lo].copy(), phase[rows, lo + 1].copy()
+        for _ in range(BISECTION_ITERATIONS):
+            m = 0.5 * (a + b)
+            raw = np.angle(call(np.where(valid, np.exp(m), safe_w)[:, None]))[:, 0]
+            pm = _nearest_branch(raw, 0.5 * (pa + pb))
+            above = pm > level
+            a, pa = np.where(above, m, a), np.where(above, pm, pa)
+            b, pb = np.where(above, b, m), np.where(above, pb, pm)
+        return np.where(valid, _final_point(a, b, pa, pb, level), np.nan)
+
+    w180 = refine_phase(PHASE_CROSSOVER)
+    w_bw_phase = refine_phase(PHASE_BANDWIDTH)
+    has180 = np.isfinite(w180)
+    w180_safe = np.where(has180, w180, safe_w)
+
+    # Gain bandwidth: G = G(w180) + 6 dB, crossing nearest below w180.
+    g180 = 20.0 * np.log10(np.abs(call(w180_safe[:, None])[:, 0]))
+    level_g = g180 + GAIN_MARGIN_DB
+    candidate = (w_grid[None, :] < w180_safe[:, None]) & (gain_db >= level_g[:, None])
+    any_cand = candidate.any(axis=1) & has180
+    lo = np.where(any_cand, w_grid.size - 1 - np.argmax(candidate[:, ::-1], axis=1), 0)
+    hi_idx = np.minimum(lo + 1, w_grid.size - 1)
+    a = log_w[lo].copy()
+    b = np.minimum(log_w[hi_idx], np.log(w180_safe))
+    ga = gain_db[rows, lo].copy()
+    gb = np.where(log_w[hi_idx] < np.log(w180_safe), gain_db[rows, hi_idx], g180)
+    for _ in range(BISECTION_ITERATIONS):
+        m = 0.5 * (a + b)
+        gm = 20.0 * np.log10(np.abs(call(np.where(any_cand, np.exp(m), safe_w)[:, None])[:, 0]))
+        up = gm >= level_g
+        a, ga = np.where(up, m, a), np.where(up, gm, ga)
+        b, gb = np.where(up, b, m), np.where(up, gb, gm)
+    w_bw_gain = np.where(any_cand, _final_point(a, b, ga, gb, level_g), np.nan)
+
+    # Phase at 2 w180 continued from w180 along a short sub-grid.
+    sub = w180_safe[:, None] * np.exp2(np.linspace(0.0, 1.0, 65))[None, :]
+    sub_phase = np.unwrap(np.angle(call(sub)), axis=1)
+    sub_phase = sub_phase + 2.0 * np.pi * np.round(
+        (PHASE_CROSSOVER - sub_phase[:, :1]) / (2.0 * np.pi)
+    )
+    phi2 = sub_phase[:, -1]
+    tau_p = np.where(has180, -(phi2 + np.pi) / (2.0 * w180_safe), np.nan)
+
+    with np.errstate(invalid="ignore"):
+        bandwidth = np.fmin(w_bw_phase, w_bw_gain)
+    return AttitudeBandwidth(
+        phase_crossover=w180,
+        bandwidth_phase=w_bw_phase,
+        bandwidth_gain=w_bw_gain,
+        bandwidth=bandwidth,
+        phase_delay=tau_p,
+    )
