@@ -1116,7 +1116,8 @@ def _provenance_view(design, hashes, docs, run_dir):
         ("design written", _file_date(os.path.join(run_dir, "design.json"))),
         ("report built", _report_date()),
     ]
-    files = [{"name": "design.json", "sha": hashes.get("design.json"), "same": None, "seed": None, "command": p.get("command")}]
+    files = [{"name": "design.json", "sha": hashes.get("design.json"), "same": None, "seed": None,
+              "command": p.get("command"), "other": False}]
     for name in OPTIONAL_DOCUMENTS:
         d = docs.get(name)
         if d is None:
@@ -1131,9 +1132,22 @@ def _provenance_view(design, hashes, docs, run_dir):
                 "same": None if sha is None else sha == p.get("input_sha256"),
                 "seed": dp.get("seed"),
                 "command": dp.get("command"),
+                "other": False,
             }
         )
-    return {"rows": rows, "files": files, "libraries": _library_versions()}
+    listed = {x["name"] for x in files}
+    for name in sorted(os.listdir(run_dir)):
+        path = os.path.join(run_dir, name)
+        if name in listed or name == "report.html" or name.startswith(".") or not os.path.isfile(path):
+            continue
+        with open(path, "rb") as fh:
+            digest = hashlib.sha256(fh.read()).hexdigest()
+        files.append({"name": name, "sha": digest, "same": None, "seed": None, "command": None, "other": True})
+    n_plots = 0
+    plot_dir = os.path.join(run_dir, "plots")
+    if os.path.isdir(plot_dir):
+        n_plots = sum(1 for n in os.listdir(plot_dir) if n.lower().endswith((".png", ".svg")))
+    return {"rows": rows, "files": files, "libraries": _library_versions(), "n_plots": n_plots}
 
 
 # ---------------------------------------------------------------------------------
