@@ -1,0 +1,741 @@
+"""Gain-schedule plots: the gain table and maps of what the schedule achieves over the envelope.
+
+:func:`schedule_plots` takes the case and the
+:class:`~damper.analysis.schedule.ScheduleResult` of
+:func:`damper.analysis.schedule.design_schedule` and writes, into ``<out_dir>/plots/``:
+
+``schedule-gain.png`` / ``.svg``
+    1-D schedule: the gain K (s) against the schedule variable (breakpoints as markers, the
+    interpolated law drawn densely with :meth:`Schedule.gain_at`, clamping beyond the table
+    dotted), the verification points on it (marker by configuration, failing points ringed),
+    and below it the worst normalised slack at every verification point.
+    2-D schedule: a heat map of the bilinearly interpolated gain over (speed variable,
+    altitude) with the breakpoint grid, every node's gain written on it and the envelope
+    outline; beside it one line of K against the speed variable per altitude breakpoint.
+``schedule-damping-map.png`` / ``.svg``
+    Achieved short-period damping ratio (the measure the requirements judge) at the
+    verification points over altitude (km) x true airspeed (m/s), one panel per
+    configuration, with contour lines at the damping band limits.
+``schedule-margin-map.png`` / ``.svg``
+    The smallest gain margin (dB, up or down) at the same points, with the contour at the
+    gain-margin requirement.
+
+Every map rings the verification points that fail any requirement, draws the envelope
+outline (:func:`damper.analysis.envelope.speed_limits`) and the breakpoints as iso-lines.
+Contours are interpolated linearly on a triangulation of the verification points (triangles
+outside the envelope dropped); the points carry the computed values.
+
+Nothing here computes a measure: values come from the verification. Drawing-time geometry
+only: the envelope's speed limits and :meth:`Schedule.gain_at` on a dense grid.
+
+Visual identity: the palette of :mod:`damper.output.plots`; colour scales ``cividis``
+(monotone in lightness, readable with the common colour-vision deficiencies and in
+greyscale); configurations differ by marker shape as well as colour; failures are ringed.
+matplotlib is imported inside the functions (Agg canvas, no pyplot state).
+"""
+
+from __future__ import annotations
+
+import io
+import os
+
+import numpy as np
+
+from .files import write_atomic
+from .plots import COLORMAP, DPI, PALETTE, _RC
+
+#: How each schedule / map variable is shown: (words, unit shown, factor from SI).
+DISPLAY = {
+    "dynamic_pressure": ("dynamic pressure", "kPa", 1e-3),
+    "equivalent_airspeed": ("equivalent airspeed", "m/s", 1.0),
+    "airspeed": ("true airspeed", "m/s", 1.0),
+    "mach": ("Mach number", "", 1.0),
+    "altitude": ("altitude", "km", 1e-3),
+}
+#: Configurations: marker, colour, line style (greyscale tells them apart by marker).
+_CONFIG_STYLE = (
+    ("o", PALETTE["primary"], "-"),
+    ("s", PALETTE["secondary"], "--"),
+    ("^", PALETTE["tertiary"], "-."),
+    ("D", "#6a4c93", ":"),
+    ("v", "#7f6000", (0, (5, 1, 1, 1))),
+    ("P", "#3d3d3d", (0, (3, 1))),
+)
+_FAIL_RING = {"marker": "o", "facecolors": "none", "edgecolors": PALETTE["limit"], "linewidths": 1.4}
+_DENSE = 241
+
+
+def _axis_label(var):
+    words, unit, _ = DISPLAY[var]
+    return f"{words} ({unit})" if unit else words
+
+
+def _style(i):
+    return _CONFIG_STYLE[i % len(_CONFIG_STYLE)]
+
+
+def _figure(width, height):
+    """A figure on its own Agg canvas (no pyplot, no global backend switch)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width, height))
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def _save(fig, stem):
+    """Render `fig` as PNG and SVG into memory, then write each file atomically."""
+    paths = []
+    for fmt in ("png", "svg"):
+        buf = io.BytesIO()
+        meta = {"Date": None} if fmt == "svg" else {"Software": None}
+        fig.savefig(buf, format=fmt, dpi=DPI, metadata=meta)
+        paths.append(write_atomic(f"{os.fspath(stem)}.{fmt}", buf.getvalue()))
+    return paths
+
+
+def _criterion(case, name):
+    for c in case.requirements.criteria:
+        if c.name == name:
+            return float(c.lower), float(c.upper)
+    return None
+
+
+def _fmt_band(band, unit=""):
+    lo, hi = band
+    u = f" {unit}" if unit else ""
+    if np.isfinite(lo) and np.isfinite(hi):
+        return f"{lo:.3g} to {hi:.3g}{u}"
+    if np.isfinite(lo):
+        return f">= {lo:.3g}{u}"
+    return f"<= {hi:.3g}{u}"
+
+
+def _envelope(case, result):
+    """The case's Envelope, or None (schedule over conditions)."""
+    if result.source != "envelope":
+        return None
+    from ..analysis.envelope import envelope_from_case
+
+    return envelope_from_case(case)[0]
+
+
+def _outline_tas(env, n=121):
+    """Envelope outline as (true airspeed m/s, altitude m): lower edge up, upper edge down."""
+    from ..analysis.envelope import speed_limits
+
+    h = np.linspace(env.altitude[0], env.altitude[1], n) if env.altitude[1] > env.altitude[0] else np.array(
+        [env.altitude[0]]
+    )
+    lo, hi = speed_limits(env, h)
+    ok = np.isfinite(lo) & np.isfinite(hi)
+    h, lo, hi = h[ok], lo[ok], hi[ok]
+    if h.size == 0:
+        return None
+    v = np.concatenate([lo, hi[::-1], lo[:1]])
+    a = np.concatenate([h, h[::-1], h[:1]])
+    return v, a
+
+
+def _draw_outline(ax, xy, label="flight envelope"):
+    if xy is None:
+        return None
+    (ln,) = ax.plot(xy[0], xy[1], color=PALETTE["ink"], linewidth=1.2, linestyle="-", zorder=2, label=label)
+    return ln
+
+
+def _title(fig, main, case, note=None):
+    """Title at the top left; the case title and a verdict below it, wrapped to the figure width."""
+    import textwrap
+
+    width_in = fig.get_figwidth()
+    height_in = fig.get_figheight()
+    fig.suptitle(main, fontsize=11, x=0.01, ha="left", y=1.0 - 0.08 / height_in, va="top", color=PALETTE["ink"])
+    sub = case.title if note is None else f"{case.title}  |  {note}"
+    chars = max(int(width_in * 15.5), 40)  # about 15 characters per inch at 8 pt
+    fig.text(0.01, 1.0 - 0.36 / height_in, "\n".join(textwrap.wrap(sub, chars)), fontsize=8, ha="left", va="top",
+             color=PALETTE["critical"], linespacing=1.25)
+
+
+def _verdict(result):
+    ver = result.verification
+    n = ver.passed.size
+    nf = int(np.sum(~ver.passed))
+    if nf == 0:
+        return f"all {n} verification points meet every requirement"
+    return f"{nf} of {n} verification points fail (ringed)"
+
+
+# ---------------------------------------------------------------------------------
+# 1. gain against the schedule variable
+# ---------------------------------------------------------------------------------
+def _draw_gain_1d(case, result):
+    from matplotlib.lines import Line2D
+
+    sch = result.schedule
+    ver = result.verification
+    var = sch.variables[0]
+    bp = np.asarray(sch.breakpoints[0], float)
+    kb = np.asarray(sch.gains, float).ravel()
+    xv = np.asarray(ver.points.values[0], float)
+    lo = float(np.nanmin(np.concatenate([bp, xv])))
+    hi = float(np.nanmax(np.concatenate([bp, xv])))
+    span = max(hi - lo, abs(hi) * 0.1, 1e-9)
+    xd = np.linspace(lo - 0.04 * span, hi + 0.04 * span, _DENSE)
+    if var == "dynamic_pressure":
+        xd = xd[xd > 0]
+    kd = sch.gain_at([xd])
+
+    fig = _figure(7.6, 6.6)
+    gs = fig.add_gridspec(2, 1, height_ratios=(3.0, 2.0), hspace=0.08, left=0.11, right=0.97, top=0.82, bottom=0.17)
+    ax = fig.add_subplot(gs[0])
+    axs = fig.add_subplot(gs[1], sharex=ax)
+    sx = DISPLAY[var][2]
+
+    # law: inside the table solid, clamped ends dotted
+    if sch.form == "table":
+        inside = (xd >= bp[0]) & (xd <= bp[-1])
+        ax.plot(xd[inside] * sx, kd[inside], color=PALETTE["primary"], linewidth=1.8, zorder=3,
+                label="scheduled gain (linear between breakpoints)")
+        for part in (xd < bp[0], xd > bp[-1]):
+            if part.any():
+                ax.plot(xd[part] * sx, kd[part], color=PALETTE["primary"], linewidth=1.4, linestyle=(0, (1.5, 1.5)),
+                        zorder=3)
+        law_handles = [Line2D([], [], color=PALETTE["primary"], linewidth=1.8,
+                              label="scheduled gain (linear between breakpoints)"),
+                       Line2D([], [], color=PALETTE["primary"], linewidth=1.4, linestyle=(0, (1.5, 1.5)),
+                              label="held constant beyond the table")]
+        bp_label = "breakpoint (designed gain)"
+    else:
+        ax.plot(xd * sx, kd, color=PALETTE["primary"], linewidth=1.8, zorder=3)
+        law_handles = [Line2D([], [], color=PALETTE["primary"], linewidth=1.8,
+                              label=f"K = {sch.k_ref:.3g} s x {sch.q_ref * 1e-3:.3g} kPa / q (fitted law)")]
+        bp_label = "breakpoint design gain (fit data)"
+    ax.scatter(bp * sx, kb, marker="D", s=46, facecolors="white", edgecolors=PALETTE["chosen"], linewidths=1.4,
+               zorder=6, label=bp_label)
+    # infeasible breakpoints: no gain met every requirement at all their design points
+    bad = ~np.asarray(result.design.feasible, bool).ravel()
+    if bad.size == bp.size and bad.any():
+        ax.scatter(bp[bad] * sx, kb[bad], marker="X", s=60, color=PALETTE["limit"], zorder=7,
+                   label="breakpoint without a gain meeting every requirement")
+    for b, k in zip(bp, kb):
+        ax.annotate(f"{k:.3g} s", (b * sx, k), textcoords="offset points", xytext=(5, 7), fontsize=7.5,
+                    color=PALETTE["ink"], zorder=8)
+    for b in bp:
+        ax.axvline(b * sx, color=PALETTE["grid"], linewidth=0.9, linestyle=(0, (4, 3)), zorder=1)
+        axs.axvline(b * sx, color=PALETTE["grid"], linewidth=0.9, linestyle=(0, (4, 3)), zorder=1)
+
+    conf = np.asarray(ver.points.configuration, int)
+    names = result.configurations or tuple(f"configuration {i}" for i in range(int(conf.max()) + 1))
+    passed = np.asarray(ver.passed, bool)
+    slack = np.asarray(ver.worst_slack, float)
+    conf_handles = []
+    for ci, name in enumerate(names):
+        m = conf == ci
+        if not m.any():
+            continue
+        mk, col, _ = _style(ci)
+        # every configuration sits on the same line: alternate large hollow and small filled markers
+        hollow = ci % 2 == 0
+        ax.scatter(xv[m] * sx, ver.gains[m], marker=mk, s=max(62.0 - 12.0 * ci, 30.0) if hollow else 15.0,
+                   facecolors="none" if hollow else col, edgecolors=col, linewidths=1.1 if hollow else 0.0,
+                   zorder=4 + 0.01 * ci)
+        axs.scatter(xv[m] * sx, np.clip(slack[m], -2.0, None), marker=mk, s=24 if hollow else 15.0,
+                    facecolors="none" if hollow else col, edgecolors=col, linewidths=1.0 if hollow else 0.0,
+                    zorder=4)
+        conf_handles.append(Line2D([], [], linestyle="none", marker=mk, color=col, markersize=5,
+                                   markerfacecolor="none" if hollow else col, markeredgewidth=1.1,
+                                   label=f"verification point, {name}"))
+    fail = ~passed
+    if fail.any():
+        ax.scatter(xv[fail] * sx, ver.gains[fail], s=130, zorder=5, **_FAIL_RING)
+        axs.scatter(xv[fail] * sx, np.clip(slack[fail], -2.0, None), s=90, zorder=5, **_FAIL_RING)
+    # design slack at the breakpoints (worst over their design points)
+    ws = np.asarray(result.design.worst_slack, float).ravel()
+    okb = np.isfinite(ws) & (np.asarray(result.design.points).ravel() > 0)
+    if ws.size == bp.size and okb.any():
+        axs.scatter(bp[okb] * sx, ws[okb], marker="D", s=40, facecolors="white", edgecolors=PALETTE["chosen"],
+                    linewidths=1.3, zorder=6)
+    axs.axhline(0.0, color=PALETTE["limit"], linewidth=1.3, linestyle=(0, (6, 3)), zorder=2)
+
+    ax.set_ylabel("damper gain K (s)\n(rad surface per rad/s pitch rate)")
+    ax.set_ylim(bottom=0.0, top=max(float(np.nanmax(kd)), float(np.nanmax(kb))) * 1.18)
+    ax.tick_params(labelbottom=False)
+    axs.set_xlabel(_axis_label(var))
+    axs.set_ylabel("worst slack\n(+ met, - missed)")
+    if np.nanmin(slack) < -2.0:
+        axs.text(0.99, 0.03, "slack below -2 drawn at -2", transform=axs.transAxes, ha="right", va="bottom",
+                 fontsize=7, color=PALETTE["critical"])
+    if var == "dynamic_pressure":
+        from ..atmosphere import RHO0
+
+        top = ax.secondary_xaxis(
+            "top",
+            functions=(lambda q: np.sqrt(np.maximum(2e3 * np.asarray(q, float) / RHO0, 0.0)),
+                       lambda v: RHO0 * np.asarray(v, float) ** 2 / 2e3),
+        )
+        top.set_xlabel("equivalent airspeed (m/s)", fontsize=8)
+        top.tick_params(labelsize=7.5)
+
+    handles = law_handles + [
+        Line2D([], [], linestyle="none", marker="D", markerfacecolor="white", markeredgecolor=PALETTE["chosen"],
+               markersize=6, label=bp_label + " / design slack"),
+        *conf_handles,
+        Line2D([], [], linestyle="none", marker="o", markerfacecolor="none", markeredgecolor=PALETTE["limit"],
+               markersize=9, markeredgewidth=1.4, label="fails a requirement"),
+        Line2D([], [], color=PALETTE["limit"], linewidth=1.3, linestyle=(0, (6, 3)),
+               label="slack 0 (requirement boundary)"),
+    ]
+    if bad.size == bp.size and bad.any():
+        handles.append(Line2D([], [], linestyle="none", marker="X", color=PALETTE["limit"], markersize=7,
+                              label="breakpoint: no gain meets every requirement"))
+    fig.legend(handles=handles, loc="lower center", ncol=3, fontsize=7.2, frameon=True, bbox_to_anchor=(0.5, 0.0))
+    _title(fig, f"Gain schedule in {DISPLAY[var][0]}: {bp.size} breakpoints", case, _verdict(result))
+    return fig
+
+
+def _speed_range_in(env, var, h):
+    """Envelope speed range at altitudes `h`, expressed in schedule variable `var` (SI)."""
+    from ..analysis.envelope import speed_limits, variable_value
+
+    lo, hi = speed_limits(env, h)
+    return variable_value(var, h, lo), variable_value(var, h, hi)
+
+
+def _draw_gain_2d(case, result):
+    from matplotlib.colors import Normalize
+    from matplotlib.lines import Line2D
+
+    sch = result.schedule
+    ver = result.verification
+    ia = sch.variables.index("altitude")
+    sv = sch.variables[1 - ia]
+    hb = np.asarray(sch.breakpoints[ia], float)
+    sb = np.asarray(sch.breakpoints[1 - ia], float)
+    G = np.asarray(sch.gains, float)
+    G_hs = G if ia == 0 else G.T  # G_hs[i_alt, j_speed]
+    counts = np.asarray(result.design.points).reshape(G.shape)
+    counts_hs = counts if ia == 0 else counts.T
+    feas = np.asarray(result.design.feasible, bool).reshape(G.shape)
+    feas_hs = feas if ia == 0 else feas.T
+    env = _envelope(case, result)
+
+    hv = np.asarray(ver.points.values[ia], float)
+    svv = np.asarray(ver.points.values[1 - ia], float)
+    h_lo, h_hi = min(hb[0], np.nanmin(hv)), max(hb[-1], np.nanmax(hv))
+    s_lo, s_hi = min(sb[0], np.nanmin(svv)), max(sb[-1], np.nanmax(svv))
+    hd = np.linspace(h_lo, h_hi, 160)
+    sd = np.linspace(s_lo, s_hi, 200)
+    Hm, Sm = np.meshgrid(hd, sd, indexing="ij")
+    vals = [Hm.ravel(), Sm.ravel()] if ia == 0 else [Sm.ravel(), Hm.ravel()]
+    Kd = sch.gain_at(vals).reshape(Hm.shape)
+    kmin = float(min(np.nanmin(Kd), np.nanmin(G)))
+    kmax = float(max(np.nanmax(Kd), np.nanmax(G)))
+    norm = Normalize(vmin=kmin, vmax=kmax if kmax > kmin else kmin + 1e-6)
+
+    fig = _figure(11.6, 5.0)
+    gs = fig.add_gridspec(1, 4, width_ratios=(1.0, 0.04, 0.17, 0.85), wspace=0.04, left=0.06, right=0.985, top=0.84,
+                          bottom=0.25)
+    ax = fig.add_subplot(gs[0])
+    cax = fig.add_subplot(gs[1])
+    axl = fig.add_subplot(gs[3])
+    ssx = DISPLAY[sv][2]
+    hsx = DISPLAY["altitude"][2]
+    im = ax.imshow(Kd, origin="lower", aspect="auto", cmap=COLORMAP, norm=norm, interpolation="bilinear",
+                   extent=(s_lo * ssx, s_hi * ssx, h_lo * hsx, h_hi * hsx), zorder=0)
+    cb = fig.colorbar(im, cax=cax)
+    cb.set_label("damper gain K (s), bilinear between nodes")
+    for b in sb:
+        ax.axvline(b * ssx, color="white", linewidth=0.8, alpha=0.9, zorder=1)
+        ax.axvline(b * ssx, color=PALETTE["ink"], linewidth=0.6, linestyle=(0, (3, 3)), zorder=1)
+    for b in hb:
+        ax.axhline(b * hsx, color="white", linewidth=0.8, alpha=0.9, zorder=1)
+        ax.axhline(b * hsx, color=PALETTE["ink"], linewidth=0.6, linestyle=(0, (3, 3)), zorder=1)
+    outline_handle = None
+    if env is not None:
+        h_o = np.linspace(env.altitude[0], env.altitude[1], 121)
+        lo_s, hi_s = _speed_range_in(env, sv, h_o)
+        ok = np.isfinite(lo_s) & np.isfinite(hi_s)
+        if ok.any():
+            xs = np.concatenate([lo_s[ok], hi_s[ok][::-1], lo_s[ok][:1]]) * ssx
+            ys = np.concatenate([h_o[ok], h_o[ok][::-1], h_o[ok][:1]]) * hsx
+            ax.plot(xs, ys, color="white", linewidth=3.0, zorder=2)
+            (outline_handle,) = ax.plot(xs, ys, color=PALETTE["ink"], linewidth=1.3, zorder=2, label="flight envelope")
+    # nodes: designed (filled white diamond), copied (no envelope point: hollow square)
+    Hn, Sn = np.meshgrid(hb, sb, indexing="ij")
+    designed = counts_hs > 0
+    ax.scatter(Sn[designed] * ssx, Hn[designed] * hsx, marker="D", s=26, facecolors="white",
+               edgecolors=PALETTE["chosen"], linewidths=1.1, zorder=4, clip_on=False)
+    if (~designed).any():
+        ax.scatter(Sn[~designed] * ssx, Hn[~designed] * hsx, marker="s", s=26, facecolors="white",
+                   edgecolors=PALETTE["chosen"], linewidths=1.0, zorder=4, clip_on=False)
+    infeas = designed & ~feas_hs
+    if infeas.any():
+        ax.scatter(Sn[infeas] * ssx, Hn[infeas] * hsx, marker="X", s=55, color=PALETTE["limit"], zorder=5,
+                   clip_on=False)
+    for i in range(hb.size):
+        for j in range(sb.size):
+            txt = f"{G_hs[i, j]:.3g}" + ("" if designed[i, j] else "*")
+            # label towards the inside of the plot so edge nodes stay readable
+            right = j == sb.size - 1 and sb.size > 1
+            top = i == hb.size - 1 and hb.size > 1
+            ax.annotate(txt, (sb[j] * ssx, hb[i] * hsx), textcoords="offset points",
+                        xytext=(-5 if right else 5, -5 if top else 5), ha="right" if right else "left",
+                        va="top" if top else "bottom", fontsize=7.2, color=PALETTE["ink"], zorder=6,
+                        style="normal" if designed[i, j] else "italic",
+                        bbox=dict(boxstyle="round,pad=0.15", facecolor="white", edgecolor="none", alpha=0.85))
+    fail = ~np.asarray(ver.passed, bool)
+    ax.scatter(svv * ssx, hv * hsx, marker=".", s=6, color=PALETTE["ink"], alpha=0.55, linewidths=0, zorder=3)
+    if fail.any():
+        ax.scatter(svv[fail] * ssx, hv[fail] * hsx, s=60, zorder=5, **_FAIL_RING)
+    ax.set_xlabel(_axis_label(sv))
+    ax.set_ylabel(_axis_label("altitude"))
+    ax.set_xlim(s_lo * ssx, s_hi * ssx)
+    ax.set_ylim(h_lo * hsx, h_hi * hsx)
+    ax.grid(False)
+    ax.set_title("gain table over the envelope (node values in s)", fontsize=9)
+
+    # right: K against the speed variable, one line per altitude breakpoint
+    from matplotlib import colormaps
+
+    cmap = colormaps[COLORMAP]
+    styles = ("-", "--", "-.", ":", (0, (5, 1, 1, 1)), (0, (3, 1)))
+    markers = ("o", "s", "^", "D", "v", "P", "X", "<", ">", "h")
+    sdense = np.linspace(s_lo, s_hi, _DENSE)
+    line_handles = []
+    for i, h in enumerate(hb):
+        col = cmap(0.05 + 0.65 * (i / max(hb.size - 1, 1)))  # stop short of the pale end: visible on white
+        ls, mk = styles[i % len(styles)], markers[i % len(markers)]
+        v = [np.full(sdense.size, h), sdense] if ia == 0 else [sdense, np.full(sdense.size, h)]
+        kline = sch.gain_at(v)
+        if env is not None:
+            a, b = _speed_range_in(env, sv, np.array([h]))
+            inside = (sdense >= a[0] * (1 - 1e-9)) & (sdense <= b[0] * (1 + 1e-9))
+        else:
+            inside = np.ones(sdense.size, bool)
+        axl.plot(sdense * ssx, kline, color=col, linewidth=0.8, linestyle=(0, (1, 2)), zorder=2)
+        kin = np.where(inside, kline, np.nan)
+        axl.plot(sdense * ssx, kin, color=col, linewidth=1.8, linestyle=ls, zorder=3)
+        axl.scatter(sb * ssx, G_hs[i], marker=mk, s=30, color=col, edgecolors=PALETTE["ink"], linewidths=0.6,
+                    zorder=4)
+        line_handles.append(Line2D([], [], color=col, linestyle=ls, marker=mk, markeredgecolor=PALETTE["ink"],
+                                   markersize=5, linewidth=1.6, label=f"{h * hsx:.3g} km"))
+    axl.set_xlabel(_axis_label(sv))
+    axl.set_ylabel("damper gain K (s)")
+    axl.set_ylim(bottom=0.0, top=kmax * 1.12)
+    axl.set_title("K along each altitude breakpoint", fontsize=9)
+    axl.legend(handles=line_handles, fontsize=7.2, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=3,
+               title="altitude breakpoint (dotted: outside the envelope at that altitude)", title_fontsize=7.2)
+
+    handles = [
+        Line2D([], [], linestyle="none", marker="D", markerfacecolor="white", markeredgecolor=PALETTE["chosen"],
+               markersize=6, label="node designed at envelope points"),
+        Line2D([], [], linestyle="none", marker="s", markerfacecolor="none", markeredgecolor=PALETTE["chosen"],
+               markersize=6, label="node outside the envelope: gain copied from the nearest designed node (*)"),
+        Line2D([], [], linestyle="none", marker=".", color=PALETTE["ink"], markersize=5, label="verification point"),
+        Line2D([], [], linestyle="none", marker="o", markerfacecolor="none", markeredgecolor=PALETTE["limit"],
+               markersize=8, markeredgewidth=1.4, label="fails a requirement"),
+    ]
+    if outline_handle is not None:
+        handles.append(Line2D([], [], color=PALETTE["ink"], linewidth=1.3, label="flight envelope"))
+    if infeas.any():
+        handles.append(Line2D([], [], linestyle="none", marker="X", color=PALETTE["limit"], markersize=7,
+                              label="node: no gain meets every requirement"))
+    ax.legend(handles=handles, loc="upper center", ncol=2, fontsize=7.2, bbox_to_anchor=(0.5, -0.13))
+    _title(fig, f"Gain schedule in altitude and {DISPLAY[sv][0]}: {hb.size} x {sb.size} nodes", case,
+           _verdict(result))
+    return fig
+
+
+# ---------------------------------------------------------------------------------
+# 2. maps over altitude x true airspeed
+# ---------------------------------------------------------------------------------
+def _triangulation(env, v, h):
+    """Delaunay triangulation of points (v m/s, h m), drawn in (m/s, km); triangles outside the envelope masked.
+
+    The triangulation is made in coordinates scaled to the unit square, so the very different
+    spans of speed and altitude do not give sliver triangles.
+    """
+    from matplotlib.tri import Triangulation
+
+    if v.size < 3 or np.ptp(v) <= 0 or np.ptp(h) <= 0:
+        return None
+    try:
+        tri = Triangulation((v - v.min()) / np.ptp(v), (h - h.min()) / np.ptp(h))
+        tri = Triangulation(v, h * 1e-3, triangles=tri.triangles)
+    except (ValueError, RuntimeError):
+        return None
+    if env is not None:
+        from ..analysis.envelope import inside
+
+        cv = v[tri.triangles].mean(1)
+        ch = h[tri.triangles].mean(1)
+        tri.set_mask(~inside(env, ch, cv, tol=1e-6))
+    return tri
+
+
+def _unique_points(v, h, z):
+    key = np.round(np.column_stack([v, h]), 6)
+    _, idx = np.unique(key, axis=0, return_index=True)
+    idx = np.sort(idx)
+    return v[idx], h[idx], z[idx]
+
+
+def _iso_lines(ax, env, sch, h_plot):
+    """The schedule's breakpoints drawn over the (true airspeed, altitude) map, inside the envelope."""
+    from ..analysis.envelope import airspeed_for, speed_limits
+
+    if env is None:
+        return
+    lo, hi = speed_limits(env, h_plot)
+    style = dict(color=PALETTE["critical"], linewidth=0.8, linestyle=(0, (1, 2)), zorder=2)
+    for var, bps in zip(sch.variables, sch.breakpoints):
+        for b in bps:
+            if var == "altitude":
+                lo_b, hi_b = speed_limits(env, np.array([b]))
+                if np.isfinite(lo_b[0]):
+                    ax.plot([lo_b[0], hi_b[0]], [b * 1e-3, b * 1e-3], **style)
+                continue
+            v = airspeed_for(var, np.full(h_plot.shape, b), h_plot)
+            ok = (v >= lo * (1 - 1e-9)) & (v <= hi * (1 + 1e-9))
+            if ok.any():
+                ax.plot(np.where(ok, v, np.nan), h_plot * 1e-3, **style)
+
+
+def _map_figure(case, result, values, *, title, cbar_label, limits, undefined_label, undefined_means, unit=""):
+    """One panel per configuration: verification points coloured by `values`, limits as contours.
+
+    `limits`: list of (value, words, linestyle); `undefined_means`: "met" (NaN drawn as the top of the
+    scale for contouring) or "failed".
+    """
+    from matplotlib.colors import Normalize
+    from matplotlib.lines import Line2D
+
+    ver = result.verification
+    pts = ver.points
+    env = _envelope(case, result)
+    conf = np.asarray(pts.configuration, int)
+    names = result.configurations or tuple(f"configuration {i}" for i in range(int(conf.max()) + 1))
+    n = len(names)
+    ncol = min(n, 3)
+    nrow = int(np.ceil(n / ncol))
+    z = np.asarray(values, float)
+    fin = np.isfinite(z)
+    if fin.any():
+        zmin, zmax = float(np.min(z[fin])), float(np.max(z[fin]))
+    else:
+        zmin, zmax = 0.0, 1.0
+    if zmax - zmin < 1e-6 * max(1.0, abs(zmax)):
+        zmin, zmax = zmin - 0.05 * max(abs(zmin), 1.0), zmax + 0.05 * max(abs(zmax), 1.0)
+    # a limit just beyond the values joins the scale (its line is then drawn on the colour bar)
+    span = zmax - zmin
+    for lim, _, _ in limits:
+        if np.isfinite(lim) and zmin - 0.3 * span <= lim < zmin:
+            zmin = float(lim) - 0.02 * span
+        elif np.isfinite(lim) and zmax < lim <= zmax + 0.3 * span:
+            zmax = float(lim) + 0.02 * span
+    norm = Normalize(vmin=zmin, vmax=zmax)
+    v_all = np.asarray(pts.airspeed, float)
+    h_all = np.asarray(pts.altitude, float)
+    outline = _outline_tas(env) if env is not None else None
+    vx = np.concatenate([v_all, outline[0]]) if outline is not None else v_all
+    hx = np.concatenate([h_all, outline[1]]) if outline is not None else h_all
+    vpad = 0.04 * max(float(np.ptp(vx)), 1.0)
+    hpad = 0.04 * max(float(np.ptp(hx)), 100.0)
+    xlim = (float(np.min(vx)) - vpad, float(np.max(vx)) + vpad)
+    ylim = ((float(np.min(hx)) - hpad) * 1e-3, (float(np.max(hx)) + hpad) * 1e-3)
+    h_plot = np.linspace(env.altitude[0], env.altitude[1], 121) if env is not None else None
+
+    w = max(0.6 + 3.9 * ncol + 1.1, 9.4)  # room for the title and legend with a single panel
+    fig_h = 1.75 + 3.6 * nrow
+    right = 1.0 - 1.25 / w
+    fig = _figure(w, fig_h)
+    gs = fig.add_gridspec(nrow, ncol + 1, width_ratios=[1.0] * ncol + [0.06], left=0.75 / w, right=right,
+                          top=1.0 - 0.95 / fig_h, bottom=1.0 / fig_h, wspace=0.12, hspace=0.3)
+    fail = ~np.asarray(ver.passed, bool)
+    sc = None
+    any_undef = False
+    contour_drawn = {}
+    for ci, name in enumerate(names):
+        r, c = divmod(ci, ncol)
+        ax = fig.add_subplot(gs[r, c])
+        m = conf == ci
+        v, h, zz = v_all[m], h_all[m], z[m]
+        if outline is not None:
+            ax.fill(outline[0], outline[1] * 1e-3, facecolor="#f4f4f4", edgecolor="none", zorder=0)
+            _draw_outline(ax, (outline[0], outline[1] * 1e-3))
+        if env is not None:
+            _iso_lines(ax, env, result.schedule, h_plot)
+        # contours of the limits on a triangulation of this configuration's points
+        if env is not None and m.sum() >= 3:
+            vu, hu, zu = _unique_points(v, h, zz)
+            if undefined_means == "met":
+                zc = np.where(np.isfinite(zu), zu, zmax + 10.0 * max(zmax - zmin, 1.0))
+            else:
+                zc = zu
+            tri = _triangulation(env, vu, hu)
+            if tri is not None:
+                bad_t = ~np.isfinite(zc[tri.triangles]).all(1)
+                if tri.mask is not None:
+                    bad_t |= tri.mask
+                tri.set_mask(bad_t)
+                zc = np.where(np.isfinite(zc), zc, 0.0)
+                for lim, words, ls in limits:
+                    if not np.isfinite(lim):
+                        continue
+                    zt = zc[tri.triangles][~bad_t] if (~bad_t).any() else np.array([])
+                    if zt.size == 0 or not (zt.min() < lim < zt.max()):
+                        continue
+                    try:
+                        cs = ax.tricontour(tri, zc, levels=[lim], colors=[PALETTE["limit"]], linewidths=1.5,
+                                           linestyles=[ls], zorder=3)
+                        ax.clabel(cs, fmt={lim: f"{lim:.3g}{(' ' + unit) if unit else ''}"}, fontsize=7, inline=True)
+                        contour_drawn[words] = ls
+                    except (ValueError, RuntimeError):
+                        pass
+        ok = np.isfinite(zz)
+        sc = ax.scatter(v[ok], h[ok] * 1e-3, c=zz[ok], cmap=COLORMAP, norm=norm, s=24, marker="o",
+                        edgecolors=PALETTE["ink"], linewidths=0.35, zorder=4)
+        if (~ok).any():
+            any_undef = True
+            ax.scatter(v[~ok], h[~ok] * 1e-3, marker="^", s=26, facecolors="white", edgecolors=PALETTE["ink"],
+                       linewidths=0.9, zorder=4)
+        fm = fail[m]
+        if fm.any():
+            ax.scatter(v[fm], h[fm] * 1e-3, s=95, zorder=5, **_FAIL_RING)
+        nf = int(fm.sum())
+        head = f"{name}: {m.sum()} points" + (f", {nf} fail" if nf else ", all pass")
+        if nf:
+            binds = [b for b, f in zip(np.asarray(ver.binding, dtype=object)[m], fm) if f]
+            kinds, counts = np.unique(np.asarray(binds, dtype=str), return_counts=True)
+            order = np.argsort(-counts)
+            head += "\nbinding where failing: " + ", ".join(f"{kinds[k]} {counts[k]}" for k in order[:3])
+        ax.set_title(head, fontsize=9 if not nf else 8.5)
+        ax.set_xlim(*xlim)
+        ax.set_ylim(*ylim)
+        if r == nrow - 1 or ci + ncol >= n:
+            ax.set_xlabel("true airspeed (m/s)")
+        else:
+            ax.tick_params(labelbottom=False)
+        if c == 0:
+            ax.set_ylabel("altitude (km, geopotential)")
+        else:
+            ax.tick_params(labelleft=False)
+    cax = fig.add_subplot(gs[:, ncol])
+    cb = fig.colorbar(sc, cax=cax)
+    cb.set_label(cbar_label)
+    for lim, words, ls in limits:
+        if np.isfinite(lim) and zmin <= lim <= zmax:
+            cax.axhline(lim, color="white", linewidth=3.2, zorder=5)
+            cax.axhline(lim, color=PALETTE["limit"], linewidth=1.8, linestyle=ls, zorder=6)
+    for lim, words, ls in limits:
+        if np.isfinite(lim) and not (zmin <= lim <= zmax):
+            below = lim < zmin
+            cax.text(0.5, -0.015 if below else 1.015,
+                     f"limit {lim:.3g}{(' ' + unit) if unit else ''}\n({'below' if below else 'above'} scale)",
+                     transform=cax.transAxes, ha="center", va="top" if below else "bottom", fontsize=7,
+                     color=PALETTE["limit"])
+
+    handles = [
+        Line2D([], [], linestyle="none", marker="o", markerfacecolor=_mid_colour(), markeredgecolor=PALETTE["ink"],
+               markersize=5, label="verification point (colour: value)"),
+        Line2D([], [], linestyle="none", marker="o", markerfacecolor="none", markeredgecolor=PALETTE["limit"],
+               markersize=9, markeredgewidth=1.4, label="fails a requirement (any)"),
+    ]
+    if any_undef:
+        handles.append(Line2D([], [], linestyle="none", marker="^", markerfacecolor="white",
+                              markeredgecolor=PALETTE["ink"], markersize=6, label=undefined_label))
+    for lim, words, ls in limits:
+        if np.isfinite(lim):
+            drawn = words in contour_drawn
+            handles.append(Line2D([], [], color=PALETTE["limit"], linewidth=1.5, linestyle=ls,
+                                  label=f"{words} {lim:.3g}{(' ' + unit) if unit else ''}"
+                                        + ("" if drawn else " (not crossed)")))
+    if outline is not None:
+        handles.append(Line2D([], [], color=PALETTE["ink"], linewidth=1.2, label="flight envelope"))
+        words = " and ".join(DISPLAY[v][0] for v in result.schedule.variables)
+        handles.append(Line2D([], [], color=PALETTE["critical"], linewidth=0.8, linestyle=(0, (1, 2)),
+                              label=f"breakpoints ({words})"))
+    else:
+        handles.append(Line2D([], [], linestyle="none", label="no envelope: points are the conditions (no contours)"))
+    fig.legend(handles=handles, loc="lower left", ncol=3 if ncol > 1 else 2, fontsize=7.0,
+               bbox_to_anchor=(0.005, 0.0), frameon=True)
+    _title(fig, title, case, _verdict(result))
+    return fig
+
+
+def _mid_colour():
+    from matplotlib import colormaps
+
+    return colormaps[COLORMAP](0.55)
+
+
+def _draw_damping_map(case, result):
+    band = _criterion(case, "damping_ratio")
+    measure = case.requirements.damping_measure
+    limits = []
+    if band is not None:
+        limits = [(band[0], "damping band lower limit", (0, (6, 3))), (band[1], "damping band upper limit", "-.")]
+    words = "equivalent-system" if measure == "equivalent" else "closed-loop modal"
+    return _map_figure(
+        case, result, result.verification.damping_ratio,
+        title=f"Short-period damping ratio with the schedule ({words}, the measure the requirement judges)",
+        cbar_label=f"damping ratio ({measure})",
+        limits=limits,
+        undefined_label="no damping ratio (divergent short period)",
+        undefined_means="failed",
+    )
+
+
+def _draw_margin_map(case, result):
+    band = _criterion(case, "gain_margin")
+    limits = [] if band is None else [(band[0], "gain-margin requirement", (0, (6, 3)))]
+    return _map_figure(
+        case, result, result.verification.smallest_margin_db,
+        title="Smallest gain margin with the schedule (up or down, loop broken at the actuator, exact delay)",
+        cbar_label="smallest gain margin (dB)",
+        limits=limits,
+        undefined_label="no phase crossing: gain margin unbounded",
+        undefined_means="met",
+        unit="dB",
+    )
+
+
+# ---------------------------------------------------------------------------------
+# all of them
+# ---------------------------------------------------------------------------------
+def schedule_plots(case, result, out_dir):
+    """Write the schedule plots of `result` into ``<out_dir>/plots/``.
+
+    Parameters
+    ----------
+    case : damper.case.model.Case
+    result : damper.analysis.schedule.ScheduleResult
+    out_dir : path
+        Run directory; the files go to its ``plots`` sub-directory.
+
+    Returns
+    -------
+    list of str
+        Written paths: ``schedule-gain``, ``schedule-damping-map``, ``schedule-margin-map``,
+        each as ``.png`` then ``.svg``.
+    """
+    import matplotlib
+
+    plot_dir = os.path.join(os.fspath(out_dir), "plots")
+    paths = []
+    one_d = len(result.schedule.variables) == 1
+    jobs = (
+        ("schedule-gain", _draw_gain_1d if one_d else _draw_gain_2d),
+        ("schedule-damping-map", _draw_damping_map),
+        ("schedule-margin-map", _draw_margin_map),
+    )
+    with matplotlib.rc_context(_RC):
+        for stem, draw in jobs:
+            fig = draw(case, result)
+            paths += _save(fig, os.path.join(plot_dir, stem))
+    return paths
+
+
+__all__ = ["DISPLAY", "schedule_plots"]
