@@ -47,7 +47,40 @@ def equivalent_system(loop: Loop, free_zero=False, w=None):
     H = pilot_pitch_rate_response(loop, w)
     H = np.broadcast_to(H, shape + (w.size,))
     zero = np.broadcast_to(af.inverse_t_theta2(loop.airframe), shape)
-    return fit_equivalent_system(w, H, zero, free_zero=free_zero)
+    fit = fit_equivalent_system(w, H, zero, free_zero=free_zero)
+    return usable_fit(fit, w)
+
+
+#: A fit whose frequency lies this far outside the fitted band, or whose damping ratio is
+#: above this, is degenerate (the response is effectively first order there).
+OUTSIDE_BAND = 10.0
+MAX_EQUIVALENT_DAMPING = 10.0
+
+
+def usable_fit(fit, w):
+    """Mark degenerate or unconverged fits: their damping, frequency and delay become NaN.
+
+    A low-order equivalent system that does not converge, or that runs to a frequency a
+    decade outside the fitted band or a damping ratio above 10, does not describe the
+    aircraft; requirements on it then count as not met (undefined), and ``converged`` is False.
+    """
+    from dataclasses import replace
+
+    wn = fit.natural_frequency
+    ok = (
+        np.asarray(fit.converged, bool)
+        & (wn >= w[0] / OUTSIDE_BAND)
+        & (wn <= w[-1] * OUTSIDE_BAND)
+        & (fit.damping_ratio <= MAX_EQUIVALENT_DAMPING)
+    )
+    nan = np.where(ok, 1.0, np.nan)
+    return replace(
+        fit,
+        damping_ratio=fit.damping_ratio * nan,
+        natural_frequency=wn * nan,
+        time_delay=fit.time_delay * nan,
+        converged=ok,
+    )
 
 
 def pitch_bandwidth(loop: Loop):
