@@ -512,6 +512,8 @@ class BodeData:
         The loop's pure delay, s (0 without one).
     stable : bool
         Closed-loop stability at this gain.
+    per_unit_gain : bool
+        The chosen gain is 0 (the loop is open): the curve is L per unit gain (K = 1 s).
     """
 
     gain: float
@@ -527,6 +529,7 @@ class BodeData:
     disk_margin: float
     delay_s: float
     stable: bool
+    per_unit_gain: bool = False
 
 
 def bode_data(case, assessment, i, w=None) -> BodeData:
@@ -548,7 +551,8 @@ def bode_data(case, assessment, i, w=None) -> BodeData:
     gain = float(np.asarray(assessment.gains)[i])
     d = map_arrays(case.derivatives(), lambda a: a[[i]] if np.ndim(a) else a)
     hw = case.loop.hardware()
-    loop = Loop(d, hw, np.array([gain]))
+    per_unit = gain == 0.0
+    loop = Loop(d, hw, np.array([1.0 if per_unit else gain]))
     L = loop_response(loop, w[None, :])[0]
     T = 0.0 if hw.delay is None else float(np.asarray(hw.delay.time))
     rational = L * np.exp(1j * w * T)
@@ -577,6 +581,7 @@ def bode_data(case, assessment, i, w=None) -> BodeData:
         disk_margin=float(np.asarray(m.disk_margin)[i]),
         delay_s=T,
         stable=bool(np.asarray(assessment.modes.stable)[i]),
+        per_unit_gain=per_unit,
     )
 
 
@@ -734,13 +739,15 @@ def _draw_bode(case, design, i, b: BodeData):
         f"exact delay {b.delay_s * 1e3:.3g} ms (no Pade)" if b.delay_s > 0 else "no delay in the loop",
         f"closed loop {'stable' if b.stable else 'UNSTABLE'}",
         "",
-        "gain margin: " + _fmt(b.gain_margin_db, ".1f", "dB", "none (no phase crossing below 0 dB)"),
+        "gain margin: " + _fmt(b.gain_margin_db, ".1f", "dB", "none (unbounded)"),
         "downward gain margin: " + _fmt(b.gain_margin_low_db, ".1f", "dB", "none"),
         "phase margin: " + _fmt(b.phase_margin_deg, ".1f", "deg", "none"),
         "delay margin: " + _fmt(dm, ".3g", "s", "none"),
         "disk margin alpha: " + _fmt(b.disk_margin, ".3f", "", "none").strip(),
     ]
-    if not b.gain_crossings:
+    if b.per_unit_gain:
+        lines += ["", "K = 0: there is no loop, so no", "margins; the curve is L at", "K = 1 s, for its shape only"]
+    elif not b.gain_crossings:
         lines += ["", "|L| < 1 at every frequency:", "no gain crossing, so phase and", "delay margins are unbounded"]
     req = []
     for name, unit in (("gain_margin", "dB"), ("phase_margin", "deg"), ("delay_margin", "s")):
@@ -785,7 +792,10 @@ def _draw_bode(case, design, i, b: BodeData):
         Line2D([], [], **LINES["critical"], label="0 dB, -180 deg (mod 360)"),
     ]
     fig.legend(handles=handles, loc="lower left", bbox_to_anchor=(0.72, 0.085), frameon=True, fontsize=8)
-    fig.suptitle(f"{cond.name}: loop response L(jw) at the chosen gain", fontsize=12, x=0.085, ha="left", y=0.975)
+    title = f"{cond.name}: loop response L(jw) at the chosen gain"
+    if b.per_unit_gain:
+        title = f"{cond.name}: chosen gain K = 0 (loop open); drawn: L(jw) per unit gain, K = 1 s"
+    fig.suptitle(title, fontsize=12, x=0.085, ha="left", y=0.975)
     fig.text(
         0.085, 0.915, f"{case.title}  |  exact delay in every frequency response", fontsize=8.5, color=PALETTE["ink"]
     )
