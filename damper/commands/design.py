@@ -24,6 +24,7 @@ def register(sub) -> str:
     p.add_argument("--gain-max", type=float, metavar="K", help="highest gain of the sweep, s")
     p.add_argument("--points", type=int, default=161, help="gains in the sweep (default 161)")
     p.add_argument("--no-plots", action="store_true", help="skip the plots")
+    p.add_argument("--no-responses", action="store_true", help="skip the time responses at the chosen gains")
     p.add_argument("--no-report", action="store_true", help="skip the HTML report (rebuild it later with 'damper report DIR')")
     return NAME
 
@@ -87,6 +88,18 @@ def run(args, argv) -> int:
             from ..output.schedule_plots import schedule_plots
 
             written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
+    responses = None
+    if design is not None and not args.no_responses:
+        import numpy as np
+
+        from ..analysis.response import respond_case, response_spec
+        from .respond import write_responses
+
+        spec = response_spec(case)
+        gains = np.array([c.chosen_gain for c in design.conditions])
+        responses = respond_case(case, gains, spec)
+        write_responses(out, case, responses, spec, command, plots=not args.no_plots, gain_text="chosen gain")
+        written.append("responses.json with time histories")
     if not args.no_report:
         from ..output.report import write_report
 

@@ -28,9 +28,8 @@ def run(args, argv) -> int:
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
     from ..errors import DamperError
-    from ..output.files import prepare_run_dir, write_atomic
-    from ..output.jsonout import dumps
-    from ..output.response_plots import file_stem, plot_response, response_csv, response_document, response_table
+    from ..output.files import prepare_run_dir
+    from ..output.response_plots import response_document, response_table
 
     if not math.isfinite(args.gain):
         raise DamperError(f"--gain = {args.gain}: must be a finite number of seconds")
@@ -40,34 +39,43 @@ def run(args, argv) -> int:
     spec = response_spec(case)
     result = respond_case(case, args.gain, spec)
     command = " ".join(["damper", *argv])
-    files = {}
-    if out:
-        stride = max(1, int(round(spec.output_step / spec.step)))
-        lim_r, lim_t = result.rate_limit, result.travel
-        for j, res in enumerate(result.responses):
-            for i, cond in enumerate(case.conditions):
-                bare, aug = res.bare.take(i), res.augmented.take(i)
-                stem = os.path.join(out, file_stem(i, cond.name, j, res.input.label))
-                paths = [write_atomic(stem + ".csv", response_csv(bare, aug, stride))]
-                if not args.no_plots:
-                    paths += plot_response(
-                        stem, bare, aug,
-                        title=f"{case.title}: {cond.name}",
-                        subtitle=f"{res.input.label}; K = {args.gain:g} s; dashed: actuator limits",
-                        rate_limit=lim_r, travel=lim_t, stride=stride,
-                    )
-                files[(i, j)] = [os.path.basename(p) for p in paths]
-    doc = response_document(case, result, command=command, files=files)
-    if out:
-        write_atomic(os.path.join(out, "responses.json"), dumps(doc))
+    doc = write_responses(out, case, result, spec, command, plots=not args.no_plots, gain_text=f"K = {args.gain:g} s") if out \
+        else response_document(case, result, command=command, files={})
     print(f"{case.title}: time responses with K = {args.gain:g} s" + (" (default doublet)" if spec.default else ""))
     print(response_table(doc))
     for note in result.notes:
         print(f"note: {note}")
     if out:
-        n = sum(len(v) for v in files.values()) + 1
-        print(f"wrote {n} files to {out}")
+        print(f"wrote responses.json, CSV and plots to {out}")
     else:
         print("no files written (give --out DIR for CSV, JSON and plots)")
     print(CAUTION_SHORT)
     return 0
+
+
+def write_responses(out, case, result, spec, command, plots=True, gain_text="chosen gains"):
+    """Write each condition's CSV (and plots) and responses.json into `out`; return the document."""
+    import os
+
+    from ..output.files import write_atomic
+    from ..output.jsonout import dumps
+    from ..output.response_plots import file_stem, plot_response, response_csv, response_document
+
+    files = {}
+    stride = max(1, int(round(spec.output_step / spec.step)))
+    for j, res in enumerate(result.responses):
+        for i, cond in enumerate(case.conditions):
+            bare, aug = res.bare.take(i), res.augmented.take(i)
+            stem = os.path.join(out, file_stem(i, cond.name, j, res.input.label))
+            paths = [write_atomic(stem + ".csv", response_csv(bare, aug, stride))]
+            if plots:
+                paths += plot_response(
+                    stem, bare, aug,
+                    title=f"{case.title}: {cond.name}",
+                    subtitle=f"{res.input.label}; {gain_text}; dashed: actuator limits",
+                    rate_limit=result.rate_limit, travel=result.travel, stride=stride,
+                )
+            files[(i, j)] = [os.path.basename(p) for p in paths]
+    doc = response_document(case, result, command=command, files=files)
+    write_atomic(os.path.join(out, "responses.json"), dumps(doc))
+    return doc
