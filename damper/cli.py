@@ -23,6 +23,7 @@ COMMAND_MODULES = (
     "damper.commands.assess",
     "damper.commands.sweep",
     "damper.commands.respond",
+    "damper.commands.robust",
     "damper.commands.report",
 )
 

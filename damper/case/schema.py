@@ -543,6 +543,12 @@ def _envelope_specs():
     return ENVELOPE, AERODYNAMICS, SCHEDULE
 
 
+def _uncertainty_spec():
+    from .uncertainty_schema import UNCERTAINTY
+
+    return UNCERTAINTY
+
+
 def _requirements_spec():
     from .requirements_schema import REQUIREMENTS
 
@@ -564,6 +570,7 @@ CASE = Section(
         "requirements": _requirements_spec(),
         "responses": RESPONSES,
         "analysis": ANALYSIS,
+        "uncertainty": _uncertainty_spec(),
     },
     "A damper case.",
 )

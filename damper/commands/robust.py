@@ -1,0 +1,139 @@
+"""``damper robust CASE (--gain K | --design DIR)``: robustness to uncertain data and hardware."""
+
+from __future__ import annotations
+
+import sys
+
+NAME = "robust"
+
+
+def register(sub) -> str:
+    p = sub.add_parser(
+        NAME,
+        help="Monte Carlo, corners and worst case of the case's uncertainty section; write a run directory",
+        description="Robustness of the damper to the uncertainty: section of the case (derivatives, mass, CG, "
+        "hardware and gain tolerances): pass fraction of every requirement with its confidence interval, "
+        "worst case, and which parameter drives it.",
+    )
+    p.add_argument("case", help="case file (YAML) with an uncertainty: section")
+    g = p.add_mutually_exclusive_group(required=True)
+    g.add_argument("--gain", type=float, metavar="K", help="pitch-rate gain K in seconds at every condition")
+    g.add_argument("--design", metavar="DIR", help="run directory of `damper design`: its chosen gain per condition")
+    p.add_argument("--samples", type=int, metavar="N", help="Monte Carlo samples (default: the case's, else 2000)")
+    p.add_argument("--seed", type=int, metavar="S", help="random seed (default: the case's, else 1)")
+    p.add_argument("--workers", type=int, metavar="W", help="threads evaluating chunks (default: up to 2)")
+    p.add_argument("--out", metavar="DIR", help="run directory to create (default: robust-<case name>)")
+    p.add_argument("--force", action="store_true", help="replace the files of an earlier run in DIR")
+    p.add_argument("--no-plots", action="store_true", help="skip the plots")
+    p.add_argument("--quiet", action="store_true", help="no progress bar on standard error")
+    return NAME
+
+
+def _check_args(args):
+    import math
+
+    from ..errors import DamperError
+
+    if args.gain is not None and not math.isfinite(args.gain):
+        raise DamperError(f"--gain = {args.gain}: must be a finite number of seconds")
+    if args.samples is not None and not 1 <= args.samples <= 10_000_000:
+        raise DamperError(f"--samples = {args.samples}: must be between 1 and 10000000")
+    if args.seed is not None and args.seed < 0:
+        raise DamperError(f"--seed = {args.seed}: must not be negative")
+    if args.workers is not None and not 1 <= args.workers <= 64:
+        raise DamperError(f"--workers = {args.workers}: must be between 1 and 64")
+
+
+class _Progress:
+    """A plain-text progress bar on standard error (only on a terminal unless forced)."""
+
+    def __init__(self, stream=None, enabled=None):
+        self.stream = stream or sys.stderr
+        self.enabled = self.stream.isatty() if enabled is None else enabled
+        self.last = None
+
+    def __call__(self, done, total, stage):
+        if not self.enabled or total <= 0:
+            return
+        width = 30
+        frac = min(1.0, done / total)
+        key = (stage, int(frac * 100))
+        if key == self.last:
+            return
+        self.last = key
+        bar = "#" * int(round(frac * width))
+        self.stream.write(f"\r{stage:<18} [{bar:<{width}}] {100 * frac:5.1f} % ({done}/{total})")
+        if done >= total:
+            self.stream.write("\n")
+        self.stream.flush()
+
+
+def _read_design(path):
+    import json
+    import os
+
+    from ..errors import DamperError
+
+    file = os.path.join(path, "design.json") if os.path.isdir(path) else path
+    try:
+        with open(file, encoding="utf-8") as fh:
+            return json.load(fh), file
+    except FileNotFoundError:
+        raise DamperError(f"--design {path}: no design.json there (run `damper design CASE --out {path}` first)") from None
+    except (OSError, ValueError) as exc:
+        raise DamperError(f"--design {path}: cannot read {file} ({exc})") from None
+
+
+def run(args, argv) -> int:
+    _check_args(args)
+    import os
+    import re
+    import time
+
+    from ..analysis.robustness import gains_from_design, robustness, uncertainty_spec
+    from ..case import load_case
+    from ..cli import CAUTION_SHORT, warn_case
+    from ..output.files import prepare_run_dir, write_atomic
+    from ..output.jsonout import dumps
+    from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
+
+    case = load_case(args.case)
+    if args.design is not None:
+        doc, _ = _read_design(args.design)
+        gains = gains_from_design(case, doc)
+        source = f"chosen gains of {args.design}"
+    else:
+        gains = args.gain
+        source = f"K = {args.gain:g} s at every condition"
+    spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
+    stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
+    out = prepare_run_dir(args.out or f"robust-{stem}", force=args.force)
+    warn_case(case)
+    if not spec.parameters and spec.cg_shift is None:
+        print("damper: warning: the case has no uncertainty: section (or it is empty); every sample is the nominal",
+              file=sys.stderr)
+    start = time.perf_counter()
+    result = robustness(case, gains, spec, progress=None if args.quiet else _Progress(), workers=args.workers)
+    elapsed = time.perf_counter() - start
+    files = ["robustness.json"]
+    plot_paths = []
+    if not args.no_plots:
+        plot_paths = robustness_plots(case, result, out)
+        files += sorted(os.path.relpath(p, out) for p in plot_paths)
+    doc = robustness_document(case, result, command=" ".join(["damper", *argv]), files=files)
+    write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
+    print(f"{case.title}: robustness with {source}")
+    print(
+        f"{spec.samples} samples (seed {spec.seed}), {len(result.corners_u)} corners"
+        f"{'' if result.corners_complete else ' (random subset)'}, worst-case search; "
+        f"{result.evaluations} loops in {elapsed:.1f} s"
+    )
+    print(robustness_table(doc))
+    bad = [(c["name"], c["diagnostics"]["equivalent_fits_not_converged"]) for c in doc["conditions"]
+           if c["diagnostics"]["equivalent_fits_not_converged"]]
+    if bad:
+        print("note: equivalent-system fit did not converge for " + ", ".join(f"{n} ({k} samples)" for n, k in bad))
+    written = "robustness.json" + (f" and {len(plot_paths)} plot files in plots/" if plot_paths else "")
+    print(f"wrote {written} to {out}")
+    print(CAUTION_SHORT)
+    return 0
