@@ -148,9 +148,13 @@ def fit_frequencies(n: int = 30, low: float = 0.1, high: float = 10.0) -> np.nda
 # model, residuals, Jacobian
 
 
+_TWO_PI = 2.0 * np.pi
+_INV_TWO_PI = 1.0 / _TWO_PI
+
+
 def _wrap(x: np.ndarray) -> np.ndarray:
-    """Wrap an angle in rad into [-pi, pi)."""
-    return (x + np.pi) % (2.0 * np.pi) - np.pi
+    """Wrap an angle in rad into [-pi, pi] (``x - 2 pi round(x / 2 pi)``: cheaper than a float modulo)."""
+    return x - _TWO_PI * np.rint(x * _INV_TWO_PI)
 
 
 def _evaluate(params, target, zero_fixed, w, free_zero, scale, want_jac=True):
