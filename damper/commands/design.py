@@ -25,6 +25,7 @@ def register(sub) -> str:
     p.add_argument("--points", type=int, default=161, help="gains in the sweep (default 161)")
     p.add_argument("--no-plots", action="store_true", help="skip the plots")
     p.add_argument("--no-responses", action="store_true", help="skip the time responses at the chosen gains")
+    p.add_argument("--no-robustness", action="store_true", help="skip the robustness study of the case's uncertainty section")
     p.add_argument("--no-report", action="store_true", help="skip the HTML report (rebuild it later with 'damper report DIR')")
     return NAME
 
@@ -100,6 +101,25 @@ def run(args, argv) -> int:
         responses = respond_case(case, gains, spec)
         write_responses(out, case, responses, spec, command, plots=not args.no_plots, gain_text="chosen gain")
         written.append("responses.json with time histories")
+    if design is not None and case.raw.get("uncertainty") is not None and not args.no_robustness:
+        import numpy as np
+
+        from ..analysis.robustness import robustness, uncertainty_spec
+        from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
+        from .robust import _Progress
+
+        spec = uncertainty_spec(case)
+        gains = np.array([c.chosen_gain for c in design.conditions])
+        rob = robustness(case, gains, spec, progress=_Progress())
+        files = ["robustness.json"]
+        if not args.no_plots:
+            files += sorted(os.path.relpath(p, out) for p in robustness_plots(case, rob, out))
+        rdoc = robustness_document(case, rob, command=command, files=files)
+        write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
+        written.append("robustness.json")
+        robustness_text = robustness_table(rdoc)
+    else:
+        robustness_text = None
     if not args.no_report:
         from ..output.report import write_report
 
@@ -110,6 +130,9 @@ def run(args, argv) -> int:
         print(design_table(doc))
     if schedule is not None:
         print(schedule_summary(schedule))
+    if robustness_text is not None:
+        print(f"robustness at the chosen gains ({spec.samples} samples, seed {spec.seed}):")
+        print(robustness_text)
     print(f"wrote {', '.join(written)} to {out}")
     print(CAUTION_SHORT)
     bad = [c.name for c in design.conditions if not c.feasible] if design is not None else []
