@@ -150,11 +150,21 @@ def bench_equivalent(n):
         r = he / h
         return np.concatenate([20 * np.log10(np.abs(r)), np.sqrt(0.01745) * np.degrees(np.angle(r))])
 
+    # the per-system script: scipy least_squares from the same number of starts (6) as the
+    # batched solver, from generic guesses (no help from the batched answer)
     t = time.perf_counter()
+    worse = 0
     for i in range(m):
-        x0 = [fit.gain[i], np.clip(fit.damping_ratio[i] * 1.2, 0.01, 40), np.clip(fit.natural_frequency[i] * 0.9, 0.01, 400), 0.01]
-        least_squares(resid, x0, args=(H[i], z[i]), bounds=([-np.inf, 1e-3, 1e-3, 0], [np.inf, 50, 500, 1]))
+        k0 = float(np.abs(H[i, 0]) * 9.0 / max(z[i], 1e-3)) * np.sign(H[i, 0].real or 1.0)
+        best = np.inf
+        for zeta0 in (0.3, 0.7, 1.5):
+            for tau0 in (0.0, 0.08):
+                x0 = [k0, zeta0, 3.0, tau0]
+                r = least_squares(resid, x0, args=(H[i], z[i]), bounds=([-np.inf, 1e-3, 1e-3, 0], [np.inf, 50, 500, 1]))
+                best = min(best, 2 * r.cost * 20 / w.size)
+        worse += best < fit.mismatch[i] * (1 - 1e-6) - 1e-9
     t_loop = (time.perf_counter() - t) / m * n
+    print(f"  (scipy found a lower cost than the batched fit on {worse} of {m} systems)")
     return t_batch, t_loop
 
 
@@ -175,8 +185,8 @@ def main(quick=False):
         print(f"           (c) floor eigvals + L(jw)    {t_c / n * 1e6:8.1f} us/case")
         print(f"           a/b = {t_a / t_b:7.1f}   b/c = {t_b / t_c:5.2f}   (poles agree to {err:.1e} relative)")
     t_batch, t_loop = bench_equivalent(2000)
-    print(f"equivalent-system fit, 2000 systems: batched {t_batch:.2f} s, per-system least_squares {t_loop:.1f} s "
-          f"(extrapolated from 100): ratio {t_loop / t_batch:.0f}")
+    print(f"equivalent-system fit, 2000 systems: batched {t_batch:.2f} s, per-system least_squares x 6 starts "
+          f"{t_loop:.1f} s (extrapolated from 100): ratio {t_loop / t_batch:.0f}")
     help_times = []
     for _ in range(5):
         t = time.perf_counter()
