@@ -105,6 +105,18 @@ def from_coefficients(
     )
 
 
+def _entries(d: Derivatives):
+    """Entries a11, a12, a21, a22, b1, b2 of the short-period matrices (``alpha'`` substituted)."""
+    v = d.airspeed
+    a11 = d.Z_alpha / v
+    a12 = 1.0 + d.Z_q / v
+    b1 = d.Z_delta / v
+    a21 = d.M_alpha + d.M_alpha_dot * a11
+    a22 = d.M_q + d.M_alpha_dot * a12
+    b2 = d.M_delta + d.M_alpha_dot * b1
+    return a11, a12, a21, a22, b1, b2
+
+
 def state_matrices(d: Derivatives):
     """Short-period state matrices with ``alpha'`` substituted into ``q'``.
 
@@ -115,14 +127,8 @@ def state_matrices(d: Derivatives):
     B : ndarray, shape (..., 2, 1)
         Response to elevator (rad): (1/s, 1/s^2).
     """
-    v = np.asarray(d.airspeed, dtype=float)
-    a11 = d.Z_alpha / v
-    a12 = 1.0 + d.Z_q / v
-    b1 = d.Z_delta / v
-    a21 = d.M_alpha + d.M_alpha_dot * a11
-    a22 = d.M_q + d.M_alpha_dot * a12
-    b2 = d.M_delta + d.M_alpha_dot * b1
-    a11, a12, a21, a22, b1, b2 = np.broadcast_arrays(a11, a12, a21, a22, b1, b2)
+    entries = _entries(d)
+    a11, a12, a21, a22, b1, b2 = np.broadcast_arrays(*(np.asarray(e, dtype=float) for e in entries))
     A = np.stack([np.stack([a11, a12], -1), np.stack([a21, a22], -1)], -2)
     B = np.stack([b1, b2], -1)[..., None]
     return A, B
@@ -143,13 +149,7 @@ def pitch_rate_response(d: Derivatives, s):
     -----
     q/delta = (b2 s + a21 b1 - a11 b2) / (s^2 - (a11 + a22) s + a11 a22 - a12 a21).
     """
-    v = d.airspeed
-    a11 = d.Z_alpha / v
-    a12 = 1.0 + d.Z_q / v
-    b1 = d.Z_delta / v
-    a21 = d.M_alpha + d.M_alpha_dot * a11
-    a22 = d.M_q + d.M_alpha_dot * a12
-    b2 = d.M_delta + d.M_alpha_dot * b1
+    a11, a12, a21, a22, b1, b2 = _entries(d)
     num = b2 * s + (a21 * b1 - a11 * b2)
     den = s * s - (a11 + a22) * s + (a11 * a22 - a12 * a21)
     return num / den
@@ -160,13 +160,7 @@ def angle_of_attack_response(d: Derivatives, s):
 
     alpha/delta = (b1 s + a12 b2 - a22 b1) / (characteristic polynomial).
     """
-    v = d.airspeed
-    a11 = d.Z_alpha / v
-    a12 = 1.0 + d.Z_q / v
-    b1 = d.Z_delta / v
-    a21 = d.M_alpha + d.M_alpha_dot * a11
-    a22 = d.M_q + d.M_alpha_dot * a12
-    b2 = d.M_delta + d.M_alpha_dot * b1
+    a11, a12, a21, a22, b1, b2 = _entries(d)
     num = b1 * s + (a12 * b2 - a22 * b1)
     den = s * s - (a11 + a22) * s + (a11 * a22 - a12 * a21)
     return num / den
@@ -177,11 +171,7 @@ def inverse_t_theta2(d: Derivatives):
 
     With ``Z_delta`` = 0 this is ``-Z_alpha / V``.
     """
-    v = d.airspeed
-    a11 = d.Z_alpha / v
-    b1 = d.Z_delta / v
-    a21 = d.M_alpha + d.M_alpha_dot * a11
-    b2 = d.M_delta + d.M_alpha_dot * b1
+    a11, _, a21, _, b1, b2 = _entries(d)
     with np.errstate(divide="ignore", invalid="ignore"):
         return (a21 * b1 - a11 * b2) / b2
 
