@@ -17,14 +17,14 @@ importing this module is cheap.
 
 from __future__ import annotations
 
-import io
+from .figures import new_figure, save_figure  # noqa: E402
+
 import os
 import re
 from dataclasses import dataclass
 
 import numpy as np
 
-from .files import write_atomic
 
 # ---------------------------------------------------------------------------------
 # Visual identity: one palette, every series also told apart by line style and marker
@@ -100,24 +100,11 @@ def safe_name(name: str) -> str:
 
 
 def _figure(width, height):
-    """A figure on its own Agg canvas (no pyplot, no global backend switch)."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(width, height))
-    FigureCanvasAgg(fig)
-    return fig
+    return new_figure(width, height)
 
 
 def _save(fig, stem):
-    """Render `fig` as PNG and SVG into memory, then write each file atomically."""
-    paths = []
-    for fmt in ("png", "svg"):
-        buf = io.BytesIO()
-        meta = {"Date": None} if fmt == "svg" else {"Software": None}
-        fig.savefig(buf, format=fmt, dpi=DPI, metadata=meta)
-        paths.append(write_atomic(f"{os.fspath(stem)}.{fmt}", buf.getvalue()))
-    return paths
+    return save_figure(fig, stem, DPI)
 
 
 def _render(draw, stem, *args):
@@ -735,7 +722,7 @@ def _draw_bode(case, design, i, b: BodeData):
     dm = b.delay_margin_s
     lines = [
         f"gain K = {b.gain:.4g} s (chosen)",
-        f"loop broken at the actuator input",
+        "loop broken at the actuator input",
         f"exact delay {b.delay_s * 1e3:.3g} ms (no Pade)" if b.delay_s > 0 else "no delay in the loop",
         f"closed loop {'stable' if b.stable else 'UNSTABLE'}",
         "",

@@ -19,14 +19,14 @@ Plots (PNG and SVG, written atomically):
 
 from __future__ import annotations
 
-import io
+from .figures import new_figure, save_figure  # noqa: E402
+
 import math
 import os
 
 import numpy as np
 
 from .design_doc import requirements_list
-from .files import write_atomic
 from .jsonout import CAUTION, num, provenance
 from .text import fmt, table
 
@@ -324,22 +324,11 @@ DPI = 120
 
 
 def _figure(width, height):
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(width, height))
-    FigureCanvasAgg(fig)
-    return fig
+    return new_figure(width, height)
 
 
 def _save(fig, stem):
-    paths = []
-    for f in ("png", "svg"):
-        buf = io.BytesIO()
-        meta = {"Date": None} if f == "svg" else {"Software": None}
-        fig.savefig(buf, format=f, dpi=DPI, metadata=meta)
-        paths.append(write_atomic(f"{os.fspath(stem)}.{f}", buf.getvalue()))
-    return paths
+    return save_figure(fig, stem, DPI)
 
 
 def _footer(fig, case, result):

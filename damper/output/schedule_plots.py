@@ -36,12 +36,12 @@ matplotlib is imported inside the functions (Agg canvas, no pyplot state).
 
 from __future__ import annotations
 
-import io
+from .figures import new_figure, save_figure  # noqa: E402
+
 import os
 
 import numpy as np
 
-from .files import write_atomic
 from .plots import COLORMAP, DPI, PALETTE, _RC
 
 #: How each schedule / map variable is shown: (words, unit shown, factor from SI).
@@ -75,24 +75,11 @@ def _style(i):
 
 
 def _figure(width, height):
-    """A figure on its own Agg canvas (no pyplot, no global backend switch)."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(width, height))
-    FigureCanvasAgg(fig)
-    return fig
+    return new_figure(width, height)
 
 
 def _save(fig, stem):
-    """Render `fig` as PNG and SVG into memory, then write each file atomically."""
-    paths = []
-    for fmt in ("png", "svg"):
-        buf = io.BytesIO()
-        meta = {"Date": None} if fmt == "svg" else {"Software": None}
-        fig.savefig(buf, format=fmt, dpi=DPI, metadata=meta)
-        paths.append(write_atomic(f"{os.fspath(stem)}.{fmt}", buf.getvalue()))
-    return paths
+    return save_figure(fig, stem, DPI)
 
 
 def _criterion(case, name):
