@@ -250,3 +250,40 @@ def test_analytic_jacobian_matches_finite_differences(free_zero):
         zi = np.exp(params[i, 4]) if free_zero else zero[i]
         h_e = loes(zeta, w_e, zi, np.exp(params[i, 3]), params[i, 2])
         assert res[i] @ res[i] == pytest.approx(mismatch_by_hand(h_e, h), rel=1e-10)
+
+
+@pytest.mark.parametrize("free_zero", [False, True])
+def test_normal_equations_equal_the_full_jacobian_products(free_zero):
+    # common practice: the structured J^T J and J^T r (formed without J) equal the
+    # products of the full Jacobian of _evaluate, itself checked by finite differences above.
+    from damper.measures.equivalent import _evaluate, _normal_equations
+
+    rng = np.random.default_rng(5)
+    h, zero = higher_order_systems(seed=31, count=12)
+    target = np.log(h)
+    if not free_zero:
+        target = target - np.log(S + zero[:, None])
+    cols = [np.log(rng.uniform(0.5, 8, 12)), np.log(rng.uniform(0.1, 3, 12)), rng.uniform(0, 0.2, 12),
+            rng.normal(0, 1, 12)] + ([np.log(rng.uniform(0.3, 2, 12))] if free_zero else [])
+    params = np.column_stack(cols)
+    scale = np.sqrt(20.0 / W.size)
+    res, cost, jac = _evaluate(params, target, zero, W, free_zero, scale)
+    cost2, normal, grad = _normal_equations(params, target, zero, W, free_zero, scale)
+    np.testing.assert_allclose(cost2, cost, rtol=1e-12)
+    jtj = np.swapaxes(jac, 1, 2) @ jac
+    np.testing.assert_allclose(normal, jtj, rtol=1e-10, atol=1e-12 * np.abs(jtj).max())
+    jtr = np.einsum("imk,im->ik", jac, res)
+    np.testing.assert_allclose(grad, jtr, rtol=1e-10, atol=1e-10 * np.abs(jtr).max())
+
+
+def test_merged_starts_keep_the_best_of_each_cluster():
+    # [derived] two systems x three starts: starts 0 and 2 of system 0 coincide (2 is
+    # cheaper: 0 goes); system 1's starts are apart (none goes); a dead row is never compared.
+    from damper.measures.equivalent import _merged_starts
+
+    params = np.array([[0.0, 0.0, 0.0, 0.0], [1.0, 0, 0, 0], [0.001, 0, 0, 0],
+                       [0.0, 0, 0, 0], [0.5, 0, 0, 0], [0.0, 0, 0.001, 0]])
+    cost = np.array([2.0, 1.0, 1.5, 1.0, 1.0, 3.0])
+    alive = np.array([True, True, True, True, True, False])
+    drop = _merged_starts(params, cost, alive, 3)
+    assert drop.tolist() == [True, False, False, False, False, False]

@@ -74,6 +74,10 @@ _LAMBDA_MAX = 1e12
 _FTOL = 1e-14  # relative cost reduction regarded as no progress
 _XTOL = 1e-11  # step size (log units / s) regarded as no progress
 _COST_FLOOR = 1e-26  # cost regarded as an exact fit
+# Starts of one system closer than this in every parameter (log units; s for tau_e)
+# are taken to be in one basin; the checks are every _MERGE_EVERY iterations.
+_MERGE_TOL = 1e-2
+_MERGE_EVERY = 1
 
 # Parameter box (only reached by degenerate fits): w_e and a free 1/T_theta2
 # within [w[0] * 1e-4, w[-1] * 1e4] rad/s, zeta_e within [1e-4, 1e4].
@@ -211,6 +215,81 @@ def _evaluate(params, target, zero_fixed, w, free_zero, scale, want_jac=True):
     return res, cost, jac
 
 
+def _normal_equations(params, target, zero, w, free_zero, scale):
+    """Cost, normal matrix ``J^T J`` and gradient ``J^T r`` without forming ``J``.
+
+    Same inputs as :func:`_evaluate`.  The Jacobian's structure is used: the
+    ``ln|Kq|`` column is a constant on the gain rows and zero on the phase
+    rows, the ``tau_e`` column zero on the gain rows and ``-c w`` on the phase
+    rows, so only the ``ln w_e``, ``ln zeta_e`` (and free-zero) columns are
+    evaluated and the products are formed as row sums.  Returns cost (M,),
+    normal matrix (M, p, p) and gradient (M, p), equal to ``J^T J`` and
+    ``J^T r`` of :func:`_evaluate` to rounding.
+    """
+    m_rows, p = params.shape
+    w_e = np.exp(params[:, _LN_W])[:, None]
+    zeta = np.exp(params[:, _LN_Z])[:, None]
+    tau = params[:, _TAU][:, None]
+    ln_k = params[:, _LN_K][:, None]
+    w_e2 = w_e * w_e
+    d_re = w_e2 - w * w
+    d_im = (2.0 * zeta * w_e) * w
+    mag2 = d_re * d_re + d_im * d_im
+    inv = 1.0 / mag2
+    c_gain = scale * _DB_PER_NEPER
+    c_phase = scale * np.sqrt(PHASE_WEIGHT) * _DEG_PER_RAD
+    log_gain = ln_k - 0.5 * np.log(mag2) - target.real
+    phase = -tau * w - np.arctan2(d_im, d_re) - target.imag
+    if free_zero:
+        zero_r = np.exp(params[:, _LN_ZERO])[:, None]
+        n_mag2 = zero_r * zero_r + w * w
+        log_gain = log_gain + 0.5 * np.log(n_mag2)
+        phase = phase + np.arctan2(w, zero_r)
+    r_g = c_gain * log_gain
+    r_p = c_phase * _wrap(phase)
+
+    # columns of J (without the constant factors c_gain, c_phase)
+    im2 = d_im * d_im * inv
+    cross = d_im * d_re * inv
+    g_z = -im2  # gain rows, d/d ln zeta
+    p_z = -cross  # phase rows, d/d ln zeta
+    g_w = g_z - 2.0 * w_e2 * d_re * inv  # -(2 w_e^2 d_re + d_im^2) / |D|^2
+    p_w = 2.0 * w_e2 * d_im * inv - cross  # -(d_im d_re - 2 w_e^2 d_im) / |D|^2
+    cols_g = [g_w, g_z]
+    cols_p = [p_w, p_z]
+    if free_zero:
+        cols_g.append(zero_r * zero_r / n_mag2)  # d ln(jw + z)/d ln z = z (z - jw) / (z^2 + w^2)
+        cols_p.append(-zero_r * w / n_mag2)
+    idx = [_LN_W, _LN_Z] + ([_LN_ZERO] if free_zero else [])
+    cg2, cp2 = c_gain * c_gain, c_phase * c_phase
+
+    def dot(a, b):
+        return np.einsum("ij,ij->i", a, b)
+
+    normal = np.zeros((m_rows, p, p))
+    grad = np.empty((m_rows, p))
+    sum_w2 = float(w @ w)
+    for a, ia in enumerate(idx):
+        ga, pa = cols_g[a], cols_p[a]
+        for b in range(a, len(idx)):
+            v = cg2 * dot(ga, cols_g[b]) + cp2 * dot(pa, cols_p[b])
+            normal[:, ia, idx[b]] = v
+            normal[:, idx[b], ia] = v
+        v = -cp2 * np.einsum("ij,j->i", pa, w)
+        normal[:, ia, _TAU] = v
+        normal[:, _TAU, ia] = v
+        v = cg2 * ga.sum(axis=1)
+        normal[:, ia, _LN_K] = v
+        normal[:, _LN_K, ia] = v
+        grad[:, ia] = c_gain * dot(ga, r_g) + c_phase * dot(pa, r_p)
+    normal[:, _TAU, _TAU] = cp2 * sum_w2
+    normal[:, _LN_K, _LN_K] = cg2 * w.size
+    grad[:, _TAU] = -c_phase * np.einsum("ij,j->i", r_p, w)
+    grad[:, _LN_K] = c_gain * r_g.sum(axis=1)
+    cost = dot(r_g, r_g) + dot(r_p, r_p)
+    return cost, normal, grad
+
+
 # ---------------------------------------------------------------------------
 # starting points
 
@@ -287,6 +366,8 @@ def _starting_points(w, log_h, zero, free_zero):
     w_d, zeta_d = _data_start(w, log_h, zero)
     p = 5 if free_zero else 4
     starts = []
+    w2 = w * w
+    level = log_h.real - np.log(np.hypot(zero[:, None], w))  # ln|H / (jw + zero)|, no overflow
     for zeta_spec, w_mult in _START_SPREAD:
         zeta = zeta_d if zeta_spec == "data" else np.full(n_sys, float(zeta_spec))
         w_e = w_d * w_mult
@@ -296,10 +377,10 @@ def _starting_points(w, log_h, zero, free_zero):
         par[:, _TAU] = 0.0
         if free_zero:
             par[:, _LN_ZERO] = np.log(zero)
-        jw = 1j * w
-        den = jw**2 + 2.0 * (zeta * w_e)[:, None] * jw + (w_e**2)[:, None]
-        shape = np.log(jw + zero[:, None]) - np.log(den)
-        par[:, _LN_K] = np.mean(log_h.real - shape.real, axis=1)
+        d_re = (w_e**2)[:, None] - w2
+        d_im = (2.0 * zeta * w_e)[:, None] * w
+        # mean of ln|H| - ln|(jw + zero) / D(jw)|
+        par[:, _LN_K] = np.mean(level + 0.5 * np.log(d_re * d_re + d_im * d_im), axis=1)
         starts.append(par)
     params = np.stack(starts, axis=1)  # (N, S, p)
     return params
@@ -309,12 +390,18 @@ def _scan_delay_and_sign(rows, target, zero, w, free_zero, scale):
     """Starting ``tau_e`` (s) and sign of ``Kq`` for each start row.
 
     The gain part of the cost does not depend on ``tau_e`` or the sign, so
-    the phase part alone is scanned over the sign (+-1) and a grid of delays
-    ``0 .. 5 / w[-1]`` s (0 to 0.5 s for the default band) in steps of
-    ``0.1 / w[-1]`` s (0.01 s; 0.1 rad of phase at the top frequency).  The
-    wrapped phase mismatch makes the cost multi-modal in ``tau_e`` once
-    ``tau_e w`` exceeds about pi, so starting every row at zero delay can
-    trap large-delay systems in a poor basin.  Returns (tau (M,), sign (M,)).
+    the phase part alone is scanned over the sign (+-1) and delays
+    ``0 .. 5 / w[-1]`` s (0 to 0.5 s for the default band): first in steps of
+    ``0.3 / w[-1]`` s (0.3 rad of phase at the top frequency), then at
+    ``+-0.1`` and ``+-0.2 / w[-1]`` s around the best step, so the delay is
+    found to ``0.1 / w[-1]`` s (0.01 s).  The wrapped phase mismatch makes
+    the cost multi-modal in ``tau_e`` once ``tau_e w`` exceeds about pi, so
+    starting every row at zero delay can trap large-delay systems in a poor
+    basin; the minima of the phase cost are smooth (its kinks, where a term
+    wraps, are maxima of that term), so the coarse steps cannot step over a
+    basin.  With the phase mismatch ``x`` of the positive sign wrapped into
+    [-pi, pi], that of the negative sign wraps to ``pi - |x|`` in magnitude,
+    so both signs cost one wrap.  Returns (tau (M,), sign (M,)).
     """
     start = rows.copy()
     start[:, _TAU] = 0.0
@@ -322,16 +409,28 @@ def _scan_delay_and_sign(rows, target, zero, w, free_zero, scale):
     res0 = _evaluate(start, target, zero, w, free_zero, scale, want_jac=False)[0]
     c_phase = scale * np.sqrt(PHASE_WEIGHT) * _DEG_PER_RAD
     phase0 = res0[:, nw:] / c_phase  # rad, wrapped, at tau = 0 and sign +
-    best_cost = np.full(rows.shape[0], np.inf)
-    best_tau = np.zeros(rows.shape[0])
-    best_sign = np.ones(rows.shape[0])
-    for tau in np.arange(51) * (0.1 / w[-1]):
-        for sgn, shift in ((1.0, 0.0), (-1.0, np.pi)):
-            cost = np.sum(_wrap(phase0 - tau * w - shift) ** 2, axis=1)
-            better = cost < best_cost
-            best_cost = np.where(better, cost, best_cost)
-            best_tau = np.where(better, tau, best_tau)
-            best_sign = np.where(better, sgn, best_sign)
+    n_rows = rows.shape[0]
+    best_cost = np.full(n_rows, np.inf)
+    best_tau = np.zeros(n_rows)
+    best_sign = np.ones(n_rows)
+    pi2_n = nw * np.pi * np.pi
+
+    def try_taus(taus):
+        nonlocal best_cost, best_tau, best_sign
+        for tau in taus:  # tau: scalar or (M,) s
+            x = _wrap(phase0 - np.multiply.outer(tau, w) if np.ndim(tau) else phase0 - tau * w)
+            sq = np.einsum("ij,ij->i", x, x)
+            cost_minus = pi2_n - 2.0 * np.pi * np.abs(x).sum(axis=1) + sq
+            for cost, sgn in ((sq, 1.0), (cost_minus, -1.0)):
+                better = cost < best_cost
+                best_cost = np.where(better, cost, best_cost)
+                best_tau = np.where(better, tau, best_tau)
+                best_sign = np.where(better, sgn, best_sign)
+
+    step = 0.1 / w[-1]
+    try_taus(np.arange(0, 51, 3) * step)
+    coarse = best_tau.copy()
+    try_taus([np.maximum(coarse + k * step, 0.0) for k in (-2, -1, 1, 2)])
     return best_tau, best_sign
 
 
@@ -339,8 +438,40 @@ def _scan_delay_and_sign(rows, target, zero, w, free_zero, scale):
 # the batched solver
 
 
+def _merged_starts(params, cost, alive, n_start):
+    """Rows to drop because a better start of the same system is at the same point.
+
+    Rows are system-major (``row = system * n_start + start``).  Two live starts of
+    one system whose parameters all agree within :data:`_MERGE_TOL` (log units, and
+    s for ``tau_e``) are in the same basin; the one with the higher cost (the later
+    start on a tie) is dropped.  The best start of every cluster always survives, and
+    its cost only falls afterwards, so dropping never changes which basin wins.
+    Returns a bool mask over the rows.
+    """
+    m_rows, p = params.shape
+    n_sys = m_rows // n_start
+    live_all = alive.reshape(n_sys, n_start)
+    sel = np.nonzero(live_all.sum(axis=1) >= 2)[0]  # systems with starts to compare
+    drop_all = np.zeros((n_sys, n_start), dtype=bool)
+    if sel.size == 0:
+        return drop_all.reshape(m_rows)
+    par = params.reshape(n_sys, n_start, p)[sel]
+    c = cost.reshape(n_sys, n_start)[sel]
+    live = live_all[sel]
+    drop = np.zeros((sel.size, n_start), dtype=bool)
+    for a in range(n_start - 1):
+        for b in range(a + 1, n_start):
+            close = live[:, a] & live[:, b]
+            close &= np.all(np.abs(par[:, a] - par[:, b]) <= _MERGE_TOL, axis=1)
+            b_worse = c[:, b] >= c[:, a]
+            drop[:, b] |= close & b_worse
+            drop[:, a] |= close & ~b_worse
+    drop_all[sel] = drop
+    return drop_all.reshape(m_rows)
+
+
 def _levenberg_marquardt(
-    params, target, zero, w, free_zero, scale, max_iterations, lower, upper
+    params, target, zero, w, free_zero, scale, max_iterations, lower, upper, n_start=1
 ):
     """Projected Levenberg-Marquardt on a stack of independent problems.
 
@@ -348,58 +479,70 @@ def _levenberg_marquardt(
     at a bound whose gradient points out of the box is frozen for the step
     (active set) and every trial point is projected onto the box.  Every row
     is iterated with its own damping and its own stopping test; a row that
-    has stopped is no longer updated, so the result of a row does not depend
-    on the other rows of the stack.
+    has stopped is no longer updated (and leaves the working set), so the
+    result of a row does not depend on the other rows of the stack.  With
+    ``n_start > 1`` the rows are that many starts per system (system-major)
+    and every :data:`_MERGE_EVERY` iterations a start that has reached another
+    start of the same system is dropped (:func:`_merged_starts`).
+    Returns (params, cost, converged) over all rows; a dropped start keeps its
+    last point and is not marked converged.
     """
     m_rows, p = params.shape
     params = params.copy()
-    res, cost, jac = _evaluate(params, target, zero, w, free_zero, scale)
-    lam = np.full(m_rows, _LAMBDA_START)
-    done = cost <= _COST_FLOOR
-    converged = done.copy()
+    cost, normal, grad = _normal_equations(params, target, zero, w, free_zero, scale)
+    converged = cost <= _COST_FLOOR
     eye = np.eye(p)
 
-    for _ in range(max_iterations):
-        act = np.nonzero(~done)[0]
+    # working set: the rows still iterating, compacted
+    act = np.nonzero(~converged)[0]
+    w_par, w_cost = params[act], cost[act]
+    w_normal, w_grad = normal[act], grad[act]
+    w_target, w_zero = target[act], zero[act]
+    w_lam = np.full(act.size, _LAMBDA_START)
+
+    for it in range(max_iterations):
         if act.size == 0:
             break
-        j_a, r_a, p_a = jac[act], res[act], params[act]
-        a_mat = np.matmul(np.swapaxes(j_a, 1, 2), j_a)  # (A, p, p)
-        grad = np.einsum("imk,im->ik", j_a, r_a)  # (A, p)
         # Parameters at a bound with the descent direction leaving the box.
-        frozen = ((p_a <= lower) & (grad > 0.0)) | ((p_a >= upper) & (grad < 0.0))
+        frozen = ((w_par <= lower) & (w_grad > 0.0)) | ((w_par >= upper) & (w_grad < 0.0))
         keep = np.where(frozen, 0.0, 1.0)
-        a_mat = a_mat * keep[:, :, None] * keep[:, None, :]
-        grad = grad * keep
+        a_mat = w_normal * keep[:, :, None] * keep[:, None, :]
+        g = w_grad * keep
         diag = np.einsum("ikk->ik", a_mat)
         diag_floor = 1e-12 * np.maximum(diag.max(axis=1, keepdims=True), 1e-300)
-        damp = lam[act, None] * np.maximum(diag, diag_floor)
-        lhs = a_mat + damp[:, :, None] * eye + (1.0 - keep)[:, :, None] * eye
-        step = -np.linalg.solve(lhs, grad[:, :, None])[:, :, 0]
-        trial = p_a + step
-        trial = np.clip(trial, lower, upper)
-        actual_step = trial - p_a
+        damp = w_lam[:, None] * np.maximum(diag, diag_floor)
+        lhs = a_mat + (damp + (1.0 - keep))[:, :, None] * eye
+        step = -np.linalg.solve(lhs, g[:, :, None])[:, :, 0]
+        trial = np.clip(w_par + step, lower, upper)
+        actual_step = trial - w_par
 
-        res_t, cost_t, jac_t = _evaluate(trial, target[act], zero[act], w, free_zero, scale)
-        cost_a = cost[act]
-        ok = np.isfinite(cost_t) & (cost_t < cost_a)
+        cost_t, normal_t, grad_t = _normal_equations(trial, w_target, w_zero, w, free_zero, scale)
+        ok = np.isfinite(cost_t) & (cost_t < w_cost)
         small_step = np.max(np.abs(actual_step), axis=1) <= _XTOL
-        small_gain = (cost_a - cost_t) <= _FTOL * cost_a
+        small_gain = (w_cost - cost_t) <= _FTOL * w_cost
 
-        acc = act[ok]
-        params[acc] = trial[ok]
-        res[acc] = res_t[ok]
-        jac[acc] = jac_t[ok]
-        cost[acc] = cost_t[ok]
-        lam[acc] = np.maximum(lam[acc] * _LAMBDA_DOWN, _LAMBDA_MIN)
-        rej = act[~ok]
-        lam[rej] = lam[rej] * _LAMBDA_UP
+        w_par[ok] = trial[ok]
+        w_normal[ok] = normal_t[ok]
+        w_grad[ok] = grad_t[ok]
+        w_cost[ok] = cost_t[ok]
+        w_lam = np.where(ok, np.maximum(w_lam * _LAMBDA_DOWN, _LAMBDA_MIN), w_lam * _LAMBDA_UP)
+        params[act] = w_par
+        cost[act] = w_cost
 
         stop = (ok & (small_step | small_gain)) | (~ok & small_step)
-        stop |= cost[act] <= _COST_FLOOR
-        stop |= lam[act] > _LAMBDA_MAX
-        done[act[stop]] = True
+        stop |= w_cost <= _COST_FLOOR
+        stop |= w_lam > _LAMBDA_MAX
         converged[act[stop]] = True
+        if n_start > 1 and (it + 1) % _MERGE_EVERY == 0:
+            alive = np.zeros(m_rows, dtype=bool)
+            alive[act[~stop]] = True
+            stop |= _merged_starts(params, cost, alive, n_start)[act]
+        if stop.any():
+            keep_rows = ~stop
+            act = act[keep_rows]
+            w_par, w_cost, w_lam = w_par[keep_rows], w_cost[keep_rows], w_lam[keep_rows]
+            w_normal, w_grad = w_normal[keep_rows], w_grad[keep_rows]
+            w_target, w_zero = w_target[keep_rows], w_zero[keep_rows]
 
     return params, cost, converged
 
@@ -478,7 +621,6 @@ def fit_equivalent_system(
     start = _starting_points(w, log_h, zero, free_zero)  # (N, S, p)
     n_start, p = start.shape[1], start.shape[2]
     rows = start.reshape(n_sys * n_start, p)
-    log_h_rows = np.repeat(log_h, n_start, axis=0)
     zero_rows = np.repeat(zero, n_start)
 
     # Box: tau_e >= 0; zeta_e, w_e, 1/T_theta2 within wide limits that only
@@ -493,7 +635,8 @@ def fit_equivalent_system(
     rows = np.clip(rows, lower, upper)
 
     # Data side of the log residual; the fixed zero is moved onto it.
-    target = log_h_rows if free_zero else log_h_rows - np.log(1j * w + zero_rows[:, None])
+    target = log_h if free_zero else log_h - np.log(1j * w + zero[:, None])
+    target = np.repeat(target, n_start, axis=0)
     # Sign of Kq and starting tau_e per start: the best pair of a scan.
     tau0, sign_rows = _scan_delay_and_sign(rows, target, zero_rows, w, free_zero, scale)
     rows[:, _TAU] = tau0
@@ -502,7 +645,7 @@ def fit_equivalent_system(
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         par, cost, conv = _levenberg_marquardt(
             rows, target, zero_rows, w, free_zero, scale, max_iterations,
-            lower, upper,
+            lower, upper, n_start,
         )
     cost = np.where(np.isfinite(cost), cost, np.inf).reshape(n_sys, n_start)
     best = np.argmin(cost, axis=1)
