@@ -73,53 +73,11 @@ def run(args, argv) -> int:
     doc = design_document(case, design, command=command)
     write_atomic(os.path.join(out, "design.json"), dumps(doc))
     written = ["design.json"]
-    if design is not None and not args.no_plots:
-        from ..output.plots import design_plots
+    from ..output.background import PlotJobs
 
-        paths = design_plots(case, design, out)
-        written.append(f"{len(paths)} plot files in plots/")
-    schedule = None
-    if case.raw.get("schedule") is not None:
-        from ..analysis.schedule import design_schedule
-        from ..output.schedule_out import schedule_summary, write_schedule
-
-        schedule = design_schedule(case)
-        written += write_schedule(out, case, schedule, command=command)
-        if not args.no_plots:
-            from ..output.schedule_plots import schedule_plots
-
-            written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
-    responses = None
-    if design is not None and not args.no_responses:
-        import numpy as np
-
-        from ..analysis.response import respond_case, response_spec
-        from .respond import write_responses
-
-        spec = response_spec(case)
-        gains = np.array([c.chosen_gain for c in design.conditions])
-        responses = respond_case(case, gains, spec)
-        write_responses(out, case, responses, spec, command, plots=not args.no_plots, gain_text="chosen gain")
-        written.append("responses.json with time histories")
-    if design is not None and case.raw.get("uncertainty") is not None and not args.no_robustness:
-        import numpy as np
-
-        from ..analysis.robustness import robustness, uncertainty_spec
-        from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
-        from .robust import _Progress
-
-        spec = uncertainty_spec(case)
-        gains = np.array([c.chosen_gain for c in design.conditions])
-        rob = robustness(case, gains, spec, progress=_Progress())
-        files = ["robustness.json"]
-        if not args.no_plots:
-            files += sorted(os.path.relpath(p, out) for p in robustness_plots(case, rob, out))
-        rdoc = robustness_document(case, rob, command=command, files=files)
-        write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
-        written.append("robustness.json")
-        robustness_text = robustness_table(rdoc)
-    else:
-        robustness_text = None
+    # figures are drawn by a worker process while the analysis goes on (see PlotJobs)
+    with PlotJobs(enabled=design is not None and not args.no_plots) as jobs:
+        robustness_text, spec, schedule = _analyses(args, case, design, out, command, jobs, written)
     if not args.no_report:
         from ..output.report import write_report
 
@@ -129,6 +87,8 @@ def run(args, argv) -> int:
     if design is not None:
         print(design_table(doc))
     if schedule is not None:
+        from ..output.schedule_out import schedule_summary
+
         print(schedule_summary(schedule))
     if robustness_text is not None:
         print(f"robustness at the chosen gains ({spec.samples} samples, seed {spec.seed}):")
@@ -141,3 +101,74 @@ def run(args, argv) -> int:
     if schedule is not None and not schedule.passed:
         print(f"damper: the gain schedule fails verification: {schedule.message}", file=sys.stderr)
     return 0
+
+
+def _analyses(args, case, design, out, command, jobs, written):
+    """Schedule, responses and robustness after the search; figures go to `jobs`.
+
+    Returns (robustness table text or None, uncertainty spec or None, schedule or None)
+    once every queued figure is drawn.
+    """
+    from ..output.files import write_atomic
+    from ..output.jsonout import dumps
+
+    design_job = None
+    if design is not None and not args.no_plots:
+        from ..output.plots import design_plot_jobs
+
+        plot_jobs = design_plot_jobs(case, design, out)
+        design_job = [jobs.submit_group(plot_jobs[k : k + 3]) for k in range(0, len(plot_jobs), 3)]
+    schedule = None
+    if case.raw.get("schedule") is not None:
+        from ..analysis.schedule import design_schedule
+        from ..output.schedule_out import write_schedule
+
+        schedule = design_schedule(case)
+        written += write_schedule(out, case, schedule, command=command)
+        if not args.no_plots:  # drawn here while the worker draws the search's figures
+            from ..output.schedule_plots import schedule_plots
+
+            written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
+    if design is not None and not args.no_responses:
+        import numpy as np
+
+        from ..analysis.response import respond_case, response_spec
+        from .respond import write_responses
+
+        rspec = response_spec(case)
+        gains = np.array([c.chosen_gain for c in design.conditions])
+        responses = respond_case(case, gains, rspec)
+        write_responses(out, case, responses, rspec, command, plots=not args.no_plots, gain_text="chosen gain",
+                        jobs=jobs)
+        written.append("responses.json with time histories")
+    robustness_text = spec = rob = rob_jobs = None
+    if design is not None and case.raw.get("uncertainty") is not None and not args.no_robustness:
+        import numpy as np
+
+        from ..analysis.robustness import robustness, uncertainty_spec
+        from .robust import _Progress
+
+        spec = uncertainty_spec(case)
+        gains = np.array([c.chosen_gain for c in design.conditions])
+        rob = robustness(case, gains, spec, progress=_Progress())
+        if not args.no_plots:
+            from ..output.robustness_out import robustness_plot_jobs
+
+            rj = robustness_plot_jobs(case, rob, out)
+            half = (len(rj) + 1) // 2  # two groups: the result is sent to the worker once per group
+            rob_jobs = [jobs.submit_group(rj[:half]), jobs.submit_group(rj[half:])]
+    jobs.finish()
+    if design_job is not None:
+        n = sum(len(jobs.paths(k)) for k in design_job)
+        written.insert(1, f"{n} plot files in plots/")
+    if rob is not None:
+        from ..output.robustness_out import robustness_document, robustness_table
+
+        files = ["robustness.json"]
+        if rob_jobs is not None:
+            files += sorted(os.path.relpath(p, out) for k in rob_jobs for p in jobs.paths(k))
+        rdoc = robustness_document(case, rob, command=command, files=files)
+        write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
+        written.append("robustness.json")
+        robustness_text = robustness_table(rdoc)
+    return robustness_text, spec, schedule

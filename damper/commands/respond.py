@@ -53,9 +53,14 @@ def run(args, argv) -> int:
     return 0
 
 
-def write_responses(out, case, result, spec, command, plots=True, gain_text="chosen gains"):
-    """Write each condition's CSV (and plots) and responses.json into `out`; return the document."""
+def write_responses(out, case, result, spec, command, plots=True, gain_text="chosen gains", jobs=None):
+    """Write each condition's CSV (and plots) and responses.json into `out`; return the document.
+
+    With `jobs` (a :class:`damper.output.background.PlotJobs`) the plots are queued there
+    (drawn by the time its ``finish()`` returns) instead of drawn here.
+    """
     import os
+    from functools import partial
 
     from ..output.files import write_atomic
     from ..output.jsonout import dumps
@@ -69,12 +74,17 @@ def write_responses(out, case, result, spec, command, plots=True, gain_text="cho
             stem = os.path.join(out, file_stem(i, cond.name, j, res.input.label))
             paths = [write_atomic(stem + ".csv", response_csv(bare, aug, stride))]
             if plots:
-                paths += plot_response(
-                    stem, bare, aug,
+                draw = partial(
+                    plot_response,
                     title=f"{case.title}: {cond.name}",
                     subtitle=f"{res.input.label}; {gain_text}; dashed: actuator limits",
                     rate_limit=result.rate_limit, travel=result.travel, stride=stride,
                 )
+                if jobs is None:
+                    paths += draw(stem, bare, aug)
+                else:
+                    jobs.submit(draw, stem, bare, aug)
+                    paths += [stem + ".png", stem + ".svg"]  # the names save_figure writes
             files[(i, j)] = [os.path.basename(p) for p in paths]
     doc = response_document(case, result, command=command, files=files)
     write_atomic(os.path.join(out, "responses.json"), dumps(doc))

@@ -1056,6 +1056,31 @@ def _draw_sweep(case, design, i):
 # ---------------------------------------------------------------------------------
 # 4. all of them
 # ---------------------------------------------------------------------------------
+def design_plot_jobs(case, design, out_dir):
+    """The figures of :func:`design_plots` as separate jobs ``(fn, args)``, in file order.
+
+    Each ``fn(*args)`` draws one figure and returns its written paths (see
+    :class:`damper.output.background.PlotJobs`).
+    """
+    from functools import partial
+
+    plot_dir = os.path.join(os.fspath(out_dir), "plots")
+    ol = open_loop_poles(case)
+    taken = set()
+    jobs = []
+    for i, cond in enumerate(design.conditions):
+        base = safe_name(cond.name)
+        slug, n = base, 2
+        while slug in taken:
+            slug, n = f"{base}-{n}", n + 1
+        taken.add(slug)
+        stem = os.path.join(plot_dir, slug)
+        jobs.append((partial(root_locus, open_loop=ol), (case, design, i, stem + "-root-locus")))
+        jobs.append((loop_response_plot, (case, design, i, stem + "-loop-response")))
+        jobs.append((gain_sweep_plot, (case, design, i, stem + "-gain-sweep")))
+    return jobs
+
+
 def design_plots(case, design, out_dir):
     """Root locus, loop response and gain sweep for every condition.
 
@@ -1068,24 +1093,14 @@ def design_plots(case, design, out_dir):
     list of str
         Every written path, in order.
     """
-    plot_dir = os.path.join(os.fspath(out_dir), "plots")
-    ol = open_loop_poles(case)
-    taken = set()
     paths = []
-    for i, cond in enumerate(design.conditions):
-        base = safe_name(cond.name)
-        slug, n = base, 2
-        while slug in taken:
-            slug, n = f"{base}-{n}", n + 1
-        taken.add(slug)
-        stem = os.path.join(plot_dir, slug)
-        paths += root_locus(case, design, i, stem + "-root-locus", open_loop=ol)
-        paths += loop_response_plot(case, design, i, stem + "-loop-response")
-        paths += gain_sweep_plot(case, design, i, stem + "-gain-sweep")
+    for fn, args in design_plot_jobs(case, design, out_dir):
+        paths += fn(*args)
     return paths
 
 
 __all__ = [
+    "design_plot_jobs",
     "PALETTE",
     "BodeData",
     "bode_data",

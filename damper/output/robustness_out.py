@@ -567,15 +567,23 @@ def _draw_pass(case, result):
     return fig
 
 
-def robustness_plots(case, result, out_dir) -> list:
-    """Every robustness plot into ``out_dir/plots``; returns the written paths."""
+def robustness_plot_jobs(case, result, out_dir) -> list:
+    """The figures of :func:`robustness_plots` as jobs ``(fn, args)``, in file order."""
     from .plots import safe_name
 
     plots = os.path.join(out_dir, "plots")
-    paths = list(pass_fraction_plot(case, result, os.path.join(plots, "pass-fraction")))
+    jobs = [(pass_fraction_plot, (case, result, os.path.join(plots, "pass-fraction")))]
     for i, c in enumerate(result.conditions):
         slug = f"{i + 1:02d}-{safe_name(c.name)}"
-        paths += scatter_plot(case, result, i, os.path.join(plots, f"scatter-{slug}"))
+        jobs.append((scatter_plot, (case, result, i, os.path.join(plots, f"scatter-{slug}"))))
         if result.axes.names:
-            paths += sensitivity_plot(case, result, i, os.path.join(plots, f"sensitivity-{slug}"))
+            jobs.append((sensitivity_plot, (case, result, i, os.path.join(plots, f"sensitivity-{slug}"))))
+    return jobs
+
+
+def robustness_plots(case, result, out_dir) -> list:
+    """Every robustness plot into ``out_dir/plots``; returns the written paths."""
+    paths = []
+    for fn, args in robustness_plot_jobs(case, result, out_dir):
+        paths += fn(*args)
     return paths

@@ -1,0 +1,145 @@
+"""Render plots in a background process while the analysis goes on.
+
+Drawing a figure is CPU-bound Python inside matplotlib, which is not thread-safe, so a
+thread does not help; a separate process does. ``damper design`` hands each plot job to
+one worker process as soon as its data exist (the gain search's figures while the time
+responses and the robustness study run) and collects the jobs before it writes the
+report. When the caller reaches :meth:`PlotJobs.finish` it takes back the jobs the worker
+has not started and draws them itself, so neither side idles at the end.
+
+Every job writes its files atomically and returns their paths; files are the same
+whoever draws them. The worker is started with the ``spawn`` method (safe beside the
+analysis's threads). If the worker cannot start or dies, the jobs are drawn in this
+process instead. ``DAMPER_PLOT_WORKERS=0`` in the environment (or ``workers=0``)
+draws everything in this process, in order.
+"""
+
+from __future__ import annotations
+
+import os
+
+__all__ = ["PlotJobs", "run_jobs"]
+
+
+def run_jobs(jobs) -> list:
+    """Run jobs ``(fn, args)`` in order; every written path, in order."""
+    paths = []
+    for fn, args in jobs:
+        paths += list(fn(*args))
+    return paths
+
+
+def _env_workers(default: int = 1) -> int:
+    text = os.environ.get("DAMPER_PLOT_WORKERS", "").strip()
+    if not text:
+        return default
+    try:
+        return max(0, int(text))
+    except ValueError:
+        return default
+
+
+class PlotJobs:
+    """A queue of plot jobs drawn by a worker process (or in this process).
+
+    Parameters
+    ----------
+    enabled : bool
+        False: no worker is started and every job runs at once when submitted.
+    workers : int, optional
+        Worker processes (default: ``DAMPER_PLOT_WORKERS`` or 1; 0 draws in this process).
+
+    Each job is ``fn(*args)`` with `fn` a module-level function (it is sent to the worker
+    by reference) returning a list of written paths.
+    """
+
+    def __init__(self, enabled: bool = True, workers: int | None = None):
+        n = _env_workers() if workers is None else max(0, int(workers))
+        self._pool = None
+        if enabled and n > 0:
+            try:
+                import multiprocessing
+                from concurrent.futures import ProcessPoolExecutor
+
+                self._pool = ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"))
+            except (OSError, ImportError, NotImplementedError, ValueError):
+                self._pool = None
+        self._jobs = []  # [fn, args, future or None, paths or None]
+
+    @property
+    def in_background(self) -> bool:
+        """True when a worker process draws the jobs."""
+        return self._pool is not None
+
+    def submit(self, fn, *args) -> int:
+        """Queue ``fn(*args)`` (run at once when there is no worker); returns the job's number."""
+        if self._pool is None:
+            self._jobs.append([fn, args, None, list(fn(*args))])
+            return len(self._jobs) - 1
+        try:
+            future = self._pool.submit(fn, *args)
+        except Exception:  # the pool broke (worker died): draw here from now on
+            self._shutdown()
+            self._jobs.append([fn, args, None, list(fn(*args))])
+            return len(self._jobs) - 1
+        self._jobs.append([fn, args, future, None])
+        return len(self._jobs) - 1
+
+    def submit_group(self, jobs) -> int:
+        """Queue a list of jobs ``(fn, args)`` as one (their data are sent once); returns its number."""
+        return self.submit(run_jobs, list(jobs))
+
+    def paths(self, number) -> list:
+        """Paths written by job `number` (after :meth:`finish`)."""
+        out = self._jobs[number][3]
+        if out is None:
+            raise RuntimeError("plot job not finished; call finish() first")
+        return list(out)
+
+    def finish(self) -> list:
+        """Wait for every job (drawing the unstarted ones here); the written paths, in submission order."""
+        # take back not-yet-started jobs one at a time from the end of the queue and draw
+        # them here, while the worker goes on from the front
+        while True:
+            for job in reversed(self._jobs):
+                if job[2] is not None and job[2].cancel():
+                    job[2], job[3] = None, list(job[0](*job[1]))
+                    break
+            else:
+                break
+        for job in self._jobs:
+            fn, args, future, paths = job
+            if future is None:
+                continue
+            try:
+                job[3] = list(future.result())
+            except Exception as exc:
+                from concurrent.futures.process import BrokenProcessPool
+
+                if not isinstance(exc, BrokenProcessPool):
+                    raise
+                job[3] = list(fn(*args))  # the worker died: draw it here
+            job[2] = None
+        self._shutdown()
+        out = []
+        for job in self._jobs:
+            out += job[3]
+        return out
+
+    def _shutdown(self):
+        if self._pool is not None:
+            self._pool.shutdown(wait=True, cancel_futures=True)
+            self._pool = None
+
+    def close(self) -> None:
+        """Stop the worker without waiting for queued jobs (after an error)."""
+        if self._pool is not None:
+            self._pool.shutdown(wait=False, cancel_futures=True)
+            self._pool = None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        self.close()
+        return False
