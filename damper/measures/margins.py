@@ -40,7 +40,8 @@ DEFAULT_GRID = np.logspace(-3.0, 3.0, 601)  # rad/s
 TOUCH_DB = 1.0
 TOUCH_TURNS = 5.0 / 360.0
 _ROOT_STEPS = 14
-_GOLDEN = 24
+_ROOT_FTOL = 1e-12  # |f| (dB or turns) at which a crossing is final (a few 1e-14 decades in w)
+_GOLDEN = 16
 _CHUNK = 1024
 
 
@@ -116,27 +117,36 @@ def _bisect(fn, lo, hi, f_lo):
 
     The Illinois variant of regula falsi (superlinear, keeps the bracket), falling back to
     bisection where the secant step is not usable; ``_ROOT_STEPS`` steps take a bracket of
-    a grid cell well below 1e-10 in log10 w for the smooth curves met here.
+    a grid cell well below 1e-10 in log10 w for the smooth curves met here.  A bracket stops
+    once its better end is within ``_ROOT_FTOL`` of zero (usually after 5-7 steps); the loop
+    ends when every bracket has stopped.
     """
     f_hi = fn(hi)
     a, b, fa, fb = lo.copy(), hi.copy(), f_lo.copy(), f_hi
     side = np.zeros(a.shape, int)
+    done = np.minimum(np.abs(fa), np.abs(fb)) <= _ROOT_FTOL
     for _ in range(_ROOT_STEPS):
+        if done.all():
+            break
         with np.errstate(invalid="ignore", divide="ignore"):
             x = (a * fb - b * fa) / (fb - fa)
         bad = ~np.isfinite(x) | (x <= np.minimum(a, b)) | (x >= np.maximum(a, b))
         x = np.where(bad, 0.5 * (a + b), x)
         fx = fn(x)
-        left = np.sign(fx) == np.sign(fa)  # root between x and b
+        left = (np.sign(fx) == np.sign(fa)) & ~done  # root between x and b
+        right = ~left & ~done
         a_new = np.where(left, x, a)
         fa_new = np.where(left, fx, fa)
-        b_new = np.where(left, b, x)
-        fb_new = np.where(left, fb, fx)
+        b_new = np.where(right, x, b)
+        fb_new = np.where(right, fx, fb)
         # Illinois: halve the stale end's value when the same end is kept twice
         fb_new = np.where(left & (side == 1), 0.5 * fb_new, fb_new)
-        fa_new = np.where(~left & (side == -1), 0.5 * fa_new, fa_new)
-        side = np.where(left, 1, -1)
+        fa_new = np.where(right & (side == -1), 0.5 * fa_new, fa_new)
+        side = np.where(left, 1, np.where(right, -1, side))
         a, b, fa, fb = a_new, b_new, fa_new, fb_new
+        # a bracket whose better end is within _ROOT_FTOL of zero is final (per bracket,
+        # so a bracket's answer never depends on the others of the batch)
+        done = done | (np.minimum(np.abs(fa), np.abs(fb)) <= _ROOT_FTOL)
     return np.where(np.abs(fa) < np.abs(fb), a, b)
 
 
@@ -222,17 +232,34 @@ def _select(rows, n, key, *values):
     return (out_key, *outs)
 
 
+def _disk_ratio(mag, cos_phase):
+    """``|S - T| = |(1 - L) / (1 + L)|`` from ``|L|`` and ``cos(arg L)`` (real arithmetic).
+
+    ``|1 -+ L|^2 = 1 -+ 2 |L| cos(arg L) + |L|^2``; for ``|L| > 1`` both are divided by
+    ``|L|^2`` so that no square overflows.  A zero denominator (``L = -1``) gives inf.
+    """
+    big = mag > 1.0
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        inv = np.where(big, 1.0 / mag, mag)  # |L| or 1/|L|, both <= 1
+        two_c = 2.0 * cos_phase * inv
+        sq = inv * inv
+        num = np.where(big, sq - two_c + 1.0, 1.0 - two_c + sq)
+        den = np.where(big, sq + two_c + 1.0, 1.0 + two_c + sq)
+        ratio = np.sqrt(np.maximum(num, 0.0) / den)
+    return np.where(np.isfinite(ratio), ratio, np.inf)
+
+
 def _margins_flat(loop, w, stable):
     n = int(np.size(loop.gain))
     lw = np.log10(w)
     T = _delay_time(loop, n)
     rational = loop_response_rational(loop, w[None, :])
     wT = w[None, :] * T[:, None]
-    L = rational * np.exp(-1j * wT)
-    mag_db = 20.0 * np.log10(np.maximum(np.abs(rational), 1e-300))
+    mag = np.abs(rational)  # |L| (the delay is all-pass)
+    mag_db = 20.0 * np.log10(np.maximum(mag, 1e-300))
     turns = _unwrap_turns(np.angle(rational)) - wT / (2.0 * np.pi)
     g = turns + 0.5  # integer values of g are phase crossings (-180 deg mod 360)
-    ok = np.all(np.isfinite(L), -1) & (np.asarray(loop.gain) != 0)
+    ok = np.all(np.isfinite(rational), -1) & (np.asarray(loop.gain) != 0)
 
     cache = {}
 
@@ -324,9 +351,7 @@ def _margins_flat(loop, w, stable):
     px, pgm = _per_row_pad(r_p, n, wp, gm)
 
     # ---- disk margin ------------------------------------------------------
-    with np.errstate(divide="ignore", invalid="ignore"):
-        st = np.abs((1.0 - L) / (1.0 + L))
-    st = np.where(np.isfinite(st), st, np.inf)
+    st = _disk_ratio(mag, np.cos(2.0 * np.pi * turns))
     k = np.argmax(st, -1)
     rows = np.arange(n)
     k0 = np.clip(k - 1, 0, len(w) - 1)
