@@ -179,7 +179,7 @@ class UncertaintySpec:
     refine_starts: int = 3
     refine_iterations: int = 24
     refine_min_step: float = 1.0 / 64.0
-    chunk: int = 512
+    chunk: int = 2048
 
 
 def uncertainty_spec(case, samples=None, seed=None, **overrides) -> UncertaintySpec:
@@ -532,14 +532,14 @@ def clopper_pearson(k, n, confidence=0.95):
     -------
     lower, upper : ndarray
     """
-    from scipy.stats import beta
+    from scipy.special import betaincinv  # the beta quantile (scipy.stats.beta.ppf), without importing scipy.stats
 
     k = np.asarray(k, dtype=float)
     n = np.asarray(n, dtype=float)
     a = 1.0 - confidence
     with np.errstate(invalid="ignore", divide="ignore"):
-        lo = np.where(k > 0, beta.ppf(a / 2.0, np.maximum(k, 1e-300), n - k + 1.0), 0.0)
-        hi = np.where(k < n, beta.ppf(1.0 - a / 2.0, k + 1.0, np.maximum(n - k, 1e-300)), 1.0)
+        lo = np.where(k > 0, betaincinv(np.maximum(k, 1e-300), n - k + 1.0, a / 2.0), 0.0)
+        hi = np.where(k < n, betaincinv(k + 1.0, np.maximum(n - k, 1e-300), 1.0 - a / 2.0), 1.0)
     return lo, hi
 
 
