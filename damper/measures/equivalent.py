@@ -78,6 +78,13 @@ _COST_FLOOR = 1e-26  # cost regarded as an exact fit
 # are taken to be in one basin; the checks are every _MERGE_EVERY iterations.
 _MERGE_TOL = 1e-2
 _MERGE_EVERY = 1
+# A start whose zeta_e exceeds _DRIFT_ZETA with w_e above _DRIFT_W_FACTOR times the top fit
+# frequency is drifting along the flat first-order valley (see the module notes): it is
+# stopped there, not converged (a hundred times past the limits where the handling layer
+# already discards a fit as degenerate).
+_DRIFT_ZETA = 1e3
+_LN_DRIFT_ZETA = float(np.log(_DRIFT_ZETA))
+_DRIFT_W_FACTOR = 1e3
 
 # Parameter box (only reached by degenerate fits): w_e and a free 1/T_theta2
 # within [w[0] * 1e-4, w[-1] * 1e4] rad/s, zeta_e within [1e-4, 1e4].
@@ -492,6 +499,7 @@ def _levenberg_marquardt(
     cost, normal, grad = _normal_equations(params, target, zero, w, free_zero, scale)
     converged = cost <= _COST_FLOOR
     eye = np.eye(p)
+    ln_drift_w = np.log(_DRIFT_W_FACTOR * w[-1])
 
     # working set: the rows still iterating, compacted
     act = np.nonzero(~converged)[0]
@@ -533,6 +541,8 @@ def _levenberg_marquardt(
         stop |= w_cost <= _COST_FLOOR
         stop |= w_lam > _LAMBDA_MAX
         converged[act[stop]] = True
+        # a pair drifting along the first-order valley far outside the band: stop, unconverged
+        stop |= (w_par[:, _LN_Z] > _LN_DRIFT_ZETA) & (w_par[:, _LN_W] > ln_drift_w)
         if n_start > 1 and (it + 1) % _MERGE_EVERY == 0:
             alive = np.zeros(m_rows, dtype=bool)
             alive[act[~stop]] = True
