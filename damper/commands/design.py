@@ -155,8 +155,10 @@ def _analyses(args, case, design, out, command, jobs, written):
             from ..output.robustness_out import robustness_plot_jobs
 
             rj = robustness_plot_jobs(case, rob, out)
-            half = (len(rj) + 1) // 2  # two groups: the result is sent to the worker once per group
-            rob_jobs = [jobs.submit_group(rj[:half]), jobs.submit_group(rj[half:])]
+            # four groups (the result is sent once per group): the worker and this process
+            # share them at the end
+            step = max(1, -(-len(rj) // 4))
+            rob_jobs = [jobs.submit_group(rj[k : k + step]) for k in range(0, len(rj), step)]
     jobs.finish()
     if design_job is not None:
         n = sum(len(jobs.paths(k)) for k in design_job)
