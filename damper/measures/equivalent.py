@@ -168,6 +168,36 @@ def _wrap(x: np.ndarray) -> np.ndarray:
     return x - _TWO_PI * np.rint(x * _INV_TWO_PI)
 
 
+def _model(params, target, w, free_zero, scale):
+    """Residual parts and the model terms both the full and the structured forms need.
+
+    Returns ``(r_g, r_p, w_e2, d_re, d_im, mag2, zero, n_mag2)``: gain and phase
+    residuals (M, nw) (already scaled so that ``sum(r_g^2 + r_p^2) = J``), ``w_e^2``
+    (M, 1), the denominator ``D(jw) = d_re + j d_im`` and ``|D|^2`` (M, nw), and with a free
+    zero its value (M, 1) and ``|jw + zero|^2`` (M, nw) (None otherwise).
+    """
+    w_e = np.exp(params[:, _LN_W])[:, None]
+    zeta = np.exp(params[:, _LN_Z])[:, None]
+    tau = params[:, _TAU][:, None]
+    ln_k = params[:, _LN_K][:, None]
+    # denominator D(jw) = (w_e^2 - w^2) + j (2 zeta w_e w)
+    w_e2 = w_e * w_e
+    d_re = w_e2 - w * w
+    d_im = (2.0 * zeta * w_e) * w
+    mag2 = d_re * d_re + d_im * d_im
+    log_gain = ln_k - 0.5 * np.log(mag2) - target.real  # natural-log units
+    phase = -tau * w - np.arctan2(d_im, d_re) - target.imag  # rad
+    zero = n_mag2 = None
+    if free_zero:
+        zero = np.exp(params[:, _LN_ZERO])[:, None]
+        n_mag2 = zero * zero + w * w
+        log_gain = log_gain + 0.5 * np.log(n_mag2)
+        phase = phase + np.arctan2(w, zero)
+    r_g = (scale * _DB_PER_NEPER) * log_gain
+    r_p = (scale * np.sqrt(PHASE_WEIGHT) * _DEG_PER_RAD) * _wrap(phase)
+    return r_g, r_p, w_e2, d_re, d_im, mag2, zero, n_mag2
+
+
 def _evaluate(params, target, zero_fixed, w, free_zero, scale, want_jac=True):
     """Residuals, cost and (optionally) Jacobian for a stack of parameter rows.
 
@@ -177,29 +207,13 @@ def _evaluate(params, target, zero_fixed, w, free_zero, scale, want_jac=True):
     free); ``w`` (nw,) rad/s.  Returns residuals (M, 2 nw), cost (M,) and
     Jacobian (M, 2 nw, p), all in real arithmetic.
     """
-    w_e = np.exp(params[:, _LN_W])[:, None]
-    zeta = np.exp(params[:, _LN_Z])[:, None]
-    tau = params[:, _TAU][:, None]
-    ln_k = params[:, _LN_K][:, None]
-
-    # denominator D(jw) = (w_e^2 - w^2) + j (2 zeta w_e w)
-    w_e2 = w_e * w_e
-    d_re = w_e2 - w * w
-    d_im = 2.0 * zeta * w_e * w
-    mag2 = d_re * d_re + d_im * d_im
-    log_gain = ln_k - 0.5 * np.log(mag2) - target.real  # natural-log units
-    phase = -tau * w - np.arctan2(d_im, d_re) - target.imag  # rad
-    if free_zero:
-        zero = np.exp(params[:, _LN_ZERO])[:, None]
-        n_mag2 = zero * zero + w * w
-        log_gain = log_gain + 0.5 * np.log(n_mag2)
-        phase = phase + np.arctan2(w, zero)
+    r_g, r_p, w_e2, d_re, d_im, mag2, zero, n_mag2 = _model(params, target, w, free_zero, scale)
     nw = w.size
     c_gain = scale * _DB_PER_NEPER
     c_phase = scale * np.sqrt(PHASE_WEIGHT) * _DEG_PER_RAD
     res = np.empty((params.shape[0], 2 * nw))
-    res[:, :nw] = c_gain * log_gain
-    res[:, nw:] = c_phase * _wrap(phase)
+    res[:, :nw] = r_g
+    res[:, nw:] = r_p
     cost = np.einsum("ij,ij->i", res, res)
     if not want_jac:
         return res, cost, None
@@ -234,26 +248,10 @@ def _normal_equations(params, target, zero, w, free_zero, scale):
     ``J^T r`` of :func:`_evaluate` to rounding.
     """
     m_rows, p = params.shape
-    w_e = np.exp(params[:, _LN_W])[:, None]
-    zeta = np.exp(params[:, _LN_Z])[:, None]
-    tau = params[:, _TAU][:, None]
-    ln_k = params[:, _LN_K][:, None]
-    w_e2 = w_e * w_e
-    d_re = w_e2 - w * w
-    d_im = (2.0 * zeta * w_e) * w
-    mag2 = d_re * d_re + d_im * d_im
+    r_g, r_p, w_e2, d_re, d_im, mag2, zero_r, n_mag2 = _model(params, target, w, free_zero, scale)
     inv = 1.0 / mag2
     c_gain = scale * _DB_PER_NEPER
     c_phase = scale * np.sqrt(PHASE_WEIGHT) * _DEG_PER_RAD
-    log_gain = ln_k - 0.5 * np.log(mag2) - target.real
-    phase = -tau * w - np.arctan2(d_im, d_re) - target.imag
-    if free_zero:
-        zero_r = np.exp(params[:, _LN_ZERO])[:, None]
-        n_mag2 = zero_r * zero_r + w * w
-        log_gain = log_gain + 0.5 * np.log(n_mag2)
-        phase = phase + np.arctan2(w, zero_r)
-    r_g = c_gain * log_gain
-    r_p = c_phase * _wrap(phase)
 
     # columns of J (without the constant factors c_gain, c_phase)
     im2 = d_im * d_im * inv
