@@ -185,3 +185,17 @@ def test_batched_margins_equal_one_at_a_time(rng):
         for f in ("gain_margin_db", "phase_margin_deg", "delay_margin_s", "disk_margin", "gain_crossover_rad_s"):
             a, b = getattr(one, f), getattr(batch, f)[i]
             assert (np.isnan(a) and np.isnan(b)) or a == pytest.approx(b, rel=1e-12), f
+
+
+def test_disk_ratio_in_real_arithmetic_equals_the_complex_formula():
+    # [derived] |(1 - L)/(1 + L)| from |L| and cos(arg L) equals the complex expression,
+    # for |L| below, at and far above 1 (no overflow), and is inf at L = -1.
+    from damper.measures.margins import _disk_ratio
+
+    rng = np.random.default_rng(9)
+    mag = np.concatenate([10.0 ** rng.uniform(-6, 6, 200), [1.0, 1e200, 0.0]])
+    phase = np.concatenate([rng.uniform(-np.pi, np.pi, 200), [0.3, 2.0, 1.0]])
+    L = mag * np.exp(1j * phase)
+    expected = np.abs((1.0 - L) / (1.0 + L))
+    np.testing.assert_allclose(_disk_ratio(mag, np.cos(phase)), expected, rtol=1e-9)
+    assert _disk_ratio(np.array([1.0]), np.array([-1.0]))[0] == np.inf

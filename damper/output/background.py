@@ -76,9 +76,11 @@ class PlotJobs:
         if self._pool is None:
             self._jobs.append([fn, args, None, list(fn(*args))])
             return len(self._jobs) - 1
+        from concurrent.futures.process import BrokenProcessPool
+
         try:
             future = self._pool.submit(fn, *args)
-        except Exception:  # the pool broke (worker died): draw here from now on
+        except (BrokenProcessPool, RuntimeError):  # the worker died: draw here from now on
             self._shutdown()
             self._jobs.append([fn, args, None, list(fn(*args))])
             return len(self._jobs) - 1
