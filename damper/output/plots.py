@@ -115,11 +115,17 @@ def _render(draw, stem, *args):
         return _save(fig, stem)
 
 
+def _plain_log_label(v, _pos=None):
+    """A log-axis tick label as a plain number (0.01, 1, 100): readable, and no mathtext to lay out."""
+    return f"{v:g}"
+
+
 def _log_x(ax):
     """Log frequency/gain axis with a light minor grid at 2 and 5 (fewer ticks: faster)."""
-    from matplotlib.ticker import LogLocator, NullFormatter
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
     ax.set_xscale("log")
+    ax.xaxis.set_major_formatter(FuncFormatter(_plain_log_label))
     ax.xaxis.set_minor_locator(LogLocator(base=10.0, subs=(2.0, 5.0)))
     ax.xaxis.set_minor_formatter(NullFormatter())
     ax.grid(True, which="major")
@@ -127,13 +133,15 @@ def _log_x(ax):
 
 
 def _short_log_labels(axis, lo, hi):
-    """Plain-number labels on major and minor ticks of a log axis spanning under two decades."""
+    """Plain-number labels: on major and minor ticks of a log axis spanning under two decades, else on major ticks."""
     from matplotlib.ticker import FuncFormatter
 
     if hi / lo < 100.0:
         fmt = FuncFormatter(lambda v, _pos: f"{v:.3g}")
         axis.set_major_formatter(fmt)
         axis.set_minor_formatter(fmt)
+    else:
+        axis.set_major_formatter(FuncFormatter(_plain_log_label))
 
 
 def _criteria(case, name):
