@@ -199,3 +199,20 @@ def test_disk_ratio_in_real_arithmetic_equals_the_complex_formula():
     expected = np.abs((1.0 - L) / (1.0 + L))
     np.testing.assert_allclose(_disk_ratio(mag, np.cos(phase)), expected, rtol=1e-9)
     assert _disk_ratio(np.array([1.0]), np.array([-1.0]))[0] == np.inf
+
+
+def test_disk_peak_index_is_the_argmax_of_the_ratio():
+    # [derived] |S - T| falls as u = cos(arg L) / (|L| + 1/|L|) rises, so the grid index of
+    # the smallest u is the index of the largest ratio (rows with |L| from 1e-6 to 1e6,
+    # an exact L = -1 point, and a non-finite response).
+    from damper.measures.margins import _disk_peak_index, _disk_ratio
+
+    rng = np.random.default_rng(11)
+    mag = 10.0 ** rng.uniform(-6, 6, (300, 50))
+    phase = rng.uniform(-np.pi, np.pi, (300, 50))
+    mag[0, 7], phase[0, 7] = 1.0, np.pi
+    mag[1, 3] = np.nan
+    c = np.cos(phase)
+    k = _disk_peak_index(mag, c)
+    np.testing.assert_array_equal(k, np.argmax(_disk_ratio(mag, c), axis=-1))
+    assert k[0] == 7 and k[1] == 3
