@@ -62,10 +62,7 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
     """
     import matplotlib
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from .files import write_atomic
+    from .figures import new_figure, save_figure
 
     t = bare.time[::stride]
 
@@ -82,8 +79,12 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
         ("surface_rate", R2D, "surface rate\ndeg/s"),
     ]
     style = {"font.size": 8.5, "axes.spines.top": False, "axes.spines.right": False, "svg.hashsalt": "damper"}
-    with plt.rc_context(style):
-        fig, axes = plt.subplots(len(panels), 1, sharex=True, figsize=(7.5, 10.0))
+    with matplotlib.rc_context(style):
+        fig = new_figure(7.5, 10.0)
+        # fixed margins (inches converted to fractions) instead of a layout pass: one draw per file
+        fig.subplots_adjust(left=0.95 / 7.5, right=1.0 - 0.15 / 7.5, bottom=0.5 / 10.0, top=1.0 - 0.7 / 10.0,
+                            hspace=0.12)
+        axes = fig.subplots(len(panels), 1, sharex=True)
         for ax, (name, scale, label) in zip(axes, panels):
             ax.plot(t, s(bare, name, scale), color=BARE_COLOUR, lw=1.2, label="bare airframe (K = 0)")
             ax.plot(t, s(augmented, name, scale), color=AUGMENTED_COLOUR, lw=1.6, label="with damper")
@@ -113,19 +114,11 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
                 ax.legend(*zip(*extra), loc="upper right", fontsize=7.5, frameon=False)
         axes[-1].set_xlabel("time, s")
         axes[-1].set_xlim(t[0], t[-1])
-        fig.suptitle(title, fontsize=10, x=0.02, ha="left")
+        fig.align_ylabels(axes)
+        fig.suptitle(title, fontsize=10, x=0.02, y=0.985, ha="left")
         if subtitle:
             fig.text(0.02, 0.955, subtitle, fontsize=8, ha="left", color="#444444")
-        fig.tight_layout(rect=(0, 0, 1, 0.95))
-        written = []
-        import io
-
-        for ext in ("png", "svg"):
-            buf = io.BytesIO()
-            meta = {"Software": None} if ext == "png" else {"Date": None, "Creator": None}
-            fig.savefig(buf, format=ext, dpi=110, metadata=meta)
-            written.append(write_atomic(f"{stem}.{ext}", buf.getvalue()))
-        plt.close(fig)
+        written = save_figure(fig, stem, dpi=110)
     return written
 
 
