@@ -436,3 +436,21 @@ def test_cli_robust_reads_chosen_gains_from_a_design(tmp_path, capsys):
     (design / "design.json").write_text(json.dumps({"conditions": [{"name": "slow", "chosen_gain_s": 0.2}]}))
     assert main(["robust", str(case_path), "--design", str(design), "--out", str(tmp_path / "r2"), "--quiet"]) == 2
     assert "no condition named 'fast'" in capsys.readouterr().err
+
+
+def test_average_ranks_match_scipy_rankdata():
+    # Source: scipy.stats.rankdata(method="average") as the oracle, on rows with many ties,
+    # +-inf and a NaN row (nan_policy "propagate": the whole row is NaN).
+    from damper.analysis.robustness import average_ranks
+
+    rng = np.random.default_rng(8)
+    a = np.round(rng.normal(size=(6, 400)) * 3) / 3
+    a[1, ::7] = np.inf
+    a[2, ::5] = -np.inf
+    a[3] = 1.0
+    a[4, 17] = np.nan
+    expected = stats.rankdata(a, axis=-1)
+    got = average_ranks(a)
+    np.testing.assert_array_equal(np.isnan(got), np.isnan(expected))
+    ok = ~np.isnan(expected)
+    np.testing.assert_array_equal(got[ok], expected[ok])
