@@ -162,3 +162,30 @@ schedule: {variables: [dynamic_pressure]}
     mid = np.nonzero(between)[0][1]
     assert float(r.verification.points.derivatives.M_alpha[mid]) == pytest.approx(-16.0)
     assert "interpolated linearly" in r.message
+    assert r.warnings == ()
+
+
+def test_conditions_schedule_warns_when_variants_share_a_breakpoint():
+    # Two CG variants at each speed without 'configuration' keys: the between-condition checks
+    # would join a forward-CG point to an aft-CG neighbour, so the user is told; with keys,
+    # each variant is interpolated on its own and nothing is said.
+    base = """
+title: variants
+aircraft: {mass: 1000, pitch_inertia: 1500}
+conditions:
+  - {name: a-fwd, airspeed: 50, altitude: 0, CONF_F derivatives: {Z_alpha: -120, M_alpha: -9, M_q: -1.0, M_delta: -14}}
+  - {name: a-aft, airspeed: 50, altitude: 0, CONF_A derivatives: {Z_alpha: -120, M_alpha: -5, M_q: -1.0, M_delta: -13}}
+  - {name: b-fwd, airspeed: 80, altitude: 0, CONF_F derivatives: {Z_alpha: -300, M_alpha: -23, M_q: -1.6, M_delta: -36}}
+  - {name: b-aft, airspeed: 80, altitude: 0, CONF_A derivatives: {Z_alpha: -300, M_alpha: -13, M_q: -1.6, M_delta: -33}}
+loop: {actuator: {bandwidth: 20}}
+schedule: {variables: [dynamic_pressure]}
+"""
+    plain_case = load_case_text(base.replace("CONF_F ", "").replace("CONF_A ", ""), "v.yaml")
+    plain = design_schedule(plain_case)
+    assert len(plain.warnings) == 2
+    assert "a-fwd, a-aft" in plain.warnings[0] and "configuration" in plain.warnings[0]
+    keyed = design_schedule(load_case_text(
+        base.replace("CONF_F ", "configuration: fwd, ").replace("CONF_A ", "configuration: aft, "), "v.yaml"))
+    assert keyed.warnings == ()
+    assert "warning: conditions a-fwd, a-aft" in schedule_out.schedule_summary(plain)
+    assert schedule_out.schedule_document(plain_case, plain)["warnings"] == list(plain.warnings)

@@ -163,6 +163,8 @@ class ScheduleResult:
     source : str
         ``envelope`` or ``conditions``.
     configurations : tuple of str
+    warnings : tuple of str
+        Things the user should know about how the schedule was checked.
     """
 
     schedule: Schedule
@@ -174,6 +176,7 @@ class ScheduleResult:
     message: str
     source: str
     configurations: tuple = field(default=())
+    warnings: tuple = field(default=())
 
 
 # ---------------------------------------------------------------------------
@@ -564,6 +567,7 @@ def _conditions_schedule(case, variables, form, s):
     conf_idx = np.array([confs.index(c.configuration or "all") for c in conds])
     bps = np.unique(np.round(x, 9))
     group = np.searchsorted(bps, np.round(x, 9))
+    warnings = _variant_warnings(conds, conf_idx, group, bps, var)
     base = PointSet(d, x[None, :], alt, spd, conf_idx, tuple(c.name for c in conds), np.full(len(conds), "condition"))
     gains, feas, worst, binding, counts = design_gains(case, base, group, bps.size)
     schedule = _make_schedule((var,), form, (bps,), gains)
@@ -589,4 +593,26 @@ def _conditions_schedule(case, variables, form, s):
     msg = _message(passed, ver, BreakpointDesign(gains, feas, worst, binding, counts), form, {"max_breakpoints": 0}, 1)
     msg += " (no envelope: breakpoints are the conditions; dimensional derivatives interpolated linearly in " + var + ")"
     bd = BreakpointDesign(gains, feas, worst, binding, counts)
-    return ScheduleResult(schedule, bd, ver, passed, 1, ((bps.size, int(np.sum(~ver.passed))),), msg, "conditions", tuple(confs))
+    return ScheduleResult(schedule, bd, ver, passed, 1, ((bps.size, int(np.sum(~ver.passed))),), msg, "conditions",
+                          tuple(confs), warnings)
+
+
+def _variant_warnings(conds, conf_idx, group, bps, var):
+    """Warn when conditions of one configuration share a breakpoint (several variants at one value of
+    `var`): the between-condition checks then join derivatives of different variants."""
+    out = []
+    for ci in np.unique(conf_idx):
+        for g in np.unique(group[conf_idx == ci]):
+            same = [conds[k] for k in np.nonzero((conf_idx == ci) & (group == g))[0]]
+            if len(same) < 2:
+                continue
+            names = ", ".join(c.name for c in same)
+            conf = same[0].configuration
+            where = f"configuration '{conf}'" if conf else "no configuration key"
+            out.append(
+                f"conditions {names} ({where}) have the same {var} ({bps[g]:.6g} {env_mod.VARIABLE_UNITS[var]}): "
+                "the breakpoint gain "
+                "covers them all, but the checks between breakpoints interpolate derivatives from one of them "
+                "to a neighbour of another; give each mass / CG variant its own 'configuration' key"
+            )
+    return tuple(out)

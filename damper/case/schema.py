@@ -450,7 +450,8 @@ CONDITION = Section(
         ),
         "note": Text("Free text shown in reports (e.g. the CG position).", default=None),
         "configuration": Text("Mass / CG configuration this condition belongs to (a schedule interpolates "
-                              "derivatives only between conditions of the same configuration).", default=None),
+                              "derivatives only between conditions of the same configuration; two conditions "
+                              "of one configuration at the same schedule value draw a warning).", default=None),
         "derivatives": Section(DERIVATIVES.fields, DERIVATIVES.doc, default=REQUIRED),
         "coefficients": Section(COEFFICIENTS.fields, COEFFICIENTS.doc, default=REQUIRED),
     },

@@ -140,6 +140,7 @@ def schedule_document(case, result, command=None) -> dict:
         "source": result.source,
         "passed": result.passed,
         "message": result.message,
+        "warnings": list(result.warnings),
         "rounds": result.rounds,
         "history": [{"breakpoints": a, "failing_points": b} for a, b in result.history],
         "table": table_dict(result.schedule, case),
@@ -213,4 +214,5 @@ def schedule_summary(result) -> str:
     if s.form == "inverse_dynamic_pressure":
         lines.append(f"law: K = {s.k_ref:.4g} s * {s.q_ref:.5g} Pa / q")
     lines.append(("PASS: " if result.passed else "FAIL: ") + result.message)
+    lines.extend(f"warning: {w}" for w in result.warnings)
     return "\n".join(lines)
