@@ -178,15 +178,18 @@ def _touch_brackets(f, lw, rows_ok, tol, fn_builder):
     Returns (rows, lo, hi, f_lo, peak_index) of the extra brackets: for each
     refined peak that crosses zero, two brackets (left side, right side).
     """
-    fm, f0, fp = f[:, :-2], f[:, 1:-1], f[:, 2:]
-    peak = (f0 > fm) & (f0 > fp) & (f0 < 0) & (f0 > -tol)
-    trough = (f0 < fm) & (f0 < fp) & (f0 > 0) & (f0 < tol)
-    cand = (peak | trough) & rows_ok[:, None]
-    r, i = np.nonzero(cand)
+    # screen the grid for points within `tol` of zero (few), then test those for a peak
+    # below zero or a trough above it
+    r, i = np.nonzero(np.abs(f[:, 1:-1]) < tol)
+    fm, f0, fp = f[r, i], f[r, i + 1], f[r, i + 2]
+    peak = (f0 > fm) & (f0 > fp) & (f0 < 0)
+    trough = (f0 < fm) & (f0 < fp) & (f0 > 0)
+    cand = (peak | trough) & rows_ok[r]
+    r, i, peak = r[cand], i[cand], peak[cand]
     if r.size == 0:
         empty = np.zeros(0)
         return np.zeros(0, int), empty, empty, empty, np.zeros(0, int)
-    sign = np.where(peak[r, i], 1.0, -1.0)
+    sign = np.where(peak, 1.0, -1.0)
     fn = fn_builder(r, i + 1)
     x, fx = _golden_max(lambda z: sign * fn(z), lw[i], lw[i + 2])
     crossed = fx >= 0.0
