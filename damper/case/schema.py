@@ -87,10 +87,40 @@ class Text:
             raise CaseError("must not be empty", path, value)
         if len(value) > self.max_length:
             raise CaseError(f"is longer than {self.max_length} characters", path, value)
+        bad = _first_control_character(value)
+        if bad is not None:
+            k, ch = bad
+            import unicodedata
+
+            cat = unicodedata.category(ch)
+            if ch in "\n\r":
+                what = "a line break"
+            elif ch == "\t":
+                what = "a tab"
+            else:
+                what = {"Cc": "a control character", "Cf": "an invisible formatting character"}.get(
+                    cat, "a character that is not printable text")
+            raise CaseError(
+                f"contains {what} (U+{ord(ch):04X}) at character {k + 1}: text appears in tables, file headers "
+                "and the report, so write it on one line with printable characters",
+                path,
+                value,
+            )
         return value
 
     def describe(self) -> str:
         return "text"
+
+
+def _first_control_character(text):
+    """(index, character) of the first control, format (e.g. bidirectional override), surrogate,
+    private-use or unassigned character in `text` (Unicode categories C*), or None."""
+    import unicodedata
+
+    for k, ch in enumerate(text):
+        if unicodedata.category(ch)[0] == "C":
+            return k, ch
+    return None
 
 
 @dataclass(frozen=True)
