@@ -189,3 +189,14 @@ schedule: {variables: [dynamic_pressure]}
     assert keyed.warnings == ()
     assert "warning: conditions a-fwd, a-aft" in schedule_out.schedule_summary(plain)
     assert schedule_out.schedule_document(plain_case, plain)["warnings"] == list(plain.warnings)
+
+
+def test_verification_points_are_distinct():
+    # The envelope corners are regular-grid points too, and dense points can land on the
+    # grid: each (altitude, airspeed, configuration) is verified and counted once, the
+    # corners keeping their kind [common practice: a count of checks counts distinct checks].
+    r = design_schedule(load_case_text(SPARSE.replace("MAXBP", "0"), "sparse.yaml"))
+    p = r.verification.points
+    keys = set(zip(np.round(p.altitude, 6), np.round(p.airspeed, 6), p.configuration))
+    assert len(keys) == p.altitude.size
+    assert (p.kind == "corner").sum() == 2  # one altitude: the lowest and highest speed

@@ -423,13 +423,36 @@ def _envelope_round(case, env, aero, variables, form, bps):
     gh, gv = grid.altitude[: grid.altitude.size // n_c], grid.airspeed[: grid.airspeed.size // n_c]
     corners = env_mod.grid_points(env, 2, 2)
     ch, cv = corners.altitude[: corners.altitude.size // n_c], corners.airspeed[: corners.airspeed.size // n_c]
-    Hv = np.concatenate([Hd, gh, ch])
-    Vv = np.concatenate([Vd, gv, cv])
-    kinds = np.concatenate([np.full(Hd.size, "between"), np.full(gh.size, "grid"), np.full(ch.size, "corner")])
+    Hv, Vv, kinds = _distinct_points([(Hd, Vd, "between"), (gh, gv, "grid"), (ch, cv, "corner")])
     vpts = _pointset_from_env(case, env, aero, Hv, Vv, kinds, variables)
     ver = verify(case, schedule, vpts)
     bd = BreakpointDesign(gains, feas & (counts > 0), worst, binding, counts)
     return schedule, bd, ver
+
+
+def _distinct_points(groups):
+    """Concatenate (altitude m, airspeed m/s, kind) groups, each point once.
+
+    The envelope corners are also regular-grid points, and dense points can fall on the
+    grid; a point shared by several groups is kept in the last group that has it (corner
+    before grid before between), so verification counts count distinct points.  Points
+    closer than 1e-6 m and 1e-6 m/s are the same.
+    """
+    seen = set()
+    keep = []
+    for h, v, _ in reversed(groups):
+        key = list(zip(np.round(h, 6).tolist(), np.round(v, 6).tolist()))
+        mask = np.zeros(len(key), dtype=bool)
+        for k, kk in enumerate(key):
+            if kk not in seen:
+                seen.add(kk)
+                mask[k] = True
+        keep.append(mask)
+    keep.reverse()
+    H = np.concatenate([h[m] for (h, _, _), m in zip(groups, keep)])
+    V = np.concatenate([v[m] for (_, v, _), m in zip(groups, keep)])
+    kinds = np.concatenate([np.full(int(m.sum()), kind) for (_, _, kind), m in zip(groups, keep)])
+    return H, V, kinds
 
 
 def _fill_missing(gains, counts, shape):
