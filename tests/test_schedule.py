@@ -200,3 +200,15 @@ def test_verification_points_are_distinct():
     keys = set(zip(np.round(p.altitude, 6), np.round(p.airspeed, 6), p.configuration))
     assert len(keys) == p.altitude.size
     assert (p.kind == "corner").sum() == 2  # one altitude: the lowest and highest speed
+
+
+def test_refinement_stops_when_infeasible_breakpoints_make_no_progress():
+    # A damping band (0.90-0.95) that no gain reaches at part of the speed range: more
+    # breakpoints cannot mend that, so refinement stops once a round fails at no smaller
+    # fraction of its points (instead of running to max_breakpoints) and says why.
+    text = SPARSE.replace("MAXBP", "12").replace("{min: 0.60, max: 0.70}", "{min: 0.90, max: 0.95}")
+    r = design_schedule(load_case_text(text, "s.yaml"))
+    assert not r.passed and not np.all(r.design.feasible)
+    assert r.rounds < 4
+    assert "refinement stopped after" in r.message and "no gain meeting every requirement" in r.message
+    assert r.history[-1][1] >= 1

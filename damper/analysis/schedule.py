@@ -12,7 +12,9 @@
    corners and a regular altitude x speed grid, for every configuration: the interpolated
    gain and the derivatives *at that point*.
 4. Where verification fails inside a breakpoint interval, its midpoint becomes a new
-   breakpoint, and the design repeats, until it passes or ``max_breakpoints`` is reached.
+   breakpoint, and the design repeats, until it passes or ``max_breakpoints`` is reached,
+   or (when some breakpoints have no gain meeting every requirement, which more
+   breakpoints cannot mend) a round fails at no smaller fraction of its points.
 
 Forms: ``table`` (linear interpolation, bilinear in 2-D, clamped at the ends) and
 ``inverse_dynamic_pressure``: ``K = K_ref q_ref / q``, with ``K_ref`` fitted to the
@@ -515,6 +517,8 @@ def design_schedule(case) -> ScheduleResult:
     max_bp = max(s["max_breakpoints"], max(len(b) for b in bps))
     history = []
     rounds = 0
+    stalled = False
+    prev_fraction = np.inf
     while True:
         rounds += 1
         schedule, bd, ver = _envelope_round(case, env, aero, variables, form, bps)
@@ -522,12 +526,23 @@ def design_schedule(case) -> ScheduleResult:
         history.append((int(np.prod([len(b) for b in bps])), nfail))
         if nfail == 0 or form != "table" or s["max_breakpoints"] == 0 or rounds >= 12:
             break
+        # Breakpoints with no gain meeting everything cannot be mended by more breakpoints;
+        # once a round with such breakpoints fails at no smaller fraction of its points, stop.
+        fraction = nfail / ver.passed.size
+        if not np.all(bd.feasible) and fraction >= prev_fraction:
+            stalled = True
+            break
+        prev_fraction = fraction
         new = _refine(bps, ver, variables, max_bp)
         if new is None:
             break
         bps = new
     passed = bool(np.all(ver.passed))
     msg = _message(passed, ver, bd, form, s, rounds)
+    if stalled:
+        n_ref = rounds - 1
+        msg += (f"; refinement stopped after {n_ref} round{'s' if n_ref != 1 else ''}: the failing fraction did not fall "
+                f"({history[-2][1]} -> {history[-1][1]} failing points)")
     return ScheduleResult(schedule, bd, ver, passed, rounds, tuple(history), msg, "envelope",
                           tuple(c.name for c in env.configurations))
 
