@@ -89,8 +89,9 @@ SCHEDULE = Section(
                        "Breakpoint table with linear interpolation (clamped at the ends), or K = K_ref q_ref / q fitted "
                        "to the breakpoint gains.", default="table"),
         "breakpoints": Integer("Breakpoints per variable to start from (spread over the envelope).", default=5, low=2, high=100),
-        "max_breakpoints": Integer("Add breakpoints where verification fails, up to this many per variable (0: never add); stops early when breakpoints no gain satisfies leave the failing fraction unchanged.",
-                                   default=12, low=0, high=200),
+        "max_breakpoints": Integer("Add breakpoints where verification fails, up to this many per variable "
+                                   "(0: never add); stops early when breakpoints no gain satisfies leave the "
+                                   "failing fraction unchanged.", default=12, low=0, high=200),
     },
     "A gain schedule over the envelope, verified between breakpoints.",
     default=None,
