@@ -435,3 +435,23 @@ def test_respond_command_writes_files_and_refuses_to_overwrite(tmp_path, capsys)
     # an earlier run is never overwritten silently
     assert main(["respond", str(path), "--gain", "0.2", "--out", str(out)]) == 2
     assert main(["respond", str(path), "--gain", "0.2", "--out", str(out), "--force", "--no-plots"]) == 0
+
+
+def test_respond_into_a_design_run_rebuilds_its_report(tmp_path, capsys):
+    # [common practice] a report never describes files that have since been replaced.
+    from damper.cli import main
+
+    path = tmp_path / "case.yaml"
+    one_condition = CASE[: CASE.index("  - name: approach")] + CASE[CASE.index("loop:"):]
+    path.write_text(one_condition + RESPONSES.replace("- {kind: gust", "# - {kind: gust"))
+    out = tmp_path / "run"
+    assert main(["design", str(path), "--out", str(out), "--no-plots"]) == 0
+    assert "--gain 0.123" not in (out / "report.html").read_text()
+    capsys.readouterr()
+    assert main(["respond", str(path), "--gain", "0.123", "--out", str(out), "--force", "--no-plots"]) == 0
+    assert "rebuilt report.html" in capsys.readouterr().out
+    assert "--gain 0.123" in (out / "report.html").read_text()
+    # a directory without a design run gets no report
+    bare = tmp_path / "bare"
+    assert main(["respond", str(path), "--gain", "0.123", "--out", str(bare), "--no-plots"]) == 0
+    assert not (bare / "report.html").exists()

@@ -46,7 +46,10 @@ def run(args, argv) -> int:
     for note in result.notes:
         print(f"note: {note}")
     if out:
-        print(f"wrote responses.json, CSV and plots to {out}")
+        from ..output.report import refresh_report
+
+        rebuilt = refresh_report(out)
+        print(f"wrote responses.json, CSV and plots to {out}" + ("; rebuilt report.html" if rebuilt else ""))
     else:
         print("no files written (give --out DIR for CSV, JSON and plots)")
     print(CAUTION_SHORT)

@@ -134,6 +134,9 @@ def run(args, argv) -> int:
     if bad:
         print("note: equivalent-system fit did not converge for " + ", ".join(f"{n} ({k} samples)" for n, k in bad))
     written = "robustness.json" + (f" and {len(plot_paths)} plot files in plots/" if plot_paths else "")
-    print(f"wrote {written} to {out}")
+    from ..output.report import refresh_report
+
+    rebuilt = refresh_report(out)
+    print(f"wrote {written} to {out}" + ("; rebuilt report.html" if rebuilt else ""))
     print(CAUTION_SHORT)
     return 0

@@ -1249,4 +1249,17 @@ def write_report(run_dir) -> str:
     return write_atomic(os.path.join(os.fspath(run_dir), "report.html"), html)
 
 
-__all__ = ["build_report", "report_context", "write_report"]
+def refresh_report(run_dir):
+    """Rebuild ``run_dir/report.html`` if the directory holds a design run with a report.
+
+    For commands that add files to a run directory (``respond``, ``robust`` with ``--force``),
+    so the report never describes files that have since been replaced.  Returns the path,
+    or None when there was no report to refresh.
+    """
+    run_dir = os.fspath(run_dir)
+    if os.path.isfile(os.path.join(run_dir, "design.json")) and os.path.isfile(os.path.join(run_dir, "report.html")):
+        return write_report(run_dir)
+    return None
+
+
+__all__ = ["build_report", "refresh_report", "report_context", "write_report"]
