@@ -45,11 +45,41 @@ def _parser():
     return p, runners
 
 
+def _value_options(parser):
+    """Option strings (of the parser and its sub-commands) that take one value."""
+    out = set()
+    for action in parser._actions:  # argparse keeps no public list of them
+        if action.option_strings and action.nargs is None:
+            out.update(action.option_strings)
+        if isinstance(action, argparse._SubParsersAction):
+            for sub in action.choices.values():
+                out |= _value_options(sub)
+    return out
+
+
+def _join_negative_numbers(parser, argv):
+    """``--gain -1e-3`` as ``--gain=-1e-3``: argparse takes a value that starts with '-' and is not
+    a plain decimal (an exponent, 'inf') for an option and stops with 'expected one argument'."""
+    takes_value = _value_options(parser)
+    out = []
+    for tok in argv:
+        if out and out[-1] in takes_value and tok.startswith("-") and len(tok) > 1:
+            try:
+                float(tok)
+            except ValueError:
+                pass
+            else:
+                out[-1] = f"{out[-1]}={tok}"
+                continue
+        out.append(tok)
+    return out
+
+
 def main(argv=None) -> int:
     """Run the command line; returns the exit code (0 ok, 2 bad input, 1 internal error)."""
     argv = sys.argv[1:] if argv is None else list(argv)
     parser, runners = _parser()
-    args = parser.parse_args(argv)
+    args = parser.parse_args(_join_negative_numbers(parser, argv))
     if args.version:
         from . import __version__
 

@@ -85,3 +85,13 @@ def test_help_is_fast_and_imports_nothing_heavy():
     code = "import sys; from damper.cli import _parser; _parser(); print(sorted(m for m in ('numpy','scipy','matplotlib','control','pint') if m in sys.modules))"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT, check=True).stdout
     assert out.strip() == "[]"
+
+
+def test_negative_values_in_exponent_form_reach_the_option(capsys):
+    # argparse alone reads '-1e-3' as an option ('expected one argument'); the value
+    # reaches --gain-min and gets the command's own message [common practice].
+    assert main(["design", DEMO, "--gain-min", "-1e-3", "--out", "unused"]) == 2
+    err = capsys.readouterr().err
+    assert "--gain-min = -0.001" in err and "expected one argument" not in err
+    assert main(["assess", DEMO, "--gain", "-inf"]) == 2
+    assert "--gain = -inf" in capsys.readouterr().err
