@@ -240,18 +240,20 @@ def _build(values, file, sha, doc) -> Case:
                     f"{path}.coefficients",
                     line=_line(doc, "conditions", i, "coefficients"),
                 )
-            d = from_coefficients(
-                dynamic_pressure=qbar,
-                airspeed=v,
-                mass=mass,
-                pitch_inertia=inertia,
-                wing_area=aircraft.wing_area,
-                mean_chord=aircraft.mean_chord,
-                **c["coefficients"],
-            )
+            with np.errstate(over="ignore", invalid="ignore"):  # overflow: refused just below, with a message
+                d = from_coefficients(
+                    dynamic_pressure=qbar,
+                    airspeed=v,
+                    mass=mass,
+                    pitch_inertia=inertia,
+                    wing_area=aircraft.wing_area,
+                    mean_chord=aircraft.mean_chord,
+                    **c["coefficients"],
+                )
             source = "coefficients"
         else:
-            d = _resolve_derivatives(c["derivatives"], mass, inertia, v)
+            with np.errstate(over="ignore", invalid="ignore"):
+                d = _resolve_derivatives(c["derivatives"], mass, inertia, v)
             source = "derivatives"
         d = Derivatives(**{k: np.asarray(float(getattr(d, k))) for k in Derivatives.__dataclass_fields__})
         _check_finite_model(d, path, name, line)
