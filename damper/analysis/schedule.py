@@ -649,8 +649,8 @@ def _variant_warnings(conds, conf_idx, group, bps, var):
             where = f"configuration '{conf}'" if conf else "no configuration key"
             out.append(
                 f"conditions {names} ({where}) have the same {var} ({bps[g]:.6g} {env_mod.VARIABLE_UNITS[var]}): "
-                "the breakpoint gain "
-                "covers them all, but the checks between breakpoints interpolate derivatives from one of them "
-                "to a neighbour of another; give each mass / CG variant its own 'configuration' key"
+                "the breakpoint gain covers them all, but the checks between breakpoints interpolate "
+                "derivatives from one of them to a neighbour of another; give each mass / CG variant its "
+                "own 'configuration' key"
             )
     return tuple(out)

@@ -89,10 +89,7 @@ class Text:
             raise CaseError(f"is longer than {self.max_length} characters", path, value)
         bad = _first_control_character(value)
         if bad is not None:
-            k, ch = bad
-            import unicodedata
-
-            cat = unicodedata.category(ch)
+            k, ch, cat = bad
             if ch in "\n\r":
                 what = "a line break"
             elif ch == "\t":
@@ -113,13 +110,14 @@ class Text:
 
 
 def _first_control_character(text):
-    """(index, character) of the first control, format (e.g. bidirectional override), surrogate,
-    private-use or unassigned character in `text` (Unicode categories C*), or None."""
+    """(index, character, Unicode category) of the first control, format (e.g. bidirectional
+    override), surrogate, private-use or unassigned character in `text` (categories C*), or None."""
     import unicodedata
 
     for k, ch in enumerate(text):
-        if unicodedata.category(ch)[0] == "C":
-            return k, ch
+        cat = unicodedata.category(ch)
+        if cat[0] == "C":
+            return k, ch, cat
     return None
 
 
