@@ -107,3 +107,21 @@ def test_policies():
     chosen_worst = balanced.chosen.criteria.worst_slack[0]
     # balanced: no swept feasible gain has more worst-case slack than the chosen one
     assert chosen_worst >= balanced.sweep.criteria.worst_slack[0][balanced.sweep.criteria.all_met[0]].max() - 1e-9
+
+
+def test_equivalent_mismatch_band_judges_the_fit_cost():
+    # The requirement's value is the fit's own cost J (the same number design.json reports),
+    # and a maximum below the fit's cost at every gain leaves no feasible gain
+    # [derived: the slack definition of damper.requirements.criteria].
+    from damper.analysis.assess import assess
+
+    case = _case("requirements:\n  damping_ratio: {min: 0.0, max: 5.0}\n  equivalent_mismatch: {max: 50}\n")
+    names = [c.name for c in case.requirements.criteria]
+    assert "equivalent_mismatch" in names
+    a = assess(case, np.array([0.02]), with_bandwidth=False)
+    j = names.index("equivalent_mismatch")
+    np.testing.assert_array_equal(a.criteria.values[j], a.equivalent.mismatch)
+    assert a.criteria.slacks[j, 0] == pytest.approx((50.0 - float(a.equivalent.mismatch[0])) / 50.0)
+    tight = _case("requirements:\n  equivalent_mismatch: {max: 1e-9}\n")
+    d = search(tight, SearchSettings(gain_min=0.001, gain_max=0.5, points=41))
+    assert not d.conditions[0].feasible

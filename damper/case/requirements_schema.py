@@ -67,6 +67,7 @@ REQUIREMENTS = Section(
         "other_mode_damping": _band("damping ratio of every other closed-loop mode", _number),
         "bandwidth": _band("pitch-attitude bandwidth, rad/s", _rate),
         "phase_delay": _band("pitch-attitude phase delay, s", _time),
+        "equivalent_mismatch": _band("equivalent-system fit mismatch J, dimensionless", _number),
     },
     "What the damper must achieve at every condition. Without this section: damping ratio "
     "0.35-1.30 (common practice), gain margin 6 dB and phase margin 45 deg (MIL-F-9490D), stable.",

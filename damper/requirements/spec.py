@@ -23,6 +23,7 @@ BAND_KEYS = (
     "other_mode_damping",
     "bandwidth",
     "phase_delay",
+    "equivalent_mismatch",
 )
 
 DEFAULT_SOURCE_DAMPING = "common practice (short-period damping 0.35-1.30)"
