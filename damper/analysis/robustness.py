@@ -167,6 +167,9 @@ class UncertaintySpec:
         Smallest step of the compass search, in normalised coordinates.
     chunk : int
         Loops per :func:`assess_loop` call.
+    schedule_points : int
+        With a schedule: the verification points studied (see
+        :mod:`damper.analysis.schedule_points`).
     """
 
     samples: int = 2000
@@ -180,6 +183,7 @@ class UncertaintySpec:
     refine_iterations: int = 24
     refine_min_step: float = 1.0 / 64.0
     chunk: int = 2048
+    schedule_points: int = 12
 
 
 def uncertainty_spec(case, samples=None, seed=None, **overrides) -> UncertaintySpec:
@@ -208,6 +212,7 @@ def uncertainty_spec(case, samples=None, seed=None, **overrides) -> UncertaintyS
         confidence=float(raw.get("confidence", 0.95)),
         parameters=params,
         cg_shift=cg,
+        schedule_points=int(raw.get("schedule_points", 12)),
     )
     return dataclasses.replace(spec, **overrides) if overrides else spec
 

@@ -175,6 +175,11 @@ UNCERTAINTY = UncertaintySection(
         ),
         "parameters": Items(PARAMETER, "Uncertain parameters.", default=(), min_items=0, max_items=len(PARAMETERS)),
         "cg_shift": CG_SHIFT,
+        "schedule_points": Integer(
+            "With a schedule: the study runs at this many verification points, those with the least "
+            "slack under the scheduled gain (the tightest of each configuration first).",
+            default=12, low=1, high=1000,
+        ),
     },
     "Uncertainty for the robustness analysis (damper robust): uncertain derivatives, mass, "
     "inertia, hardware and gain tolerances, and a CG shift. Seeded Monte Carlo, every corner "

@@ -76,7 +76,8 @@ def run(args, argv) -> int:
     from ..output.background import PlotJobs
 
     # figures are drawn by a worker process while the analysis goes on (see PlotJobs)
-    with PlotJobs(enabled=design is not None and not args.no_plots) as jobs:
+    rob_planned = case.raw.get("uncertainty") is not None and not args.no_robustness
+    with PlotJobs(enabled=(design is not None or rob_planned) and not args.no_plots) as jobs:
         robustness_text, spec, schedule = _analyses(args, case, design, out, command, jobs, written)
     if not args.no_report:
         from ..output.report import write_report
@@ -91,7 +92,8 @@ def run(args, argv) -> int:
 
         print(schedule_summary(schedule))
     if robustness_text is not None:
-        print(f"robustness at the chosen gains ({spec.samples} samples, seed {spec.seed}):")
+        where = "the scheduled gains, at the tightest verification points" if schedule is not None else "the chosen gains"
+        print(f"robustness at {where} ({spec.samples} samples, seed {spec.seed}):")
         print(robustness_text)
     print(f"wrote {', '.join(written)} to {out}")
     print(CAUTION_SHORT)
@@ -141,15 +143,23 @@ def _analyses(args, case, design, out, command, jobs, written):
         write_responses(out, case, responses, rspec, command, plots=not args.no_plots, gain_text="chosen gain",
                         jobs=jobs)
         written.append("responses.json with time histories")
-    robustness_text = spec = rob = rob_jobs = None
-    if design is not None and case.raw.get("uncertainty") is not None and not args.no_robustness:
+    robustness_text = spec = rob = rob_jobs = where = None
+    studied = design is not None or schedule is not None
+    if studied and case.raw.get("uncertainty") is not None and not args.no_robustness:
         import numpy as np
 
         from ..analysis.robustness import robustness, uncertainty_spec
         from .robust import _Progress
 
         spec = uncertainty_spec(case)
-        gains = np.array([c.chosen_gain for c in design.conditions])
+        if schedule is not None:  # the schedule is what flies: its tightest verification points
+            from ..analysis.schedule_points import schedule_study_case
+
+            case, gains, _ = schedule_study_case(case, schedule, spec.schedule_points)
+            where = (f"the {len(gains)} schedule verification points with the least slack under the scheduled gain "
+                     "(the tightest of each configuration first; uncertainty.schedule_points), each at the schedule's gain")
+        else:
+            gains = np.array([c.chosen_gain for c in design.conditions])
         rob = robustness(case, gains, spec, progress=_Progress())
         if not args.no_plots:
             from ..output.robustness_out import robustness_plot_jobs
@@ -169,7 +179,7 @@ def _analyses(args, case, design, out, command, jobs, written):
         files = ["robustness.json"]
         if rob_jobs is not None:
             files += sorted(os.path.relpath(p, out) for k in rob_jobs for p in jobs.paths(k))
-        rdoc = robustness_document(case, rob, command=command, files=files)
+        rdoc = robustness_document(case, rob, command=command, files=files, where=where)
         write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
         written.append("robustness.json")
         robustness_text = robustness_table(rdoc)

@@ -952,6 +952,7 @@ def _robustness_view(doc, run_dir):
         _pairs(
             "Method",
             [
+                ("conditions studied", m.get("conditions_studied")),
                 ("samples", _cell(m.get("samples"))),
                 ("seed", _cell(m.get("seed"))),
                 ("confidence of the intervals", f"{100 * conf:.0f} %" if isinstance(conf, (int, float)) else None),

@@ -168,8 +168,11 @@ def condition_document(case, result, i) -> dict:
     }
 
 
-def robustness_document(case, result, command=None, files=()) -> dict:
-    """The whole ``robustness.json`` structure."""
+def robustness_document(case, result, command=None, files=(), where=None) -> dict:
+    """The whole ``robustness.json`` structure.
+
+    `where` says which conditions were studied (default: the case's conditions).
+    """
     spec = result.spec
     return {
         "title": case.title,
@@ -178,6 +181,7 @@ def robustness_document(case, result, command=None, files=()) -> dict:
         "damping_measure": result.damping_measure,
         "method": {
             **METHOD_TEXT,
+            "conditions_studied": where or "the case's conditions, each at its given gain",
             "samples": spec.samples,
             "seed": spec.seed,
             "confidence": num(spec.confidence),

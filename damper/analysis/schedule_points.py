@@ -1,0 +1,145 @@
+"""Where a scheduled damper's robustness is studied: the schedule's tightest verification points.
+
+A schedule is flown everywhere in the envelope, so its robustness study cannot run only at
+the conditions a gain was chosen at. The verification (:func:`damper.analysis.schedule.verify`)
+already gives every verification point's worst slack under the interpolated gain; the
+study runs at the ``count`` points with the least slack: first the tightest point of each
+configuration, then the tightest of the rest. Each becomes a
+:class:`damper.case.model.Condition` (standard atmosphere at its altitude, the mass and
+pitch inertia of its configuration, its interpolated derivatives) and its gain is the
+schedule's gain there.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+
+from ..atmosphere import standard_atmosphere
+from ..case.model import Condition
+from ..model.airframe import Derivatives
+
+
+def tightest_points(worst_slack, configuration, count, labels=None) -> np.ndarray:
+    """Indices of `count` points: the least-slack point of each configuration, then the rest by slack.
+
+    Parameters
+    ----------
+    worst_slack : ndarray, shape (n,)
+        Worst requirement slack at each point (normalised; negative: a requirement missed).
+    configuration : ndarray of int, shape (n,)
+        Configuration index of each point.
+    count : int
+        How many points (at most n).
+    labels : sequence of str, optional
+        A point whose label an earlier chosen point has is skipped (one place checked twice).
+
+    Returns
+    -------
+    ndarray of int
+        Point indices, tightest first within each of the two groups, no repeats.
+    """
+    slack = np.where(np.isfinite(worst_slack), worst_slack, np.inf)
+    order = [int(i) for i in np.lexsort((np.arange(slack.size), slack))]  # by slack, ties by index
+    if labels is not None:
+        taken, unique = set(), []
+        for i in order:
+            if labels[i] not in taken:
+                taken.add(labels[i])
+                unique.append(i)
+        order = unique
+    firsts, seen = [], set()
+    for i in order:
+        c = int(configuration[i])
+        if c not in seen:
+            seen.add(c)
+            firsts.append(i)
+    chosen = set(firsts)
+    rest = [i for i in order if i not in chosen]
+    return np.array((firsts + rest)[:count], dtype=int)
+
+
+def _masses(case, result, pts):
+    """Mass (kg) and pitch inertia (kg m^2) of each verification point."""
+    if result.source == "envelope":
+        from .envelope import envelope_from_case
+
+        env, _ = envelope_from_case(case)
+        mass = np.array([c.mass for c in env.configurations])[pts.configuration]
+        inertia = np.array([c.pitch_inertia for c in env.configurations])[pts.configuration]
+        return mass, inertia
+    # conditions schedule: a point lies on (or between) conditions of its configuration;
+    # their masses are interpolated like the derivatives (exact at the conditions)
+    by_name = {c.name: c for c in case.conditions}
+    pairs = {f"{a.name}~{b.name}": (a, b) for a in case.conditions for b in case.conditions if a is not b}
+    mass, inertia = [], []
+    for label in pts.labels:
+        if label in by_name:
+            mass.append(by_name[label].mass)
+            inertia.append(by_name[label].pitch_inertia)
+            continue
+        head, _, pct = label.rpartition(" ")  # "<a>~<b> <t>%" (see schedule._conditions_schedule)
+        a, b = pairs[head]
+        t = float(pct.rstrip("%")) / 100.0
+        mass.append(a.mass + t * (b.mass - a.mass))
+        inertia.append(a.pitch_inertia + t * (b.pitch_inertia - a.pitch_inertia))
+    return np.array(mass, dtype=float), np.array(inertia, dtype=float)
+
+
+def schedule_study_case(case, result, count):
+    """The case restricted to the schedule's `count` tightest verification points, and their gains.
+
+    Parameters
+    ----------
+    case : damper.case.model.Case
+    result : damper.analysis.schedule.ScheduleResult
+    count : int
+        Points to study.
+
+    Returns
+    -------
+    study_case : Case
+        `case` with ``conditions`` replaced by the chosen points (named by their
+        verification labels) and no per-condition coefficient data (a CG shift's effect then
+        comes from the normal-force slope, ``-Z_alpha m / (qbar S)``).
+    gains : ndarray, shape (count,)
+        The schedule's gain at each point, s.
+    indices : ndarray of int
+        The chosen verification points.
+    """
+    ver = result.verification
+    pts = ver.points
+    idx = tightest_points(ver.worst_slack, pts.configuration, count, pts.labels)
+    air = standard_atmosphere(pts.altitude[idx])
+    mass, inertia = _masses(case, result, pts)
+    fields = Derivatives.__dataclass_fields__
+    names = tuple(result.configurations)
+    conditions = []
+    for k, i in enumerate(idx):
+        v = float(pts.airspeed[i])
+        rho = float(np.asarray(air.density)[k])
+        a_sound = float(np.asarray(air.speed_of_sound)[k])
+        d = Derivatives(**{f: np.asarray(float(np.broadcast_to(getattr(pts.derivatives, f), pts.altitude.shape)[i]))
+                           for f in fields})
+        ci = int(pts.configuration[i])
+        conditions.append(Condition(
+            name=str(pts.labels[i]),
+            airspeed=v,
+            altitude=float(pts.altitude[i]),
+            altitude_input=float(pts.altitude[i]),
+            density=rho,
+            speed_of_sound=a_sound,
+            mach=v / a_sound,
+            dynamic_pressure=0.5 * rho * v * v,
+            mass=float(mass[i]),
+            pitch_inertia=float(inertia[i]),
+            derivatives=d,
+            source="schedule verification point",
+            note=f"{pts.kind[i]} point of the schedule verification",
+            configuration=names[ci] if ci < len(names) and names[ci] != "all" else None,
+        ))
+    raw = dict(case.raw or {})
+    raw["conditions"] = []
+    study = dataclasses.replace(case, conditions=tuple(conditions), raw=raw)
+    return study, np.asarray(ver.gains, dtype=float)[idx], idx

@@ -1,0 +1,121 @@
+"""Robustness of a schedule: the study runs at the schedule's tightest verification points.
+
+Test data are invented (the regional twin-jet demo case with a small uncertainty section).
+"""
+
+import json
+import os
+
+import numpy as np
+
+from damper.analysis.robustness import robustness, uncertainty_spec
+from damper.analysis.schedule import design_schedule
+from damper.analysis.schedule_points import schedule_study_case, tightest_points
+from damper.case import load_case_text
+from damper.cli import main
+
+from .conftest import ROOT
+
+TWINJET = os.path.join(ROOT, "cases", "regional_twinjet_envelope.yaml")
+UNCERTAIN = """
+uncertainty:
+  samples: 40
+  seed: 3
+  schedule_points: 4
+  parameters:
+    - {name: M_alpha, relative: 0.10}
+    - {name: M_q, relative: 0.10}
+"""
+ZERO = """
+uncertainty:
+  samples: 8
+  seed: 3
+  schedule_points: 5
+  parameters:
+    - {name: M_alpha, relative: 0.0}
+"""
+
+
+def _twinjet(extra):
+    with open(TWINJET, encoding="utf-8") as f:
+        return load_case_text(f.read() + extra, "twinjet.yaml")
+
+
+def test_tightest_points_take_each_configuration_first_then_the_least_slack():
+    # [derived] order by slack (ties by index), one least-slack point per configuration
+    # first, repeated labels skipped
+    slack = np.array([0.5, 0.1, 0.3, np.nan, 0.1, 0.9, 0.2])
+    conf = np.array([0, 0, 0, 1, 0, 1, 0])
+    labels = ["a", "b", "c", "d", "b", "f", "g"]
+    assert tightest_points(slack, conf, 4, labels).tolist() == [1, 5, 6, 2]
+    assert tightest_points(slack, conf, 3).tolist() == [1, 5, 4]
+    assert tightest_points(slack, conf, 99, labels).tolist() == [1, 5, 6, 2, 0, 3]
+
+
+def test_study_points_carry_the_verification_gain_and_derivatives():
+    # the nominal study (zero spread) reproduces the schedule verification at every studied
+    # point: the same worst slack from an independent evaluation of the same loops
+    case = _twinjet(ZERO)
+    sched = design_schedule(case)
+    study, gains, idx = schedule_study_case(case, sched, 5)
+    assert len(study.conditions) == 5 and len({c.name for c in study.conditions}) == 5
+    ver = sched.verification
+    np.testing.assert_array_equal(gains, ver.gains[idx])
+    # the least slack of all is studied first
+    assert ver.worst_slack[idx[0]] == np.nanmin(ver.worst_slack)
+    r = robustness(study, gains, uncertainty_spec(study), refine=False)
+    for k, c in enumerate(study.conditions):
+        assert c.configuration in ("light-fwd", "heavy-aft")
+        assert c.name == ver.points.labels[idx[k]]
+    # slacks: (criteria, conditions, samples); every sample is the nominal loop
+    np.testing.assert_allclose(r.slacks.min(axis=0)[:, 0], ver.worst_slack[idx], rtol=1e-9, atol=1e-12)
+    np.testing.assert_allclose(r.damping[:, 0], ver.damping_ratio[idx], rtol=1e-9)
+    assert np.ptp(r.slacks.min(axis=0), axis=1).max() == 0.0
+
+
+def test_design_runs_the_study_on_a_schedule_case(tmp_path, capsys):
+    path = tmp_path / "twinjet.yaml"
+    with open(TWINJET, encoding="utf-8") as f:
+        path.write_text(f.read() + UNCERTAIN, encoding="utf-8")
+    out = tmp_path / "run"
+    rc = main(["design", str(path), "--out", str(out), "--no-plots", "--no-responses"])
+    text = capsys.readouterr().out
+    assert rc == 0
+    assert "robustness at the scheduled gains, at the tightest verification points" in text
+    doc = json.loads((out / "robustness.json").read_text())
+    assert len(doc["conditions"]) == 4
+    assert "schedule verification points" in doc["method"]["conditions_studied"]
+    sched = json.loads((out / "schedule.json").read_text())
+    assert sched  # the schedule is still designed and written
+    assert "conditions studied" in (out / "report.html").read_text()
+
+
+def test_conditions_schedule_points_interpolate_mass_between_conditions():
+    # [derived] a point a quarter of the way from condition "slow one" to "fast one" has a
+    # quarter of the mass difference (masses interpolated like the derivatives)
+    text = """
+title: conditions schedule with masses (invented)
+aircraft: {mass: 1000, pitch_inertia: 1500}
+conditions:
+  - {name: slow one, airspeed: 50, altitude: 0, mass: 900, pitch_inertia: 1400,
+     derivatives: {Z_alpha: -120, M_alpha: -9, M_q: -1.0, M_delta: -14}}
+  - {name: fast one, airspeed: 80, altitude: 0, mass: 1100, pitch_inertia: 1600,
+     derivatives: {Z_alpha: -300, M_alpha: -23, M_q: -1.6, M_delta: -36}}
+loop: {actuator: {bandwidth: 20}}
+schedule: {variables: [dynamic_pressure]}
+uncertainty:
+  samples: 4
+  schedule_points: 20
+  parameters:
+    - {name: mass, relative: 0.05}
+"""
+    case = load_case_text(text, "c.yaml")
+    sched = design_schedule(case)
+    study, gains, idx = schedule_study_case(case, sched, 20)
+    by_name = {c.name: c for c in study.conditions}
+    assert len(study.conditions) == sched.verification.passed.size == 5
+    assert by_name["slow one"].mass == 900 and by_name["fast one"].pitch_inertia == 1600
+    assert by_name["slow one~fast one 25%"].mass == 950
+    assert by_name["slow one~fast one 75%"].pitch_inertia == 1550
+    r = robustness(study, gains, uncertainty_spec(study), refine=False)
+    assert r.values.shape[1] == 5
