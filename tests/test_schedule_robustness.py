@@ -7,6 +7,7 @@ import json
 import os
 
 import numpy as np
+import pytest
 
 from damper.analysis.robustness import robustness, uncertainty_spec
 from damper.analysis.schedule import design_schedule
@@ -119,3 +120,60 @@ uncertainty:
     assert by_name["slow one~fast one 75%"].pitch_inertia == 1550
     r = robustness(study, gains, uncertainty_spec(study), refine=False)
     assert r.values.shape[1] == 5
+
+
+def test_robust_reads_a_schedule_file_and_studies_its_tightest_points(tmp_path, capsys):
+    # the same study from the written gain-schedule.json as from the design run itself
+    path = tmp_path / "twinjet.yaml"
+    with open(TWINJET, encoding="utf-8") as f:
+        path.write_text(f.read() + UNCERTAIN, encoding="utf-8")
+    design = tmp_path / "design"
+    assert main(["design", str(path), "--out", str(design), "--no-plots", "--no-responses"]) == 0
+    out = tmp_path / "robust"
+    assert main(["robust", str(path), "--schedule", str(design), "--out", str(out), "--no-plots", "--quiet"]) == 0
+    assert "tightest verification points" in capsys.readouterr().out
+    a = json.loads((design / "robustness.json").read_text())
+    b = json.loads((out / "robustness.json").read_text())
+    assert [c["name"] for c in a["conditions"]] == [c["name"] for c in b["conditions"]]
+    assert [c["gain_s"] for c in a["conditions"]] == [c["gain_s"] for c in b["conditions"]]
+    assert a["joint"] == b["joint"]
+
+
+@pytest.mark.parametrize(
+    "change, words",
+    [
+        (lambda d: d.update(gains_s=d["gains_s"][:2]), "gains_s: shape (2, 4)"),
+        (lambda d: d["variables"][1].update(unit="kt"), "variables[1].unit: 'kt'"),
+        (lambda d: d.update(form="spline"), "form: 'spline'"),
+        (lambda d: d["variables"][0].update(breakpoints=[0, 8000, 4000, 12000]), "ascending"),
+        (lambda d: d.update(gains_s=[[float("nan")] * 4] * 4), "gains_s: must be finite"),
+    ],
+)
+def test_schedule_file_errors_name_the_field(tmp_path, change, words):
+    from damper.errors import DamperError
+    from damper.output.schedule_out import schedule_from_table, table_dict
+
+    case = _twinjet("")
+    doc = json.loads(json.dumps(table_dict(design_schedule(case).schedule, case)))
+    assert schedule_from_table(doc).gain_at([np.array([4000.0]), np.array([0.5])]).shape == (1,)
+    change(doc)
+    with pytest.raises(DamperError, match=None) as err:
+        schedule_from_table(doc, "gs.json")
+    assert words in str(err.value) and str(err.value).startswith("gs.json: ")
+
+
+@pytest.mark.parametrize("name, form", [("regional_twinjet_envelope.yaml", "table"), ("survey_uav_altitude.yaml", "table"),
+                                        ("survey_uav_altitude.yaml", "inverse_dynamic_pressure")])
+def test_schedule_file_reads_back_the_written_schedule(name, form):
+    # gain-schedule.json (repr precision) read back gives the same gains everywhere
+    from damper.output.schedule_out import schedule_from_table, table_dict
+
+    with open(os.path.join(ROOT, "cases", name), encoding="utf-8") as f:
+        text = f.read()
+    case = load_case_text(text.replace("form: table", f"form: {form}"), name)
+    s = design_schedule(case).schedule
+    back = schedule_from_table(json.loads(json.dumps(table_dict(s, case))))
+    assert back.variables == s.variables and back.form == s.form == form
+    rng = np.random.default_rng(5)
+    q = [rng.uniform(b[0], b[-1], 50) for b in s.breakpoints]
+    np.testing.assert_array_equal(back.gain_at(q), s.gain_at(q))

@@ -417,8 +417,14 @@ def _envelope_round(case, env, aero, variables, form, bps):
     gains, feas, worst, binding, counts = design_gains(case, design_pts, group, n_nodes)
     gains = _fill_missing(gains, counts, shape)
     schedule = _make_schedule(variables, form, bps, gains.reshape(shape))
-    # verification points: 4x denser in each variable, corners, regular grid
-    dense = [_subdivide(b) for b in bps]
+    ver = verify(case, schedule, _envelope_verification_points(case, env, aero, variables, bps))
+    bd = BreakpointDesign(gains, feas & (counts > 0), worst, binding, counts)
+    return schedule, bd, ver
+
+
+def _envelope_verification_points(case, env, aero, variables, bps):
+    """Verification points: 4x denser than the breakpoints in each variable, the grid, the corners."""
+    dense = [_subdivide(np.asarray(b, dtype=float)) for b in bps]
     Hd, Vd, _ = _points_on(env, variables, dense, env.grid_altitudes, max(env.grid_speeds, 4 * len(bps[0]) + 1))
     grid = env_mod.grid_points(env, env.grid_altitudes, env.grid_speeds)
     n_c = len(env.configurations)
@@ -426,10 +432,28 @@ def _envelope_round(case, env, aero, variables, form, bps):
     corners = env_mod.grid_points(env, 2, 2)
     ch, cv = corners.altitude[: corners.altitude.size // n_c], corners.airspeed[: corners.airspeed.size // n_c]
     Hv, Vv, kinds = _distinct_points([(Hd, Vd, "between"), (gh, gv, "grid"), (ch, cv, "corner")])
-    vpts = _pointset_from_env(case, env, aero, Hv, Vv, kinds, variables)
-    ver = verify(case, schedule, vpts)
-    bd = BreakpointDesign(gains, feas & (counts > 0), worst, binding, counts)
-    return schedule, bd, ver
+    return _pointset_from_env(case, env, aero, Hv, Vv, kinds, variables)
+
+
+def verification_points(case, schedule: Schedule):
+    """The points :func:`design_schedule` verifies a schedule of this form on, for a given schedule.
+
+    Returns
+    -------
+    points : PointSet
+    source : str
+        ``envelope`` or ``conditions``.
+    configurations : tuple of str
+    """
+    env, aero = env_mod.envelope_from_case(case)
+    if env is not None:
+        pts = _envelope_verification_points(case, env, aero, schedule.variables, schedule.breakpoints)
+        return pts, "envelope", tuple(c.name for c in env.configurations)
+    if len(schedule.variables) != 1:
+        raise DamperError(f"{case.file}: the schedule is over {' and '.join(schedule.variables)}; a 2-D schedule "
+                          "needs a case with an envelope and aerodynamic tables")
+    pts, confs, *_ = _conditions_points(case, schedule.variables[0])
+    return pts, "conditions", tuple(confs)
 
 
 def _distinct_points(groups):
@@ -592,10 +616,13 @@ def _message(passed, ver, bd, form, s, rounds):
 # ---------------------------------------------------------------------------
 
 
-def _conditions_schedule(case, variables, form, s):
-    if len(variables) != 1:
-        raise DamperError(f"{case.file}: a 2-D schedule needs an envelope with aerodynamic tables")
-    var = variables[0]
+def _conditions_points(case, var):
+    """Verification points of a conditions schedule in `var`: the conditions, and three points
+    between consecutive conditions of one configuration (derivatives interpolated linearly).
+
+    Returns (points, configuration names, the conditions' own PointSet, their `var` values,
+    their configuration indices).
+    """
     conds = case.conditions
     d = case.derivatives()
     x = np.array([float(env_mod.variable_value(var, c.altitude, c.airspeed)) for c in conds])
@@ -603,13 +630,7 @@ def _conditions_schedule(case, variables, form, s):
     spd = np.array([c.airspeed for c in conds])
     confs = sorted({c.configuration or "all" for c in conds})
     conf_idx = np.array([confs.index(c.configuration or "all") for c in conds])
-    bps = np.unique(np.round(x, 9))
-    group = np.searchsorted(bps, np.round(x, 9))
-    warnings = _variant_warnings(conds, conf_idx, group, bps, var)
     base = PointSet(d, x[None, :], alt, spd, conf_idx, tuple(c.name for c in conds), np.full(len(conds), "condition"))
-    gains, feas, worst, binding, counts = design_gains(case, base, group, bps.size)
-    schedule = _make_schedule((var,), form, (bps,), gains)
-    # between consecutive conditions of one configuration: interpolated derivatives
     sets = [base]
     fields = list(Derivatives.__dataclass_fields__)
     for ci, cname in enumerate(confs):
@@ -625,7 +646,19 @@ def _conditions_schedule(case, variables, form, s):
             labels = tuple(f"{conds[a].name}~{conds[b].name} {int(tt * 100)}%" for tt in t)
             sets.append(PointSet(dd, xs[None, :], alt[a] + t * (alt[b] - alt[a]), spd[a] + t * (spd[b] - spd[a]),
                                  np.full(3, ci), labels, np.full(3, "between")))
-    pts = _concat(sets)
+    return _concat(sets), confs, base, x, conf_idx
+
+
+def _conditions_schedule(case, variables, form, s):
+    if len(variables) != 1:
+        raise DamperError(f"{case.file}: a 2-D schedule needs an envelope with aerodynamic tables")
+    var = variables[0]
+    pts, confs, base, x, conf_idx = _conditions_points(case, var)
+    bps = np.unique(np.round(x, 9))
+    group = np.searchsorted(bps, np.round(x, 9))
+    warnings = _variant_warnings(case.conditions, conf_idx, group, bps, var)
+    gains, feas, worst, binding, counts = design_gains(case, base, group, bps.size)
+    schedule = _make_schedule((var,), form, (bps,), gains)
     ver = verify(case, schedule, pts)
     passed = bool(np.all(ver.passed))
     msg = _message(passed, ver, BreakpointDesign(gains, feas, worst, binding, counts), form, {"max_breakpoints": 0}, 1)

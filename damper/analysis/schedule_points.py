@@ -13,12 +13,30 @@ schedule's gain there.
 from __future__ import annotations
 
 import dataclasses
+from dataclasses import dataclass
 
 import numpy as np
 
 from ..atmosphere import standard_atmosphere
 from ..case.model import Condition
 from ..model.airframe import Derivatives
+
+
+@dataclass(frozen=True)
+class CheckedSchedule:
+    """A schedule's verification without its design (e.g. a schedule read from a file).
+
+    Attributes
+    ----------
+    verification : damper.analysis.schedule.Verification
+    source : str
+        ``envelope`` or ``conditions``.
+    configurations : tuple of str
+    """
+
+    verification: object
+    source: str
+    configurations: tuple
 
 
 def tightest_points(worst_slack, configuration, count, labels=None) -> np.ndarray:
@@ -93,7 +111,8 @@ def schedule_study_case(case, result, count):
     Parameters
     ----------
     case : damper.case.model.Case
-    result : damper.analysis.schedule.ScheduleResult
+    result : damper.analysis.schedule.ScheduleResult or CheckedSchedule
+        Its ``verification``, ``source`` and ``configurations`` are used.
     count : int
         Points to study.
 

@@ -1,4 +1,4 @@
-"""``damper robust CASE (--gain K | --design DIR)``: robustness to uncertain data and hardware."""
+"""``damper robust CASE (--gain K | --design DIR | --schedule FILE)``: robustness to uncertain data and hardware."""
 
 from __future__ import annotations
 
@@ -19,6 +19,9 @@ def register(sub) -> str:
     g = p.add_mutually_exclusive_group(required=True)
     g.add_argument("--gain", type=float, metavar="K", help="pitch-rate gain K in seconds at every condition")
     g.add_argument("--design", metavar="DIR", help="run directory of `damper design`: its chosen gain per condition")
+    g.add_argument("--schedule", metavar="FILE",
+                   help="gain-schedule.json (or a run directory holding one): the study runs at the schedule's "
+                   "tightest verification points (uncertainty.schedule_points) at the scheduled gain")
     p.add_argument("--samples", type=int, metavar="N", help="Monte Carlo samples (default: the case's, else 2000)")
     p.add_argument("--seed", type=int, metavar="S", help="random seed (default: the case's, else 1)")
     p.add_argument("--workers", type=int, metavar="W", help="threads evaluating chunks (default: up to 2)")
@@ -84,6 +87,25 @@ def _read_design(path):
         raise DamperError(f"--design {path}: cannot read {file} ({exc})") from None
 
 
+def _read_schedule(path):
+    import json
+    import os
+
+    from ..errors import DamperError
+    from ..output.schedule_out import schedule_from_table
+
+    file = os.path.join(path, "gain-schedule.json") if os.path.isdir(path) else path
+    try:
+        with open(file, encoding="utf-8") as fh:
+            doc = json.load(fh)
+    except FileNotFoundError:
+        raise DamperError(f"--schedule {path}: no such file (a design run of a case with a schedule writes "
+                          "gain-schedule.json)") from None
+    except (OSError, ValueError) as exc:
+        raise DamperError(f"--schedule {path}: cannot read {file} ({exc})") from None
+    return schedule_from_table(doc, file)
+
+
 def run(args, argv) -> int:
     _check_args(args)
     import os
@@ -98,14 +120,26 @@ def run(args, argv) -> int:
     from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
 
     case = load_case(args.case)
-    if args.design is not None:
+    spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
+    where = None
+    if args.schedule is not None:
+        from ..analysis.schedule import verification_points, verify
+        from ..analysis.schedule_points import CheckedSchedule, schedule_study_case
+
+        sched = _read_schedule(args.schedule)
+        pts, kind, confs = verification_points(case, sched)
+        checked = CheckedSchedule(verify(case, sched, pts), kind, confs)
+        case, gains, _ = schedule_study_case(case, checked, spec.schedule_points)
+        source = f"the schedule {args.schedule} at its {len(gains)} tightest verification points"
+        where = (f"the {len(gains)} verification points of {args.schedule} with the least slack under its gain "
+                 "(the tightest of each configuration first; uncertainty.schedule_points), each at the schedule's gain")
+    elif args.design is not None:
         doc, _ = _read_design(args.design)
         gains = gains_from_design(case, doc)
         source = f"chosen gains of {args.design}"
     else:
         gains = args.gain
         source = f"K = {args.gain:g} s at every condition"
-    spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
     stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
     out = prepare_run_dir(args.out or f"robust-{stem}", force=args.force)
     warn_case(case)
@@ -120,7 +154,7 @@ def run(args, argv) -> int:
     if not args.no_plots:
         plot_paths = robustness_plots(case, result, out)
         files += sorted(os.path.relpath(p, out) for p in plot_paths)
-    doc = robustness_document(case, result, command=" ".join(["damper", *argv]), files=files)
+    doc = robustness_document(case, result, command=" ".join(["damper", *argv]), files=files, where=where)
     write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
     print(f"{case.title}: robustness with {source}")
     print(

@@ -49,6 +49,68 @@ def table_dict(schedule, case) -> dict:
     return out
 
 
+def schedule_from_table(doc, where="gain-schedule.json"):
+    """The :class:`~damper.analysis.schedule.Schedule` of a ``gain-schedule.json`` document.
+
+    The inverse of :func:`table_dict`; every field is checked, and a problem raises
+    :class:`~damper.errors.DamperError` naming `where` and the field.
+
+    Parameters
+    ----------
+    doc : dict
+        The parsed JSON.
+    where : str
+        The file, for messages.
+    """
+    from ..analysis.schedule import Schedule
+    from ..errors import DamperError
+
+    def bad(field, why):
+        return DamperError(f"{where}: {field}: {why} (expected a gain-schedule.json written by `damper design`)")
+
+    if not isinstance(doc, dict):
+        raise bad("top level", "not a JSON object")
+    form = doc.get("form")
+    if form not in ("table", "inverse_dynamic_pressure"):
+        raise bad("form", f"{form!r} is not 'table' or 'inverse_dynamic_pressure'")
+    variables = doc.get("variables")
+    if not isinstance(variables, list) or len(variables) not in (1, 2):
+        raise bad("variables", "must list one or two schedule variables")
+    names, bps = [], []
+    for i, v in enumerate(variables):
+        if not isinstance(v, dict) or v.get("name") not in VARIABLE_UNITS:
+            raise bad(f"variables[{i}].name", f"must be one of {', '.join(VARIABLE_UNITS)}")
+        if v.get("unit") != VARIABLE_UNITS[v["name"]]:
+            raise bad(f"variables[{i}].unit", f"{v.get('unit')!r}; breakpoints of {v['name']} are in {VARIABLE_UNITS[v['name']]!r}")
+        try:
+            b = np.asarray(v.get("breakpoints"), dtype=float)
+        except (TypeError, ValueError):
+            raise bad(f"variables[{i}].breakpoints", "must be a list of numbers") from None
+        if b.ndim != 1 or b.size < 1 or not np.all(np.isfinite(b)) or np.any(np.diff(b) <= 0):
+            raise bad(f"variables[{i}].breakpoints", "must be finite numbers in ascending order")
+        names.append(v["name"])
+        bps.append(b)
+    try:
+        gains = np.asarray(doc.get("gains_s"), dtype=float)
+    except (TypeError, ValueError):
+        raise bad("gains_s", "must be numbers (a list, or a list of rows for two variables)") from None
+    shape = tuple(b.size for b in bps)
+    if gains.shape != shape:
+        raise bad("gains_s", f"shape {gains.shape} does not match the breakpoints {shape}")
+    if not np.all(np.isfinite(gains)):
+        raise bad("gains_s", "must be finite")
+    k_ref = q_ref = None
+    if form == "inverse_dynamic_pressure":
+        if names != ["dynamic_pressure"]:
+            raise bad("variables", "the inverse-dynamic-pressure law is over dynamic_pressure alone")
+        k_ref, q_ref = doc.get("k_ref_s"), doc.get("q_ref_pa")
+        for key, val in (("k_ref_s", k_ref), ("q_ref_pa", q_ref)):
+            if isinstance(val, bool) or not isinstance(val, (int, float)) or not np.isfinite(val) or val <= 0:
+                raise bad(key, "must be a positive number")
+        k_ref, q_ref = float(k_ref), float(q_ref)
+    return Schedule(tuple(names), form, tuple(bps), gains, k_ref, q_ref)
+
+
 def to_csv(schedule, case) -> str:
     lines = [f"# damper {__version__} gain schedule; input sha256 {case.sha256}", f"# form: {schedule.form}"]
     if schedule.form == "inverse_dynamic_pressure":
