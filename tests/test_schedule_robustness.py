@@ -37,9 +37,15 @@ uncertainty:
 """
 
 
-def _twinjet(extra):
+def _twinjet_text(extra):
+    """The demo case with its uncertainty section replaced by `extra`."""
     with open(TWINJET, encoding="utf-8") as f:
-        return load_case_text(f.read() + extra, "twinjet.yaml")
+        text = f.read()
+    return text[: text.index("\n# Tolerances of the data")] + "\n" + extra
+
+
+def _twinjet(extra):
+    return load_case_text(_twinjet_text(extra), "twinjet.yaml")
 
 
 def test_tightest_points_take_each_configuration_first_then_the_least_slack():
@@ -76,8 +82,7 @@ def test_study_points_carry_the_verification_gain_and_derivatives():
 
 def test_design_runs_the_study_on_a_schedule_case(tmp_path, capsys):
     path = tmp_path / "twinjet.yaml"
-    with open(TWINJET, encoding="utf-8") as f:
-        path.write_text(f.read() + UNCERTAIN, encoding="utf-8")
+    path.write_text(_twinjet_text(UNCERTAIN), encoding="utf-8")
     out = tmp_path / "run"
     rc = main(["design", str(path), "--out", str(out), "--no-plots", "--no-responses"])
     text = capsys.readouterr().out
@@ -125,8 +130,7 @@ uncertainty:
 def test_robust_reads_a_schedule_file_and_studies_its_tightest_points(tmp_path, capsys):
     # the same study from the written gain-schedule.json as from the design run itself
     path = tmp_path / "twinjet.yaml"
-    with open(TWINJET, encoding="utf-8") as f:
-        path.write_text(f.read() + UNCERTAIN, encoding="utf-8")
+    path.write_text(_twinjet_text(UNCERTAIN), encoding="utf-8")
     design = tmp_path / "design"
     assert main(["design", str(path), "--out", str(design), "--no-plots", "--no-responses"]) == 0
     out = tmp_path / "robust"
@@ -177,3 +181,18 @@ def test_schedule_file_reads_back_the_written_schedule(name, form):
     rng = np.random.default_rng(5)
     q = [rng.uniform(b[0], b[-1], 50) for b in s.breakpoints]
     np.testing.assert_array_equal(back.gain_at(q), s.gain_at(q))
+
+
+def test_table_names_the_requirement_met_by_the_fewest_samples():
+    # [derived] the column shows the criterion with the smallest pass count and its percentage
+    from damper.output.robustness_out import _most_missed
+
+    c = {"samples": 10, "pass": {"criteria": [
+        {"name": "stability", "passed": 10, "fraction": 1.0},
+        {"name": "cap", "passed": 7, "fraction": 0.7},
+        {"name": "gain_margin", "passed": 9, "fraction": 0.9},
+    ]}}
+    assert _most_missed(c) == "cap (70.0)"
+    for k in c["pass"]["criteria"]:
+        k["passed"], k["fraction"] = 10, 1.0
+    assert _most_missed(c) == "-"

@@ -232,7 +232,7 @@ def _worst_of(c, name):
 
 
 def robustness_table(doc) -> str:
-    """Per condition: pass fraction with interval, worst damping, worst gain margin, top driver."""
+    """Per condition: pass fraction with interval, worst damping and margins, the most missed requirement, top driver."""
     conf = doc["method"]["confidence"]
     headers = [
         "condition",
@@ -243,6 +243,7 @@ def robustness_table(doc) -> str:
         "worst zeta\n-",
         "worst GM\ndB",
         "worst PM\ndeg",
+        "most missed\n(meets, %)",
         "top driver\n(Spearman rho)",
     ]
     rows = []
@@ -264,6 +265,7 @@ def robustness_table(doc) -> str:
                 _worst_cell(wz, ".3f"),
                 _worst_cell(wg, ".1f", "none"),
                 _worst_cell(wp, ".1f", "none"),
+                _most_missed(c),
                 f"{top} ({rho:+.2f})" if top else "-",
             ]
         )
@@ -276,6 +278,15 @@ def robustness_table(doc) -> str:
         "and the worst-case search ('!' marks a missed requirement); GM/PM 'none': no crossing (unbounded).",
     ]
     return "\n".join(lines)
+
+
+def _most_missed(c):
+    """The requirement met by the fewest samples and its pass percentage ('-' if every sample meets all)."""
+    crit = [k for k in c["pass"]["criteria"] if k["passed"] < c["samples"]]
+    if not crit:
+        return "-"
+    k = min(crit, key=lambda k: k["passed"])
+    return f"{k['name']} ({_pct(k['fraction'], 'down')})"
 
 
 def _worst_cell(w, spec, none="-"):
