@@ -196,3 +196,17 @@ def test_table_names_the_requirement_met_by_the_fewest_samples():
     for k in c["pass"]["criteria"]:
         k["passed"], k["fraction"] = 10, 1.0
     assert _most_missed(c) == "-"
+
+
+@pytest.mark.parametrize("extra", ["", " with a much longer name than any envelope label would have"])
+def test_robustness_titles_fit_the_figure(extra):
+    # a verification label as condition name makes long titles: they shrink or break, never clip
+    from damper.output.figures import DPI, new_figure
+    from damper.output.robustness_out import _title
+
+    fig = new_figure(6.8, 5.0)
+    fig.set_dpi(DPI)
+    _title(fig, f"heavy-aft h=12000 m V=137.7 m/s{extra}: damping and gain margin under uncertainty (K = 1.009 s)")
+    r = fig.canvas.get_renderer()
+    box = fig.texts[0].get_window_extent(r)
+    assert box.x1 <= fig.bbox.width and box.x0 >= 0

@@ -957,7 +957,8 @@ def _robustness_view(doc, run_dir):
                 ("seed", _cell(m.get("seed"))),
                 ("confidence of the intervals", f"{100 * conf:.0f} %" if isinstance(conf, (int, float)) else None),
                 ("corners evaluated", f"{m.get('corners_evaluated')}" + (" (all)" if m.get("corners_complete") else "")),
-                ("loops evaluated", _cell(m.get("loops_evaluated"))),
+                ("loops evaluated", f"{m['loops_evaluated']:,}" if isinstance(m.get("loops_evaluated"), int)
+                 else _cell(m.get("loops_evaluated"))),
                 ("sampling", m.get("sampling")),
                 ("normal distributions", m.get("normal")),
                 ("corners", m.get("corners")),

@@ -351,7 +351,7 @@ def _footer(fig, case, result):
     fig.text(
         0.01,
         0.005,
-        f"{case.title} | {spec.samples} samples, seed {spec.seed} | damper robust",
+        f"{case.title} | {spec.samples} samples, seed {spec.seed} | damper robustness study",
         fontsize=6.5,
         color="#666666",
         ha="left",
@@ -360,9 +360,18 @@ def _footer(fig, case, result):
 
 
 def _title(fig, text):
-    """Title at the figure's top-left (never clipped by a long condition name)."""
+    """Title at the figure's top-left; a long condition name makes the font smaller (down to 7 pt)
+    and then breaks the line after the name, so the title is never clipped."""
     h = fig.get_figheight()
-    fig.text(0.012, 1.0 - 0.1 / h, text, fontsize=10.0, ha="left", va="top", color=STYLE["ink"])
+    t = fig.text(0.012, 1.0 - 0.1 / h, text, fontsize=10.0, ha="left", va="top", color=STYLE["ink"])
+    renderer = fig.canvas.get_renderer()
+    room = 0.93 * fig.bbox.width  # margin for the left offset and for hinting at the saved dpi
+    width = t.get_window_extent(renderer).width
+    if width > room:
+        t.set_fontsize(max(7.0, 0.97 * 10.0 * room / width))
+        if t.get_window_extent(renderer).width > room and ": " in text:  # two short lines in the top margin
+            t.set_text(text.replace(": ", ":\n", 1))
+            t.set_fontsize(7.0)
 
 
 def _band(result, name):
