@@ -162,3 +162,9 @@ def schedule_study_case(case, result, count):
     raw["conditions"] = []
     study = dataclasses.replace(case, conditions=tuple(conditions), raw=raw)
     return study, np.asarray(ver.gains, dtype=float)[idx], idx
+
+
+def study_description(count, schedule="the schedule"):
+    """What ``robustness.json`` says was studied (``method.conditions_studied``)."""
+    return (f"the {count} verification points of {schedule} with the least slack under its gain (the tightest "
+            "of each configuration first; uncertainty.schedule_points), each at the schedule's gain")

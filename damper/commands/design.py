@@ -153,11 +153,10 @@ def _analyses(args, case, design, out, command, jobs, written):
 
         spec = uncertainty_spec(case)
         if schedule is not None:  # the schedule is what flies: its tightest verification points
-            from ..analysis.schedule_points import schedule_study_case
+            from ..analysis.schedule_points import schedule_study_case, study_description
 
             case, gains, _ = schedule_study_case(case, schedule, spec.schedule_points)
-            where = (f"the {len(gains)} schedule verification points with the least slack under the scheduled gain "
-                     "(the tightest of each configuration first; uncertainty.schedule_points), each at the schedule's gain")
+            where = study_description(len(gains))
         else:
             gains = np.array([c.chosen_gain for c in design.conditions])
         rob = robustness(case, gains, spec, progress=_Progress())

@@ -124,15 +124,14 @@ def run(args, argv) -> int:
     where = None
     if args.schedule is not None:
         from ..analysis.schedule import verification_points, verify
-        from ..analysis.schedule_points import CheckedSchedule, schedule_study_case
+        from ..analysis.schedule_points import CheckedSchedule, schedule_study_case, study_description
 
         sched = _read_schedule(args.schedule)
         pts, kind, confs = verification_points(case, sched)
         checked = CheckedSchedule(verify(case, sched, pts), kind, confs)
         case, gains, _ = schedule_study_case(case, checked, spec.schedule_points)
         source = f"the schedule {args.schedule} at its {len(gains)} tightest verification points"
-        where = (f"the {len(gains)} verification points of {args.schedule} with the least slack under its gain "
-                 "(the tightest of each configuration first; uncertainty.schedule_points), each at the schedule's gain")
+        where = study_description(len(gains), args.schedule)
     elif args.design is not None:
         doc, _ = _read_design(args.design)
         gains = gains_from_design(case, doc)
