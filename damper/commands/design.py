@@ -180,6 +180,6 @@ def _analyses(args, case, design, out, command, jobs, written):
             files += sorted(os.path.relpath(p, out) for k in rob_jobs for p in jobs.paths(k))
         rdoc = robustness_document(case, rob, command=command, files=files, where=where)
         write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
-        written.append("robustness.json")
+        written.append("robustness.json" + (f" with {len(files) - 1} robustness plot files" if len(files) > 1 else ""))
         robustness_text = robustness_table(rdoc)
     return robustness_text, spec, schedule
