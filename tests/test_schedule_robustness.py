@@ -210,3 +210,18 @@ def test_robustness_titles_fit_the_figure(extra):
     r = fig.canvas.get_renderer()
     box = fig.texts[0].get_window_extent(r)
     assert box.x1 <= fig.bbox.width and box.x0 >= 0
+
+
+def test_pass_fraction_plot_fits_long_condition_names(tmp_path):
+    # verification labels as condition names: every y tick label lies inside the figure
+    from damper.output.figures import DPI
+    from damper.output.robustness_out import _draw_pass
+
+    case = _twinjet(UNCERTAIN)
+    study, gains, _ = schedule_study_case(case, design_schedule(case), 4)
+    r = robustness(study, gains, uncertainty_spec(study), refine=False)
+    fig = _draw_pass(study, r)
+    fig.set_dpi(DPI)
+    renderer = fig.canvas.get_renderer()
+    ax = fig.axes[0]
+    assert min(t.get_window_extent(renderer).x0 for t in ax.get_yticklabels()) >= 0.0

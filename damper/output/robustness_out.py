@@ -574,6 +574,7 @@ def _draw_pass(case, result):
                     linewidth=1.2, label=label)
     ax.set_yticks(y)
     ax.set_yticklabels([f"{c.name}{'' if c.nominal_met else ' (nominal fails)'}" for c in conds])
+    _fit_left_labels(fig, ax)
     lows = [c.lower_all for c in conds]
     if "damping_ratio" in names:
         lows += [c.lower[names.index("damping_ratio")] for c in conds]
@@ -589,6 +590,17 @@ def _draw_pass(case, result):
     ax.legend(loc="upper center", bbox_to_anchor=(0.4, -0.62 / (height - 1.45)), ncol=2, fontsize=7.5)
     _footer(fig, case, result)
     return fig
+
+
+def _fit_left_labels(fig, ax, plot_width_in=4.62):
+    """Widen the figure so the y tick labels (condition names) fit left of the axes."""
+    renderer = fig.canvas.get_renderer()
+    widest = max((t.get_window_extent(renderer).width for t in ax.get_yticklabels()), default=0.0) / fig.dpi
+    left_in = max(0.27 * 6.8, widest + 0.2)  # inches: labels, tick marks and a little room
+    width = max(6.8, left_in + plot_width_in + 0.34)
+    fig.set_size_inches(width, fig.get_figheight())
+    pos = ax.get_position()
+    ax.set_position([left_in / width, pos.y0, plot_width_in / width, pos.height])
 
 
 def robustness_plot_jobs(case, result, out_dir) -> list:
