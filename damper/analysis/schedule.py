@@ -111,6 +111,8 @@ class PointSet:
     labels : tuple of str
     kind : ndarray of str
         ``design``, ``breakpoint``, ``between``, ``corner``, ``grid`` or ``condition``.
+    mass, pitch_inertia : ndarray
+        kg, kg m^2 (a configuration's, or interpolated between two conditions).
     """
 
     derivatives: Derivatives
@@ -120,6 +122,8 @@ class PointSet:
     configuration: np.ndarray
     labels: tuple
     kind: np.ndarray
+    mass: np.ndarray
+    pitch_inertia: np.ndarray
 
 
 @dataclass(frozen=True)
@@ -318,7 +322,9 @@ def _pointset_from_env(case, env, aero, altitude, airspeed, kind, variables):
     d = env_mod.derivatives_at(case, env, aero, pts)
     values = np.stack([env_mod.variable_value(v, pts.altitude, pts.airspeed) for v in variables])
     kinds = np.tile(np.asarray(kind), len(env.configurations))
-    return PointSet(d, values, pts.altitude, pts.airspeed, pts.configuration, pts.labels, kinds)
+    mass = np.array([c.mass for c in env.configurations])[pts.configuration]
+    inertia = np.array([c.pitch_inertia for c in env.configurations])[pts.configuration]
+    return PointSet(d, values, pts.altitude, pts.airspeed, pts.configuration, pts.labels, kinds, mass, inertia)
 
 
 def _concat(sets):
@@ -335,6 +341,8 @@ def _concat(sets):
         np.concatenate([s.configuration for s in sets]),
         tuple(x for s in sets for x in s.labels),
         np.concatenate([s.kind for s in sets]),
+        np.concatenate([s.mass for s in sets]),
+        np.concatenate([s.pitch_inertia for s in sets]),
     )
 
 
@@ -580,7 +588,8 @@ def _refine(bps, ver, variables, max_bp):
     for k in range(2):
         sub = Verification(
             PointSet(ver.points.derivatives, ver.points.values[k : k + 1], ver.points.altitude, ver.points.airspeed,
-                     ver.points.configuration, ver.points.labels, ver.points.kind),
+                     ver.points.configuration, ver.points.labels, ver.points.kind, ver.points.mass,
+                     ver.points.pitch_inertia),
             ver.gains, ver.passed, ver.worst_slack, ver.binding, ver.damping_ratio, ver.smallest_margin_db, ver.criteria_names,
         )
         nb = _refine_1d(bps[k], sub, max_bp)
@@ -630,7 +639,10 @@ def _conditions_points(case, var):
     spd = np.array([c.airspeed for c in conds])
     confs = sorted({c.configuration or "all" for c in conds})
     conf_idx = np.array([confs.index(c.configuration or "all") for c in conds])
-    base = PointSet(d, x[None, :], alt, spd, conf_idx, tuple(c.name for c in conds), np.full(len(conds), "condition"))
+    mass = np.array([c.mass for c in conds])
+    inertia = np.array([c.pitch_inertia for c in conds])
+    base = PointSet(d, x[None, :], alt, spd, conf_idx, tuple(c.name for c in conds), np.full(len(conds), "condition"),
+                    mass, inertia)
     sets = [base]
     fields = list(Derivatives.__dataclass_fields__)
     for ci, cname in enumerate(confs):
@@ -645,7 +657,8 @@ def _conditions_points(case, var):
             xs = x[a] + t * (x[b] - x[a])
             labels = tuple(f"{conds[a].name}~{conds[b].name} {int(tt * 100)}%" for tt in t)
             sets.append(PointSet(dd, xs[None, :], alt[a] + t * (alt[b] - alt[a]), spd[a] + t * (spd[b] - spd[a]),
-                                 np.full(3, ci), labels, np.full(3, "between")))
+                                 np.full(3, ci), labels, np.full(3, "between"), mass[a] + t * (mass[b] - mass[a]),
+                                 inertia[a] + t * (inertia[b] - inertia[a])))
     return _concat(sets), confs, base, x, conf_idx
 
 

@@ -29,13 +29,10 @@ class CheckedSchedule:
     Attributes
     ----------
     verification : damper.analysis.schedule.Verification
-    source : str
-        ``envelope`` or ``conditions``.
     configurations : tuple of str
     """
 
     verification: object
-    source: str
     configurations: tuple
 
 
@@ -78,33 +75,6 @@ def tightest_points(worst_slack, configuration, count, labels=None) -> np.ndarra
     return np.array((firsts + rest)[:count], dtype=int)
 
 
-def _masses(case, result, pts):
-    """Mass (kg) and pitch inertia (kg m^2) of each verification point."""
-    if result.source == "envelope":
-        from .envelope import envelope_from_case
-
-        env, _ = envelope_from_case(case)
-        mass = np.array([c.mass for c in env.configurations])[pts.configuration]
-        inertia = np.array([c.pitch_inertia for c in env.configurations])[pts.configuration]
-        return mass, inertia
-    # conditions schedule: a point lies on (or between) conditions of its configuration;
-    # their masses are interpolated like the derivatives (exact at the conditions)
-    by_name = {c.name: c for c in case.conditions}
-    pairs = {f"{a.name}~{b.name}": (a, b) for a in case.conditions for b in case.conditions if a is not b}
-    mass, inertia = [], []
-    for label in pts.labels:
-        if label in by_name:
-            mass.append(by_name[label].mass)
-            inertia.append(by_name[label].pitch_inertia)
-            continue
-        head, _, pct = label.rpartition(" ")  # "<a>~<b> <t>%" (see schedule._conditions_schedule)
-        a, b = pairs[head]
-        t = float(pct.rstrip("%")) / 100.0
-        mass.append(a.mass + t * (b.mass - a.mass))
-        inertia.append(a.pitch_inertia + t * (b.pitch_inertia - a.pitch_inertia))
-    return np.array(mass, dtype=float), np.array(inertia, dtype=float)
-
-
 def schedule_study_case(case, result, count):
     """The case restricted to the schedule's `count` tightest verification points, and their gains.
 
@@ -112,7 +82,7 @@ def schedule_study_case(case, result, count):
     ----------
     case : damper.case.model.Case
     result : damper.analysis.schedule.ScheduleResult or CheckedSchedule
-        Its ``verification``, ``source`` and ``configurations`` are used.
+        Its ``verification`` and ``configurations`` are used.
     count : int
         Points to study.
 
@@ -131,7 +101,6 @@ def schedule_study_case(case, result, count):
     pts = ver.points
     idx = tightest_points(ver.worst_slack, pts.configuration, count, pts.labels)
     air = standard_atmosphere(pts.altitude[idx])
-    mass, inertia = _masses(case, result, pts)
     fields = Derivatives.__dataclass_fields__
     names = tuple(result.configurations)
     conditions = []
@@ -151,8 +120,8 @@ def schedule_study_case(case, result, count):
             speed_of_sound=a_sound,
             mach=v / a_sound,
             dynamic_pressure=0.5 * rho * v * v,
-            mass=float(mass[i]),
-            pitch_inertia=float(inertia[i]),
+            mass=float(pts.mass[i]),
+            pitch_inertia=float(pts.pitch_inertia[i]),
             derivatives=d,
             source="schedule verification point",
             note=f"{pts.kind[i]} point of the schedule verification",

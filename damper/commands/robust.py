@@ -127,8 +127,8 @@ def run(args, argv) -> int:
         from ..analysis.schedule_points import CheckedSchedule, schedule_study_case, study_description
 
         sched = _read_schedule(args.schedule)
-        pts, kind, confs = verification_points(case, sched)
-        checked = CheckedSchedule(verify(case, sched, pts), kind, confs)
+        pts, _, confs = verification_points(case, sched)
+        checked = CheckedSchedule(verify(case, sched, pts), confs)
         case, gains, _ = schedule_study_case(case, checked, spec.schedule_points)
         source = f"the schedule {args.schedule} at its {len(gains)} tightest verification points"
         where = study_description(len(gains), args.schedule)
