@@ -558,9 +558,9 @@ LOOP = Section(
 
 ANALYSIS = Section(
     {
-        "frequency_low": Quantity(("frequency",), "Lowest frequency of the margin search, rad/s.", default=1e-3, **_POS),
-        "frequency_high": Quantity(("frequency",), "Highest frequency of the margin search, rad/s.", default=1e3, **_POS),
-        "points_per_decade": Integer("Margin-search grid density.", default=100, low=20, high=2000),
+        "frequency_low": Quantity(("frequency",), "Lowest frequency of the phase-crossing search, rad/s (gain crossings are exact at every frequency).", default=1e-3, **_POS),
+        "frequency_high": Quantity(("frequency",), "Highest frequency of the phase-crossing search, rad/s.", default=1e3, **_POS),
+        "points_per_decade": Integer("Density of the coarse grid under the points placed from the loop's own poles and zeros.", default=5, low=1, high=2000),
     },
     "Numerical settings.",
     default={},

@@ -1,30 +1,35 @@
 """Stability margins with the loop broken at the actuator input (batched, exact delays).
 
-Definitions (docs/theory.md has the full text):
+Definitions (docs/theory.md, section 5, has the full text and the argument):
 
 * gain crossing: ``|L(jw)| = 1``; its phase margin ``PM = wrap(arg L + 180 deg)``
-  in [-180, 180) deg. "The" phase margin is the one of smallest magnitude
-  (with a washout there are often two gain crossings; at the low one the
-  phase leads and its margin is large).
+  in [-180, 180) deg. "The" phase margin is the one of smallest magnitude.
 * phase crossing: ``arg L = -180 deg (mod 360)``, including ``w = 0`` when
-  ``L(0) < 0``; its gain margin ``GM = -20 log10 |L|`` dB. Positive values
-  (``|L| < 1``) say how much the gain may rise; negative values (``|L| > 1``)
-  how much it may fall. ``gain_margin_db`` is the smallest positive one,
-  ``gain_margin_low_db`` the negative one closest to zero.
+  ``L(0) < 0``; its gain margin ``GM = -20 log10 |L|`` dB. ``gain_margin_db`` is the
+  smallest positive one, ``gain_margin_low_db`` the negative one closest to zero.
 * delay margin: ``min over gain crossings of (PM mod 360 deg) / w_c``.
 * symmetric disk margin (Seiler, Packard and Gahinet, IEEE CSM 2020):
   ``alpha = 2 / max_w |S - T|`` with ``S = 1/(1+L)``, ``T = L/(1+L)``.
 
-A missing crossing gives NaN (``null`` in JSON: no such crossing, the margin
-is unbounded in that direction). For a closed loop that is already unstable
-the delay and disk margins are 0; crossing values are still reported.
+How they are found (no dense grid):
 
-Crossings are found on a log grid (default 1e-3..1e3 rad/s, 100 points per
-decade), then refined in log-frequency (Illinois regula falsi, all brackets of
-the batch at once). Local peaks of ``|L|`` or of the phase that come within
-1 dB / 5 deg of a crossing without reaching it on the grid are refined by a
-golden-section search, so a grid cannot step over a crossing where the curve
-just touches it.
+* gain crossings are the positive real roots ``x = w^2`` of the crossing polynomial
+  ``k^2 |N(jw)|^2 - |D(jw)|^2`` (the delay is all-pass), found by stacked companion-matrix
+  eigenvalues; every root near the positive real axis is tested by the exact
+  ``ln |L|`` at it and between it and its neighbours, and each sign change is polished by
+  regula falsi on the exact loop; a root where ``|L|`` touches 1 without crossing counts once;
+* phase crossings are searched between ``analysis.frequency_low`` and ``frequency_high`` on
+  intervals whose rational phase moves by at most 10 deg (:mod:`damper.measures.freqset`);
+  with the delay's exact ``-w T`` each level ``-180 deg (mod 360)`` can only be met in a
+  window of each interval, whose ends are evaluated exactly; a sign change is polished by
+  regula falsi, and where the bound says the phase could reach the level and come back
+  between the ends, a golden-section search looks for the touch;
+* the disk-margin peak is bracketed by branch and bound: each interval's largest possible
+  ``|S - T|`` follows from the bounds on ``|L|`` and ``arg L``; intervals that could still
+  beat the best value found are split until none can by more than :data:`DISK_RTOL`.
+
+A missing crossing gives NaN (``null`` in JSON). For a closed loop that is already unstable
+the delay and disk margins are 0; crossing values are still reported.
 """
 
 from __future__ import annotations
@@ -33,16 +38,29 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..model.batch import flatten, take
-from ..model.loop import loop_response_at_zero, loop_response_function, loop_response_rational
+from ..model.rational import FactoredLoop, at_zero, crossing_polynomial, evaluate, factored_loop
+from .freqset import W_ZERO, Intervals, bounded_intervals, concat, intervals_between, split
+from .refine import golden_max, illinois
 
-DEFAULT_GRID = np.logspace(-3.0, 3.0, 601)  # rad/s
-TOUCH_DB = 1.0
-TOUCH_TURNS = 5.0 / 360.0
-_ROOT_STEPS = 14
-_ROOT_FTOL = 1e-12  # |f| (dB or turns) at which a crossing is final (a few 1e-14 decades in w)
-_GOLDEN = 16
+DEFAULT_GRID = np.logspace(-3.0, 3.0, 61)  # rad/s: the coarse part (10 points per decade)
+#: Relative bound to which branch and bound certifies the disk-margin peak (a golden-section
+#: search about the best sample then finds the peak itself).
+DISK_RTOL = 2e-2
+#: Golden-section steps about the best sample (the bracket shrinks to 5e-7 of a grid cell).
+PEAK_STEPS = 30
+DISK_PASSES = 40
+#: ``|ln |L||`` below which a root of the crossing polynomial where ``|L|`` touches 1 counts.
+TOUCH_NEPERS = 1e-9
+#: Relative width below which an interval is not split further.
+MIN_WIDTH = 1e-10
+#: Levels of -180 deg (mod 360) searched per interval at most.
+MAX_LEVELS = 10_000
+#: Splitting passes of a window whose ends lie on one side of a level (touch search).
+TOUCH_PASSES = 30
+#: Roots within this angle of the positive real axis (in x = w^2) are tested.
+ROOT_ANGLE = np.pi / 4
 _CHUNK = 1024
+_DB = 20.0 / np.log(10.0)
 
 
 @dataclass(frozen=True)
@@ -93,126 +111,335 @@ class Margins:
     gain_margins_db: np.ndarray
 
 
-def _unwrap_turns(angle):
-    """Continuous phase in turns along the last axis (angles in rad, steps below half a turn)."""
-    t = angle / (2.0 * np.pi)
-    step = np.diff(t, axis=-1)
-    step -= np.round(step)
-    out = np.empty_like(t)
-    out[..., 0] = t[..., 0]
-    np.cumsum(step, axis=-1, out=out[..., 1:])
-    out[..., 1:] += t[..., :1]
+@dataclass(frozen=True)
+class Crossings:
+    """Crossings of a flat batch: one entry per crossing (``row`` is the loop)."""
+
+    row: np.ndarray
+    w: np.ndarray
+    value: np.ndarray  # phase margin (deg) or gain margin (dB)
+
+
+# ----------------------------------------------------------------------------------
+# exact values at points
+# ----------------------------------------------------------------------------------
+
+
+def _logmag_phase(fl: FactoredLoop, rows, w):
+    """Exact ``ln|L|`` and ``arg L`` (rad, continuous, delay included) at one ``w`` per entry."""
+    return _at(fl.take(rows), w)
+
+
+def _at(sub: FactoredLoop, w):
+    """Exact ``ln|L|`` and ``arg L`` of each loop of ``sub`` at its own ``w`` (shape (M,))."""
+    logmag, phase = evaluate(sub, np.asarray(w, dtype=float)[:, None])
+    return logmag[:, 0], phase[:, 0]
+
+
+def _dedupe(row, w, *values, rtol=1e-9):
+    """Sort crossings by loop and frequency and drop repeats (same loop, |dw| <= rtol w)."""
+    order = np.lexsort((w, row))
+    row, w = row[order], w[order]
+    values = [v[order] for v in values]
+    rep = np.zeros(row.size, bool)
+    rep[1:] = (row[1:] == row[:-1]) & (np.abs(w[1:] - w[:-1]) <= rtol * np.abs(w[1:]))
+    keep = ~rep
+    return (row[keep], w[keep], *(v[keep] for v in values))
+
+
+# ----------------------------------------------------------------------------------
+# gain crossings: roots of the crossing polynomial, tested and polished on the exact loop
+# ----------------------------------------------------------------------------------
+
+
+def _polynomial_roots(poly):
+    """Roots of each row's polynomial (lowest power first), padded with NaN: (M, d)."""
+    m, size = poly.shape
+    nonzero = poly != 0
+    degree = np.where(nonzero.any(1), size - 1 - np.argmax(nonzero[:, ::-1], 1), 0)
+    out = np.full((m, max(size - 1, 1)), np.nan + 0j)
+    for d in np.unique(degree):
+        if d < 1:
+            continue
+        r = np.nonzero(degree == d)[0]
+        monic = poly[r, :d] / poly[r, d : d + 1]
+        comp = np.zeros((r.size, d, d))
+        comp[:, 0, :] = -monic[:, ::-1]
+        if d > 1:
+            comp[:, np.arange(1, d), np.arange(d - 1)] = 1.0
+        out[r, :d] = np.linalg.eigvals(comp)
     return out
 
 
-def _delay_time(loop, n):
-    delay = loop.hardware.delay
-    if delay is None:
-        return np.zeros(n)
-    return np.broadcast_to(np.asarray(delay.time, dtype=float), (n,))
+def gain_crossings(fl: FactoredLoop) -> Crossings:
+    """Every gain crossing (``|L| = 1``) of every loop, exactly, with its phase margin (deg)."""
+    roots = _polynomial_roots(crossing_polynomial(fl))
+    near = (roots.real > 0) & (np.abs(roots.imag) <= np.tan(ROOT_ANGLE) * roots.real)
+    cand = np.sort(np.where(near, np.sqrt(np.abs(roots.real)), np.nan), 1)  # rad/s, NaN last
+    n, d = cand.shape
+    nxt = np.concatenate([cand[:, 1:], np.full((n, 1), np.nan)], 1)
+    mids = np.where(np.isnan(nxt), 4.0 * cand, np.sqrt(cand * nxt))
+    test = np.empty((n, 2 * d + 1))
+    test[:, 0] = 0.25 * cand[:, 0]
+    test[:, 1::2] = cand
+    test[:, 2::2] = mids
+    valid = np.isfinite(test)
+    r_all = np.broadcast_to(np.arange(n)[:, None], test.shape)
+    f = np.full(test.shape, np.nan)
+    f[valid] = _logmag_phase(fl, r_all[valid], test[valid])[0]
+    pos = f >= 0
+    change = valid[:, :-1] & valid[:, 1:] & (pos[:, :-1] != pos[:, 1:])
+    rr, jj = np.nonzero(change)
+    lo, hi = np.log(test[rr, jj]), np.log(test[rr, jj + 1])
+
+    def fn(x, act):
+        return _logmag_phase(fl, rr[act], np.exp(x))[0]
+
+    x = illinois(fn, lo, hi, f[rr, jj], f[rr, jj + 1]) if rr.size else lo
+    # touches: a candidate where |L| reaches 1 without changing side
+    tr, tj = np.nonzero(valid & (np.abs(f) <= TOUCH_NEPERS))
+    row = np.concatenate([rr, tr])
+    w = np.concatenate([np.exp(x), test[tr, tj]])
+    _, phase = _logmag_phase(fl, row, w)
+    pm = np.rad2deg(np.mod(phase + 2.0 * np.pi, 2.0 * np.pi) - np.pi)
+    row, w, pm = _dedupe(row, w, pm)
+    return Crossings(row, w, pm)
 
 
-def _bisect(fn, lo, hi, f_lo):
-    """Vectorised root refinement of ``fn`` on brackets [lo, hi] (log10 w) with a sign change.
+# ----------------------------------------------------------------------------------
+# phase crossings: level windows on bounded intervals
+# ----------------------------------------------------------------------------------
 
-    The Illinois variant of regula falsi (superlinear, keeps the bracket), falling back to
-    bisection where the secant step is not usable; ``_ROOT_STEPS`` steps take a bracket of
-    a grid cell well below 1e-10 in log10 w for the smooth curves met here.  A bracket stops
-    once its better end is within ``_ROOT_FTOL`` of zero (usually after 5-7 steps); the loop
-    ends when every bracket has stopped.
+
+def _level_windows(fl: FactoredLoop, iv: Intervals):
+    """Every (interval, level) pair where ``arg L`` could meet ``-180 deg + 360 n``.
+
+    On an interval the rational phase lies in ``[th_lo, th_hi]`` and the delay adds
+    ``-w T``, so the level ``l`` can only be met where ``w T`` lies in
+    ``[th_lo - l, th_hi - l]``: that window is returned (rad/s) with the level (rad) and
+    the interval's wiggle (how far the phase can move against its direction, rad).
     """
-    f_hi = fn(hi)
-    a, b, fa, fb = lo.copy(), hi.copy(), f_lo.copy(), f_hi
-    side = np.zeros(a.shape, int)
-    done = np.minimum(np.abs(fa), np.abs(fb)) <= _ROOT_FTOL
-    for _ in range(_ROOT_STEPS):
-        if done.all():
+    t = fl.delay[iv.row]
+    n_lo = np.ceil((iv.th_lo - iv.wb * t + np.pi) / (2.0 * np.pi))
+    n_hi = np.floor((iv.th_hi - iv.wa * t + np.pi) / (2.0 * np.pi))
+    count = np.where(np.isfinite(n_hi - n_lo), np.clip(n_hi - n_lo + 1, 0, MAX_LEVELS), 0).astype(int)
+    k = np.repeat(np.arange(count.size), count)
+    first = np.concatenate([[0], np.cumsum(count)[:-1]])
+    level = 2.0 * np.pi * (n_lo[k] + (np.arange(k.size) - first[k])) - np.pi
+    tk = t[k]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lo = np.where(tk > 0, np.maximum(iv.wa[k], (iv.th_lo[k] - level) / tk), iv.wa[k])
+        hi = np.where(tk > 0, np.minimum(iv.wb[k], (iv.th_hi[k] - level) / tk), iv.wb[k])
+    ok = lo <= hi
+    return iv.row[k][ok], lo[ok], hi[ok], level[ok], iv.wiggle(fl)[k][ok]
+
+
+def _as_intervals(fl, row, lo, hi):
+    """Intervals ``[lo, hi]`` with their own bounds (factor values at both ends)."""
+    return intervals_between(fl, row, np.stack([lo, hi]), np.ones((1, row.size), bool))
+
+
+def _window_brackets(fl, row, lo, hi, level):
+    """Brackets of every crossing of ``level`` by ``arg L`` inside the windows ``[lo, hi]``.
+
+    Each window gets its own bounds from its factors' values at its ends. A window whose
+    ends straddle the level is a bracket. A window whose ends lie on one side is dropped
+    when its bounds show the level out of reach (the phase would have to move against its
+    direction by more than the window's wiggle), and split in two otherwise, for at most
+    :data:`TOUCH_PASSES` passes; what is left after that (a tangency) is decided by a
+    golden-section search for the point nearest the level.
+    """
+    parts = ([], [], [], [])
+    tangent = []  # (intervals, levels) left for the golden-section search
+    iv = _as_intervals(fl, row, lo, hi)
+    lev = level
+    for n_pass in range(TOUCH_PASSES + 1):
+        s_lo, s_hi = iv.pa - lev, iv.pb - lev
+        straddle = (s_lo >= 0) != (s_hi >= 0)
+        for acc, new in zip(parts, (iv.row, iv.wa, iv.wb, lev)):
+            acc.append(new[straddle])
+        reach = ~straddle & (np.minimum(np.abs(s_lo), np.abs(s_hi)) <= iv.wiggle(fl))
+        go = reach & (iv.wb > iv.wa * (1.0 + MIN_WIDTH)) & (n_pass < TOUCH_PASSES)
+        tangent.append((iv.select(reach & ~go), lev[reach & ~go]))
+        if not np.any(go):
             break
-        with np.errstate(invalid="ignore", divide="ignore"):
-            x = (a * fb - b * fa) / (fb - fa)
-        bad = ~np.isfinite(x) | (x <= np.minimum(a, b)) | (x >= np.maximum(a, b))
-        x = np.where(bad, 0.5 * (a + b), x)
-        fx = fn(x)
-        left = (np.sign(fx) == np.sign(fa)) & ~done  # root between x and b
-        right = ~left & ~done
-        a_new = np.where(left, x, a)
-        fa_new = np.where(left, fx, fa)
-        b_new = np.where(right, x, b)
-        fb_new = np.where(right, fx, fb)
-        # Illinois: halve the stale end's value when the same end is kept twice
-        fb_new = np.where(left & (side == 1), 0.5 * fb_new, fb_new)
-        fa_new = np.where(right & (side == -1), 0.5 * fa_new, fa_new)
-        side = np.where(left, 1, np.where(right, -1, side))
-        a, b, fa, fb = a_new, b_new, fa_new, fb_new
-        # a bracket whose better end is within _ROOT_FTOL of zero is final (per bracket,
-        # so a bracket's answer never depends on the others of the batch)
-        done = done | (np.minimum(np.abs(fa), np.abs(fb)) <= _ROOT_FTOL)
-    return np.where(np.abs(fa) < np.abs(fb), a, b)
+        iv, lev = split(fl, iv.select(go), np.full(int(go.sum()), 2)), np.repeat(lev[go], 2)
+    iv = concat([t[0] for t in tangent])
+    lev = np.concatenate([t[1] for t in tangent])
+    toward = np.where(iv.pa - lev >= 0, -1.0, 1.0)
+    sub = fl.take(iv.row)
+
+    def closeness(x):
+        return toward * (_at(sub, np.exp(x))[1] - lev)
+
+    x_star, f_star = golden_max(closeness, np.log(iv.wa), np.log(iv.wb))
+    hit = f_star >= 0
+    w_star = np.exp(x_star[hit])
+    for acc, new in zip(parts, (iv.row[hit], iv.wa[hit], w_star, lev[hit])):
+        acc.append(new)
+    for acc, new in zip(parts, (iv.row[hit], w_star, iv.wb[hit], lev[hit])):
+        acc.append(new)
+    return tuple(np.concatenate(a) for a in parts)
 
 
-def _golden_max(fn, lo, hi):
-    """Vectorised golden-section search for the maximum of ``fn`` on [lo, hi]."""
-    r = (np.sqrt(5.0) - 1.0) / 2.0
-    a, b = lo.copy(), hi.copy()
-    c = b - r * (b - a)
-    d = a + r * (b - a)
-    fc, fd = fn(c), fn(d)
-    for _ in range(_GOLDEN):
-        keep_left = fc > fd
-        b = np.where(keep_left, d, b)
-        a = np.where(keep_left, a, c)
-        new_c = b - r * (b - a)
-        new_d = a + r * (b - a)
-        c_next = np.where(keep_left, new_c, d)
-        d_next = np.where(keep_left, c, new_d)
-        f_c_next = np.where(keep_left, fn(new_c), fd)
-        f_d_next = np.where(keep_left, fc, fn(new_d))
-        c, d, fc, fd = c_next, d_next, f_c_next, f_d_next
-    x = 0.5 * (a + b)
-    return x, fn(x)
+def phase_crossings(fl: FactoredLoop, iv: Intervals, w_low, w_high) -> Crossings:
+    """Every phase crossing in ``[w_low, w_high]`` (and at ``w = 0``), with its gain margin (dB).
 
-
-def _touch_brackets(f, lw, rows_ok, tol, fn_builder):
-    """Brackets for curves that come within `tol` of zero between grid points without crossing.
-
-    Returns (rows, lo, hi, f_lo, peak_index) of the extra brackets: for each
-    refined peak that crosses zero, two brackets (left side, right side).
+    Within a window the phase moves one way except for a wiggle bounded by the factors'
+    values at the window's ends: ends on both sides of the level bracket a crossing; ends
+    on one side within the wiggle of the level may hide two (:func:`_window_brackets`).
     """
-    # screen the grid for points within `tol` of zero (few), then test those for a peak
-    # below zero or a trough above it
-    r, i = np.nonzero(np.abs(f[:, 1:-1]) < tol)
-    fm, f0, fp = f[r, i], f[r, i + 1], f[r, i + 2]
-    peak = (f0 > fm) & (f0 > fp) & (f0 < 0)
-    trough = (f0 < fm) & (f0 < fp) & (f0 > 0)
-    cand = (peak | trough) & rows_ok[r]
-    r, i, peak = r[cand], i[cand], peak[cand]
-    if r.size == 0:
-        empty = np.zeros(0)
-        return np.zeros(0, int), empty, empty, empty, np.zeros(0, int)
-    sign = np.where(peak, 1.0, -1.0)
-    fn = fn_builder(r, i + 1)
-    x, fx = _golden_max(lambda z: sign * fn(z), lw[i], lw[i + 2])
-    crossed = fx >= 0.0
-    r, i, x, sign, fx = r[crossed], i[crossed], x[crossed], sign[crossed], fx[crossed]
-    lo = np.concatenate([lw[i], x])
-    hi = np.concatenate([x, lw[i + 2]])
-    rows = np.concatenate([r, r])
-    ii = np.concatenate([i, i])
-    f_lo = np.concatenate([f[r, i], sign * fx])  # value at each bracket's left end
-    return rows, lo, hi, f_lo, ii + 1
+    inside = (iv.wb > w_low) & (iv.wa < w_high)
+    row, lo, hi, level, _ = _level_windows(fl, iv.select(inside))
+    lo, hi = np.maximum(lo, w_low), np.minimum(hi, w_high)
+    ok = lo < hi
+    row, lo, hi, level = _window_brackets(fl, row[ok], lo[ok], hi[ok], level[ok])
+
+    def fn(x, act):
+        return _logmag_phase(fl, row[act], np.exp(x))[1] - level[act]
+
+    f_lo = _logmag_phase(fl, row, lo)[1] - level
+    f_hi = _logmag_phase(fl, row, hi)[1] - level
+    x = illinois(fn, np.log(lo), np.log(hi), f_lo, f_hi) if row.size else np.log(lo)
+    w = np.exp(x)
+    gm = -_DB * _logmag_phase(fl, row, w)[0]
+    real = np.isfinite(gm)  # a phase jump through a zero or pole on the axis is no crossing
+    row, w, gm = row[real], w[real], gm[real]
+    # zero frequency: L(0) real and negative
+    l0 = at_zero(fl)
+    dc = np.nonzero(np.isfinite(l0) & (l0 < 0))[0]
+    row = np.concatenate([row, dc])
+    w = np.concatenate([w, np.zeros(dc.size)])
+    with np.errstate(divide="ignore"):
+        gm = np.concatenate([gm, -_DB * np.log(-l0[dc])])
+    row, w, gm = _dedupe(row, w, gm)
+    return Crossings(row, w, gm)
+
+
+# ----------------------------------------------------------------------------------
+# disk margin: branch and bound on |S - T|
+# ----------------------------------------------------------------------------------
+
+
+def disk_ratio(logmag, phase):
+    """``|S - T| = |1 - L| / |1 + L|`` from ``ln|L|`` and ``arg L`` (real arithmetic).
+
+    ``|1 -+ L|^2 = 1 -+ 2 |L| cos(arg L) + |L|^2``; for ``|L| > 1`` both are divided by
+    ``|L|^2`` so that no square overflows. ``L = -1`` gives inf.
+    """
+    big = logmag > 0
+    inv = np.exp(-np.abs(np.clip(logmag, -700.0, 700.0)))  # |L| or 1/|L|, both <= 1
+    two_c = 2.0 * np.cos(phase) * inv
+    sq = inv * inv
+    with np.errstate(divide="ignore", invalid="ignore"):
+        num = np.where(big, sq - two_c + 1.0, 1.0 - two_c + sq)
+        den = np.where(big, sq + two_c + 1.0, 1.0 + two_c + sq)
+        ratio = np.sqrt(np.maximum(num, 0.0) / den)
+    return np.where(np.isfinite(ratio), ratio, np.inf)
+
+
+def _disk_bound(fl: FactoredLoop, iv: Intervals):
+    """Largest ``|S - T|`` each interval could hold, from its bounds on ``|L|`` and ``arg L``.
+
+    On an interval ``|L|`` lies in ``[rho_lo, rho_hi]`` and ``arg L`` in ``[p_lo, p_hi]``;
+    ``|1 + L|^2 = rho^2 + 2 rho cos(arg L) + 1`` is least where the cosine is least (at -1
+    when the range holds an odd multiple of pi) and ``rho`` nearest ``-cos``;
+    ``|1 - L|^2 = rho^2 - 2 rho cos(arg L) + 1`` is largest where the cosine is least too,
+    at one end of the ``rho`` range.
+    """
+    m_lo, m_hi = iv.m_lo, iv.m_hi
+    p_lo, p_hi = iv.phase_range(fl)
+
+    def holds(angle):  # the phase range holds angle + 2 pi n
+        return np.floor((p_hi - angle) / (2.0 * np.pi)) >= np.ceil((p_lo - angle) / (2.0 * np.pi))
+
+    c_lo, c_hi = np.cos(p_lo), np.cos(p_hi)
+    c_min = np.where(holds(np.pi), -1.0, np.minimum(c_lo, c_hi))
+    rho_lo = np.exp(np.clip(m_lo, -300.0, 300.0))
+    rho_hi = np.exp(np.clip(m_hi, -300.0, 300.0))
+    rho = np.where(c_min < 0, np.clip(-c_min, rho_lo, rho_hi), rho_lo)
+    den = np.maximum(rho * rho + 2.0 * rho * c_min + 1.0, 0.0)
+    num = np.maximum(rho_lo * rho_lo - 2.0 * rho_lo * c_min, rho_hi * rho_hi - 2.0 * rho_hi * c_min) + 1.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.sqrt(np.maximum(num, 0.0) / den)
+
+
+def _keep_best(best, best_w, best_h, row, ratio, w, h):
+    """Raise each loop's best |S - T| with samples ``(row, ratio)`` at ``w`` (resolution ``h``).
+
+    ``row`` is sorted (intervals are kept in loop order).
+    """
+    if row.size == 0:
+        return
+    starts = np.concatenate([[0], np.flatnonzero(row[1:] != row[:-1]) + 1])
+    seg_max = np.fmax.reduceat(ratio, starts)
+    r = row[starts]
+    better = seg_max > best[r]
+    if not np.any(better):
+        return
+    seg = np.repeat(np.arange(starts.size), np.diff(np.append(starts, row.size)))
+    at_max = np.nonzero((ratio == seg_max[seg]) & better[seg])[0]
+    first = at_max[np.concatenate([[True], seg[at_max[1:]] != seg[at_max[:-1]]])]
+    rr = row[first]
+    best[rr], best_w[rr], best_h[rr] = ratio[first], w[first], h[first]
+
+
+def disk_peak(fl: FactoredLoop, iv: Intervals) -> np.ndarray:
+    """``max_w |S - T|`` of every loop (shape (N,)).
+
+    Branch and bound certifies the peak to :data:`DISK_RTOL` (no interval can hold a value
+    above the best sample by more than that); a golden-section search about the best
+    sample then finds the peak itself.
+    """
+    n = fl.size
+    l0 = at_zero(fl)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r0 = np.abs(1.0 - l0) / np.abs(1.0 + l0)
+    # w -> infinity: L -> 0 (the loop is strictly proper); w = 0 exactly (|L| infinite: 1)
+    best = np.fmax(np.ones(n), np.where(np.isfinite(l0), r0, 1.0))
+    best_w, best_h = np.zeros(n), np.ones(n)
+    h = iv.wb / iv.wa
+    _keep_best(best, best_w, best_h, iv.row, disk_ratio(iv.la, iv.pa), iv.wa, h)
+    _keep_best(best, best_w, best_h, iv.row, disk_ratio(iv.lb, iv.pb), iv.wb, h)
+    for _ in range(DISK_PASSES):
+        bound = _disk_bound(fl, iv)
+        open_ = bound > best[iv.row] * (1.0 + DISK_RTOL)
+        # an interval this narrow that can still hold more holds a pole of S on the axis
+        # (L = -1, or |L| infinite): its bound is the answer
+        tiny = open_ & (iv.wb <= iv.wa * (1.0 + MIN_WIDTH))
+        np.maximum.at(best, iv.row[tiny], bound[tiny])
+        open_ &= ~tiny
+        if not np.any(open_):
+            break
+        iv = split(fl, iv.select(open_), np.full(int(open_.sum()), 4))
+        _keep_best(best, best_w, best_h, iv.row, disk_ratio(iv.lb, iv.pb), iv.wb, iv.wb / iv.wa)
+    rows = np.nonzero((best_w > 0) & np.isfinite(best))[0]
+    if rows.size:
+        step = np.log(np.minimum(best_h[rows], 1e6))
+        sub = fl.take(rows)
+
+        def ratio(x):
+            return disk_ratio(*_at(sub, np.exp(x)))
+
+        x0 = np.log(best_w[rows])
+        _, peak = golden_max(ratio, x0 - step, x0 + step, steps=PEAK_STEPS)
+        best[rows] = np.fmax(best[rows], peak)
+    return best
+
+
+# ----------------------------------------------------------------------------------
+# reductions and the public entry point
+# ----------------------------------------------------------------------------------
 
 
 def _per_row_pad(rows, n, *values):
-    """Scatter per-crossing values into NaN-padded (n, m) arrays, ascending by the first value."""
-    order = np.lexsort((values[0], rows))
-    rows = rows[order]
-    vals = [v[order] for v in values]
+    """Scatter per-crossing values (sorted by row, then frequency) into NaN-padded (n, m) arrays."""
     counts = np.bincount(rows, minlength=n)
-    m = int(counts.max()) if counts.size and rows.size else 0
+    m = int(counts.max()) if rows.size else 0
     first = np.concatenate([[0], np.cumsum(counts)[:-1]])
     rank = np.arange(rows.size) - first[rows]
     out = []
-    for v in vals:
+    for v in values:
         a = np.full((n, max(m, 1)), np.nan)
         a[rows, rank] = v
         out.append(a)
@@ -235,169 +462,40 @@ def _select(rows, n, key, *values):
     return (out_key, *outs)
 
 
-def _disk_ratio(mag, cos_phase):
-    """``|S - T| = |(1 - L) / (1 + L)|`` from ``|L|`` and ``cos(arg L)`` (real arithmetic).
-
-    ``|1 -+ L|^2 = 1 -+ 2 |L| cos(arg L) + |L|^2``; for ``|L| > 1`` both are divided by
-    ``|L|^2`` so that no square overflows.  A zero denominator (``L = -1``) gives inf.
-    """
-    big = mag > 1.0
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        inv = np.where(big, 1.0 / mag, mag)  # |L| or 1/|L|, both <= 1
-        two_c = 2.0 * cos_phase * inv
-        sq = inv * inv
-        num = np.where(big, sq - two_c + 1.0, 1.0 - two_c + sq)
-        den = np.where(big, sq + two_c + 1.0, 1.0 + two_c + sq)
-        ratio = np.sqrt(np.maximum(num, 0.0) / den)
-    return np.where(np.isfinite(ratio), ratio, np.inf)
-
-
-def _disk_peak_index(mag, turns):
-    """Per row, the grid index where ``|S - T|`` is largest (last axis).
-
-    ``|S - T|^2 = (1 - 2u) / (1 + 2u)`` with ``u = |L| cos(arg L) / (1 + |L|^2)
-    = cos(arg L) / (|L| + 1/|L|)``, which falls as ``u`` rises: the peak is where ``u`` is
-    least, found with two passes over the grid instead of the ratio's ten.  ``turns`` is
-    ``arg L`` in turns; its cosine is taken in single precision (numpy's float64 cosine
-    is scalar code, about 25 times slower), which only chooses the grid point: two points
-    whose ratios differ by less than about 1e-6 relative may swap, and the caller refines
-    the peak around the chosen point in double precision.  NaN (a loop whose response is
-    not finite) is taken first, as the ratio's inf would be.
-    """
-    frac = turns - np.rint(turns)  # same cosine, argument within half a turn
-    frac *= 2.0 * np.pi
-    u = np.cos(frac.astype(np.float32)).astype(np.float64)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        den = 1.0 / mag
-        den += mag
-        u /= den
-    return np.argmin(u, axis=-1)
-
-
-def _margins_flat(loop, w, stable):
-    n = int(np.size(loop.gain))
-    lw = np.log10(w)
-    T = _delay_time(loop, n)
-    rational = loop_response_rational(loop, w[None, :])
-    wT = w[None, :] * T[:, None]
-    mag = np.abs(rational)  # |L| (the delay is all-pass)
-    mag_db = 20.0 * np.log10(np.maximum(mag, 1e-300))
-    turns = _unwrap_turns(np.angle(rational)) - wT / (2.0 * np.pi)
-    g = turns + 0.5  # integer values of g are phase crossings (-180 deg mod 360)
-    ok = np.all(np.isfinite(rational), -1) & (np.asarray(loop.gain) != 0)
-
-    cache = {}
-
-    def eval_L(rows, lwq):
-        key = id(rows)
-        hit = cache.get(key)
-        if hit is None or hit[0] is not rows:
-            hit = (rows, loop_response_function(take(loop, rows)))
-            cache[key] = hit
-        return hit[1]((10.0**lwq)[:, None])[:, 0]
-
-    # ---- gain crossings -------------------------------------------------
-    def gain_fn(rows, _i):
-        return lambda z: 20.0 * np.log10(np.maximum(np.abs(eval_L(rows, z)), 1e-300))
-
-    pos = mag_db >= 0.0
-    r, i = np.nonzero((pos[:, :-1] != pos[:, 1:]) & ok[:, None])
-    lo, hi, f_lo = lw[i], lw[i + 1], mag_db[r, i]
-    tr, tlo, thi, tf, tpk = _touch_brackets(mag_db, lw, ok, TOUCH_DB, gain_fn)
-    r_g = np.concatenate([r, tr])
-    lo_g = np.concatenate([lo, tlo])
-    hi_g = np.concatenate([hi, thi])
-    f_g = np.concatenate([f_lo, tf])
-    ig = np.concatenate([i, tpk - 1])
-    x_g = _bisect(gain_fn(r_g, None), lo_g, hi_g, f_g) if r_g.size else lo_g
-    wc = 10.0**x_g
-
-    # phase at the gain crossings, continued from the grid point left of it
-    def phase_turns(rows, i_left, lwq):
-        wq = 10.0**lwq
-        Lq = eval_L(rows, lwq) * np.exp(1j * wq * T[rows])
-        base = rational[rows, i_left]
-        step = np.angle(Lq / base) / (2.0 * np.pi)
-        return turns[rows, i_left] + step - (wq - w[i_left]) * T[rows] / (2.0 * np.pi)
-
-    if r_g.size:
-        phase_deg = 360.0 * phase_turns(r_g, ig, x_g)
-        pm = np.mod(phase_deg + 180.0 + 180.0, 360.0) - 180.0
-        dm = np.deg2rad(np.mod(pm, 360.0)) / wc
+def _margins_flat(fl: FactoredLoop, coarse, stable):
+    n = fl.size
+    live = (fl.gain != 0) & np.isfinite(fl.gain)
+    sub = np.nonzero(live)[0]
+    part = fl.take(sub)
+    peak = np.full(n, np.nan)
+    if sub.size:
+        gc = gain_crossings(part)
+        iv = bounded_intervals(part, coarse)
+        pc = phase_crossings(part, iv, coarse[0], coarse[-1])
+        peak[sub] = disk_peak(part, iv)
     else:
-        pm = dm = np.zeros(0)
+        gc = pc = Crossings(np.zeros(0, int), np.zeros(0), np.zeros(0))
+    g_row, g_w, pm = sub[gc.row], gc.w, gc.value
+    p_row, p_w, gm = sub[pc.row], pc.w, pc.value
 
-    # ---- phase crossings ------------------------------------------------
-    fl = np.floor(g)
-    r, i = np.nonzero((fl[:, :-1] != fl[:, 1:]) & ok[:, None])
-    target = np.maximum(fl[r, i], fl[r, i + 1])
-
-    def phase_fn_builder(rows, i_left, tgt):
-        return lambda z: phase_turns(rows, i_left, z) + 0.5 - tgt
-
-    # touches of -180 deg: peaks/troughs of g that approach an integer from one side
-    nearest = np.round(g)
-
-    def touch_fn(rows, i_peak):
-        return phase_fn_builder(rows, i_peak - 1, nearest[rows, i_peak])
-
-    tr, tlo, thi, _, tpk = _touch_brackets(g - nearest, lw, ok, TOUCH_TURNS, touch_fn)
-    ti = tpk - 1
-    ttgt = nearest[tr, tpk]
-    r_p = np.concatenate([r, tr])
-    i_p = np.concatenate([i, ti])
-    t_p = np.concatenate([target, ttgt])
-    lo_p = np.concatenate([lw[i], tlo])
-    hi_p = np.concatenate([lw[i + 1], thi])
-    if r_p.size:
-        fn = phase_fn_builder(r_p, i_p, t_p)
-        x_p = _bisect(fn, lo_p, hi_p, fn(lo_p))
-        wp = 10.0**x_p
-        gm = -20.0 * np.log10(np.maximum(np.abs(eval_L(r_p, x_p)), 1e-300))
-    else:
-        wp = gm = np.zeros(0)
-    # zero-frequency crossing (L(0) real and negative)
-    L0 = loop_response_at_zero(loop)
-    dc = ok & np.isfinite(L0) & (L0 < 0)
-    r_dc = np.nonzero(dc)[0]
-    r_p = np.concatenate([r_p, r_dc])
-    wp = np.concatenate([wp, np.zeros(r_dc.size)])
-    gm = np.concatenate([gm, -20.0 * np.log10(-L0[r_dc])])
-
-    # ---- reductions -------------------------------------------------------
     up = gm > 0
-    gm_up, w_up = _select(r_p[up], n, gm[up], wp[up])
-    low = ~up
-    neg_gm_low, w_low = _select(r_p[low], n, -gm[low], wp[low])
-    _, pm_min, wc_min = _select(r_g, n, np.abs(pm), pm, wc)
-    dm_min = _select(r_g, n, dm)[0]
-
-    gx, gpm = _per_row_pad(r_g, n, wc, pm)
-    px, pgm = _per_row_pad(r_p, n, wp, gm)
-
-    # ---- disk margin ------------------------------------------------------
-    k = _disk_peak_index(mag, turns)
-    rows = np.arange(n)
-    st_grid = _disk_ratio(mag[rows, k], np.cos(2.0 * np.pi * turns[rows, k]))
-    k0 = np.clip(k - 1, 0, len(w) - 1)
-    k1 = np.clip(k + 1, 0, len(w) - 1)
-
-    def st_fn(z):
-        Lz = eval_L(rows, z)
-        return np.abs((1.0 - Lz) / (1.0 + Lz))
-
-    _, peak = _golden_max(st_fn, lw[k0], lw[k1])
-    peak = np.maximum(peak, st_grid)
+    gm_up, w_up = _select(p_row[up], n, gm[up], p_w[up])
+    neg_low, w_low = _select(p_row[~up], n, -gm[~up], p_w[~up])
+    _, pm_min, wc_min = _select(g_row, n, np.abs(pm), pm, g_w)
     with np.errstate(divide="ignore", invalid="ignore"):
-        alpha = np.where(np.isfinite(peak), 2.0 / peak, 0.0)
+        dm = np.deg2rad(np.mod(pm, 360.0)) / g_w
+    dm_min = _select(g_row, n, dm)[0]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        alpha = np.where(np.isnan(peak), np.nan, 2.0 / peak)  # an infinite peak: alpha 0
         if stable is not None:
-            alpha = np.where(stable, alpha, 0.0)
+            alpha = np.where(stable & live, alpha, np.where(live, 0.0, np.nan))
             dm_min = np.where(stable, dm_min, 0.0)
-        disk_gm = np.where(alpha < 2.0, 20.0 * np.log10((1.0 + alpha / 2.0) / (1.0 - alpha / 2.0)), np.nan)
+        disk_gm = np.where(alpha < 2.0, _DB * np.log((1.0 + alpha / 2.0) / (1.0 - alpha / 2.0)), np.nan)
         disk_pm = np.rad2deg(2.0 * np.arctan(alpha / 2.0))
-    never = ~ok
-    alpha = np.where(never & (np.asarray(loop.gain) == 0), np.nan, alpha)
-    return [gm_up, -neg_gm_low, pm_min, wc_min, w_up, w_low, dm_min, alpha, disk_gm, disk_pm], [gx, gpm, px, pgm]
+    gx, gpm = _per_row_pad(g_row, n, g_w, pm)
+    px, pgm = _per_row_pad(p_row, n, p_w, gm)
+    scalars = [gm_up, -neg_low, pm_min, wc_min, w_up, w_low, dm_min, alpha, disk_gm, disk_pm]
+    return scalars, [gx, gpm, px, pgm]
 
 
 def loop_margins(loop, stable=None, w=None, chunk=_CHUNK) -> Margins:
@@ -411,22 +509,24 @@ def loop_margins(loop, stable=None, w=None, chunk=_CHUNK) -> Margins:
         Closed-loop stability (shape ``S``); where False, the delay and disk
         margins are 0.
     w : ndarray, optional
-        Search grid, rad/s (ascending, log-spaced); default :data:`DEFAULT_GRID`.
+        Coarse frequency grid, rad/s (ascending, log-spaced): its ends bound the search
+        for phase crossings; the loop's own factors add the points that matter. Default
+        :data:`DEFAULT_GRID`.
     chunk : int
-        Loops evaluated together (bounds memory).
+        Loops evaluated together (bounds memory; results do not depend on it).
 
     Returns
     -------
     Margins
     """
-    w = DEFAULT_GRID if w is None else np.asarray(w, dtype=float)
-    flat, shape = flatten(loop)
-    n = int(np.prod(shape)) if shape else 1
+    coarse = DEFAULT_GRID if w is None else np.asarray(w, dtype=float)
+    fl_all, shape = factored_loop(loop)
+    n = fl_all.size
     st = None if stable is None else np.broadcast_to(np.asarray(stable, bool), shape).reshape(-1)
     scalars, ragged = [], []
     for start in range(0, n, chunk):
-        sl = slice(start, min(n, start + chunk))
-        s, r = _margins_flat(take(flat, sl), w, None if st is None else st[sl])
+        sl = np.arange(start, min(n, start + chunk))
+        s, r = _margins_flat(fl_all.take(sl), coarse, None if st is None else st[sl])
         scalars.append(s)
         ragged.append(r)
     cols = [np.concatenate([c[j] for c in scalars]).reshape(shape) for j in range(len(scalars[0]))]

@@ -155,6 +155,16 @@ def pitch_rate_response(d: Derivatives, s):
     return num / den
 
 
+def pitch_rate_factors(d: Derivatives):
+    """Numerator and denominator of q/delta as factors ``(c0, c1, c2)`` of ``c0 + c1 s + c2 s^2``.
+
+    Returns ``((a21 b1 - a11 b2, b2, 0), (a11 a22 - a12 a21, -(a11 + a22), 1))`` (1/s^2
+    over 1/s^2: q/delta in 1/s), the same polynomials as :func:`pitch_rate_response`.
+    """
+    a11, a12, a21, a22, b1, b2 = _entries(d)
+    return (a21 * b1 - a11 * b2, b2, 0.0), (a11 * a22 - a12 * a21, -(a11 + a22), 1.0)
+
+
 def angle_of_attack_response(d: Derivatives, s):
     """Angle of attack per elevator, alpha/delta (dimensionless), at `s`.
 

@@ -7,11 +7,14 @@ the same linear block:
   view used in every frequency-domain measure). Parameters broadcast against
   `s` as they are: give the element a trailing axis first
   (:func:`damper.model.batch.expand`) to evaluate a frequency axis per batch member;
+* ``factors()``: ``(gain, numerator factors, denominator factors)``, each factor the
+  coefficients ``(c0, c1, c2)`` of ``c0 + c1 s + c2 s^2`` (the exact rational view used
+  by the margins, :mod:`damper.model.rational`; a pure delay has none);
 * ``state_space()``: a batched realisation ``(A, B, C, D)`` with shapes
   ``(..., n, n)``, ``(..., n, 1)``, ``(..., 1, n)``, ``(..., 1, 1)`` (used in
   eigenvalue work; a pure delay becomes a Pade approximant here).
 
-To add a hardware element, write a class with these two methods and
+To add a hardware element, write a class with these three methods and
 ``n_states``, and add its case-file keys in :mod:`damper.case.schema`
 (see DEVELOPERS.md).
 """
@@ -52,6 +55,9 @@ class Lag:
     def response(self, s):
         return 1.0 / (_e(self.time_constant) * s + 1.0)
 
+    def factors(self):
+        return 1.0, (), ((1.0, self.time_constant, 0.0),)
+
     def state_space(self):
         inv = 1.0 / np.asarray(self.time_constant, dtype=float)
         return _scalar_block(-inv, inv, 1.0, 0.0)
@@ -78,6 +84,10 @@ class SecondOrderLag:
         w = _e(self.natural_frequency)
         z = _e(self.damping_ratio)
         return w * w / (s * s + 2.0 * z * w * s + w * w)
+
+    def factors(self):
+        w = _e(self.natural_frequency)
+        return w * w, (), ((w * w, 2.0 * _e(self.damping_ratio) * w, 1.0),)
 
     def state_space(self):
         w, z = np.broadcast_arrays(
@@ -110,6 +120,9 @@ class Washout:
         ts = _e(self.time_constant) * s
         return ts / (ts + 1.0)
 
+    def factors(self):
+        return 1.0, ((0.0, self.time_constant, 0.0),), ((1.0, self.time_constant, 0.0),)
+
     def state_space(self):
         inv = 1.0 / np.asarray(self.time_constant, dtype=float)
         return _scalar_block(-inv, inv, -1.0, 1.0)
@@ -134,6 +147,9 @@ class LeadLag:
 
     def response(self, s):
         return (_e(self.lead_time_constant) * s + 1.0) / (_e(self.lag_time_constant) * s + 1.0)
+
+    def factors(self):
+        return 1.0, ((1.0, self.lead_time_constant, 0.0),), ((1.0, self.lag_time_constant, 0.0),)
 
     def state_space(self):
         t1 = np.asarray(self.lead_time_constant, dtype=float)
@@ -167,6 +183,12 @@ class Notch:
         return (s * s + 2.0 * _e(self.depth_damping) * w * s + w * w) / (
             s * s + 2.0 * _e(self.width_damping) * w * s + w * w
         )
+
+    def factors(self):
+        w = _e(self.frequency)
+        num = (w * w, 2.0 * _e(self.depth_damping) * w, 1.0)
+        den = (w * w, 2.0 * _e(self.width_damping) * w, 1.0)
+        return 1.0, (num,), (den,)
 
     def state_space(self):
         w, zn, zd = np.broadcast_arrays(
