@@ -230,7 +230,7 @@ def test_analytic_jacobian_matches_finite_differences(free_zero):
         target = target - np.log(S + zero[:, None])
     p = 5 if free_zero else 4
     params = np.column_stack(
-        [np.log([2.5, 4.0]), np.log([0.4, 1.2]), [0.03, 0.08], np.log([3.0, 5.0])]
+        [np.log([2.5, 4.0]), [0.4, 1.2], [0.03, 0.08], np.log([3.0, 5.0])]
         + ([np.log([0.7, 1.1])] if free_zero else [])
     )
     params = params + 0.01 * rng.standard_normal(params.shape)
@@ -246,7 +246,7 @@ def test_analytic_jacobian_matches_finite_differences(free_zero):
         np.testing.assert_allclose(jac[:, :, k], numeric, rtol=1e-6, atol=1e-6 * np.abs(numeric).max())
     # the residual's squared norm is the cost J written out by hand
     for i in range(2):
-        zeta, w_e = np.exp(params[i, 1]), np.exp(params[i, 0])
+        zeta, w_e = params[i, 1], np.exp(params[i, 0])
         zi = np.exp(params[i, 4]) if free_zero else zero[i]
         h_e = loes(zeta, w_e, zi, np.exp(params[i, 3]), params[i, 2])
         assert res[i] @ res[i] == pytest.approx(mismatch_by_hand(h_e, h), rel=1e-10)
@@ -293,12 +293,31 @@ def test_first_order_data_drift_ends_unconverged():
     # [derived] H = 5 (s + 1)/(s + 2) with the zero fixed at 1: the exact match needs the
     # second-order pair to become s + 2 times an infinitely fast pole, so zeta_e and w_e run
     # off together along a flat valley (module notes); the fit stops there, not converged,
-    # with a near-exact cost (by the drift stop or the iteration limit), and the handling
-    # layer discards it.
-    from damper.measures.handling import MAX_EQUIVALENT_DAMPING, OUTSIDE_BAND, usable_fit
+    # with a small cost (by the drift stop or the iteration limit), and the handling layer
+    # discards it (damping above the usable limit).
+    from damper.measures.handling import MAX_EQUIVALENT_DAMPING, usable_fit
 
     fit = fit_equivalent_system(W, 5 * (S + 1) / (S + 2), 1.0)
     assert not fit.converged
-    assert fit.damping_ratio > MAX_EQUIVALENT_DAMPING and fit.natural_frequency > OUTSIDE_BAND * W[-1]
-    assert fit.mismatch < 1e-6
+    assert fit.damping_ratio > MAX_EQUIVALENT_DAMPING and fit.natural_frequency > 2 * W[-1]
+    assert fit.mismatch < 1e-2
     assert np.isnan(usable_fit(fit, W).damping_ratio)
+
+
+def test_fit_is_bit_for_bit_independent_of_batch_and_chunking():
+    # A system's fit depends on its own data only: the same answer, bit for bit, whether
+    # it is fitted alone, in a batch of 400, in chunks of any size or at any offset (the
+    # memory alignment of its rows changes with the chunking). Needed to shard a study
+    # and for any 1e-12 agreement test (common practice for batched solvers).
+    h, zero = higher_order_systems(seed=11, count=400)
+    full = fit_equivalent_system(W, h, zero)
+    fields = ("damping_ratio", "natural_frequency", "time_delay", "gain", "mismatch", "converged")
+    for chunk, offset in ((1, 0), (7, 3), (64, 1), (129, 5), (256, 0)):
+        for start in range(offset, 400, max(chunk * 9, 1)):
+            sl = slice(start, min(400, start + chunk))
+            part = fit_equivalent_system(W, h[sl], zero[sl])
+            for name in fields:
+                assert np.array_equal(getattr(part, name), getattr(full, name)[sl]), (chunk, start, name)
+    rev = fit_equivalent_system(W, h[::-1].copy(), zero[::-1].copy())
+    for name in fields:
+        assert np.array_equal(getattr(rev, name)[::-1], getattr(full, name)), name

@@ -126,3 +126,21 @@ def test_level_verdicts_on_constructed_points():
     assert lv["damping_ratio"].tolist() == [1, 2, 3, 4, 1, 1]
     assert lv["equivalent_time_delay"].tolist() == [1, 1, 1, 1, 2, 4]
     assert lv["overall"].tolist() == [1, 2, 3, 4, 2, 4]
+
+
+def test_unstable_closed_loop_gets_its_negative_equivalent_damping():
+    # [derived] with ideal hardware the pitch-rate response to the pilot is exactly the
+    # low-order form, so the fit must equal the modal pair, also when the closed loop is
+    # unstable (a negative gain that undoes the airframe's damping): the equivalent
+    # damping is negative, never clipped at a floor, and the fit is usable.
+    from damper.analysis.assess import assess_loop
+    from damper.model.loop import Hardware, Loop
+
+    K = np.array([-0.43, -0.47, -0.52])  # closed-loop damping about -0.02, -0.18, -0.48 [derived]
+    res = assess_loop(Loop(TEXTBOOK_GA, Hardware(), K))
+    modal = res.modes.short_period.damping_ratio
+    assert np.all(modal < 0) and not np.any(res.modes.stable)
+    eq = res.equivalent
+    assert np.all(eq.converged)
+    np.testing.assert_allclose(eq.damping_ratio, modal, rtol=1e-6)
+    np.testing.assert_allclose(eq.natural_frequency, res.modes.short_period.natural_frequency, rtol=1e-6)

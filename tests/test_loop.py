@@ -92,7 +92,9 @@ def test_pilot_response_matches_closed_loop_state_space():
     loop = Loop(TEXTBOOK_GA, HARDWARE, 0.25)
     got = pilot_pitch_rate_response(loop, W)
     sys = to_control(loop, (), "closed")
-    want = np.array([complex(sys(1j * w)[1, 0]) for w in W])
+    # the exported closed loop takes the command at the actuator input (surface
+    # convention); the pilot's nose-up command reaches it as sign(M_delta) times itself
+    want = np.sign(TEXTBOOK_GA.M_delta) * np.array([complex(sys(1j * w)[1, 0]) for w in W])
     np.testing.assert_allclose(got, want, rtol=1e-8)
 
 

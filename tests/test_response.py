@@ -52,11 +52,15 @@ def one(d, i):
 
 def lsim_closed(loop, index, u, t, gust=None):
     """Oracle: scipy.signal.lsim (zero-order hold: exact for inputs constant between
-    samples) on python-control's export of the linear closed loop. With `gust`, the
-    gust angle enters as the first column of the airframe matrix ([derived] from
-    alpha_aero = alpha + alpha_g in both equations)."""
+    samples) on python-control's export of the linear closed loop. `u` is the nose-up
+    pilot command; it reaches the actuator input as sign(M_delta) u (docs/theory.md s.1).
+    With `gust`, the gust angle enters as the first column of the airframe matrix
+    ([derived] from alpha_aero = alpha + alpha_g in both equations)."""
     sys = to_control(loop, index, "closed")
     B = np.asarray(sys.B)
+    md = np.asarray(loop.airframe.M_delta, dtype=float)
+    md = np.broadcast_to(md, np.broadcast_shapes(md.shape, np.shape(loop.gain)))[index]
+    u = np.sign(md) * np.asarray(u)
     U = np.asarray(u)[:, None]
     if gust is not None:
         layout = closed_loop_matrix(loop)[2]
@@ -75,7 +79,7 @@ def rel(a, b):
     return np.max(np.abs(np.asarray(a) - np.asarray(b))) / np.max(np.abs(b))
 
 
-DOUBLET = Input("doublet", amplitude=-2 * DEG, start=0.2, half_period=0.4)
+DOUBLET = Input("doublet", amplitude=2 * DEG, start=0.2, half_period=0.4)  # a pull first
 
 
 # ---------------------------------------------------------------------------
@@ -217,7 +221,7 @@ def test_step_overshoot_is_the_classic_one():
     # overshoot is the classic (q_peak - q_f) / |q_f| (docs/responses.md); the parabolic
     # peak refinement moves it by less than 1e-4 relative on 1 ms samples.
     d = invented(1)
-    h = simulate(Loop(d, Hardware(), 0.0), Input("step", amplitude=-1 * DEG, start=0.1), duration=6.0)
+    h = simulate(Loop(d, Hardware(), 0.0), Input("step", amplitude=1 * DEG, start=0.1), duration=6.0)  # a pull
     m = measure(h)
     q = h.q[0]
     qf = q[-1]
@@ -374,7 +378,7 @@ def test_default_responses_section():
     spec = response_spec(case)
     assert spec.default and len(spec.inputs) == 1
     inp = spec.inputs[0]
-    assert inp.kind == "doublet" and float(inp.amplitude) == pytest.approx(-2 * DEG)
+    assert inp.kind == "doublet" and float(inp.amplitude) == pytest.approx(2 * DEG)  # a pull first
     # half the bare short-period period at each condition (docs/responses.md)
     sp = bare_short_period(case.derivatives())
     np.testing.assert_allclose(inp.half_period, 0.5 * sp.period)

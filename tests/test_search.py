@@ -125,3 +125,17 @@ def test_equivalent_mismatch_band_judges_the_fit_cost():
     tight = _case("requirements:\n  equivalent_mismatch: {max: 1e-9}\n")
     d = search(tight, SearchSettings(gain_min=0.001, gain_max=0.5, points=41))
     assert not d.conditions[0].feasible
+
+
+def test_damping_target_policy_needs_its_target():
+    # The library refuses the policy without its parameter with a clear ValueError (no
+    # UnboundLocalError from deep inside the search).
+    from damper.analysis.search import SearchSettings
+
+    with pytest.raises(ValueError, match="needs damping_target"):
+        SearchSettings(policy="damping_target")
+    with pytest.raises(ValueError, match="needs damping_target"):
+        SearchSettings(policy="damping_target", damping_target=float("nan"))
+    with pytest.raises(ValueError, match="unknown policy"):
+        SearchSettings(policy="fastest")
+    assert SearchSettings(policy="damping_target", damping_target=0.7).damping_target == 0.7

@@ -65,6 +65,7 @@ import numpy as np
 from ..atmosphere import G0
 from ..model.batch import batch_shape, flatten, map_arrays
 from ..model.elements import Lag, SecondOrderLag
+from ..model.airframe import nose_up_surface
 from ..model.loop import Hardware, Loop, feedback_sign, plant_state_space
 
 #: Input kinds (case-file words).
@@ -107,8 +108,9 @@ class Input:
     kind : str
         ``doublet``, ``step``, ``pulse``, ``gust_sharp`` or ``gust_one_minus_cosine``.
     amplitude : ndarray
-        Pilot command at the actuator input, rad of surface (positive trailing-edge
-        down, i.e. nose-down for ``M_delta < 0``; a pull is negative). A doublet is
+        Pilot command, rad of surface, positive nose-up (a pull is positive, whatever the
+        sign of ``M_delta``): it reaches the actuator input as ``sign(M_delta)`` times
+        itself (:func:`damper.model.airframe.nose_up_surface`). A doublet is
         ``+amplitude`` for one half-period then ``-amplitude`` for the next.
     start : ndarray
         Time the input begins, s.
@@ -159,7 +161,7 @@ def _f(x):
 
 
 def pilot_command(inp: Input, t):
-    """Pilot command at the actuator input, rad, at times `t` (s).
+    """Pilot command, rad, positive nose-up, at times `t` (s).
 
     `t` broadcasts against the input's parameters (give it a trailing axis of
     length 1 per batch axis when the parameters are batched). A jump at time
@@ -247,7 +249,8 @@ class TimeHistory:
     command : ndarray
         Actuator input u (pilot plus damper command), rad.
     pilot : ndarray
-        Pilot command, rad.
+        Pilot command as it reaches the actuator input, rad of surface (trailing-edge
+        down positive: ``sign(M_delta)`` times the nose-up command).
     gust_alpha : ndarray
         Gust angle of attack w_g/V, rad.
     rate_limited : ndarray of bool
@@ -495,10 +498,12 @@ def simulate(loop: Loop, inp: Input, *, duration, step=1e-3, rate_limit=None, tr
     chunk = 256
     t_end = input_end(inp_f, v_air)
 
+    to_surface = np.broadcast_to(nose_up_surface(d), (n_b,))
+
     def signals(t):
         tt = t[:, None]
         return (
-            np.broadcast_to(pilot_command(inp_f, tt), (len(t), n_b)),
+            np.broadcast_to(pilot_command(inp_f, tt) * to_surface, (len(t), n_b)),
             np.broadcast_to(gust_angle(inp_f, tt, v_air), (len(t), n_b)),
         )
 
@@ -864,7 +869,7 @@ DEFAULT_DURATION = 10.0
 DEFAULT_STEP = 1e-3
 DEFAULT_OUTPUT_STEP = 0.01
 DEFAULT_START = 0.5
-DEFAULT_DOUBLET_AMPLITUDE = -np.deg2rad(2.0)
+DEFAULT_DOUBLET_AMPLITUDE = np.deg2rad(2.0)  # nose-up: a pull first
 
 
 def default_half_period(d):

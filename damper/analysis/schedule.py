@@ -443,6 +443,31 @@ def _envelope_verification_points(case, env, aero, variables, bps):
     return _pointset_from_env(case, env, aero, Hv, Vv, kinds, variables)
 
 
+def design_points(case):
+    """The points ``design_schedule`` first designs the schedule's nodes from (envelope cases).
+
+    At each initial breakpoint of ``schedule.variables`` (``schedule.breakpoints`` of them,
+    before any refinement), the envelope points across altitude (or speed) where the
+    variable takes that value, for every configuration, each named by its label
+    (``"<configuration> h=<m> m V=<m/s> m/s"``).
+
+    Returns
+    -------
+    points : PointSet
+    configurations : tuple of str
+    """
+    env, aero = env_mod.envelope_from_case(case)
+    if env is None:
+        raise DamperError(f"{case.file}: the case has no envelope")
+    s = case.raw.get("schedule") or {}
+    variables = tuple(s.get("variables") or ("dynamic_pressure",))
+    bps = _initial_breakpoints(env, variables, s.get("breakpoints") or 5)
+    H, V, _ = _points_on(env, variables, bps, _DESIGN_ALTITUDES, _DESIGN_ALTITUDES)
+    H, V, _ = _distinct_points([(H, V, "design")])
+    pts = _pointset_from_env(case, env, aero, H, V, np.full(H.size, "design"), variables)
+    return pts, tuple(c.name for c in env.configurations)
+
+
 def verification_points(case, schedule: Schedule):
     """The points :func:`design_schedule` verifies a schedule of this form on, for a given schedule.
 

@@ -100,9 +100,27 @@ def schedule_study_case(case, result, count):
     ver = result.verification
     pts = ver.points
     idx = tightest_points(ver.worst_slack, pts.configuration, count, pts.labels)
+    conditions = points_as_conditions(pts, idx, result.configurations, "schedule verification point",
+                                      "{kind} point of the schedule verification")
+    raw = dict(case.raw or {})
+    raw["conditions"] = []
+    study = dataclasses.replace(case, conditions=conditions, raw=raw)
+    return study, np.asarray(ver.gains, dtype=float)[idx], idx
+
+
+def points_as_conditions(pts, idx, configurations, source, note):
+    """Conditions at the points ``idx`` of a :class:`damper.analysis.schedule.PointSet`.
+
+    Each is named by the point's label, with the standard atmosphere at its altitude, its
+    mass and pitch inertia and its (interpolated) derivatives; ``note`` may use ``{kind}``.
+
+    Returns
+    -------
+    tuple of damper.case.model.Condition
+    """
     air = standard_atmosphere(pts.altitude[idx])
     fields = Derivatives.__dataclass_fields__
-    names = tuple(result.configurations)
+    names = tuple(configurations)
     conditions = []
     for k, i in enumerate(idx):
         v = float(pts.airspeed[i])
@@ -123,14 +141,31 @@ def schedule_study_case(case, result, count):
             mass=float(pts.mass[i]),
             pitch_inertia=float(pts.pitch_inertia[i]),
             derivatives=d,
-            source="schedule verification point",
-            note=f"{pts.kind[i]} point of the schedule verification",
+            source=source,
+            note=note.format(kind=pts.kind[i]),
             configuration=names[ci] if ci < len(names) and names[ci] != "all" else None,
         ))
+    return tuple(conditions)
+
+
+def design_points_case(case):
+    """``case`` itself when it has conditions; else the case at its envelope's design points.
+
+    A case with an envelope and no ``conditions`` is evaluated (``damper assess``,
+    ``damper robust --gain``) at the points ``damper design`` first designs its schedule's
+    nodes from (:func:`damper.analysis.schedule.design_points`), each a condition named by
+    its label.
+    """
+    if case.conditions:
+        return case
+    from .schedule import design_points
+
+    pts, configurations = design_points(case)
+    conditions = points_as_conditions(pts, np.arange(len(pts.labels)), configurations, "envelope design point",
+                                      "{kind} point of the envelope (the schedule's first design points)")
     raw = dict(case.raw or {})
     raw["conditions"] = []
-    study = dataclasses.replace(case, conditions=tuple(conditions), raw=raw)
-    return study, np.asarray(ver.gains, dtype=float)[idx], idx
+    return dataclasses.replace(case, conditions=conditions, raw=raw)
 
 
 def study_description(count, schedule="the schedule"):

@@ -46,7 +46,12 @@ class SearchSettings:
     policy : str
         One of :data:`POLICIES`.
     damping_target : float or None
-        For the ``damping_target`` policy.
+        Damping ratio (> 0) the ``damping_target`` policy aims at; required by it.
+
+    Raises
+    ------
+    ValueError
+        An unknown policy, or ``damping_target`` policy without a positive finite target.
     """
 
     gain_min: float | None = None
@@ -54,6 +59,14 @@ class SearchSettings:
     points: int = 161
     policy: str = "balanced"
     damping_target: float | None = None
+
+    def __post_init__(self):
+        if self.policy not in POLICIES:
+            raise ValueError(f"unknown policy {self.policy!r}; one of {', '.join(POLICIES)}")
+        if self.policy == "damping_target":
+            t = self.damping_target
+            if t is None or not (np.isfinite(t) and t > 0):
+                raise ValueError(f"policy 'damping_target' needs damping_target, a positive damping ratio (got {t!r})")
 
 
 @dataclass(frozen=True)
@@ -162,8 +175,6 @@ def _names(case):
 def search(case: Case, settings: SearchSettings | None = None) -> DesignResult:
     """Feasible intervals and chosen gain at every condition of `case`."""
     settings = settings or SearchSettings()
-    if settings.policy not in POLICIES:
-        raise ValueError(f"unknown policy {settings.policy!r}")
     n = len(case.conditions)
     lo_default, hi_default = default_range(case)
     lo = np.full(n, settings.gain_min) if settings.gain_min else lo_default

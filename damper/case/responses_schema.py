@@ -61,9 +61,10 @@ INPUT = InputSection(
         "start": Quantity(("time",), "Time the input begins, s (default 0.5 s).", default=None, nonnegative=True),
         "amplitude": Quantity(
             ("dimensionless",),
-            "Pilot command, rad of surface at the actuator input (e.g. '-2 deg'); positive is "
-            "trailing-edge down (nose down), so a pull is negative. A doublet is +amplitude then "
-            "-amplitude. Default for a doublet: -2 deg.",
+            "Pilot command, rad of surface (e.g. '2 deg'), positive nose-up: a pull is positive "
+            "whatever the sign of M_delta (it reaches the actuator as sign(M_delta) times itself; "
+            "docs/theory.md s.1). A doublet is +amplitude then -amplitude. Default for a doublet: "
+            "2 deg (pull first).",
             default=None,
             nonzero=True,
         ),

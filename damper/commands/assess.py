@@ -19,6 +19,7 @@ def run(args, argv) -> int:
     import math
 
     from ..analysis.assess import assess
+    from ..analysis.schedule_points import design_points_case
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
     from ..errors import DamperError
@@ -29,12 +30,17 @@ def run(args, argv) -> int:
         raise DamperError(f"--gain = {args.gain}: must be a finite number of seconds")
     case = load_case(args.case)
     warn_case(case)
+    envelope = not case.conditions
+    case = design_points_case(case)
     result = assess(case, args.gain)
     doc = assess_document(case, result, command=" ".join(["damper", *argv]))
     if args.json:
         sys.stdout.write(dumps(doc))
     else:
         print(f"{case.title}: loop with K = {args.gain:g} s")
+        if envelope:
+            print(f"(no conditions in the case: evaluated at the {len(case.conditions)} envelope design points "
+                  "that damper design starts its schedule from)")
         print(assess_table(doc))
         print(CAUTION_SHORT)
     return 0

@@ -33,7 +33,9 @@ def run(args, argv) -> int:
 
     if not math.isfinite(args.gain):
         raise DamperError(f"--gain = {args.gain}: must be a finite number of seconds")
-    case = load_case(args.case)
+    from ..analysis.schedule_points import design_points_case
+
+    case = design_points_case(load_case(args.case))  # an envelope case: its design points
     warn_case(case)
     out = prepare_run_dir(args.out, force=args.force) if args.out else None
     spec = response_spec(case)

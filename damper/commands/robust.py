@@ -137,8 +137,13 @@ def run(args, argv) -> int:
         gains = gains_from_design(case, doc)
         source = f"chosen gains of {args.design}"
     else:
+        from ..analysis.schedule_points import design_points_case
+
         gains = args.gain
         source = f"K = {args.gain:g} s at every condition"
+        if not case.conditions:  # an envelope case: its design points (as damper assess)
+            case = design_points_case(case)
+            source = f"K = {args.gain:g} s at the {len(case.conditions)} envelope design points"
     stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
     out = prepare_run_dir(args.out or f"robust-{stem}", force=args.force)
     warn_case(case)

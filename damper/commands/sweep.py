@@ -59,7 +59,9 @@ def run(args, argv) -> int:
     from ..output.files import write_atomic
     from ..output.text import fmt, table
 
-    case = load_case(args.case)
+    from ..analysis.schedule_points import design_points_case
+
+    case = design_points_case(load_case(args.case))  # an envelope case: its design points
     names = [c.name for c in case.conditions]
     if args.condition not in names:
         import difflib

@@ -119,13 +119,14 @@ def attitude_bandwidth(
         ``response(w)`` with ``w`` a real array of frequencies, rad/s, of
         shape (N, k) (one row per system, N the flat batch size) returns the
         complex pitch-attitude response to the pilot command (e.g. rad per
-        unit of command) of shape (N, k).  The first call passes the common
-        grid as shape (1, nw); the callable must broadcast it over its N
+        unit of command) of shape (N, k).  The first call passes the grid (a
+        common grid as shape (1, nw)); the callable must broadcast it over its N
         systems (NumPy broadcasting does this for expressions such as
         ``K / (1j*w * (1j*w + a[:, None]))``).
     w_grid : array_like
-        Shape (nw,), strictly increasing positive frequencies, rad/s, dense
-        and log-spaced (e.g. ``np.logspace(-2, 3, 600)``).
+        Shape (nw,) (one grid for every system) or (N, nw) (a grid per system):
+        strictly increasing positive frequencies, rad/s, dense enough that the
+        phase moves by less than 180 deg between neighbours.
 
     Returns
     -------
@@ -136,21 +137,23 @@ def attitude_bandwidth(
 
     Notes
     -----
-    Crossings are searched on ``w_grid`` only: a crossing below ``w_grid[0]``
-    or above ``w_grid[-1]`` is reported as nan.
+    Crossings are searched on ``w_grid`` only: a crossing below its first or above
+    its last frequency is reported as nan.
     """
     w_grid = np.asarray(w_grid, dtype=float)
-    if w_grid.ndim != 1 or w_grid.size < 2:
-        raise ValueError("w_grid must be 1-D with at least 2 frequencies (rad/s)")
-    if not np.all(np.isfinite(w_grid)) or w_grid[0] <= 0.0 or np.any(np.diff(w_grid) <= 0.0):
+    if w_grid.ndim not in (1, 2) or w_grid.shape[-1] < 2:
+        raise ValueError("w_grid must be (nw,) or (N, nw) with at least 2 frequencies (rad/s)")
+    if not np.all(np.isfinite(w_grid)) or np.any(w_grid[..., 0] <= 0.0) or np.any(np.diff(w_grid, axis=-1) <= 0.0):
         raise ValueError("w_grid must be finite, positive and strictly increasing (rad/s)")
 
-    h_grid = np.asarray(response(w_grid[None, :]))
+    h_grid = np.asarray(response(w_grid if w_grid.ndim == 2 else w_grid[None, :]))
     if h_grid.ndim == 1:
         h_grid = h_grid[None, :]
-    if h_grid.ndim != 2 or h_grid.shape[1] != w_grid.size:
-        raise ValueError(f"response returned shape {h_grid.shape}, expected (N, {w_grid.size})")
+    nw = w_grid.shape[-1]
+    if h_grid.ndim != 2 or h_grid.shape[1] != nw:
+        raise ValueError(f"response returned shape {h_grid.shape}, expected (N, {nw})")
     n_sys = h_grid.shape[0]
+    w_rows = np.broadcast_to(w_grid, (n_sys, nw))
 
     def call(w):
         out = np.asarray(response(w))
@@ -158,15 +161,15 @@ def attitude_bandwidth(
             out = np.broadcast_to(out, w.shape)
         return out
 
-    log_w = np.log(w_grid)
+    log_w = np.log(w_rows)
     phase = np.unwrap(np.angle(h_grid), axis=1)  # rad
     gain_db = 20.0 * np.log10(np.abs(h_grid))
     rows = np.arange(n_sys)
-    safe_w = w_grid[0]  # harmless frequency for rows with nothing to refine
+    safe_w = w_rows[:, 0]  # harmless frequency for rows with nothing to refine
 
     def refine_phase(level):
         valid, lo = _first_down_crossing(phase, level)
-        a, b = log_w[lo].copy(), log_w[lo + 1].copy()
+        a, b = log_w[rows, lo].copy(), log_w[rows, lo + 1].copy()
         pa, pb = phase[rows, lo].copy(), phase[rows, lo + 1].copy()
         for _ in range(BISECTION_ITERATIONS):
             m = 0.5 * (a + b)
@@ -185,14 +188,14 @@ def attitude_bandwidth(
     # Gain bandwidth: G = G(w180) + 6 dB, crossing nearest below w180.
     g180 = 20.0 * np.log10(np.abs(call(w180_safe[:, None])[:, 0]))
     level_g = g180 + GAIN_MARGIN_DB
-    candidate = (w_grid[None, :] < w180_safe[:, None]) & (gain_db >= level_g[:, None])
+    candidate = (w_rows < w180_safe[:, None]) & (gain_db >= level_g[:, None])
     any_cand = candidate.any(axis=1) & has180
-    lo = np.where(any_cand, w_grid.size - 1 - np.argmax(candidate[:, ::-1], axis=1), 0)
-    hi_idx = np.minimum(lo + 1, w_grid.size - 1)
-    a = log_w[lo].copy()
-    b = np.minimum(log_w[hi_idx], np.log(w180_safe))
+    lo = np.where(any_cand, nw - 1 - np.argmax(candidate[:, ::-1], axis=1), 0)
+    hi_idx = np.minimum(lo + 1, nw - 1)
+    a = log_w[rows, lo].copy()
+    b = np.minimum(log_w[rows, hi_idx], np.log(w180_safe))
     ga = gain_db[rows, lo].copy()
-    gb = np.where(log_w[hi_idx] < np.log(w180_safe), gain_db[rows, hi_idx], g180)
+    gb = np.where(log_w[rows, hi_idx] < np.log(w180_safe), gain_db[rows, hi_idx], g180)
     for _ in range(BISECTION_ITERATIONS):
         m = 0.5 * (a + b)
         gm = 20.0 * np.log10(np.abs(call(np.where(any_cand, np.exp(m), safe_w)[:, None])[:, 0]))

@@ -25,12 +25,13 @@ Levenberg-Marquardt iteration: per system the residual vector is
 ``sqrt(20/n) * [dG_1..dG_n, sqrt(0.01745) * dPhi_1..dPhi_n]`` so that its
 squared norm is ``J``; the Jacobians are stacked to shape (M, 2n, p) and the
 small damped normal equations are solved with one ``np.linalg.solve`` call
-per iteration.  The parameters are ``ln w_e``, ``ln zeta_e`` (so both stay
-positive; ``zeta_e > 1`` is allowed), ``tau_e`` itself (projected onto
+per iteration.  The parameters are ``ln w_e`` (so it stays positive),
+``zeta_e`` itself (any sign: an unstable closed loop gets its negative
+equivalent damping; ``zeta_e > 1`` is allowed), ``tau_e`` itself (projected onto
 ``tau_e >= 0``, with the bound treated as an active constraint when the
 gradient pushes against it), ``ln |Kq|`` (the sign of ``Kq`` is chosen per
 start from the data) and, with a free zero, ``ln(1/T_theta2)``; a wide box
-(``zeta_e`` in [1e-4, 1e4], ``w_e`` and a free zero within a factor 1e4 of
+(``zeta_e`` in [-1e4, 1e4], ``w_e`` and a free zero within a factor 1e4 of
 the fit band) only keeps degenerate fits finite.  Several
 starting points per system (one derived from the data, the others a small
 spread of damping ratios and frequencies around it) are iterated in the same
@@ -74,7 +75,7 @@ _LAMBDA_MAX = 1e12
 _FTOL = 1e-14  # relative cost reduction regarded as no progress
 _XTOL = 1e-11  # step size (log units / s) regarded as no progress
 _COST_FLOOR = 1e-26  # cost regarded as an exact fit
-# Starts of one system closer than this in every parameter (log units; s for tau_e)
+# Starts of one system closer than this in every parameter (log units; zeta_e itself; s for tau_e)
 # are taken to be in one basin; the checks are every _MERGE_EVERY iterations.
 _MERGE_TOL = 1e-2
 _MERGE_EVERY = 1
@@ -83,16 +84,15 @@ _MERGE_EVERY = 1
 # stopped there, not converged (a hundred times past the limits where the handling layer
 # already discards a fit as degenerate).
 _DRIFT_ZETA = 1e3
-_LN_DRIFT_ZETA = float(np.log(_DRIFT_ZETA))
 _DRIFT_W_FACTOR = 1e3
 
 # Parameter box (only reached by degenerate fits): w_e and a free 1/T_theta2
 # within [w[0] * 1e-4, w[-1] * 1e4] rad/s, zeta_e within [1e-4, 1e4].
 _W_RANGE = 1e-4
-_ZETA_RANGE = (1e-4, 1e4)
+_ZETA_RANGE = (-1e4, 1e4)
 
 # Indices into the parameter vector.
-_LN_W, _LN_Z, _TAU, _LN_K, _LN_ZERO = 0, 1, 2, 3, 4
+_LN_W, _Z, _TAU, _LN_K, _LN_ZERO = 0, 1, 2, 3, 4
 
 
 @dataclass(frozen=True)
@@ -177,7 +177,7 @@ def _model(params, target, w, free_zero, scale):
     zero its value (M, 1) and ``|jw + zero|^2`` (M, nw) (None otherwise).
     """
     w_e = np.exp(params[:, _LN_W])[:, None]
-    zeta = np.exp(params[:, _LN_Z])[:, None]
+    zeta = params[:, _Z][:, None]
     tau = params[:, _TAU][:, None]
     ln_k = params[:, _LN_K][:, None]
     # denominator D(jw) = (w_e^2 - w^2) + j (2 zeta w_e w)
@@ -224,8 +224,9 @@ def _evaluate(params, target, zero_fixed, w, free_zero, scale, want_jac=True):
     a_re = 2.0 * w_e2  # dD/d ln w_e = 2 w_e^2 + j d_im
     jac[:, :nw, _LN_W] = -c_gain * (a_re * d_re + d_im * d_im) * inv
     jac[:, nw:, _LN_W] = -c_phase * (d_im * d_re - a_re * d_im) * inv
-    jac[:, :nw, _LN_Z] = -c_gain * (d_im * d_im) * inv  # dD/d ln zeta = j d_im
-    jac[:, nw:, _LN_Z] = -c_phase * (d_im * d_re) * inv
+    e_im = (2.0 * np.sqrt(w_e2)) * w  # dD/d zeta = j 2 w_e w
+    jac[:, :nw, _Z] = -c_gain * (e_im * d_im) * inv
+    jac[:, nw:, _Z] = -c_phase * (e_im * d_re) * inv
     jac[:, :nw, _TAU] = 0.0  # d/d tau = -j w
     jac[:, nw:, _TAU] = -c_phase * w
     jac[:, :nw, _LN_K] = c_gain  # d/d ln|K| = 1
@@ -242,7 +243,7 @@ def _normal_equations(params, target, zero, w, free_zero, scale):
     Same inputs as :func:`_evaluate`.  The Jacobian's structure is used: the
     ``ln|Kq|`` column is a constant on the gain rows and zero on the phase
     rows, the ``tau_e`` column zero on the gain rows and ``-c w`` on the phase
-    rows, so only the ``ln w_e``, ``ln zeta_e`` (and free-zero) columns are
+    rows, so only the ``ln w_e``, ``zeta_e`` (and free-zero) columns are
     evaluated and the products are formed as row sums.  Returns cost (M,),
     normal matrix (M, p, p) and gradient (M, p), equal to ``J^T J`` and
     ``J^T r`` of :func:`_evaluate` to rounding.
@@ -256,16 +257,17 @@ def _normal_equations(params, target, zero, w, free_zero, scale):
     # columns of J (without the constant factors c_gain, c_phase)
     im2 = d_im * d_im * inv
     cross = d_im * d_re * inv
-    g_z = -im2  # gain rows, d/d ln zeta
-    p_z = -cross  # phase rows, d/d ln zeta
-    g_w = g_z - 2.0 * w_e2 * d_re * inv  # -(2 w_e^2 d_re + d_im^2) / |D|^2
+    e_im = (2.0 * np.sqrt(w_e2)) * w * inv  # dD/d zeta = j 2 w_e w (over |D|^2)
+    g_z = -e_im * d_im  # gain rows, d/d zeta
+    p_z = -e_im * d_re  # phase rows, d/d zeta
+    g_w = -im2 - 2.0 * w_e2 * d_re * inv  # -(2 w_e^2 d_re + d_im^2) / |D|^2
     p_w = 2.0 * w_e2 * d_im * inv - cross  # -(d_im d_re - 2 w_e^2 d_im) / |D|^2
     cols_g = [g_w, g_z]
     cols_p = [p_w, p_z]
     if free_zero:
         cols_g.append(zero_r * zero_r / n_mag2)  # d ln(jw + z)/d ln z = z (z - jw) / (z^2 + w^2)
         cols_p.append(-zero_r * w / n_mag2)
-    idx = [_LN_W, _LN_Z] + ([_LN_ZERO] if free_zero else [])
+    idx = [_LN_W, _Z] + ([_LN_ZERO] if free_zero else [])
     cg2, cp2 = c_gain * c_gain, c_phase * c_phase
 
     def dot(a, b):
@@ -378,7 +380,7 @@ def _starting_points(w, log_h, zero, free_zero):
         w_e = w_d * w_mult
         par = np.zeros((n_sys, p))
         par[:, _LN_W] = np.log(w_e)
-        par[:, _LN_Z] = np.log(zeta)
+        par[:, _Z] = zeta
         par[:, _TAU] = 0.0
         if free_zero:
             par[:, _LN_ZERO] = np.log(zero)
@@ -448,7 +450,7 @@ def _merged_starts(params, cost, alive, n_start):
     """Rows to drop because a better start of the same system is at the same point.
 
     Rows are system-major (``row = system * n_start + start``).  Two live starts of
-    one system whose parameters all agree within :data:`_MERGE_TOL` (log units, and
+    one system whose parameters all agree within :data:`_MERGE_TOL` (log units, zeta_e itself, and
     s for ``tau_e``) are in the same basin; the one with the higher cost (the later
     start on a tie) is dropped.  The best start of every cluster always survives, and
     its cost only falls afterwards, so dropping never changes which basin wins.
@@ -541,7 +543,7 @@ def _levenberg_marquardt(
         stop |= w_lam > _LAMBDA_MAX
         converged[act[stop]] = True
         # a pair drifting along the first-order valley far outside the band: stop, unconverged
-        stop |= (w_par[:, _LN_Z] > _LN_DRIFT_ZETA) & (w_par[:, _LN_W] > ln_drift_w)
+        stop |= (w_par[:, _Z] > _DRIFT_ZETA) & (w_par[:, _LN_W] > ln_drift_w)
         if n_start > 1 and (it + 1) % _MERGE_EVERY == 0:
             alive = np.zeros(m_rows, dtype=bool)
             alive[act[~stop]] = True
@@ -563,6 +565,7 @@ def fit_equivalent_system(
     *,
     free_zero: bool = False,
     max_iterations: int = 60,
+    log_response: bool = False,
 ) -> EquivalentFit:
     """Fit the pitch-rate LOES to a batch of high-order frequency responses.
 
@@ -584,6 +587,9 @@ def fit_equivalent_system(
     max_iterations : int, optional
         Maximum Levenberg-Marquardt iterations (accepted or rejected trial
         steps) per start.  Default 60.
+    log_response : bool, optional
+        ``response`` is already the natural log of the response,
+        ``ln|H| + j arg H`` (any branch of the phase). Default False.
 
     Returns
     -------
@@ -609,7 +615,7 @@ def fit_equivalent_system(
     if h.shape[-1:] != w.shape:
         raise ValueError(f"response last axis {h.shape[-1:]} does not match w {w.shape}")
     h = h.astype(complex)
-    if not np.all(np.isfinite(h)) or np.any(h == 0):
+    if not np.all(np.isfinite(h)) or (not log_response and np.any(h == 0)):
         raise ValueError("response must be finite and non-zero")
     batch = h.shape[:-1]
     zero_b = np.broadcast_to(np.asarray(inv_t_theta2, dtype=float), batch)
@@ -623,7 +629,7 @@ def fit_equivalent_system(
 
     n_sys = int(np.prod(batch, dtype=int))
     nw = w.size
-    log_h = np.log(h.reshape(n_sys, nw))
+    log_h = h.reshape(n_sys, nw) if log_response else np.log(h.reshape(n_sys, nw))
     zero = zero_b.reshape(n_sys).astype(float)
     scale = np.sqrt(20.0 / nw)
 
@@ -637,7 +643,7 @@ def fit_equivalent_system(
     lower = np.full(p, -np.inf)
     upper = np.full(p, np.inf)
     lower[_LN_W], upper[_LN_W] = np.log(w[0] * _W_RANGE), np.log(w[-1] / _W_RANGE)
-    lower[_LN_Z], upper[_LN_Z] = np.log(_ZETA_RANGE[0]), np.log(_ZETA_RANGE[1])
+    lower[_Z], upper[_Z] = _ZETA_RANGE
     lower[_TAU] = 0.0
     if free_zero:
         lower[_LN_ZERO], upper[_LN_ZERO] = np.log(w[0] * _W_RANGE), np.log(w[-1] / _W_RANGE)
@@ -666,7 +672,7 @@ def fit_equivalent_system(
 
     zero_out = np.exp(par_b[:, _LN_ZERO]) if free_zero else zero
     return EquivalentFit(
-        damping_ratio=shaped(np.exp(par_b[:, _LN_Z])),
+        damping_ratio=shaped(par_b[:, _Z]),
         natural_frequency=shaped(np.exp(par_b[:, _LN_W])),
         time_delay=shaped(par_b[:, _TAU]),
         gain=shaped(sign_b * np.exp(par_b[:, _LN_K])),

@@ -7,8 +7,9 @@
   ``n/alpha = (V / g) (1/T_theta2)`` from the bare airframe (equal to
   ``-Z_alpha / g`` when ``Z_delta`` = 0; MIL-F-8785C usage, from memory);
 * pitch-attitude bandwidth and phase delay of ``theta / command = (q / command) / s``,
-  with the command counted positive nose-up (``-sign(M_delta)`` times the surface
-  command) so that the attitude response starts from -90 deg.
+  with the command counted positive nose-up (the one convention,
+  :func:`damper.model.airframe.nose_up_surface`), so that the attitude response starts
+  from -90 deg.
 """
 
 from __future__ import annotations
@@ -18,10 +19,13 @@ import numpy as np
 from ..atmosphere import G0
 from ..model import airframe as af
 from ..model.batch import batch_shape, flatten, map_arrays
-from ..model.loop import Loop, pilot_pitch_rate_response
+from ..model.loop import Loop
 from .equivalent import fit_equivalent_system, fit_frequencies
 
-BANDWIDTH_GRID = np.logspace(-2.0, 3.0, 501)  # rad/s
+BANDWIDTH_GRID = np.logspace(-2.0, 3.0, 101)  # rad/s: the common part of each loop's grid
+#: Largest phase step between neighbouring points of an attitude grid, rad (45 deg).
+BANDWIDTH_STEP = np.deg2rad(45.0)
+BANDWIDTH_PASSES = 6
 
 
 def load_factor_per_alpha(d: af.Derivatives):
@@ -44,11 +48,58 @@ def equivalent_system(loop: Loop, free_zero=False, w=None):
     """
     w = fit_frequencies() if w is None else np.asarray(w, dtype=float)
     shape = batch_shape(loop)
-    H = pilot_pitch_rate_response(loop, w)
-    H = np.broadcast_to(H, shape + (w.size,))
+    log_h = pilot_log_response(loop, w).reshape(shape + (w.size,))
     zero = np.broadcast_to(af.inverse_t_theta2(loop.airframe), shape)
-    fit = fit_equivalent_system(w, H, zero, free_zero=free_zero)
+    # a response that vanishes or is not finite (no control power) has no equivalent system
+    bad = ~np.all(np.isfinite(log_h), -1) | ~np.isfinite(zero)
+    if np.any(bad):
+        log_h = np.where(bad[..., None], -np.log(1j * w + 1.0), log_h)
+        zero = np.where(bad, 1.0, zero)
+    fit = fit_equivalent_system(w, log_h, zero, free_zero=free_zero, log_response=True)
+    if np.any(bad):
+        from dataclasses import replace
+
+        fit = replace(fit, converged=np.asarray(fit.converged) & ~bad)
     return usable_fit(fit, w)
+
+
+def pilot_log_response(loop: Loop, w):
+    """``ln(q/c)(jw)``: natural log of pitch rate per nose-up pilot command (flat batch).
+
+    Computed in real arithmetic from the factored forward path and loop
+    (:mod:`damper.model.rational`): ``ln|q/c| = ln|F| - ln|1 + L|`` and
+    ``arg(q/c) = arg F - arg(1 + L)``, with ``1 + L`` formed from ``|L|`` and ``arg L``.
+    Every operation is elementwise and real, so a loop's answer is the same bit for bit
+    whatever batch it is evaluated in.
+
+    Parameters
+    ----------
+    loop : Loop
+        Any batch shape (flattened, ``N`` loops).
+    w : ndarray, shape (K,) or (N, K)
+        rad/s (a common grid, or one per loop).
+
+    Returns
+    -------
+    ndarray of complex, shape (N, K)
+        ``ln|q/c| + j arg(q/c)``, the phase on a continuous branch.
+    """
+    from ..model.rational import evaluate, factored_forward, factored_loop
+
+    fwd, _ = factored_forward(loop)
+    fl, _ = factored_loop(loop)
+    w = np.asarray(w, dtype=float)
+    grid = np.ascontiguousarray(np.broadcast_to(w, (fl.size, w.shape[-1])))
+    f_mag, f_arg = evaluate(fwd, grid)
+    l_mag, l_arg = evaluate(fl, grid)
+    with np.errstate(over="ignore", invalid="ignore"):
+        rho = np.exp(np.minimum(l_mag, 700.0))
+        re = 1.0 + rho * np.cos(l_arg)
+        im = rho * np.sin(l_arg)
+        out = np.empty(grid.shape, complex)
+        out.real = f_mag - 0.5 * np.log(re * re + im * im)
+        out.imag = f_arg - np.arctan2(im, re)
+    return out
 
 
 #: A fit whose frequency lies this far outside the fitted band, or whose damping ratio is
@@ -83,18 +134,78 @@ def usable_fit(fit, w):
     )
 
 
+def attitude_grid(loop: Loop, passes=BANDWIDTH_PASSES):
+    """Per-loop frequencies for the attitude response, rad/s, shape (N, k) (flat batch).
+
+    The common grid :data:`BANDWIDTH_GRID` plus the points placed from the loop's own
+    factors (:func:`damper.measures.freqset.factor_points`) within its range; then, for a
+    few passes, a point between every two neighbours where the closed-loop attitude phase
+    moves by more than :data:`BANDWIDTH_STEP` (a lightly damped closed-loop mode), so
+    that the phase is unwrapped correctly.
+    """
+    from ..model.rational import factored_loop
+    from .freqset import factor_points
+
+    flat, _ = flatten(loop)
+    fl, _ = factored_loop(flat)
+    n = fl.size
+    lo, hi = BANDWIDTH_GRID[0], BANDWIDTH_GRID[-1]
+    parts = [np.broadcast_to(BANDWIDTH_GRID, (n, BANDWIDTH_GRID.size))]
+    for coef in (fl.num, fl.den):
+        if coef.shape[1]:
+            pts = factor_points(coef).reshape(n, -1)
+            parts.append(np.where((pts > lo) & (pts < hi), pts, np.nan))
+    w = _rows_unique(np.concatenate(parts, -1))
+    for _ in range(passes):
+        h = attitude_response(flat, w)
+        step = np.abs(np.angle(h[:, 1:] / h[:, :-1]))
+        big = step > BANDWIDTH_STEP
+        if not big.any():
+            break
+        mid = np.where(big, np.sqrt(w[:, 1:] * w[:, :-1]), np.nan)
+        w = _rows_unique(np.concatenate([w, mid], -1))
+    return w
+
+
+def _rows_unique(w):
+    """Sort each row, drop NaN and repeats, and pad short rows with points near their top."""
+    w = np.sort(w, -1)
+    dup = np.zeros(w.shape, bool)
+    dup[:, 1:] = w[:, 1:] <= w[:, :-1]
+    w = np.sort(np.where(dup, np.nan, w), -1)
+    count = np.isfinite(w).sum(-1)
+    k = int(count.max())
+    w = w[:, :k]
+    # pad: continue each short row geometrically above its last point (never used as a
+    # crossing unless the response really crosses there)
+    last = w[np.arange(w.shape[0]), count - 1]
+    j = np.arange(k)[None, :] - count[:, None] + 1
+    return np.where(np.isfinite(w), w, last[:, None] * 1.001 ** np.maximum(j, 1))
+
+
+def attitude_response(loop: Loop, w):
+    """theta per nose-up pilot command, ``(q/c)(jw) / (jw)`` (rad per rad), shape (N, k).
+
+    ``loop`` is a flat batch of N loops; ``w`` has shape (N, k) or (1, k). Built from
+    :func:`pilot_log_response` in real arithmetic (a loop's answer does not depend on its
+    batch).
+    """
+    w = np.asarray(w, dtype=float)
+    log_q = pilot_log_response(loop, w)
+    with np.errstate(over="ignore", under="ignore"):
+        mag = np.exp(log_q.real) / w
+    phase = log_q.imag - 0.5 * np.pi
+    out = np.empty(log_q.shape, complex)
+    out.real = mag * np.cos(phase)
+    out.imag = mag * np.sin(phase)
+    return out
+
+
 def pitch_bandwidth(loop: Loop):
     """Pitch-attitude bandwidth and phase delay of every loop in the batch (arrays of the batch shape)."""
     from .bandwidth import attitude_bandwidth
 
     flat, shape = flatten(loop)
-
-    # pilot command counted positive nose-up: -sign(M_delta) times the surface command,
-    # so the attitude response starts at -90 deg like the criterion assumes
-    sense = -np.sign(np.asarray(flat.airframe.M_delta, dtype=float))[:, None]
-
-    def response(w):  # w: (N, k) rad/s, one row per flat batch member
-        return sense * pilot_pitch_rate_response(flat, w) / (1j * w)
-
-    result = attitude_bandwidth(response, BANDWIDTH_GRID)
+    w = attitude_grid(flat)
+    result = attitude_bandwidth(lambda x: attitude_response(flat, x), w)
     return map_arrays(result, lambda a: a.reshape(shape))

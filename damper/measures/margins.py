@@ -48,6 +48,8 @@ DEFAULT_GRID = np.logspace(-3.0, 3.0, 61)  # rad/s: the coarse part (10 points p
 DISK_RTOL = 2e-2
 #: Golden-section steps about the best sample (the bracket shrinks to 5e-7 of a grid cell).
 PEAK_STEPS = 30
+#: Times the golden-section bracket may move when the peak lies at its edge.
+PEAK_SHIFTS = 4
 DISK_PASSES = 40
 #: ``|ln |L||`` below which a root of the crossing polynomial where ``|L|`` touches 1 counts.
 TOUCH_NEPERS = 1e-9
@@ -415,15 +417,20 @@ def disk_peak(fl: FactoredLoop, iv: Intervals) -> np.ndarray:
         _keep_best(best, best_w, best_h, iv.row, disk_ratio(iv.lb, iv.pb), iv.wb, iv.wb / iv.wa)
     rows = np.nonzero((best_w > 0) & np.isfinite(best))[0]
     if rows.size:
-        step = np.log(np.minimum(best_h[rows], 1e6))
+        half = np.log(np.minimum(best_h[rows], 1e6))  # a cell each side of the best sample
         sub = fl.take(rows)
 
         def ratio(x):
             return disk_ratio(*_at(sub, np.exp(x)))
 
         x0 = np.log(best_w[rows])
-        _, peak = golden_max(ratio, x0 - step, x0 + step, steps=PEAK_STEPS)
-        best[rows] = np.fmax(best[rows], peak)
+        for _ in range(PEAK_SHIFTS):  # a peak at the bracket's edge: move the bracket there
+            x_star, peak = golden_max(ratio, x0 - half, x0 + half, steps=PEAK_STEPS)
+            best[rows] = np.fmax(best[rows], peak)
+            edge = np.abs(x_star - x0) > 0.99 * half
+            if not np.any(edge):
+                break
+            x0 = np.where(edge, x_star, x0)
     return best
 
 

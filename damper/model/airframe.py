@@ -3,7 +3,8 @@
 Sign convention (defined once, here; see docs/theory.md): stability axes, small
 perturbations, states angle of attack ``alpha`` (rad) and pitch rate ``q``
 (rad/s); elevator ``delta`` (rad) positive trailing-edge down, so a normal
-airframe has ``M_delta < 0``. Dimensional derivatives are per unit mass (Z) or
+airframe has ``M_delta < 0``. The pilot's command is counted positive nose-up
+(:func:`nose_up_surface`), whatever the sign of ``M_delta``. Dimensional derivatives are per unit mass (Z) or
 per unit pitch inertia (M)::
 
     alpha' = Z_alpha/V alpha + (1 + Z_q/V) q + Z_delta/V delta
@@ -51,6 +52,17 @@ class Derivatives:
     M_alpha_dot: np.ndarray
     M_q: np.ndarray
     M_delta: np.ndarray
+
+
+def nose_up_surface(d: Derivatives):
+    """Surface command (rad, trailing-edge down positive) per rad of nose-up pilot command.
+
+    The one pilot-command convention: a pilot command ``c`` (rad of surface, positive
+    nose-up, i.e. a pull) reaches the actuator input as ``sign(M_delta) c``, so a pull
+    moves the surface trailing-edge up when ``M_delta < 0`` and down when
+    ``M_delta > 0``. Every pilot input (handling measures, time responses) uses it.
+    """
+    return np.sign(np.asarray(d.M_delta, dtype=float))
 
 
 def from_coefficients(

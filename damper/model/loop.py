@@ -170,12 +170,17 @@ def loop_response_at_zero(loop: Loop):
 
 
 def pilot_pitch_rate_response(loop: Loop, w):
-    """Closed-loop pitch rate per pilot command at the actuator input, ``q/r (jw)`` (1/s)."""
+    """Closed-loop pitch rate per nose-up pilot command, ``q/c (jw)`` (1/s).
+
+    The command ``c`` (rad, positive nose-up) reaches the actuator input as
+    ``sign(M_delta) c`` (:func:`damper.model.airframe.nose_up_surface`), so ``q/c`` starts
+    positive for either sign of ``M_delta``.
+    """
     x = _with_axis(loop)
     s = 1j * np.asarray(w, dtype=float)
     forward = actuator_response(x, s) * af.pitch_rate_response(x.airframe, s)
     k = feedback_sign(x.airframe) * np.asarray(x.gain, dtype=float)
-    return forward / (1.0 + k * forward * feedback_response(x, s))
+    return af.nose_up_surface(x.airframe) * forward / (1.0 + k * forward * feedback_response(x, s))
 
 
 # --------------------------------------------------------------------------

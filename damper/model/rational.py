@@ -71,8 +71,27 @@ def _stack(factors, n):
     return out
 
 
+def _factored(flat, n, gain, elements) -> FactoredLoop:
+    """Factored form of ``gain`` times the airframe's q/delta times ``elements`` (flat loop)."""
+    num_air, den_air = af.pitch_rate_factors(flat.airframe)
+    num, den = [num_air], [den_air]
+    delay = np.zeros(n)
+    gain = np.broadcast_to(gain, (n,)).copy()
+    for element in elements:
+        if element is None:
+            continue
+        if isinstance(element, Delay):  # a pure delay anywhere in the path adds its time
+            delay = delay + np.broadcast_to(np.asarray(element.time, dtype=float), (n,))
+            continue
+        k, nf, df = element.factors()
+        gain = gain * np.broadcast_to(np.asarray(k, dtype=float), (n,))
+        num.extend(nf)
+        den.extend(df)
+    return FactoredLoop(gain, _stack(num, n), _stack(den, n), delay)
+
+
 def factored_loop(loop) -> tuple[FactoredLoop, tuple]:
-    """Factored form of every loop in the batch.
+    """Factored form of every loop in the batch: ``L = sign(M_delta) K A P_q F``.
 
     Parameters
     ----------
@@ -90,22 +109,20 @@ def factored_loop(loop) -> tuple[FactoredLoop, tuple]:
 
     flat, shape = flatten(loop)
     n = int(np.prod(shape)) if shape else 1
-    gain = np.broadcast_to(feedback_sign(flat.airframe) * np.asarray(flat.gain, dtype=float), (n,)).copy()
-    num_air, den_air = af.pitch_rate_factors(flat.airframe)
-    num, den = [num_air], [den_air]
+    gain = feedback_sign(flat.airframe) * np.asarray(flat.gain, dtype=float)
     hw = flat.hardware
-    delay = np.zeros(n)
-    for element in (hw.actuator, *hw.feedback_elements()):
-        if element is None:
-            continue
-        if isinstance(element, Delay):  # a pure delay anywhere in the loop adds its time
-            delay = delay + np.broadcast_to(np.asarray(element.time, dtype=float), (n,))
-            continue
-        k, nf, df = element.factors()
-        gain = gain * np.broadcast_to(np.asarray(k, dtype=float), (n,))
-        num.extend(nf)
-        den.extend(df)
-    return FactoredLoop(gain, _stack(num, n), _stack(den, n), delay), shape
+    return _factored(flat, n, gain, (hw.actuator, *hw.feedback_elements())), shape
+
+
+def factored_forward(loop) -> tuple[FactoredLoop, tuple]:
+    """Factored form of the pilot's path: pitch rate per nose-up command, ``sign(M_delta) A P_q``.
+
+    Same layout as :func:`factored_loop`; the command is counted positive nose-up
+    (:func:`damper.model.airframe.nose_up_surface`).
+    """
+    flat, shape = flatten(loop)
+    n = int(np.prod(shape)) if shape else 1
+    return _factored(flat, n, af.nose_up_surface(flat.airframe), (flat.hardware.actuator,)), shape
 
 
 # ----------------------------------------------------------------------------------
