@@ -30,6 +30,21 @@ def test_response_matches_state_space(element):
     assert A.shape == (element.n_states, element.n_states)
 
 
+@pytest.mark.parametrize("element", ELEMENTS, ids=lambda e: type(e).__name__)
+def test_factors_match_the_response(element):
+    # the factored view (gain, numerator and denominator polynomials of degree <= 2) used by
+    # the margins and handling measures is the same transfer function [derived]
+    s = 1j * W
+    k, num, den = element.factors()
+    got = k * np.ones_like(s)
+    for c0, c1, c2 in num:
+        got = got * (c0 + c1 * s + c2 * s * s)
+    for c0, c1, c2 in den:
+        got = got / (c0 + c1 * s + c2 * s * s)
+    np.testing.assert_allclose(got, element.response(s), rtol=1e-12)
+    assert all(len(f) == 3 for f in (*num, *den))
+
+
 def test_batched_parameters():
     lag = Lag(np.array([0.01, 0.1, 1.0]))
     A, B, C, D = lag.state_space()

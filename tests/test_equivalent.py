@@ -230,7 +230,7 @@ def test_analytic_jacobian_matches_finite_differences(free_zero):
         target = target - np.log(S + zero[:, None])
     p = 5 if free_zero else 4
     params = np.column_stack(
-        [np.log([2.5, 4.0]), [0.4, 1.2], [0.03, 0.08], np.log([3.0, 5.0])]
+        [np.log([2.5, 4.0]), np.arcsinh([0.4, 1.2]), [0.03, 0.08], np.log([3.0, 5.0])]
         + ([np.log([0.7, 1.1])] if free_zero else [])
     )
     params = params + 0.01 * rng.standard_normal(params.shape)
@@ -246,7 +246,7 @@ def test_analytic_jacobian_matches_finite_differences(free_zero):
         np.testing.assert_allclose(jac[:, :, k], numeric, rtol=1e-6, atol=1e-6 * np.abs(numeric).max())
     # the residual's squared norm is the cost J written out by hand
     for i in range(2):
-        zeta, w_e = params[i, 1], np.exp(params[i, 0])
+        zeta, w_e = np.sinh(params[i, 1]), np.exp(params[i, 0])
         zi = np.exp(params[i, 4]) if free_zero else zero[i]
         h_e = loes(zeta, w_e, zi, np.exp(params[i, 3]), params[i, 2])
         assert res[i] @ res[i] == pytest.approx(mismatch_by_hand(h_e, h), rel=1e-10)
@@ -299,8 +299,8 @@ def test_first_order_data_drift_ends_unconverged():
 
     fit = fit_equivalent_system(W, 5 * (S + 1) / (S + 2), 1.0)
     assert not fit.converged
-    assert fit.damping_ratio > MAX_EQUIVALENT_DAMPING and fit.natural_frequency > 2 * W[-1]
-    assert fit.mismatch < 1e-2
+    assert fit.damping_ratio > MAX_EQUIVALENT_DAMPING and fit.natural_frequency > 10 * W[-1]
+    assert fit.mismatch < 1e-6
     assert np.isnan(usable_fit(fit, W).damping_ratio)
 
 

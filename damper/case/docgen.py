@@ -22,6 +22,15 @@ pitch inertia.
 **Altitude** is geopotential (pressure altitude in the standard atmosphere, what flight
 manuals use) unless `atmosphere.altitude_kind: geometric`.
 
+**Cases without conditions** (an `envelope` with `aerodynamics` tables): `damper assess`,
+`sweep`, `respond` and `robust --gain` evaluate the envelope's design points, the points
+`damper design` first designs its schedule's nodes from (at each initial breakpoint, across
+altitude, for every configuration), each named `<configuration> h=<m> m V=<m/s> m/s`.
+
+**Signs**: surface deflections are trailing-edge down positive (a conventional airframe has
+`M_delta < 0`); the pilot command (`responses.inputs[].amplitude`) is positive nose-up
+whatever the sign of `M_delta` (docs/theory.md, section 1).
+
 This page is generated from `damper/case/schema.py` (`python -m damper.case.docgen`);
 `tests/test_docs.py` checks it is current.
 """

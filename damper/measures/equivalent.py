@@ -26,8 +26,10 @@ Levenberg-Marquardt iteration: per system the residual vector is
 squared norm is ``J``; the Jacobians are stacked to shape (M, 2n, p) and the
 small damped normal equations are solved with one ``np.linalg.solve`` call
 per iteration.  The parameters are ``ln w_e`` (so it stays positive),
-``zeta_e`` itself (any sign: an unstable closed loop gets its negative
-equivalent damping; ``zeta_e > 1`` is allowed), ``tau_e`` itself (projected onto
+``asinh zeta_e`` (any sign: an unstable closed loop gets its negative
+equivalent damping; like ``zeta_e`` near zero and like ``ln 2 zeta_e`` for a
+large damping, so a pair drifting along the first-order valley moves fast),
+``tau_e`` itself (projected onto
 ``tau_e >= 0``, with the bound treated as an active constraint when the
 gradient pushes against it), ``ln |Kq|`` (the sign of ``Kq`` is chosen per
 start from the data) and, with a free zero, ``ln(1/T_theta2)``; a wide box
@@ -75,7 +77,7 @@ _LAMBDA_MAX = 1e12
 _FTOL = 1e-14  # relative cost reduction regarded as no progress
 _XTOL = 1e-11  # step size (log units / s) regarded as no progress
 _COST_FLOOR = 1e-26  # cost regarded as an exact fit
-# Starts of one system closer than this in every parameter (log units; zeta_e itself; s for tau_e)
+# Starts of one system closer than this in every parameter (log units; asinh zeta_e; s for tau_e)
 # are taken to be in one basin; the checks are every _MERGE_EVERY iterations.
 _MERGE_TOL = 1e-2
 _MERGE_EVERY = 1
@@ -92,7 +94,8 @@ _W_RANGE = 1e-4
 _ZETA_RANGE = (-1e4, 1e4)
 
 # Indices into the parameter vector.
-_LN_W, _Z, _TAU, _LN_K, _LN_ZERO = 0, 1, 2, 3, 4
+_LN_W, _Z, _TAU, _LN_K, _LN_ZERO = 0, 1, 2, 3, 4  # _Z holds asinh(zeta_e)
+_ASINH_DRIFT_ZETA = float(np.arcsinh(_DRIFT_ZETA))
 
 
 @dataclass(frozen=True)
@@ -177,7 +180,7 @@ def _model(params, target, w, free_zero, scale):
     zero its value (M, 1) and ``|jw + zero|^2`` (M, nw) (None otherwise).
     """
     w_e = np.exp(params[:, _LN_W])[:, None]
-    zeta = params[:, _Z][:, None]
+    zeta = np.sinh(params[:, _Z])[:, None]
     tau = params[:, _TAU][:, None]
     ln_k = params[:, _LN_K][:, None]
     # denominator D(jw) = (w_e^2 - w^2) + j (2 zeta w_e w)
@@ -224,7 +227,8 @@ def _evaluate(params, target, zero_fixed, w, free_zero, scale, want_jac=True):
     a_re = 2.0 * w_e2  # dD/d ln w_e = 2 w_e^2 + j d_im
     jac[:, :nw, _LN_W] = -c_gain * (a_re * d_re + d_im * d_im) * inv
     jac[:, nw:, _LN_W] = -c_phase * (d_im * d_re - a_re * d_im) * inv
-    e_im = (2.0 * np.sqrt(w_e2)) * w  # dD/d zeta = j 2 w_e w
+    # dD/d asinh(zeta) = j 2 w_e w cosh(asinh zeta)
+    e_im = (2.0 * np.sqrt(w_e2) * np.cosh(params[:, _Z])[:, None]) * w
     jac[:, :nw, _Z] = -c_gain * (e_im * d_im) * inv
     jac[:, nw:, _Z] = -c_phase * (e_im * d_re) * inv
     jac[:, :nw, _TAU] = 0.0  # d/d tau = -j w
@@ -257,9 +261,10 @@ def _normal_equations(params, target, zero, w, free_zero, scale):
     # columns of J (without the constant factors c_gain, c_phase)
     im2 = d_im * d_im * inv
     cross = d_im * d_re * inv
-    e_im = (2.0 * np.sqrt(w_e2)) * w * inv  # dD/d zeta = j 2 w_e w (over |D|^2)
-    g_z = -e_im * d_im  # gain rows, d/d zeta
-    p_z = -e_im * d_re  # phase rows, d/d zeta
+    # dD/d asinh(zeta) = j 2 w_e w cosh(asinh zeta) (over |D|^2)
+    e_im = (2.0 * np.sqrt(w_e2) * np.cosh(params[:, _Z])[:, None]) * w * inv
+    g_z = -e_im * d_im  # gain rows, d/d asinh zeta
+    p_z = -e_im * d_re  # phase rows, d/d asinh zeta
     g_w = -im2 - 2.0 * w_e2 * d_re * inv  # -(2 w_e^2 d_re + d_im^2) / |D|^2
     p_w = 2.0 * w_e2 * d_im * inv - cross  # -(d_im d_re - 2 w_e^2 d_im) / |D|^2
     cols_g = [g_w, g_z]
@@ -380,7 +385,7 @@ def _starting_points(w, log_h, zero, free_zero):
         w_e = w_d * w_mult
         par = np.zeros((n_sys, p))
         par[:, _LN_W] = np.log(w_e)
-        par[:, _Z] = zeta
+        par[:, _Z] = np.arcsinh(zeta)
         par[:, _TAU] = 0.0
         if free_zero:
             par[:, _LN_ZERO] = np.log(zero)
@@ -450,7 +455,7 @@ def _merged_starts(params, cost, alive, n_start):
     """Rows to drop because a better start of the same system is at the same point.
 
     Rows are system-major (``row = system * n_start + start``).  Two live starts of
-    one system whose parameters all agree within :data:`_MERGE_TOL` (log units, zeta_e itself, and
+    one system whose parameters all agree within :data:`_MERGE_TOL` (log units, asinh zeta_e, and
     s for ``tau_e``) are in the same basin; the one with the higher cost (the later
     start on a tie) is dropped.  The best start of every cluster always survives, and
     its cost only falls afterwards, so dropping never changes which basin wins.
@@ -543,7 +548,7 @@ def _levenberg_marquardt(
         stop |= w_lam > _LAMBDA_MAX
         converged[act[stop]] = True
         # a pair drifting along the first-order valley far outside the band: stop, unconverged
-        stop |= (w_par[:, _Z] > _DRIFT_ZETA) & (w_par[:, _LN_W] > ln_drift_w)
+        stop |= (w_par[:, _Z] > _ASINH_DRIFT_ZETA) & (w_par[:, _LN_W] > ln_drift_w)
         if n_start > 1 and (it + 1) % _MERGE_EVERY == 0:
             alive = np.zeros(m_rows, dtype=bool)
             alive[act[~stop]] = True
@@ -643,7 +648,7 @@ def fit_equivalent_system(
     lower = np.full(p, -np.inf)
     upper = np.full(p, np.inf)
     lower[_LN_W], upper[_LN_W] = np.log(w[0] * _W_RANGE), np.log(w[-1] / _W_RANGE)
-    lower[_Z], upper[_Z] = _ZETA_RANGE
+    lower[_Z], upper[_Z] = np.arcsinh(_ZETA_RANGE)
     lower[_TAU] = 0.0
     if free_zero:
         lower[_LN_ZERO], upper[_LN_ZERO] = np.log(w[0] * _W_RANGE), np.log(w[-1] / _W_RANGE)
@@ -672,7 +677,7 @@ def fit_equivalent_system(
 
     zero_out = np.exp(par_b[:, _LN_ZERO]) if free_zero else zero
     return EquivalentFit(
-        damping_ratio=shaped(par_b[:, _Z]),
+        damping_ratio=shaped(np.sinh(par_b[:, _Z])),
         natural_frequency=shaped(np.exp(par_b[:, _LN_W])),
         time_delay=shaped(par_b[:, _TAU]),
         gain=shaped(sign_b * np.exp(par_b[:, _LN_K])),

@@ -42,12 +42,13 @@ from ..model.rational import FactoredLoop, at_zero, crossing_polynomial, evaluat
 from .freqset import W_ZERO, Intervals, bounded_intervals, concat, intervals_between, split
 from .refine import golden_max, illinois
 
-DEFAULT_GRID = np.logspace(-3.0, 3.0, 61)  # rad/s: the coarse part (10 points per decade)
+DEFAULT_GRID = np.logspace(-3.0, 3.0, 31)  # rad/s: the coarse part (5 points per decade, as a case's default)
 #: Relative bound to which branch and bound certifies the disk-margin peak (a golden-section
 #: search about the best sample then finds the peak itself).
 DISK_RTOL = 2e-2
-#: Golden-section steps about the best sample (the bracket shrinks to 5e-7 of a grid cell).
-PEAK_STEPS = 30
+#: Golden-section steps about the best sample (the bracket shrinks to 1e-5 of a cell, the
+#: peak value to about 1e-10 of itself).
+PEAK_STEPS = 24
 #: Times the golden-section bracket may move when the peak lies at its edge.
 PEAK_SHIFTS = 4
 DISK_PASSES = 40
@@ -58,7 +59,9 @@ MIN_WIDTH = 1e-10
 #: Levels of -180 deg (mod 360) searched per interval at most.
 MAX_LEVELS = 10_000
 #: Splitting passes of a window whose ends lie on one side of a level (touch search).
-TOUCH_PASSES = 30
+TOUCH_PASSES = 3
+#: Golden-section steps of the tangency search that follows them.
+TOUCH_STEPS = 40
 #: Roots within this angle of the positive real axis (in x = w^2) are tested.
 ROOT_ANGLE = np.pi / 4
 _CHUNK = 1024
@@ -274,7 +277,7 @@ def _window_brackets(fl, row, lo, hi, level):
     def closeness(x):
         return toward * (_at(sub, np.exp(x))[1] - lev)
 
-    x_star, f_star = golden_max(closeness, np.log(iv.wa), np.log(iv.wb))
+    x_star, f_star = golden_max(closeness, np.log(iv.wa), np.log(iv.wb), steps=TOUCH_STEPS)
     hit = f_star >= 0
     w_star = np.exp(x_star[hit])
     for acc, new in zip(parts, (iv.row[hit], iv.wa[hit], w_star, lev[hit])):

@@ -8,8 +8,8 @@ absolute times, are the result; the machine is shared and noisy).
     with ``feedback``, take the poles and the short-period damping, ``stability_margins``;
 (b) damper: ``closed_loop_matrix`` + ``closed_loop_modes`` + ``loop_margins`` on the batch
     (every crossing, gain/phase/delay/disk margins);
-(c) floor: ``np.linalg.eigvals`` on the same stack + the loop's frequency response on the
-    same grid.
+(c) floor: the minimal exact computation: ``np.linalg.eigvals`` on the same stack of closed
+    loops + the roots of every loop's gain-crossing polynomial (stacked companion matrices).
 Also the batched equivalent-system fit against a per-system scipy least_squares loop,
 ``damper --help`` start-up and ``damper design`` on the largest demo case.
 Not collected by pytest (tests/benchmarks is excluded in pyproject.toml).
@@ -27,11 +27,11 @@ import numpy as np
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 sys.path.insert(0, ROOT)
 
-from damper.measures.margins import DEFAULT_GRID, loop_margins  # noqa: E402
+from damper.measures.margins import loop_margins  # noqa: E402
 from damper.measures.modes import closed_loop_modes  # noqa: E402
 from damper.model.airframe import Derivatives, state_matrices  # noqa: E402
 from damper.model.elements import Delay, Lag, Washout  # noqa: E402
-from damper.model.loop import Hardware, Loop, closed_loop_matrix, loop_response  # noqa: E402
+from damper.model.loop import Hardware, Loop, closed_loop_matrix  # noqa: E402
 
 TAU_ACT, TAU_GYRO, TAU_WASH, DELAY, PADE = 1 / 20.0, 0.01, 1.0, 0.02, 2
 
@@ -85,15 +85,21 @@ def damper_engine(loop):
 
 
 def floor(loop, chunk=1024):
-    """Stacked eigenvalues plus L(jw) on the margin grid, in the same chunks as the engine."""
+    """Stacked closed-loop eigenvalues plus the roots of the gain-crossing polynomials (the
+    minimal exact computation: every gain crossing, no phase or disk search), in the same
+    chunks as the engine."""
+    from damper.measures.margins import _polynomial_roots
+    from damper.model.rational import crossing_polynomial, factored_loop
+
     A, _, _ = closed_loop_matrix(loop)
     lam = np.linalg.eigvals(A)
     n = A.shape[0]
-    peak = 0.0
+    count = 0
     for start in range(0, n, chunk):
-        L = loop_response(take(loop, slice(start, min(n, start + chunk))), DEFAULT_GRID[None, :])
-        peak = max(peak, float(np.abs(L).max()))
-    return lam, peak
+        fl, _ = factored_loop(take(loop, slice(start, min(n, start + chunk))))
+        roots = _polynomial_roots(crossing_polynomial(fl))
+        count += int(np.sum(roots.real > 0))
+    return lam, count
 
 
 def timed(fn, *args, repeat=1):
@@ -213,7 +219,7 @@ def main(quick=False):
         err = check_agreement(loop, np.arange(min(50, n)))
         print(f"N = {n:>7}: (a) python-control per case {t_a / n * 1e6:8.1f} us/case (measured on {len(sample)})")
         print(f"           (b) damper batched          {t_b / n * 1e6:8.1f} us/case")
-        print(f"           (c) floor eigvals + L(jw)    {t_c / n * 1e6:8.1f} us/case")
+        print(f"           (c) floor eigvals + crossing roots {t_c / n * 1e6:8.1f} us/case")
         print(f"           a/b = {t_a / t_b:7.1f}   b/c = {t_b / t_c:5.2f}   (poles agree to {err:.1e} relative)")
     t_batch, t_loop = bench_equivalent(2000)
     print(f"equivalent-system fit, 2000 systems: batched {t_batch:.2f} s, per-system least_squares x 6 starts "
