@@ -133,11 +133,20 @@ def test_disk_margin_closed_form():
     assert float(m.disk_margin) == pytest.approx(2 / peak, rel=1e-7)
 
 
-def test_unstable_loop_has_zero_delay_and_disk_margin():
+def test_unstable_loop_has_no_margins_but_keeps_its_crossings():
+    # An unstable closed loop has no stability margins: every margin value is null, while
+    # its gain and phase crossings stay listed (docs/theory.md s.5). The phase margin of a
+    # stable loop is the distance to instability (>= 0); its signed value is kept beside it.
     hw = Hardware(actuator=Lag(1 / 20.0), washout=Washout(1.0), delay=Delay(np.asarray(0.03), 3))
-    res = assess_loop(Loop(TEXTBOOK_GA, hw, np.array([0.2, 5.0])))
+    res = assess_loop(Loop(TEXTBOOK_GA, hw, np.array([1.0, 5.0])))
+    m = res.margins
     assert res.modes.stable.tolist() == [True, False]
-    assert res.margins.delay_margin_s[1] == 0 and res.margins.disk_margin[1] == 0
+    for name in ("gain_margin_db", "gain_margin_low_db", "phase_margin_deg", "phase_margin_signed_deg",
+                 "gain_crossover_rad_s", "delay_margin_s", "disk_margin", "disk_phase_margin_deg"):
+        assert np.isnan(getattr(m, name)[1]), name
+    assert np.isfinite(m.gain_crossings_rad_s[1]).any() and np.isfinite(m.phase_crossings_rad_s[1]).any()
+    assert m.phase_margin_deg[0] == pytest.approx(abs(m.phase_margin_signed_deg[0]))
+    assert m.phase_margin_deg[0] > 0 and m.delay_margin_s[0] > 0 and 0 < m.disk_margin[0] < 2
 
 
 def test_dc_phase_crossing_of_a_divergent_airframe():

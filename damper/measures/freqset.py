@@ -131,6 +131,11 @@ class Intervals:
     def select(self, keep) -> "Intervals":
         return Intervals(*(getattr(self, n)[keep] for n in _FIELDS))
 
+    def renumbered(self, kept) -> "Intervals":
+        """The same intervals with ``row`` counted among the loops where ``kept`` (bool) holds."""
+        new_index = np.cumsum(kept) - 1
+        return Intervals(new_index[self.row], *(getattr(self, n) for n in _FIELDS[1:]))
+
     def phase_range(self, fl: FactoredLoop):
         """Bounds of ``arg L`` (rad, delay included) on each interval."""
         t = fl.delay[self.row]

@@ -28,8 +28,9 @@ How they are found (no dense grid):
   ``|S - T|`` follows from the bounds on ``|L|`` and ``arg L``; intervals that could still
   beat the best value found are split until none can by more than :data:`DISK_RTOL`.
 
-A missing crossing gives NaN (``null`` in JSON). For a closed loop that is already unstable
-the delay and disk margins are 0; crossing values are still reported.
+A missing crossing gives NaN (``null`` in JSON: the margin is unbounded that way). A closed
+loop that is already unstable has no margins: every margin value (and its crossover
+frequency) is NaN there, while the crossings themselves stay listed.
 """
 
 from __future__ import annotations
@@ -79,7 +80,11 @@ class Margins:
     gain_margin_low_db : ndarray
         Downward gain margin, dB, negative (NaN: none).
     phase_margin_deg : ndarray
-        Phase margin of smallest magnitude, deg (NaN: no gain crossing).
+        Phase margin: the phase's distance from -180 deg, in either direction, at the gain
+        crossing nearest to it, deg (>= 0; NaN: no gain crossing).
+    phase_margin_signed_deg : ndarray
+        The same crossing's ``wrap(arg L + 180 deg)`` in [-180, 180), deg (negative when the
+        phase leads -180 deg there, e.g. at a washout's low crossing).
     gain_crossover_rad_s : ndarray
         Frequency of the gain crossing that sets the phase margin, rad/s.
     phase_crossover_rad_s : ndarray
@@ -87,9 +92,9 @@ class Margins:
     phase_crossover_low_rad_s : ndarray
         Frequency of the phase crossing that sets ``gain_margin_low_db``, rad/s.
     delay_margin_s : ndarray
-        s (NaN: no gain crossing; 0: closed loop unstable).
+        s (NaN: no gain crossing, or the closed loop is unstable).
     disk_margin : ndarray
-        Symmetric disk margin alpha (0: unstable).
+        Symmetric disk margin alpha (NaN: no loop, or the closed loop is unstable).
     disk_gain_margin_db : ndarray
         Gain variation tolerated by the disk, ``20 log10((1 + a/2)/(1 - a/2))`` dB (NaN for a >= 2).
     disk_phase_margin_deg : ndarray
@@ -103,6 +108,7 @@ class Margins:
     gain_margin_db: np.ndarray
     gain_margin_low_db: np.ndarray
     phase_margin_deg: np.ndarray
+    phase_margin_signed_deg: np.ndarray
     gain_crossover_rad_s: np.ndarray
     phase_crossover_rad_s: np.ndarray
     phase_crossover_low_rad_s: np.ndarray
@@ -472,9 +478,19 @@ def _select(rows, n, key, *values):
     return (out_key, *outs)
 
 
+_SCALARS = (
+    "gain_margin_db", "gain_margin_low_db", "phase_margin_deg", "phase_margin_signed_deg", "gain_crossover_rad_s",
+    "phase_crossover_rad_s", "phase_crossover_low_rad_s", "delay_margin_s", "disk_margin", "disk_gain_margin_db",
+    "disk_phase_margin_deg",
+)
+_CROSSINGS = ("gain_crossings_rad_s", "phase_margins_deg", "phase_crossings_rad_s", "gain_margins_db")
+
+
 def _margins_flat(fl: FactoredLoop, coarse, stable):
+    """Margins of a flat batch: (dict of scalar arrays, dict of NaN-padded crossing arrays)."""
     n = fl.size
     live = (fl.gain != 0) & np.isfinite(fl.gain)
+    ok = live if stable is None else live & stable  # an unstable closed loop has no margins
     sub = np.nonzero(live)[0]
     part = fl.take(sub)
     peak = np.full(n, np.nan)
@@ -482,30 +498,33 @@ def _margins_flat(fl: FactoredLoop, coarse, stable):
         gc = gain_crossings(part)
         iv = bounded_intervals(part, coarse)
         pc = phase_crossings(part, iv, coarse[0], coarse[-1])
-        peak[sub] = disk_peak(part, iv)
+        keep = ok[sub]
+        if np.any(keep):
+            peak[sub[keep]] = disk_peak(part.take(np.nonzero(keep)[0]), iv.select(keep[iv.row]).renumbered(keep))
     else:
         gc = pc = Crossings(np.zeros(0, int), np.zeros(0), np.zeros(0))
     g_row, g_w, pm = sub[gc.row], gc.w, gc.value
     p_row, p_w, gm = sub[pc.row], pc.w, pc.value
 
     up = gm > 0
-    gm_up, w_up = _select(p_row[up], n, gm[up], p_w[up])
-    neg_low, w_low = _select(p_row[~up], n, -gm[~up], p_w[~up])
-    _, pm_min, wc_min = _select(g_row, n, np.abs(pm), pm, g_w)
+    out = {}
+    out["gain_margin_db"], out["phase_crossover_rad_s"] = _select(p_row[up], n, gm[up], p_w[up])
+    neg_low, out["phase_crossover_low_rad_s"] = _select(p_row[~up], n, -gm[~up], p_w[~up])
+    out["gain_margin_low_db"] = -neg_low
+    out["phase_margin_deg"], out["phase_margin_signed_deg"], out["gain_crossover_rad_s"] = _select(
+        g_row, n, np.abs(pm), pm, g_w
+    )
     with np.errstate(divide="ignore", invalid="ignore"):
         dm = np.deg2rad(np.mod(pm, 360.0)) / g_w
-    dm_min = _select(g_row, n, dm)[0]
-    with np.errstate(divide="ignore", invalid="ignore"):
+        out["delay_margin_s"] = _select(g_row, n, dm)[0]
         alpha = np.where(np.isnan(peak), np.nan, 2.0 / peak)  # an infinite peak: alpha 0
-        if stable is not None:
-            alpha = np.where(stable & live, alpha, np.where(live, 0.0, np.nan))
-            dm_min = np.where(stable, dm_min, 0.0)
-        disk_gm = np.where(alpha < 2.0, _DB * np.log((1.0 + alpha / 2.0) / (1.0 - alpha / 2.0)), np.nan)
-        disk_pm = np.rad2deg(2.0 * np.arctan(alpha / 2.0))
-    gx, gpm = _per_row_pad(g_row, n, g_w, pm)
-    px, pgm = _per_row_pad(p_row, n, p_w, gm)
-    scalars = [gm_up, -neg_low, pm_min, wc_min, w_up, w_low, dm_min, alpha, disk_gm, disk_pm]
-    return scalars, [gx, gpm, px, pgm]
+        out["disk_margin"] = alpha
+        out["disk_gain_margin_db"] = np.where(alpha < 2.0, _DB * np.log((1.0 + alpha / 2.0) / (1.0 - alpha / 2.0)), np.nan)
+        out["disk_phase_margin_deg"] = np.rad2deg(2.0 * np.arctan(alpha / 2.0))
+    for name in _SCALARS:
+        out[name] = np.where(ok, out[name], np.nan)
+    pads = dict(zip(_CROSSINGS, (*_per_row_pad(g_row, n, g_w, pm), *_per_row_pad(p_row, n, p_w, gm))))
+    return out, pads
 
 
 def loop_margins(loop, stable=None, w=None, chunk=_CHUNK) -> Margins:
@@ -516,8 +535,8 @@ def loop_margins(loop, stable=None, w=None, chunk=_CHUNK) -> Margins:
     loop : Loop
         Any batch shape ``S``.
     stable : array_like of bool, optional
-        Closed-loop stability (shape ``S``); where False, the delay and disk
-        margins are 0.
+        Closed-loop stability (shape ``S``); where False, every margin value is NaN (the
+        crossings are still listed) and the disk-margin search is skipped.
     w : ndarray, optional
         Coarse frequency grid, rad/s (ascending, log-spaced): its ends bound the search
         for phase crossings; the loop's own factors add the points that matter. Default
@@ -539,10 +558,9 @@ def loop_margins(loop, stable=None, w=None, chunk=_CHUNK) -> Margins:
         s, r = _margins_flat(fl_all.take(sl), coarse, None if st is None else st[sl])
         scalars.append(s)
         ragged.append(r)
-    cols = [np.concatenate([c[j] for c in scalars]).reshape(shape) for j in range(len(scalars[0]))]
-    m = max(a.shape[1] for r in ragged for a in r)
-    pads = []
-    for j in range(4):
-        parts = [np.pad(r[j], ((0, 0), (0, m - r[j].shape[1])), constant_values=np.nan) for r in ragged]
-        pads.append(np.concatenate(parts).reshape(shape + (m,)))
-    return Margins(*cols, *pads)
+    fields = {name: np.concatenate([c[name] for c in scalars]).reshape(shape) for name in _SCALARS}
+    m = max(r[name].shape[1] for r in ragged for name in _CROSSINGS)
+    for name in _CROSSINGS:
+        parts = [np.pad(r[name], ((0, 0), (0, m - r[name].shape[1])), constant_values=np.nan) for r in ragged]
+        fields[name] = np.concatenate(parts).reshape(shape + (m,))
+    return Margins(**fields)

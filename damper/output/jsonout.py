@@ -105,6 +105,7 @@ def condition_result(case, result, index) -> dict:
             "gain_margin_db": num(mg.gain_margin_db[index]),
             "gain_margin_low_db": num(mg.gain_margin_low_db[index]),
             "phase_margin_deg": num(mg.phase_margin_deg[index]),
+            "phase_margin_signed_deg": num(mg.phase_margin_signed_deg[index]),
             "gain_crossover_rad_s": num(mg.gain_crossover_rad_s[index]),
             "phase_crossover_rad_s": num(mg.phase_crossover_rad_s[index]),
             "delay_margin_s": num(mg.delay_margin_s[index]),

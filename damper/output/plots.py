@@ -520,6 +520,7 @@ class BodeData:
     gain_margin_db: float
     gain_margin_low_db: float
     phase_margin_deg: float
+    phase_margin_signed_deg: float
     delay_margin_s: float
     disk_margin: float
     delay_s: float
@@ -572,6 +573,7 @@ def bode_data(case, assessment, i, w=None) -> BodeData:
         gain_margin_db=float(np.asarray(m.gain_margin_db)[i]),
         gain_margin_low_db=float(np.asarray(m.gain_margin_low_db)[i]),
         phase_margin_deg=float(np.asarray(m.phase_margin_deg)[i]),
+        phase_margin_signed_deg=float(np.asarray(m.phase_margin_signed_deg)[i]),
         delay_margin_s=float(np.asarray(m.delay_margin_s)[i]),
         disk_margin=float(np.asarray(m.disk_margin)[i]),
         delay_s=T,
@@ -656,7 +658,7 @@ def _draw_bode(case, design, i, b: BodeData):
             zorder=5,
         )
         ax_g.axvline(wc, color=PALETTE["primary"], linestyle=":", linewidth=0.8)
-        head = np.isclose(pm, b.phase_margin_deg)
+        head = np.isclose(pm, b.phase_margin_signed_deg)
         ax_p.annotate(
             f"PM {pm:.1f} deg at {wc:.3g} rad/s",
             xy=(wc, 0.5 * (ref + ph)),

@@ -34,7 +34,10 @@ class CriterionKind:
     floor : float
         Smallest normalising scale, in `unit`.
     undefined_is_met : bool
-        Whether a NaN value meets the requirement.
+        Whether a NaN value meets the requirement (e.g. no crossing: an unbounded margin).
+    needs_stability : bool
+        A stability margin: not met where the closed loop is unstable (it has no margins
+        there, whatever the value).
     """
 
     name: str
@@ -42,6 +45,7 @@ class CriterionKind:
     unit: str
     floor: float
     undefined_is_met: bool
+    needs_stability: bool = False
 
 
 KINDS = {
@@ -52,10 +56,10 @@ KINDS = {
         CriterionKind("natural_frequency", "short-period natural frequency", "rad/s", 0.5, False),
         CriterionKind("cap", "control anticipation parameter", "(rad/s^2)/g", 0.05, False),
         CriterionKind("equivalent_time_delay", "equivalent time delay", "s", 0.02, False),
-        CriterionKind("gain_margin", "gain margin (smallest of up and down)", "dB", 1.0, True),
-        CriterionKind("phase_margin", "phase margin (magnitude at the nearest crossing)", "deg", 5.0, True),
-        CriterionKind("delay_margin", "delay margin", "s", 0.01, True),
-        CriterionKind("disk_margin", "symmetric disk margin", "-", 0.1, False),
+        CriterionKind("gain_margin", "gain margin (smallest of up and down)", "dB", 1.0, True, True),
+        CriterionKind("phase_margin", "phase margin (distance from -180 deg at the nearest crossing)", "deg", 5.0, True, True),
+        CriterionKind("delay_margin", "delay margin", "s", 0.01, True, True),
+        CriterionKind("disk_margin", "symmetric disk margin", "-", 0.1, False, True),
         CriterionKind("other_mode_damping", "least damping of the other closed-loop modes", "-", 0.05, True),
         CriterionKind("bandwidth", "pitch-attitude bandwidth", "rad/s", 0.5, False),
         CriterionKind("phase_delay", "pitch-attitude phase delay", "s", 0.02, False),
@@ -127,9 +131,9 @@ def measure_values(criterion: Criterion, m) -> np.ndarray:
         return np.where(np.isinf(both), np.nan, both)
     if name == "phase_margin":
         # distance of the phase from -180 deg in either direction at the nearest gain
-        # crossing: a crossing with leading phase (e.g. the washout's low one, PM near -170)
-        # tolerates that much phase change; closed-loop stability is its own criterion
-        return np.abs(m.margins.phase_margin_deg)
+        # crossing: a crossing with leading phase (e.g. the washout's low one, signed PM
+        # near -170) tolerates that much phase change
+        return m.margins.phase_margin_deg
     if name == "delay_margin":
         return m.margins.delay_margin_s
     if name == "disk_margin":
@@ -176,9 +180,17 @@ class CriteriaResult:
 
 
 def evaluate(criteria, measures) -> CriteriaResult:
-    """Evaluate `criteria` on a measures bundle (batched)."""
+    """Evaluate `criteria` on a measures bundle (batched).
+
+    A stability margin (``needs_stability``) is not met where the closed loop is unstable.
+    """
     values = [np.asarray(measure_values(c, measures), dtype=float) for c in criteria]
     shape = np.broadcast_shapes(*(v.shape for v in values))
     values = np.stack([np.broadcast_to(v, shape) for v in values])
     slacks = np.stack([slack(c, v) for c, v in zip(criteria, values)])
+    if any(c.kind.needs_stability for c in criteria):
+        stable = np.broadcast_to(np.asarray(measures.modes.stable, bool), shape)
+        for k, c in enumerate(criteria):
+            if c.kind.needs_stability:
+                slacks[k] = np.where(stable, slacks[k], -INF)
     return CriteriaResult(tuple(criteria), values, slacks)
