@@ -51,47 +51,50 @@ def _default(spec):
     return f"`{d}`"
 
 
-def _rows(section, path, out, groups):
+def _section_doc(spec, grouped):
+    if isinstance(spec, schema.Items):
+        doc = (spec.item.doc or "") + " A list; each item has the keys below."
+    else:
+        doc = spec.doc or ""
+    if grouped:
+        doc += " (one of a group: see above)"
+    return doc
+
+
+def _render_section(section, path, lines, doc=None):
+    """A section's heading, its own keys in one table, then each sub-section in turn."""
+    title = f"`{path}`" if path else "top level"
+    lines.append(f"\n## {title}\n")
+    if doc:
+        lines.append(f"{doc}\n")
+    for group in getattr(section, "exactly_one", ()):
+        lines.append(f"Give exactly one of: {', '.join('`' + g + '`' for g in group)}.\n")
+    for group in getattr(section, "at_most_one", ()):
+        lines.append(f"Give at most one of: {', '.join('`' + g + '`' for g in group)}.\n")
     grouped = {k for g in section.exactly_one for k in g}
+    own, subs = [], []
     for key, spec in section.fields.items():
         full = f"{path}.{key}" if path else key
         if isinstance(spec, schema.Section):
-            out.append(("section", full, spec, key in grouped))
-            _rows(spec, full, out, groups)
+            subs.append((full, spec, spec, key in grouped))
+            own.append(f"| `{key}` | section | {'one of a group' if key in grouped else _default(spec)} | {spec.doc} See `{full}`. |")
         elif isinstance(spec, schema.Items) and isinstance(spec.item, schema.Section):
-            out.append(("list", full, spec, False))
-            _rows(spec.item, f"{full}[]", out, groups)
+            subs.append((full, spec, spec.item, False))
+            own.append(f"| `{key}` | list of sections | {_default(spec)} | {spec.item.doc or spec.doc} See `{full}`. |")
         else:
-            out.append(("key", full, spec, key in grouped))
+            default = "one of a group" if key in grouped else _default(spec)
+            own.append(f"| `{key}` | {spec.describe().replace('|', '/')} | {default} | {spec.doc} |")
+    if own:
+        lines.append("| key | type | default | meaning |\n|---|---|---|---|")
+        lines.extend(own)
+    for full, spec, inner, is_grouped in subs:
+        item_path = full if isinstance(spec, schema.Section) else f"{full}[]"
+        _render_section(inner, item_path, lines, _section_doc(spec, is_grouped))
 
 
 def render() -> str:
-    rows = []
-    _rows(schema.CASE, "", rows, None)
     lines = [HEADER]
-    table_open = False
-    for kind, path, spec, grouped in rows:
-        if kind in ("section", "list"):
-            doc = spec.doc if kind == "section" else (spec.doc or "") + " (a list)"
-            if isinstance(spec, schema.Items):
-                doc = (spec.item.doc or "") + " A list; each item has the keys below."
-            if grouped:
-                doc += " (one of a group: see above)"
-            lines.append(f"\n## `{path}`\n\n{doc}\n")
-            sec = spec if isinstance(spec, schema.Section) else spec.item
-            for group in getattr(sec, "exactly_one", ()):
-                lines.append(f"Give exactly one of: {', '.join('`' + g + '`' for g in group)}.\n")
-            for group in getattr(sec, "at_most_one", ()):
-                lines.append(f"Give at most one of: {', '.join('`' + g + '`' for g in group)}.\n")
-            lines.append("| key | type | default | meaning |\n|---|---|---|---|")
-            table_open = True
-            continue
-        if not table_open:
-            lines.append("\n## top level\n\n| key | type | default | meaning |\n|---|---|---|---|")
-            table_open = True
-        name = path.rsplit(".", 1)[-1]
-        default = "one of a group" if grouped else _default(spec)
-        lines.append(f"| `{name}` | {spec.describe().replace('|', '/')} | {default} | {spec.doc} |")
+    _render_section(schema.CASE, "", lines)
     return "\n".join(lines) + "\n"
 
 
