@@ -4,8 +4,11 @@
   (pilot command summed with the damper at the actuator input), see
   :mod:`damper.measures.equivalent`;
 * control anticipation parameter ``CAP = wn^2 / (n/alpha)`` with
-  ``n/alpha = (V / g) (1/T_theta2)`` from the bare airframe (equal to
-  ``-Z_alpha / g`` when ``Z_delta`` = 0; MIL-F-8785C usage, from memory);
+  ``n/alpha = (V / g) (1/T_theta2)`` from the bare airframe at constant speed (equal to
+  ``-Z_alpha / g`` when ``Z_delta`` = 0; MIL-F-8785C usage, from memory); for a
+  longitudinal airframe that is its two-state short-period part (constant speed is the
+  definition of n/alpha), while the equivalent fit fixes the airframe's own 1/T_theta2
+  (:func:`damper.model.airframes.inverse_t_theta2`);
 * pitch-attitude bandwidth and phase delay of ``theta / command = (q / command) / s``,
   with the command counted positive nose-up (the one convention,
   :func:`damper.model.airframe.nose_up_surface`), so that the attitude response starts
@@ -18,6 +21,7 @@ import numpy as np
 
 from ..atmosphere import G0
 from ..model import airframe as af
+from ..model import airframes
 from ..model.batch import batch_shape, flatten, map_arrays
 from ..model.loop import Loop
 from .equivalent import fit_equivalent_system, fit_frequencies
@@ -28,12 +32,18 @@ BANDWIDTH_STEP = np.deg2rad(45.0)
 BANDWIDTH_PASSES = 6
 
 
-def load_factor_per_alpha(d: af.Derivatives):
-    """n/alpha, g per rad: ``(V / g) (1/T_theta2)`` of the bare airframe."""
-    return np.asarray(d.airspeed) / G0 * af.inverse_t_theta2(d)
+def load_factor_per_alpha(d):
+    """n/alpha, g per rad: ``(V / g) (1/T_theta2)`` of the bare airframe at constant speed.
+
+    n/alpha is the steady normal-load-factor change per unit angle of attack at constant
+    speed (references: MIL-F-8785C usage, from memory), so a longitudinal airframe gives
+    the value of its two-state short-period part (the same derivatives, speed held).
+    """
+    sp = airframes.short_period_part(d)
+    return np.asarray(sp.airspeed) / G0 * af.inverse_t_theta2(sp)
 
 
-def control_anticipation(natural_frequency, d: af.Derivatives):
+def control_anticipation(natural_frequency, d):
     """CAP = wn^2 / (n/alpha), (rad/s^2) per g."""
     return np.asarray(natural_frequency) ** 2 / load_factor_per_alpha(d)
 
@@ -49,7 +59,7 @@ def equivalent_system(loop: Loop, free_zero=False, w=None):
     w = fit_frequencies() if w is None else np.asarray(w, dtype=float)
     shape = batch_shape(loop)
     log_h = pilot_log_response(loop, w).reshape(shape + (w.size,))
-    zero = np.broadcast_to(af.inverse_t_theta2(loop.airframe), shape)
+    zero = np.broadcast_to(airframes.inverse_t_theta2(loop.airframe), shape)
     # a response that vanishes or is not finite (no control power) has no equivalent system
     bad = ~np.all(np.isfinite(log_h), -1) | ~np.isfinite(zero)
     if np.any(bad):
