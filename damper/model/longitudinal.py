@@ -114,29 +114,7 @@ def short_period_part(d: LongitudinalDerivatives) -> af.Derivatives:
 
 
 def from_coefficients(
-    *,
-    dynamic_pressure,
-    airspeed,
-    mass,
-    pitch_inertia,
-    wing_area,
-    mean_chord,
-    CL_alpha,
-    CD,
-    CL_delta,
-    Cm_alpha,
-    Cm_alpha_dot,
-    Cm_q,
-    Cm_delta,
-    CL_u,
-    CD_u,
-    Cm_u,
-    CT_u,
-    CD_alpha,
-    CL_q=0.0,
-    CD_delta=0.0,
-    flight_path_angle=0.0,
-    gravity=G0,
+    *, CL_u, CD_u, Cm_u, CT_u, CD_alpha, CD_delta=0.0, flight_path_angle=0.0, gravity=G0, **short
 ) -> LongitudinalDerivatives:
     """Dimensional longitudinal derivatives from non-dimensional coefficients (stability axes).
 
@@ -153,11 +131,6 @@ def from_coefficients(
 
     Parameters
     ----------
-    dynamic_pressure : array_like
-        Pa. airspeed : m/s (true). mass : kg. pitch_inertia : kg m^2.
-        wing_area : m^2. mean_chord : m.
-    CL_alpha, CD, CL_delta, Cm_alpha, Cm_delta, Cm_alpha_dot, Cm_q, CL_q : array_like
-        As in :func:`damper.model.airframe.from_coefficients` (CD the trim drag coefficient).
     CL_u, CD_u, Cm_u : array_like
         Speed derivatives ``V dC/du`` (dimensionless: per unit relative speed change).
     CT_u : array_like
@@ -170,33 +143,24 @@ def from_coefficients(
         Drag per elevator, per rad (default 0).
     flight_path_angle : array_like
         rad. gravity : m/s^2.
+    **short
+        The keyword arguments of :func:`damper.model.airframe.from_coefficients`
+        (``dynamic_pressure`` Pa, ``airspeed`` m/s, ``mass`` kg, ``pitch_inertia`` kg m^2,
+        ``wing_area`` m^2, ``mean_chord`` m, ``CL_alpha``, ``CD`` (trim drag coefficient),
+        ``CL_delta``, ``Cm_alpha``, ``Cm_alpha_dot``, ``Cm_q``, ``Cm_delta``, ``CL_q``).
     """
-    short = af.from_coefficients(
-        dynamic_pressure=dynamic_pressure,
-        airspeed=airspeed,
-        mass=mass,
-        pitch_inertia=pitch_inertia,
-        wing_area=wing_area,
-        mean_chord=mean_chord,
-        CL_alpha=CL_alpha,
-        CD=CD,
-        CL_delta=CL_delta,
-        Cm_alpha=Cm_alpha,
-        Cm_alpha_dot=Cm_alpha_dot,
-        Cm_q=Cm_q,
-        Cm_delta=Cm_delta,
-        CL_q=CL_q,
-    )
-    v = np.asarray(airspeed, dtype=float)
-    qs = np.asarray(dynamic_pressure, dtype=float) * wing_area
+    d = af.from_coefficients(**short)
+    v = np.asarray(short["airspeed"], dtype=float)
+    qbar, area, mass = short["dynamic_pressure"], short["wing_area"], short["mass"]
+    qs = np.asarray(qbar, dtype=float) * area
     per_mass = qs / mass
-    cl_trim = trim_lift_coefficient(dynamic_pressure, wing_area, mass, flight_path_angle, gravity)
+    cl_trim = trim_lift_coefficient(qbar, area, mass, flight_path_angle, gravity)
     return with_speed_terms(
-        short,
-        X_u=(np.asarray(CT_u) - CD_u - 2.0 * np.asarray(CD)) * per_mass / v,
+        d,
+        X_u=(np.asarray(CT_u) - CD_u - 2.0 * np.asarray(short["CD"])) * per_mass / v,
         X_alpha=(cl_trim - CD_alpha) * per_mass,
         Z_u=-(np.asarray(CL_u) + 2.0 * cl_trim) * per_mass / v,
-        M_u=np.asarray(Cm_u) * qs * mean_chord / (pitch_inertia * v),
+        M_u=np.asarray(Cm_u) * qs * short["mean_chord"] / (short["pitch_inertia"] * v),
         X_delta=-np.asarray(CD_delta) * per_mass,
         flight_path_angle=np.asarray(flight_path_angle, dtype=float),
         gravity=np.asarray(gravity, dtype=float),
@@ -414,8 +378,9 @@ class PitchRatePolynomials:
     Attributes
     ----------
     numerator : ndarray, shape (..., 4)
-        1/s^2 times s^k coefficients; q/delta in 1/s.
+        Coefficients of ``s^k``; numerator over denominator is q/delta in 1/s.
     denominator : ndarray, shape (..., 5)
+        The characteristic quartic divided by ``s^cancelled`` (zero-padded at the top).
     cancelled : ndarray of int
         Origin roots cancelled (0 for a full model with gravity and speed terms; 2 when
         the speed terms and the flight-path angle are zero).
@@ -535,3 +500,14 @@ def pitch_rate_factors(d: LongitudinalDerivatives):
     den = real_factors(p.denominator.reshape(-1, 5), 2)
     den = [tuple(c.reshape(shape) for c in f) for f in den]
     return [origin, theta], den
+
+
+def inverse_t_theta1(d: LongitudinalDerivatives):
+    """1/T_theta1 (1/s): the other (phugoid) zero of theta/delta, ``n0 / (n2 (1/T_theta2))``.
+
+    The product of the two zeros is ``n0 / n2``; with :func:`inverse_t_theta2` this gives the
+    small zero exactly where the zeros are real (0 where ``n0 = 0``, no speed coupling).
+    """
+    tp = transfer_polynomials(d)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return tp.theta[..., 0] / (tp.theta[..., 2] * inverse_t_theta2(d))
