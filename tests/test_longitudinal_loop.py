@@ -394,3 +394,17 @@ def test_attitude_bandwidth_of_the_four_state_loop(sign):
     assert bw.phase_crossover == pytest.approx(w180, rel=1e-6)
     assert bw.bandwidth_phase == pytest.approx(wbp, rel=1e-6)
     assert bw.bandwidth_gain == pytest.approx(wbg, rel=1e-6)
+
+
+def test_a_washout_lets_pitch_rate_feedback_destabilise_the_phugoid():
+    # The statement of docs/theory.md s.8, checked with python-control's closed-loop poles
+    # (oracle): textbook example, 20 rad/s actuator; with a 2 s washout the slow pair is
+    # divergent at K = 1 s, without a washout it is stable and better damped than bare.
+    for washout, unstable in ((Washout(2.0), True), (None, False)):
+        loop = Loop(textbook_longitudinal(), Hardware(actuator=Lag(1 / 20.0), washout=washout), np.array([1.0]))
+        poles = control.feedback(to_control(loop, (0,), "loop"), 1).poles()
+        oscillatory = poles[np.abs(poles.imag) > 1e-9]
+        slow = oscillatory[np.argmin(np.abs(oscillatory))]
+        assert (slow.real > 0) == unstable
+        ph = loop_modes(loop).phugoid
+        assert ph.roots[0, 0] == pytest.approx(slow, rel=1e-9) or ph.roots[0, 1] == pytest.approx(slow, rel=1e-9)
