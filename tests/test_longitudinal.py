@@ -1,5 +1,7 @@
 """The four-state longitudinal airframe: equations, transfer functions, coefficients, phugoid."""
 
+from dataclasses import replace
+
 import control
 import numpy as np
 import pytest
@@ -90,6 +92,24 @@ def test_pitch_rate_factors_multiply_to_the_polynomials(rng):
 
     want = pitch_rate_response(d, s)
     np.testing.assert_allclose(product(num) / product(den), want, rtol=1e-12)
+    # a batch mixing the three structures of cancellation (none; one root, Z_u = M_u = 0;
+    # two roots, every speed term zero), checked against the uncancelled polynomials
+    mixed = replace(
+        d,
+        Z_u=np.where(np.arange(30) % 3 > 0, 0.0, d.Z_u),
+        M_u=np.where(np.arange(30) % 3 > 0, 0.0, d.M_u),
+        X_u=np.where(np.arange(30) % 3 > 1, 0.0, d.X_u),
+        X_alpha=np.where(np.arange(30) % 3 > 1, 0.0, d.X_alpha),
+        X_delta=np.where(np.arange(30) % 3 > 1, 0.0, d.X_delta),
+        flight_path_angle=0.0,
+    )
+    np.testing.assert_array_equal(pitch_rate_polynomials(mixed).cancelled, np.arange(30) % 3)
+    num, den = pitch_rate_factors(mixed)
+    tp = transfer_polynomials(mixed)
+    full = np.polynomial.polynomial.polyval(s, tp.q.T, tensor=False) / np.polynomial.polynomial.polyval(
+        s, tp.denominator.T, tensor=False
+    )
+    np.testing.assert_allclose(product(num) / product(den), full, rtol=1e-12)
     # every factor is real and of degree at most two (complex pairs combined)
     for f in (*num, *den):
         assert all(np.isrealobj(c) for c in f)
