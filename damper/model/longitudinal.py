@@ -459,8 +459,8 @@ def inverse_t_theta2(d: LongitudinalDerivatives):
 
     theta/delta has the numerator ``n2 s^2 + n1 s + n0 = n2 (s + 1/T_theta1)(s + 1/T_theta2)``;
     1/T_theta2 is minus its root of larger magnitude (the phugoid's zero 1/T_theta1 is the
-    small one). Where ``n0 = 0`` exactly (no speed coupling) it is ``n1 / n2``, equal bit for
-    bit to the two-state value; where the roots are complex, or ``n2 = 0``, the two-state
+    small one). Where ``n0 = 0`` exactly it is ``n1 / n2`` (with the speed terms zero, the
+    two-state value bit for bit); where the roots are complex, or ``n2 = 0``, the two-state
     value (:func:`damper.model.airframe.inverse_t_theta2` of :func:`short_period_part`).
     """
     tp = transfer_polynomials(d)
