@@ -47,3 +47,37 @@ def random_derivatives(rng, n, unstable_fraction=0.0):
         M_delta=-rng.uniform(3, 60, n),
     )
     return d
+
+
+#: Speed derivatives of the textbook general-aviation example (Nelson, Flight Stability
+#: and Automatic Control, 2nd ed., chapter 4, dimensional derivatives, from memory):
+#: X_u = -0.045 1/s, X_w = 0.036 1/s (so X_alpha = u0 X_w), Z_u = -0.369 1/s, M_u = 0.
+TEXTBOOK_GA_SPEED = dict(X_u=-0.045, X_alpha=0.036 * 176 * FT, Z_u=-0.369, M_u=0.0)
+
+
+def textbook_longitudinal():
+    """The textbook general-aviation example as a four-state longitudinal model."""
+    from damper.model.longitudinal import with_speed_terms
+
+    return with_speed_terms(TEXTBOOK_GA, **TEXTBOOK_GA_SPEED)
+
+
+def random_longitudinal(rng, n, unstable_fraction=0.0, climb=False):
+    """Invented, physically plausible random longitudinal derivatives (test data only).
+
+    The short-period part is :func:`random_derivatives`; Z_u near -2 g / V (level flight),
+    X_u a small drag term, X_alpha of either sign, M_u a small tuck or thrust effect.
+    """
+    from damper.model.longitudinal import with_speed_terms
+
+    d = random_derivatives(rng, n, unstable_fraction)
+    v = d.airspeed
+    return with_speed_terms(
+        d,
+        X_u=-rng.uniform(0.005, 0.08, n),
+        X_alpha=rng.uniform(-3.0, 10.0, n),
+        Z_u=-2 * 9.80665 / v * rng.uniform(0.8, 1.2, n),
+        M_u=rng.uniform(-0.003, 0.003, n),
+        X_delta=rng.uniform(-1.0, 1.0, n),
+        flight_path_angle=rng.uniform(-0.1, 0.1, n) if climb else 0.0,
+    )

@@ -4,8 +4,11 @@
   (pilot command summed with the damper at the actuator input), see
   :mod:`damper.measures.equivalent`;
 * control anticipation parameter ``CAP = wn^2 / (n/alpha)`` with
-  ``n/alpha = (V / g) (1/T_theta2)`` from the bare airframe (equal to
-  ``-Z_alpha / g`` when ``Z_delta`` = 0; MIL-F-8785C usage, from memory);
+  ``n/alpha = (V / g) (1/T_theta2)`` from the bare airframe at constant speed (equal to
+  ``-Z_alpha / g`` when ``Z_delta`` = 0; MIL-F-8785C usage, from memory); for a
+  longitudinal airframe that is its two-state short-period part (constant speed is the
+  definition of n/alpha), while the equivalent fit fixes the airframe's own 1/T_theta2
+  (:func:`damper.model.airframes.inverse_t_theta2`);
 * pitch-attitude bandwidth and phase delay of ``theta / command = (q / command) / s``,
   with the command counted positive nose-up (the one convention,
   :func:`damper.model.airframe.nose_up_surface`), so that the attitude response starts
@@ -18,6 +21,7 @@ import numpy as np
 
 from ..atmosphere import G0
 from ..model import airframe as af
+from ..model import airframes
 from ..model.batch import batch_shape, flatten, map_arrays
 from ..model.loop import Loop
 from .equivalent import fit_equivalent_system, fit_frequencies
@@ -28,18 +32,40 @@ BANDWIDTH_STEP = np.deg2rad(45.0)
 BANDWIDTH_PASSES = 6
 
 
-def load_factor_per_alpha(d: af.Derivatives):
-    """n/alpha, g per rad: ``(V / g) (1/T_theta2)`` of the bare airframe."""
-    return np.asarray(d.airspeed) / G0 * af.inverse_t_theta2(d)
+def load_factor_per_alpha(d):
+    """n/alpha, g per rad: ``(V / g) (1/T_theta2)`` of the bare airframe at constant speed.
+
+    n/alpha is the steady normal-load-factor change per unit angle of attack at constant
+    speed (references: MIL-F-8785C usage, from memory), so a longitudinal airframe gives
+    the value of its two-state short-period part (the same derivatives, speed held).
+    """
+    sp = airframes.short_period_part(d)
+    return np.asarray(sp.airspeed) / G0 * af.inverse_t_theta2(sp)
 
 
-def control_anticipation(natural_frequency, d: af.Derivatives):
+def control_anticipation(natural_frequency, d):
     """CAP = wn^2 / (n/alpha), (rad/s^2) per g."""
     return np.asarray(natural_frequency) ** 2 / load_factor_per_alpha(d)
 
 
-def equivalent_system(loop: Loop, free_zero=False, w=None):
+def equivalent_system(loop: Loop, free_zero=False, w=None, phugoid=None):
     """Low-order equivalent system fit of every loop in the batch.
+
+    Parameters
+    ----------
+    loop : Loop
+        Any batch shape, either airframe model.
+    free_zero : bool
+        Fit 1/T_theta2 too (default: fixed at the airframe's,
+        :func:`damper.model.airframes.inverse_t_theta2`).
+    w : array_like, optional
+        Fit frequencies, rad/s (default 30 from 0.1 to 10).
+    phugoid : SecondOrderMode, optional
+        Closed-loop phugoid of a longitudinal loop (:func:`damper.measures.modes.loop_modes`).
+        When given, its known factor ``s (s + 1/T_theta1) / ((s - l1)(s - l2))`` is taken out of
+        the response before the short-period form is fitted (:func:`phugoid_log_factor`);
+        without it a phugoid inside the band stays in the data and shows in the mismatch.
+        Ignored for a two-state airframe.
 
     Returns
     -------
@@ -49,7 +75,9 @@ def equivalent_system(loop: Loop, free_zero=False, w=None):
     w = fit_frequencies() if w is None else np.asarray(w, dtype=float)
     shape = batch_shape(loop)
     log_h = pilot_log_response(loop, w).reshape(shape + (w.size,))
-    zero = np.broadcast_to(af.inverse_t_theta2(loop.airframe), shape)
+    if phugoid is not None and airframes.is_longitudinal(loop.airframe):
+        log_h = log_h - phugoid_log_factor(loop, phugoid, w).reshape(shape + (w.size,))
+    zero = np.broadcast_to(airframes.inverse_t_theta2(loop.airframe), shape)
     # a response that vanishes or is not finite (no control power) has no equivalent system
     bad = ~np.all(np.isfinite(log_h), -1) | ~np.isfinite(zero)
     if np.any(bad):
@@ -61,6 +89,39 @@ def equivalent_system(loop: Loop, free_zero=False, w=None):
 
         fit = replace(fit, converged=np.asarray(fit.converged) & ~bad)
     return usable_fit(fit, w)
+
+
+def phugoid_log_factor(loop: Loop, phugoid, w):
+    """``ln`` of the phugoid's known factor ``s (s + 1/T_theta1) / ((s - l1)(s - l2))`` at ``jw``.
+
+    The pitch-rate response of a longitudinal loop with ideal hardware is exactly
+    ``Kq s (s + 1/T_theta1)(s + 1/T_theta2) / (phugoid quadratic x short-period quadratic)``
+    (the closed-loop characteristic quartic is the product of the two modal pairs), so
+    dividing by this factor leaves the short-period form of the equivalent system: the form
+    with phugoid terms of MIL-STD-1797A's pitch equivalent systems with the phugoid and
+    1/T_theta1 held at known values (from memory). ``l1, l2`` are the phugoid's roots (1/s),
+    ``1/T_theta1`` the bare airframe's (:func:`damper.model.longitudinal.inverse_t_theta1`).
+
+    Returns
+    -------
+    ndarray of complex, shape (N, K)
+        ``ln|F| + j arg F`` (flat batch), real arithmetic per element (batch independent).
+    """
+    from ..model.longitudinal import inverse_t_theta1
+
+    flat, _ = flatten(loop)
+    n = int(np.prod(batch_shape(loop))) if batch_shape(loop) else 1
+    roots = np.asarray(phugoid.roots, dtype=complex).reshape(n, 2)
+    a = np.broadcast_to(inverse_t_theta1(flat.airframe), (n,))[:, None]
+    c0 = np.real(roots[:, 0] * roots[:, 1])[:, None]
+    c1 = -np.real(roots[:, 0] + roots[:, 1])[:, None]
+    w = np.broadcast_to(np.asarray(w, dtype=float), (n, np.shape(w)[-1]))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        quad_re, quad_im = c0 - w * w, c1 * w
+        out = np.empty(w.shape, complex)
+        out.real = np.log(w) + 0.5 * np.log(a * a + w * w) - 0.5 * np.log(quad_re * quad_re + quad_im * quad_im)
+        out.imag = 0.5 * np.pi + np.arctan2(w, a) - np.arctan2(quad_im, quad_re)
+    return out
 
 
 def pilot_log_response(loop: Loop, w):

@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import airframe as af
+from . import airframes
 from .batch import batch_shape, expand
 from .elements import Delay
 
@@ -65,15 +66,18 @@ class Loop:
 
     Attributes
     ----------
-    airframe : Derivatives
-        Bare-airframe derivatives (batched).
+    airframe : Derivatives or LongitudinalDerivatives
+        Bare-airframe derivatives (batched): the two-state short period
+        (:class:`damper.model.airframe.Derivatives`) or the four-state longitudinal model
+        (:class:`damper.model.longitudinal.LongitudinalDerivatives`); the type is the
+        same for the whole batch.
     hardware : Hardware
         Loop hardware (batched parameters, one structure).
     gain : ndarray
         Pitch-rate gain K, s (rad elevator per rad/s pitch rate).
     """
 
-    airframe: af.Derivatives
+    airframe: af.Derivatives | airframes.LongitudinalDerivatives
     hardware: Hardware = field(default_factory=Hardware)
     gain: np.ndarray = 0.0
 
@@ -107,7 +111,7 @@ def feedback_response(loop: Loop, s):
 
 
 def _plant_expanded(x: Loop, s):
-    return actuator_response(x, s) * af.pitch_rate_response(x.airframe, s) * feedback_response(x, s)
+    return actuator_response(x, s) * airframes.pitch_rate_response(x.airframe, s) * feedback_response(x, s)
 
 
 def _loop_expanded(x: Loop, s):
@@ -148,7 +152,7 @@ def loop_response_rational(loop: Loop, w):
     x = _with_axis(loop)
     s = 1j * np.asarray(w, dtype=float)
     k = feedback_sign(x.airframe) * np.asarray(x.gain, dtype=float)
-    out = k * actuator_response(x, s) * af.pitch_rate_response(x.airframe, s)
+    out = k * actuator_response(x, s) * airframes.pitch_rate_response(x.airframe, s)
     for element in x.hardware.feedback_elements():
         if element is not x.hardware.delay:
             out = out * element.response(s)
@@ -178,7 +182,7 @@ def pilot_pitch_rate_response(loop: Loop, w):
     """
     x = _with_axis(loop)
     s = 1j * np.asarray(w, dtype=float)
-    forward = actuator_response(x, s) * af.pitch_rate_response(x.airframe, s)
+    forward = actuator_response(x, s) * airframes.pitch_rate_response(x.airframe, s)
     k = feedback_sign(x.airframe) * np.asarray(x.gain, dtype=float)
     return af.nose_up_surface(x.airframe) * forward / (1.0 + k * forward * feedback_response(x, s))
 
@@ -200,19 +204,25 @@ class StateLayout:
         Indices of the airframe's angle of attack (rad) and pitch rate (rad/s).
     blocks : tuple of (label, start, stop)
         Slices of each block, in signal order.
+    u, theta : int or None
+        Indices of the forward-speed perturbation (m/s) and the pitch attitude (rad) of a
+        longitudinal airframe; None for the two-state short period.
     """
 
     n: int
     alpha: int
     q: int
     blocks: tuple
+    u: int | None = None
+    theta: int | None = None
 
 
-def _airframe_block(d: af.Derivatives):
-    A, B = af.state_matrices(d)
+def _airframe_block(d):
+    """The airframe's state space with pitch rate as its output (2 or 4 states)."""
+    A, B = airframes.state_matrices(d)
     shape = A.shape[:-2]
-    C = np.zeros(shape + (1, 2))
-    C[..., 0, 1] = 1.0
+    C = np.zeros(shape + (1, A.shape[-1]))
+    C[..., 0, airframes.state_names(d).index("q")] = 1.0
     D = np.zeros(shape + (1, 1))
     return A, B, C, D
 
@@ -269,8 +279,12 @@ def plant_state_space(loop: Loop):
         n = blk[0].shape[-1]
         spans.append((label, start, start + n))
         start += n
-    air = next(s for s in spans if s[0] == "airframe")
-    layout = StateLayout(n=start, alpha=air[1], q=air[1] + 1, blocks=tuple(spans))
+    start_air = next(s for s in spans if s[0] == "airframe")[1]
+    names = airframes.state_names(loop.airframe)
+    at = {name: start_air + i for i, name in enumerate(names)}
+    layout = StateLayout(
+        n=start, alpha=at["alpha"], q=at["q"], blocks=tuple(spans), u=at.get("u"), theta=at.get("theta")
+    )
     return (A, B, C, D), layout
 
 
@@ -298,7 +312,8 @@ def to_control(loop: Loop, index=(), kind="closed"):
     index : tuple
         Batch index of the loop to export.
     kind : {"closed", "open", "loop"}
-        ``"closed"``: pilot command to (alpha rad, q rad/s); ``"open"``: the plant
+        ``"closed"``: pilot command to (alpha rad, q rad/s), and for a longitudinal
+        airframe also (u m/s, theta rad), in that order; ``"open"``: the plant
         ``P`` (actuator input to measurement); ``"loop"``: ``L = sign(M_delta) K P``.
         Delays are Pade approximants of the configured order.
     """
@@ -309,10 +324,10 @@ def to_control(loop: Loop, index=(), kind="closed"):
         shape = batch_shape(loop)
         A = np.broadcast_to(A, shape + A.shape[-2:])[index]
         B = np.broadcast_to(B, shape + B.shape[-2:])[index]
-        C = np.zeros((2, layout.n))
-        C[0, layout.alpha] = 1.0
-        C[1, layout.q] = 1.0
-        return control.ss(A, B, C, np.zeros((2, 1)))
+        outputs = [i for i in (layout.alpha, layout.q, layout.u, layout.theta) if i is not None]
+        C = np.zeros((len(outputs), layout.n))
+        C[np.arange(len(outputs)), outputs] = 1.0
+        return control.ss(A, B, C, np.zeros((len(outputs), 1)))
     (A, B, C, D), layout = plant_state_space(loop)
     shape = batch_shape(loop)
     A, B, C, D = (np.broadcast_to(m, shape + m.shape[-2:])[index] for m in (A, B, C, D))

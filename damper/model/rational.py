@@ -5,8 +5,17 @@ Broken at the actuator input (docs/theory.md, section 3) the loop is::
     L(s) = k * prod_i n_i(s) / prod_j d_j(s) * exp(-s T)
 
 with ``k = sign(M_delta) K`` times the elements' constant gains, and every factor a real
-polynomial ``c0 + c1 s + c2 s^2`` taken as it stands from an element or the airframe
-(nothing is factorised numerically). At ``s = jw`` a factor is ``(c0 - c2 w^2) + j c1 w``:
+polynomial ``c0 + c1 s + c2 s^2``. The elements and the two-state airframe give their
+factors as they stand (nothing is factorised numerically); the four-state longitudinal
+airframe gives the ``s`` of ``q = s theta`` and its attitude numerator as they stand, and its
+characteristic quartic factorised numerically from its roots (stacked companion-matrix
+eigenvalues, :mod:`damper.model.factorise`): conjugate pairs and pairs of real roots as
+quadratics, an odd real root as a linear factor, the same number of factors for every
+member of a batch, with the roots at the origin that numerator and denominator share
+cancelled exactly beforehand (:func:`damper.model.longitudinal.pitch_rate_polynomials`).
+The factored form then equals the loop to the rounding of those roots (about 1e-14
+relative; tested against the direct evaluation). At ``s = jw`` a factor is
+``(c0 - c2 w^2) + j c1 w``:
 
 * its phase ``atan2(c1 w, c0 - c2 w^2)`` is continuous for ``w > 0`` when ``c1 != 0``
   (the imaginary part keeps its sign), so the phase of ``L`` is the exact sum of the
@@ -28,6 +37,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import airframe as af
+from . import airframes
 from .batch import flatten
 from .elements import Delay
 
@@ -73,8 +83,7 @@ def _stack(factors, n):
 
 def _factored(flat, n, gain, elements) -> FactoredLoop:
     """Factored form of ``gain`` times the airframe's q/delta times ``elements`` (flat loop)."""
-    num_air, den_air = af.pitch_rate_factors(flat.airframe)
-    num, den = [num_air], [den_air]
+    num, den = airframes.pitch_rate_factors(flat.airframe)
     delay = np.zeros(n)
     gain = np.broadcast_to(gain, (n,)).copy()
     for element in elements:
