@@ -124,6 +124,9 @@ class EquivalentFit:
     converged : numpy.ndarray
         bool; True when the iteration of the retained start met a stopping
         test before ``max_iterations``.
+    fallback : numpy.ndarray
+        bool; True where all the starts were iterated (the data-derived start alone did not
+        converge or left a mismatch above :data:`FALLBACK_MISMATCH`).
     """
 
     damping_ratio: np.ndarray
@@ -133,6 +136,7 @@ class EquivalentFit:
     inv_t_theta2: np.ndarray
     mismatch: np.ndarray
     converged: np.ndarray
+    fallback: np.ndarray = False
 
 
 def fit_frequencies(n: int = 30, low: float = 0.1, high: float = 10.0) -> np.ndarray:
@@ -356,6 +360,10 @@ def _interp_rows(x, y, xq):
     return y[rows, idx] + t * (y[rows, idx + 1] - y[rows, idx])
 
 
+#: A single-start fit whose mismatch J is above this is repeated from every start (the data-
+#: derived start found a poor basin); dimensionless, as J.
+FALLBACK_MISMATCH = 20.0
+
 # Starts as (zeta_e, multiplier of the data-derived w_e); "data" stands for
 # the data-derived damping ratio.
 _START_SPREAD = (
@@ -368,7 +376,7 @@ _START_SPREAD = (
 )
 
 
-def _starting_points(w, log_h, zero, free_zero):
+def _starting_points(w, log_h, zero, free_zero, spread=_START_SPREAD):
     """Stacked starting parameters, shape (N, S, p), for S starts per system.
 
     ``tau_e`` starts at 0 s; ``ln|Kq|`` of each start is the closed-form
@@ -380,7 +388,7 @@ def _starting_points(w, log_h, zero, free_zero):
     starts = []
     w2 = w * w
     level = log_h.real - np.log(np.hypot(zero[:, None], w))  # ln|H / (jw + zero)|, no overflow
-    for zeta_spec, w_mult in _START_SPREAD:
+    for zeta_spec, w_mult in spread:
         zeta = zeta_d if zeta_spec == "data" else np.full(n_sys, float(zeta_spec))
         w_e = w_d * w_mult
         par = np.zeros((n_sys, p))
@@ -571,6 +579,7 @@ def fit_equivalent_system(
     free_zero: bool = False,
     max_iterations: int = 60,
     log_response: bool = False,
+    starts: str = "fallback",
 ) -> EquivalentFit:
     """Fit the pitch-rate LOES to a batch of high-order frequency responses.
 
@@ -595,6 +604,10 @@ def fit_equivalent_system(
     log_response : bool, optional
         ``response`` is already the natural log of the response,
         ``ln|H| + j arg H`` (any branch of the phase). Default False.
+    starts : {"fallback", "all"}, optional
+        ``"fallback"`` (default): the data-derived start alone, and all six starts only for
+        a system whose single fit does not converge or leaves a mismatch above
+        :data:`FALLBACK_MISMATCH`; ``"all"``: six starts for every system.
 
     Returns
     -------
@@ -636,9 +649,46 @@ def fit_equivalent_system(
     nw = w.size
     log_h = h.reshape(n_sys, nw) if log_response else np.log(h.reshape(n_sys, nw))
     zero = zero_b.reshape(n_sys).astype(float)
-    scale = np.sqrt(20.0 / nw)
+    args = (w, free_zero, max_iterations)
+    if starts == "all":
+        par_b, sign_b, conv_b, cost_b = _fit_from(log_h, zero, *args, _START_SPREAD)
+        fallback = np.ones(n_sys, bool)
+    else:
+        # the data-derived start alone; all starts only where it does not converge or
+        # leaves a large mismatch (each system decided on its own)
+        par_b, sign_b, conv_b, cost_b = _fit_from(log_h, zero, *args, _START_SPREAD[:1])
+        # a pair that drifted off along the first-order valley is not repeated: every start
+        # drifts the same way there (the fit is unusable whatever the start)
+        drifted = ~conv_b & (par_b[:, _Z] > _ASINH_DRIFT_ZETA)
+        fallback = (~conv_b & ~drifted) | ~(cost_b <= FALLBACK_MISMATCH)
+        if np.any(fallback):
+            k = np.nonzero(fallback)[0]
+            p2, s2, c2, j2 = _fit_from(log_h[k], zero[k], *args, _START_SPREAD)
+            better = j2 < cost_b[k]
+            kb = k[better]
+            par_b[kb], sign_b[kb], conv_b[kb], cost_b[kb] = p2[better], s2[better], c2[better], j2[better]
 
-    start = _starting_points(w, log_h, zero, free_zero)  # (N, S, p)
+    def shaped(x):
+        return np.asarray(x).reshape(batch)
+
+    zero_out = np.exp(par_b[:, _LN_ZERO]) if free_zero else zero
+    return EquivalentFit(
+        damping_ratio=shaped(np.sinh(par_b[:, _Z])),
+        natural_frequency=shaped(np.exp(par_b[:, _LN_W])),
+        time_delay=shaped(par_b[:, _TAU]),
+        gain=shaped(sign_b * np.exp(par_b[:, _LN_K])),
+        inv_t_theta2=shaped(zero_out),
+        mismatch=shaped(cost_b),
+        converged=shaped(conv_b),
+        fallback=shaped(fallback),
+    )
+
+
+def _fit_from(log_h, zero, w, free_zero, max_iterations, spread):
+    """Best fit per system from the starts of ``spread``: (params, gain sign, converged, cost)."""
+    n_sys, nw = log_h.shape
+    scale = np.sqrt(20.0 / nw)
+    start = _starting_points(w, log_h, zero, free_zero, spread)  # (N, S, p)
     n_start, p = start.shape[1], start.shape[2]
     rows = start.reshape(n_sys * n_start, p)
     zero_rows = np.repeat(zero, n_start)
@@ -670,18 +720,4 @@ def fit_equivalent_system(
     cost = np.where(np.isfinite(cost), cost, np.inf).reshape(n_sys, n_start)
     best = np.argmin(cost, axis=1)
     idx = np.arange(n_sys) * n_start + best
-    par_b, sign_b, conv_b = par[idx], sign_rows[idx], conv[idx]
-
-    def shaped(x):
-        return np.asarray(x).reshape(batch)
-
-    zero_out = np.exp(par_b[:, _LN_ZERO]) if free_zero else zero
-    return EquivalentFit(
-        damping_ratio=shaped(np.sinh(par_b[:, _Z])),
-        natural_frequency=shaped(np.exp(par_b[:, _LN_W])),
-        time_delay=shaped(par_b[:, _TAU]),
-        gain=shaped(sign_b * np.exp(par_b[:, _LN_K])),
-        inv_t_theta2=shaped(zero_out),
-        mismatch=shaped(cost[np.arange(n_sys), best]),
-        converged=shaped(conv_b),
-    )
+    return par[idx], sign_rows[idx], conv[idx], cost[np.arange(n_sys), best]
