@@ -55,35 +55,43 @@ def run(args, argv) -> int:
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
     from ..output.design_doc import design_document, design_table
-    from ..output.files import prepare_run_dir, write_atomic
+    from ..output.files import write_atomic
+    from ..output.journal import part
     from ..output.jsonout import dumps
+    from ..output.rundir import RunDirectory
 
     case = load_case(args.case)
-    out = prepare_run_dir(args.out, force=args.force)
-    warn_case(case)
-    settings = SearchSettings(
-        gain_min=args.gain_min,
-        gain_max=args.gain_max,
-        points=args.points,
-        policy=args.policy,
-        damping_target=args.target_damping,
-    )
     command = " ".join(["damper", *argv])
-    design = search(case, settings) if case.conditions else None
-    doc = design_document(case, design, command=command)
-    write_atomic(os.path.join(out, "design.json"), dumps(doc))
-    written = ["design.json"]
-    from ..output.background import PlotJobs
+    with RunDirectory(args.out, command, case.sha256, mode="new", force=args.force) as run:
+        out = run.root
+        warn_case(case)
+        settings = SearchSettings(
+            gain_min=args.gain_min,
+            gain_max=args.gain_max,
+            points=args.points,
+            policy=args.policy,
+            damping_target=args.target_damping,
+        )
+        design = search(case, settings) if case.conditions else None
+        doc = design_document(case, design, command=command)
+        with part("design"):
+            write_atomic(os.path.join(out, "design.json"), dumps(doc))
+        written = ["design.json"]
+        from ..output.background import PlotJobs
 
-    # figures are drawn by a worker process while the analysis goes on (see PlotJobs)
-    rob_planned = case.raw.get("uncertainty") is not None and not args.no_robustness
-    with PlotJobs(enabled=(design is not None or rob_planned) and not args.no_plots) as jobs:
-        robustness_text, spec, schedule = _analyses(args, case, design, out, command, jobs, written)
-    if not args.no_report:
-        from ..output.report import write_report
+        # figures are drawn by a worker process while the analysis goes on (see PlotJobs)
+        rob_planned = case.raw.get("uncertainty") is not None and not args.no_robustness
+        with PlotJobs(enabled=(design is not None or rob_planned) and not args.no_plots) as jobs:
+            robustness_text, spec, schedule = _analyses(args, case, design, out, command, jobs, written)
+        if not args.no_report:
+            from ..output.report import write_report
+            from ..output.runfiles import RunFiles
 
-        write_report(out)
-        written.append("report.html")
+            with part("report"):
+                write_report(out, RunFiles.verified(out, run.files()))
+            written.append("report.html")
+        run.finish()
+        written.append("manifest.json")
     print(f"{case.title}")
     if design is not None:
         print(design_table(doc))
@@ -112,6 +120,7 @@ def _analyses(args, case, design, out, command, jobs, written):
     once every queued figure is drawn.
     """
     from ..output.files import write_atomic
+    from ..output.journal import part
     from ..output.jsonout import dumps
 
     design_job = None
@@ -119,18 +128,20 @@ def _analyses(args, case, design, out, command, jobs, written):
         from ..output.plots import design_plot_jobs
 
         plot_jobs = design_plot_jobs(case, design, out)
-        design_job = [jobs.submit_group(plot_jobs[k : k + 3]) for k in range(0, len(plot_jobs), 3)]
+        with part("design"):
+            design_job = [jobs.submit_group(plot_jobs[k : k + 3]) for k in range(0, len(plot_jobs), 3)]
     schedule = None
     if case.raw.get("schedule") is not None:
         from ..analysis.schedule import design_schedule
         from ..output.schedule_out import write_schedule
 
         schedule = design_schedule(case)
-        written += write_schedule(out, case, schedule, command=command)
-        if not args.no_plots:  # drawn here while the worker draws the search's figures
-            from ..output.schedule_plots import schedule_plots
+        with part("schedule"):
+            written += write_schedule(out, case, schedule, command=command)
+            if not args.no_plots:  # drawn here while the worker draws the search's figures
+                from ..output.schedule_plots import schedule_plots
 
-            written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
+                written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
     if design is not None and not args.no_responses:
         import numpy as np
 
@@ -140,8 +151,9 @@ def _analyses(args, case, design, out, command, jobs, written):
         rspec = response_spec(case)
         gains = np.array([c.chosen_gain for c in design.conditions])
         responses = respond_case(case, gains, rspec)
-        write_responses(out, case, responses, rspec, command, plots=not args.no_plots, gain_text="chosen gain",
-                        jobs=jobs)
+        with part("responses"):
+            write_responses(out, case, responses, rspec, command, plots=not args.no_plots, gain_text="chosen gain",
+                            jobs=jobs)
         written.append("responses.json with time histories")
     robustness_text = spec = rob = rob_jobs = where = None
     studied = design is not None or schedule is not None
@@ -167,7 +179,8 @@ def _analyses(args, case, design, out, command, jobs, written):
             # four groups (the result is sent once per group): the worker and this process
             # share them at the end
             step = max(1, -(-len(rj) // 4))
-            rob_jobs = [jobs.submit_group(rj[k : k + step]) for k in range(0, len(rj), step)]
+            with part("robustness"):
+                rob_jobs = [jobs.submit_group(rj[k : k + step]) for k in range(0, len(rj), step)]
     jobs.finish()
     if design_job is not None:
         n = sum(len(jobs.paths(k)) for k in design_job)
@@ -179,7 +192,8 @@ def _analyses(args, case, design, out, command, jobs, written):
         if rob_jobs is not None:
             files += sorted(os.path.relpath(p, out) for k in rob_jobs for p in jobs.paths(k))
         rdoc = robustness_document(case, rob, command=command, files=files, where=where)
-        write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
+        with part("robustness"):
+            write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
         written.append("robustness.json" + (f" with {len(files) - 1} robustness plot files" if len(files) > 1 else ""))
         robustness_text = robustness_table(rdoc)
     return robustness_text, spec, schedule

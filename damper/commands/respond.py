@@ -15,45 +15,59 @@ def register(sub) -> str:
         "--gain", required=True, type=float, metavar="K", help="pitch-rate gain K in seconds (deg per deg/s)"
     )
     a.add_argument("--out", metavar="DIR", help="write CSV (one per condition and input), JSON and PNG/SVG plots here")
-    a.add_argument("--force", action="store_true", help="replace the files of an earlier run in DIR")
+    a.add_argument("--force", action="store_true",
+                   help="replace the responses of an earlier damper run in DIR (its other files are kept)")
     a.add_argument("--no-plots", action="store_true", help="with --out: skip the plots")
     return NAME
 
 
 def run(args, argv) -> int:
     import math
-    import os
 
     from ..analysis.response import respond_case, response_spec
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
     from ..errors import DamperError
-    from ..output.files import prepare_run_dir
-    from ..output.response_plots import response_document, response_table
+    from ..output.response_plots import response_document
 
     if not math.isfinite(args.gain):
         raise DamperError(f"--gain = {args.gain}: must be a finite number of seconds")
     case = load_case(args.case)
     warn_case(case)
-    out = prepare_run_dir(args.out, force=args.force) if args.out else None
-    spec = response_spec(case)
-    result = respond_case(case, args.gain, spec)
     command = " ".join(["damper", *argv])
-    doc = write_responses(out, case, result, spec, command, plots=not args.no_plots, gain_text=f"K = {args.gain:g} s") if out \
-        else response_document(case, result, command=command, files={})
+    if not args.out:
+        spec = response_spec(case)
+        result = respond_case(case, args.gain, spec)
+        doc = response_document(case, result, command=command, files={})
+        _print(case, args, spec, result, doc)
+        print("no files written (give --out DIR for CSV, JSON and plots)")
+        print(CAUTION_SHORT)
+        return 0
+    from ..output.journal import part
+    from ..output.report import refresh_report
+    from ..output.rundir import RunDirectory
+
+    with RunDirectory(args.out, command, case.sha256, mode="add", parts=("responses",), force=args.force) as run:
+        spec = response_spec(case)
+        result = respond_case(case, args.gain, spec)
+        with part("responses"):
+            doc = write_responses(run.root, case, result, spec, command, plots=not args.no_plots,
+                                  gain_text=f"K = {args.gain:g} s")
+        rebuilt = refresh_report(run)
+        run.finish()
+    _print(case, args, spec, result, doc)
+    print(f"wrote responses.json, CSV and plots to {run.root}" + ("; rebuilt report.html" if rebuilt else ""))
+    print(CAUTION_SHORT)
+    return 0
+
+
+def _print(case, args, spec, result, doc):
+    from ..output.response_plots import response_table
+
     print(f"{case.title}: time responses with K = {args.gain:g} s" + (" (default doublet)" if spec.default else ""))
     print(response_table(doc))
     for note in result.notes:
         print(f"note: {note}")
-    if out:
-        from ..output.report import refresh_report
-
-        rebuilt = refresh_report(out)
-        print(f"wrote responses.json, CSV and plots to {out}" + ("; rebuilt report.html" if rebuilt else ""))
-    else:
-        print("no files written (give --out DIR for CSV, JSON and plots)")
-    print(CAUTION_SHORT)
-    return 0
 
 
 def write_responses(out, case, result, spec, command, plots=True, gain_text="chosen gains", jobs=None):

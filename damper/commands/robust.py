@@ -26,7 +26,8 @@ def register(sub) -> str:
     p.add_argument("--seed", type=int, metavar="S", help="random seed (default: the case's, else 1)")
     p.add_argument("--workers", type=int, metavar="W", help="threads evaluating chunks (default: up to 2)")
     p.add_argument("--out", metavar="DIR", help="run directory to create (default: robust-<case name>)")
-    p.add_argument("--force", action="store_true", help="replace the files of an earlier run in DIR")
+    p.add_argument("--force", action="store_true",
+                   help="replace the robustness files of an earlier damper run in DIR (its other files are kept)")
     p.add_argument("--no-plots", action="store_true", help="skip the plots")
     p.add_argument("--quiet", action="store_true", help="no progress bar on standard error")
     return NAME
@@ -115,8 +116,11 @@ def run(args, argv) -> int:
     from ..analysis.robustness import gains_from_design, robustness, uncertainty_spec
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
-    from ..output.files import prepare_run_dir, write_atomic
+    from ..output.files import write_atomic
+    from ..output.journal import part
     from ..output.jsonout import dumps
+    from ..output.rundir import RunDirectory
+    from ..output.report import refresh_report
     from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
 
     case = load_case(args.case)
@@ -140,21 +144,27 @@ def run(args, argv) -> int:
         gains = args.gain
         source = f"K = {args.gain:g} s at every condition"
     stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
-    out = prepare_run_dir(args.out or f"robust-{stem}", force=args.force)
-    warn_case(case)
-    if not spec.parameters and spec.cg_shift is None:
-        print("damper: warning: the case has no uncertainty: section (or it is empty); every sample is the nominal",
-              file=sys.stderr)
-    start = time.perf_counter()
-    result = robustness(case, gains, spec, progress=None if args.quiet else _Progress(), workers=args.workers)
-    elapsed = time.perf_counter() - start
-    files = ["robustness.json"]
-    plot_paths = []
-    if not args.no_plots:
-        plot_paths = robustness_plots(case, result, out)
-        files += sorted(os.path.relpath(p, out) for p in plot_paths)
-    doc = robustness_document(case, result, command=" ".join(["damper", *argv]), files=files, where=where)
-    write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
+    command = " ".join(["damper", *argv])
+    with RunDirectory(args.out or f"robust-{stem}", command, case.sha256, mode="add", parts=("robustness",),
+                      force=args.force) as run:
+        out = run.root
+        warn_case(case)
+        if not spec.parameters and spec.cg_shift is None:
+            print("damper: warning: the case has no uncertainty: section (or it is empty); every sample is the nominal",
+                  file=sys.stderr)
+        start = time.perf_counter()
+        result = robustness(case, gains, spec, progress=None if args.quiet else _Progress(), workers=args.workers)
+        elapsed = time.perf_counter() - start
+        files = ["robustness.json"]
+        plot_paths = []
+        with part("robustness"):
+            if not args.no_plots:
+                plot_paths = robustness_plots(case, result, out)
+                files += sorted(os.path.relpath(p, out) for p in plot_paths)
+            doc = robustness_document(case, result, command=command, files=files, where=where)
+            write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
+        rebuilt = refresh_report(run)
+        run.finish()
     print(f"{case.title}: robustness with {source}")
     print(
         f"{spec.samples} samples (seed {spec.seed}), {len(result.corners_u)} corners"
@@ -167,9 +177,6 @@ def run(args, argv) -> int:
     if bad:
         print("note: equivalent-system fit did not converge for " + ", ".join(f"{n} ({k} samples)" for n, k in bad))
     written = "robustness.json" + (f" and {len(plot_paths)} plot files in plots/" if plot_paths else "")
-    from ..output.report import refresh_report
-
-    rebuilt = refresh_report(out)
     print(f"wrote {written} to {out}" + ("; rebuilt report.html" if rebuilt else ""))
     print(CAUTION_SHORT)
     return 0
