@@ -35,14 +35,6 @@ requirements:
 """
 
 
-# The same with a second condition (more outputs).
-TWO = ONE.replace("loop:", """  - name: extra-condition
-    airspeed: "150 kt"
-    altitude: "8000 ft"
-    coefficients: {CL_alpha: 5.2, CD: 0.035, CL_delta: 0.40, Cm_alpha: -0.7, Cm_alpha_dot: -3.6, Cm_q: -8.5, Cm_delta: -1.25}
-loop:""")
-
-
 def _files(root):
     """Every file under `root`, relative with '/' separators."""
     out = set()
@@ -68,16 +60,29 @@ def assert_one_complete_run(root):
     return manifest
 
 
-@pytest.fixture
-def one_case(tmp_path):
-    path = tmp_path / "one.yaml"
+@pytest.fixture(scope="module")
+def one_case(tmp_path_factory):
+    path = tmp_path_factory.mktemp("case") / "one.yaml"
     path.write_text(ONE, encoding="utf-8")
     return str(path)
 
 
-def test_design_writes_a_manifest_that_matches_its_files(tmp_path, one_case, capsys):
-    out = tmp_path / "run"
+@pytest.fixture(scope="module")
+def one_run(tmp_path_factory, one_case):
+    """A full design run (plots, responses, report) of the one-condition case; copy it to change it."""
+    out = tmp_path_factory.mktemp("runs") / "one"
     assert main(["design", one_case, "--out", str(out)]) == 0
+    return out
+
+
+def _copy(run, tmp_path):
+    import shutil
+
+    return shutil.copytree(run, tmp_path / "run")
+
+
+def test_design_writes_a_manifest_that_matches_its_files(one_run, one_case):
+    out = one_run
     manifest = assert_one_complete_run(out)
     with open(one_case, "rb") as fh:
         assert manifest["input_sha256"] == hashlib.sha256(fh.read()).hexdigest()
@@ -87,18 +92,17 @@ def test_design_writes_a_manifest_that_matches_its_files(tmp_path, one_case, cap
     assert any(p.startswith("plots/") and parts[p] == "design" for p in parts)  # drawn by the worker process
 
 
-def test_force_after_a_case_with_more_outputs_leaves_none_of_them(tmp_path, one_case, capsys):
+def test_force_after_a_case_with_more_outputs_leaves_none_of_them(tmp_path, one_run, capsys):
     # issue 17, problem 1a: plots and responses of the earlier run stayed and were embedded
-    two = tmp_path / "two.yaml"
-    two.write_text(TWO, encoding="utf-8")
-    out = tmp_path / "run"
-    assert main(["design", str(two), "--out", str(out)]) == 0
-    assert any(f.startswith("plots/extra-condition-") for f in _files(out))
-    assert main(["design", one_case, "--out", str(out), "--force", "--no-plots", "--no-responses"]) == 0
+    other = tmp_path / "other.yaml"
+    other.write_text(ONE.replace("only-one", "another-one"), encoding="utf-8")
+    out = _copy(one_run, tmp_path)
+    assert any(f.startswith("plots/only-one-") for f in _files(out)) and (out / "responses.json").exists()
+    assert main(["design", str(other), "--out", str(out), "--force", "--no-plots", "--no-responses"]) == 0
     assert_one_complete_run(out)
     assert _files(out) == {"design.json", "report.html", MANIFEST_NAME}
     html = (out / "report.html").read_text()
-    assert "data:image" not in html and "extra-condition" not in html
+    assert "data:image" not in html and "only-one" not in html and "another-one" in html
 
 
 def test_a_second_run_into_a_locked_directory_is_refused_naming_the_holder(tmp_path, one_case, capsys):
@@ -183,9 +187,8 @@ def test_the_root_directory_is_refused_without_advice_to_force(one_case, capsys)
     assert not os.path.exists(os.path.join("/", LOCK_NAME)) and not os.path.exists(os.path.join("/", JOURNAL_NAME))
 
 
-def test_respond_with_force_into_a_design_run_keeps_the_design_files(tmp_path, one_case, capsys):
-    out = tmp_path / "run"
-    assert main(["design", one_case, "--out", str(out)]) == 0
+def test_respond_with_force_into_a_design_run_keeps_the_design_files(tmp_path, one_run, one_case, capsys):
+    out = _copy(one_run, tmp_path)
     before = {f["path"]: f for f in assert_one_complete_run(out)["files"]}
     assert main(["respond", one_case, "--gain", "0.123", "--out", str(out)]) == 2  # without --force: refused
     assert "add --force to replace its responses (its other files are kept)" in capsys.readouterr().err
@@ -203,12 +206,11 @@ def test_respond_with_force_into_a_design_run_keeps_the_design_files(tmp_path, o
     assert commands[0].startswith("damper design") and commands[1].startswith("damper respond")
 
 
-def test_report_embeds_only_listed_files_with_matching_hashes(tmp_path, one_case, capsys):
-    out = tmp_path / "run"
-    assert main(["design", one_case, "--out", str(out), "--no-responses"]) == 0
+def test_report_embeds_only_listed_files_with_matching_hashes(tmp_path, one_run, capsys):
+    out = _copy(one_run, tmp_path)
     html = (out / "report.html").read_text()
     n_images = html.count("data:image")
-    assert n_images == 3  # root locus, loop response, gain sweep of the one condition
+    assert n_images == 4  # root locus, loop response, gain sweep and the doublet response of the one condition
     # change one plot (both its renderings) after the run: it is left out and named
     for ext in ("svg", "png"):
         path = out / "plots" / f"only-one-root-locus.{ext}"
@@ -221,9 +223,8 @@ def test_report_embeds_only_listed_files_with_matching_hashes(tmp_path, one_case
     assert "INCOMPLETE RUN" not in html
 
 
-def test_report_marks_an_incomplete_run(tmp_path, one_case, capsys):
-    out = tmp_path / "run"
-    assert main(["design", one_case, "--out", str(out), "--no-plots"]) == 0
+def test_report_marks_an_incomplete_run(tmp_path, one_run, capsys):
+    out = _copy(one_run, tmp_path)
     # make it look interrupted: a journal beside the design's files, no manifest
     manifest = json.loads((out / MANIFEST_NAME).read_text())
     lines = [json.dumps({"start": "damper design (test)"})]

@@ -26,6 +26,8 @@ import os
 
 import numpy as np
 
+from ..analysis.sample_stats import SLACK_EDGES
+from ..analysis.uncertainty import SHARD_SAMPLES
 from .design_doc import requirements_list
 from .jsonout import CAUTION, num, provenance
 from .text import fmt, table
@@ -159,6 +161,12 @@ def condition_document(case, result, i) -> dict:
             "top_driver": None if top is None else axes.names[top],
             "ranking": ranking,
         },
+        "worst_slack_histogram": {
+            "undefined": int(c.worst_slack_histogram[0]),
+            "below_lowest_edge": int(c.worst_slack_histogram[1]),
+            "counts": [int(k) for k in c.worst_slack_histogram[2:-1]],
+            "above_highest_edge": int(c.worst_slack_histogram[-1]),
+        },
         "corners": {"evaluated": c.corners, "passed_all": c.corners_passed_all},
         "diagnostics": {
             "equivalent_fits_not_converged": c.unconverged_fits,
@@ -193,6 +201,14 @@ def robustness_document(case, result, command=None, files=(), where=None) -> dic
                 "min_step": num(spec.refine_min_step),
             },
             "loops_evaluated": result.evaluations,
+            "shards": f"sample g is row g of default_rng(seed).random((samples, p)), regenerated from the seed and g "
+            f"alone; evaluated in shards of {SHARD_SAMPLES} samples and reduced as they stream",
+            "subsample": {
+                "size": int(result.shown),
+                "rule": "the first samples by sample index (every sample of a study this size or smaller); the "
+                "rank correlations and the scatter plots use them, every count uses every sample",
+            },
+            "worst_slack_histogram_edges": [num(x) for x in SLACK_EDGES],
             "frequency_domain": "exact delays; eigenvalues with a Pade approximant (loop.pade_order)",
         },
         "requirements": requirements_list(case),
@@ -474,9 +490,10 @@ def _draw_scatter(case, result, i):
     ax.set_ylabel("smallest gain margin, up or down (dB)")
     _title(fig, f"{c.name}: damping and gain margin under uncertainty (K = {c.gain:.4g} s)")
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=2, frameon=True)
+    shown_note = "" if c.shown >= c.samples else f"points: the first {c.shown} of {c.samples} samples\n"
     ax.text(
         0.985, 0.03,
-        f"meets every requirement: {c.passed_all}/{c.samples} samples ({_pct(c.fraction_all, 'down')} %)\n"
+        f"{shown_note}meets every requirement: {c.passed_all}/{c.samples} samples ({_pct(c.fraction_all, 'down')} %)\n"
         f"{100 * result.spec.confidence:.0f} % Clopper-Pearson interval "
         f"{_pct(c.lower_all, 'down')}-{_pct(c.upper_all, 'up')} %",
         transform=ax.transAxes, fontsize=7.5, va="bottom", ha="right", color=STYLE["ink"],
@@ -527,14 +544,15 @@ def _draw_sensitivity(case, result, i):
         txt = "n/a" if not np.isfinite(r) else f"{r:+.2f}"
         x = 0.0 if not np.isfinite(r) else r
         ax.text(x + (0.03 if x >= 0 else -0.03), yy, txt, va="center", ha="left" if x >= 0 else "right", fontsize=7.5)
-    noise = 2.0 / math.sqrt(max(c.samples, 1))
+    noise = 2.0 / math.sqrt(max(c.shown, 1))  # the correlations use the subsample
     ax.axvspan(-noise, noise, color="#e6e6e6", zorder=0, label=f"|rho| < 2/sqrt(n) = {noise:.2f}: noise")
     ax.set_yticks(y)
     ax.set_yticklabels(labels)
     ax.set_xlim(-1.15, 1.15)
     ax.axvline(0.0, color=STYLE["ink"], linewidth=0.8)
     ax.set_xlabel("Spearman rank correlation with the worst slack of all requirements (-)")
-    _title(fig, f"{c.name}: what drives the worst requirement ({c.samples} samples, K = {c.gain:.4g} s)")
+    used = f"{c.samples} samples" if c.shown >= c.samples else f"the first {c.shown} of {c.samples} samples"
+    _title(fig, f"{c.name}: what drives the worst requirement ({used}, K = {c.gain:.4g} s)")
     ax.legend(loc="upper center", bbox_to_anchor=(0.35, -0.42 * 1.75 / height - 0.02), ncol=3, fontsize=7)
     _footer(fig, case, result)
     return fig
