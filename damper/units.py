@@ -1,8 +1,10 @@
 """Physical quantities in case files.
 
-A plain number is taken in the documented SI unit. A string is parsed with the
-`pint` units library (imported lazily: it costs ~0.3 s) and converted to SI
-base units. Angles are dimensionless in pint (radian = 1), so ``"-0.05 1/deg"``
+A plain number is taken in the documented SI unit. A string is a number and a
+unit; the unit is checked against damper's own grammar (:mod:`damper.unit_grammar`:
+no powers of numbers, small exponents, bounded size) and only then parsed with the
+`pint` units library (imported lazily: it costs ~0.3 s) and converted to SI base
+units. Angles are dimensionless in pint (radian = 1), so ``"-0.05 1/deg"``
 becomes ``-2.865`` per radian.
 """
 
@@ -13,6 +15,11 @@ import re
 from functools import lru_cache
 
 from .errors import CaseError
+from .unit_grammar import UnitSyntaxError, check_units
+
+#: Smallest positive normal double; a non-zero magnitude below it is subnormal (it has
+#: lost precision, and its reciprocal overflows): refused for every quantity.
+SMALLEST_NORMAL = 2.2250738585072014e-308
 
 #: Reference SI unit of each named dimension, used by the case schema.
 DIMENSIONS = {
@@ -183,6 +190,10 @@ def parse_quantity(value, allowed, path="", cycles=False) -> tuple[float, str]:
             raise CaseError(
                 f"has a second number {extra.group()!r} after the first; write one number and a unit", path, value
             )
+        try:  # only a checked subset reaches pint, which evaluates what it is given (10**10**10 ...)
+            check_units(unit_part)
+        except UnitSyntaxError as exc:
+            raise CaseError(f"not a unit damper accepts: {exc}", path, value) from None
         try:
             magnitude, dimensionality, unit_names = _parse(text)
         except Exception as exc:  # pint raises many types; all mean "cannot parse"
@@ -213,6 +224,13 @@ def parse_quantity(value, allowed, path="", cycles=False) -> tuple[float, str]:
         raise CaseError(f"expected a number or a string with units, got {kind(value)}", path, value)
     if not math.isfinite(magnitude):
         raise CaseError("must be a finite number", path, value)
+    if magnitude != 0.0 and abs(magnitude) < SMALLEST_NORMAL:
+        raise CaseError(
+            f"is a subnormal number (not zero, but below {SMALLEST_NORMAL:.4g} in magnitude): too small to compute "
+            "with; check the value and its unit",
+            path,
+            value,
+        )
     return magnitude, dimension
 
 

@@ -29,10 +29,28 @@ TIMEOUT = 30.0
 pytestmark = pytest.mark.skipif(not os.path.isdir("/proc/self"), reason="needs /proc to find left-over processes")
 
 
-def _start(args, marker):
-    env = dict(os.environ, DAMPER_TEST_MARKER=marker)
-    return subprocess.Popen([sys.executable, "-m", "damper", *args], cwd=ROOT, env=env,
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+@pytest.fixture
+def started():
+    """Start damper processes; any still running when the test ends (it failed) is killed with its children."""
+    procs = []
+
+    def start(args, marker):
+        env = dict(os.environ, DAMPER_TEST_MARKER=marker)
+        proc = subprocess.Popen([sys.executable, "-m", "damper", *args], cwd=ROOT, env=env,
+                                stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+        procs.append((proc, marker))
+        return proc
+
+    yield start
+    for proc, marker in procs:
+        if proc.poll() is None:
+            proc.kill()
+            proc.communicate()
+        for pid in _carrying(marker):
+            try:
+                os.kill(pid, signal.SIGKILL)
+            except OSError:
+                pass
 
 
 def _carrying(marker):
@@ -71,11 +89,11 @@ def _figures(out):
     return plots.is_dir() and any(n.endswith(".png") for n in os.listdir(plots))
 
 
-def test_sigint_stops_robust_with_two_workers_and_a_large_study(tmp_path):
+def test_sigint_stops_robust_with_two_workers_and_a_large_study(tmp_path, started):
     # issue 17, problem 3: with two workers and 300,000 samples the exit came 202 s after SIGINT
     marker = uuid.uuid4().hex
     out = tmp_path / "run"
-    proc = _start(["robust", UNCERTAIN, "--gain", "0.3", "--samples", "3000000", "--workers", "2", "--out", str(out)],
+    proc = started(["robust", UNCERTAIN, "--gain", "0.3", "--samples", "3000000", "--workers", "2", "--out", str(out)],
                   marker)
     _wait_for(lambda: (out / ".damper-journal").exists(), "the run start")
     time.sleep(1.5)  # inside the Monte Carlo (the study takes minutes)
@@ -87,10 +105,10 @@ def test_sigint_stops_robust_with_two_workers_and_a_large_study(tmp_path):
     assert not out.exists()  # nothing was written: no run at all
 
 
-def test_sigterm_during_the_figures_leaves_an_incomplete_run_that_force_replaces(tmp_path):
+def test_sigterm_during_the_figures_leaves_an_incomplete_run_that_force_replaces(tmp_path, started):
     marker = uuid.uuid4().hex
     out = tmp_path / "run"
-    proc = _start(["design", DEMO, "--out", str(out)], marker)
+    proc = started(["design", DEMO, "--out", str(out)], marker)
     _wait_for(lambda: _figures(out), "a figure")
     proc.send_signal(signal.SIGTERM)
     _, err = proc.communicate(timeout=TIMEOUT)
@@ -105,11 +123,11 @@ def test_sigterm_during_the_figures_leaves_an_incomplete_run_that_force_replaces
     assert manifest["complete"] and not (out / "plots").exists()
 
 
-def test_kill_9_of_design_during_its_figures_leaves_no_process(tmp_path):
+def test_kill_9_of_design_during_its_figures_leaves_no_process(tmp_path, started):
     # issue 17, problem 4: the plot worker outlived its parent and kept writing plots
     marker = uuid.uuid4().hex
     out = tmp_path / "run"
-    proc = _start(["design", DEMO, "--out", str(out)], marker)
+    proc = started(["design", DEMO, "--out", str(out)], marker)
     _wait_for(lambda: _figures(out), "a figure")
     assert len(_carrying(marker)) >= 2  # the command and its plot worker (and multiprocessing's helper)
     proc.kill()

@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 
 from ..errors import CaseError, Raw, kind
 from ..units import SI_UNIT_TEXT, parse_quantity
+from .ranges import MAX_CONDITIONS, MAX_LIST_ITEMS
 
 REQUIRED = object()
 
@@ -43,6 +44,7 @@ class Quantity:
     high: float | None = None
     nonzero: bool = False
     cycles: bool | None = None
+    plausible: str | None = None  # a key of damper.case.ranges.RANGES: refused outside its accepted range
 
     def check(self, value, path):
         cycles = self.cycles if self.cycles is not None else _last_key(path) in CYCLE_RATE_KEYS
@@ -60,10 +62,20 @@ class Quantity:
             raise CaseError(f"must be at least {_with_unit(self.low, self.dims[0])}{got}", path, value)
         if self.high is not None and si > self.high:
             raise CaseError(f"must be at most {_with_unit(self.high, self.dims[0])}{got}", path, value)
+        if self.plausible is not None:
+            from .ranges import check
+
+            check(self.plausible, si, path, value)
         return (si, dim) if len(self.dims) > 1 else si
 
     def describe(self) -> str:
         units = " or ".join(SI_UNIT_TEXT[d] for d in self.dims)
+        if self.plausible is not None:
+            from .ranges import RANGES
+
+            r = RANGES[self.plausible]
+            span = f"{r.low:g} to {r.high:g}" if r.low is not None else f"at most {r.high:g}"
+            return f"quantity ({units}; accepted: {span})"
         return f"quantity ({units})"
 
 
@@ -285,7 +297,7 @@ class Items:
     doc: str = ""
     default: object = REQUIRED
     min_items: int = 1
-    max_items: int = 10_000
+    max_items: int = MAX_LIST_ITEMS
 
     def check(self, value, path):
         if not isinstance(value, list):
@@ -409,11 +421,13 @@ _POS = dict(positive=True)
 AIRCRAFT = Section(
     {
         "name": Text("Free-text name of the (invented or real) configuration.", default=None),
-        "mass": Quantity(("mass",), "Mass, kg.", **_POS),
-        "pitch_inertia": Quantity(("inertia",), "Pitch moment of inertia Iy, kg m^2.", **_POS),
-        "wing_area": Quantity(("area",), "Reference wing area S, m^2 (needed for coefficients).", default=None, **_POS),
+        "mass": Quantity(("mass",), "Mass, kg.", **_POS, plausible="mass"),
+        "pitch_inertia": Quantity(("inertia",), "Pitch moment of inertia Iy, kg m^2.", **_POS, plausible="inertia"),
+        "wing_area": Quantity(("area",), "Reference wing area S, m^2 (needed for coefficients).", default=None, **_POS,
+                              plausible="wing_area"),
         "mean_chord": Quantity(
-            ("length",), "Mean aerodynamic chord c, m (needed for coefficients).", default=None, **_POS
+            ("length",), "Mean aerodynamic chord c, m (needed for coefficients).", default=None, **_POS,
+            plausible="mean_chord",
         ),
     },
     "The airframe's mass properties and reference geometry.",
@@ -466,15 +480,18 @@ COEFFICIENTS = Section(
 CONDITION = Section(
     {
         "name": Text("Unique name of the flight condition."),
-        "airspeed": Quantity(("speed",), "True airspeed, m/s.", default=REQUIRED, **_POS),
-        "equivalent_airspeed": Quantity(("speed",), "Equivalent airspeed, m/s (instead of airspeed).", default=REQUIRED, **_POS),
+        "airspeed": Quantity(("speed",), "True airspeed, m/s.", default=REQUIRED, **_POS, plausible="speed"),
+        "equivalent_airspeed": Quantity(("speed",), "Equivalent airspeed, m/s (instead of airspeed).", default=REQUIRED,
+                                        **_POS, plausible="speed"),
         "mach": Quantity(("dimensionless",), "Mach number (instead of airspeed).", default=REQUIRED, positive=True, high=5.0),
         "altitude": Quantity(
             ("length",), "Altitude, m (see atmosphere.altitude_kind).", low=-2000.0, high=80000.0
         ),
-        "mass": Quantity(("mass",), "Mass at this condition, kg (default: aircraft.mass).", default=None, **_POS),
+        "mass": Quantity(("mass",), "Mass at this condition, kg (default: aircraft.mass).", default=None, **_POS,
+                         plausible="mass"),
         "pitch_inertia": Quantity(
-            ("inertia",), "Pitch inertia at this condition, kg m^2 (default: aircraft.pitch_inertia).", default=None, **_POS
+            ("inertia",), "Pitch inertia at this condition, kg m^2 (default: aircraft.pitch_inertia).", default=None, **_POS,
+            plausible="inertia",
         ),
         "note": Text("Free text shown in reports (e.g. the CG position).", default=None),
         "configuration": Text("Mass / CG configuration this condition belongs to (a schedule interpolates "
@@ -498,11 +515,12 @@ ACTUATOR = Section(
         "time_constant": Quantity(("time",), "First-order servo time constant, s.", default=None, **_POS),
         **_SECOND_ORDER,
         "rate_limit": Quantity(
-            ("angular_rate",), "Surface rate limit, rad/s (e.g. '60 deg/s'); used in time responses.", default=None, **_POS
+            ("angular_rate",), "Surface rate limit, rad/s (e.g. '60 deg/s'); used in time responses.", default=None, **_POS,
+            plausible="rate_limit",
         ),
         "travel": Quantity(
             ("dimensionless",), "Damper authority: +/- surface travel, rad (e.g. '10 deg'); used in time responses.",
-            default=None, **_POS,
+            default=None, **_POS, plausible="travel",
         ),
     },
     "Servo actuator, from damper command to surface; absent = ideal.",
@@ -591,7 +609,8 @@ CASE = Section(
         "title": Text("Title of the study, shown in every output."),
         "aircraft": AIRCRAFT,
         "atmosphere": ATMOSPHERE,
-        "conditions": Items(CONDITION, "Flight conditions (optional when an envelope is given).", max_items=2000, default=()),
+        "conditions": Items(CONDITION, "Flight conditions (optional when an envelope is given).", max_items=MAX_CONDITIONS,
+                            default=()),
         "envelope": _envelope_specs()[0],
         "aerodynamics": _envelope_specs()[1],
         "schedule": _envelope_specs()[2],

@@ -5,6 +5,8 @@ from __future__ import annotations
 import sys
 
 NAME = "robust"
+#: Largest design.json / gain-schedule.json read (a 2,000-condition design.json is about 20 MB).
+MAX_JSON_BYTES = 200_000_000
 
 
 def register(sub) -> str:
@@ -78,13 +80,14 @@ def _read_design(path):
 
     from ..errors import DamperError
 
+    from ..readfile import read_regular_file
+
     file = os.path.join(path, "design.json") if os.path.isdir(path) else path
     try:
-        with open(file, encoding="utf-8") as fh:
-            return json.load(fh), file
+        return json.loads(read_regular_file(file, MAX_JSON_BYTES).decode("utf-8")), file
     except FileNotFoundError:
         raise DamperError(f"--design {path}: no design.json there (run `damper design CASE --out {path}` first)") from None
-    except (OSError, ValueError) as exc:
+    except (OSError, ValueError) as exc:  # NotARegularFile (a FIFO ...) is an OSError
         raise DamperError(f"--design {path}: cannot read {file} ({exc})") from None
 
 
@@ -95,10 +98,11 @@ def _read_schedule(path):
     from ..errors import DamperError
     from ..output.schedule_out import schedule_from_table
 
+    from ..readfile import read_regular_file
+
     file = os.path.join(path, "gain-schedule.json") if os.path.isdir(path) else path
     try:
-        with open(file, encoding="utf-8") as fh:
-            doc = json.load(fh)
+        doc = json.loads(read_regular_file(file, MAX_JSON_BYTES).decode("utf-8"))
     except FileNotFoundError:
         raise DamperError(f"--schedule {path}: no such file (a design run of a case with a schedule writes "
                           "gain-schedule.json)") from None

@@ -95,11 +95,16 @@ def _norm(rel) -> str:
 
 
 def _read(root, rel):
-    try:
-        with open(os.path.join(root, *rel.split("/")), "rb") as fh:
-            return fh.read()
+    from ..readfile import read_regular_file
+
+    try:  # never blocks on a FIFO put in a listed file's place
+        return read_regular_file(os.path.join(root, *rel.split("/")), MAX_FILE_BYTES)
     except OSError:
         return None
+
+
+#: Largest file of a run the report reads, bytes.
+MAX_FILE_BYTES = 1 << 31
 
 
 __all__ = ["RunFiles"]
