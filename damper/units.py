@@ -174,26 +174,7 @@ def parse_quantity(value, allowed, path="", cycles=False) -> tuple[float, str]:
             return parse_quantity(plain, allowed, path, cycles)
         if not _SAFE_UNIT_TEXT.match(text) or "__" in text:
             raise CaseError("not a number with units (unexpected characters)", path, value)
-        lead = _LEADING_NUMBER.match(text)
-        if not lead:
-            raise CaseError(
-                f"needs a number before the unit (e.g. '1 {text}'; a unit alone is not a value)", path, value
-            )
-        unit_part = text[lead.end():]
-        for extra in _INNER_NUMBER.finditer(unit_part):
-            before = unit_part[: extra.start()].rstrip().rstrip("+-").rstrip()
-            if before.endswith("^") or before.endswith("**"):
-                continue  # an exponent: "m**2", "s^-1"
-            rest = unit_part[extra.end():].lstrip()
-            if extra.group() == "1" and rest.startswith("/"):
-                continue  # "1/deg", "1/s**2"
-            raise CaseError(
-                f"has a second number {extra.group()!r} after the first; write one number and a unit", path, value
-            )
-        try:  # only a checked subset reaches pint, which evaluates what it is given (10**10**10 ...)
-            check_units(unit_part)
-        except UnitSyntaxError as exc:
-            raise CaseError(f"not a unit damper accepts: {exc}", path, value) from None
+        _check_unit_text(text, path, value)
         try:
             magnitude, dimensionality, unit_names = _parse(text)
         except Exception as exc:  # pint raises many types; all mean "cannot parse"
@@ -232,6 +213,28 @@ def parse_quantity(value, allowed, path="", cycles=False) -> tuple[float, str]:
             value,
         )
     return magnitude, dimension
+
+
+def _check_unit_text(text, path, value) -> None:
+    """One leading number, then a unit of the grammar of :mod:`damper.unit_grammar` (checked before pint)."""
+    lead = _LEADING_NUMBER.match(text)
+    if not lead:
+        raise CaseError(f"needs a number before the unit (e.g. '1 {text}'; a unit alone is not a value)", path, value)
+    unit_part = text[lead.end():]
+    for extra in _INNER_NUMBER.finditer(unit_part):
+        before = unit_part[: extra.start()].rstrip().rstrip("+-").rstrip()
+        if before.endswith("^") or before.endswith("**"):
+            continue  # an exponent: "m**2", "s^-1"
+        rest = unit_part[extra.end():].lstrip()
+        if extra.group() == "1" and rest.startswith("/"):
+            continue  # "1/deg", "1/s**2"
+        raise CaseError(
+            f"has a second number {extra.group()!r} after the first; write one number and a unit", path, value
+        )
+    try:  # only a checked subset reaches pint, which evaluates what it is given (10**10**10 ...)
+        check_units(unit_part)
+    except UnitSyntaxError as exc:
+        raise CaseError(f"not a unit damper accepts: {exc}", path, value) from None
 
 
 def _dimension_word(dimensionality) -> str:

@@ -29,6 +29,11 @@ TIMEOUT = 30.0
 pytestmark = pytest.mark.skipif(not os.path.isdir("/proc/self"), reason="needs /proc to find left-over processes")
 
 
+def _default_sigint():
+    """A shell starts background jobs with Ctrl-C ignored and children inherit it; a terminal's Ctrl-C is the case here."""
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+
+
 @pytest.fixture
 def started():
     """Start damper processes; any still running when the test ends (it failed) is killed with its children."""
@@ -37,7 +42,8 @@ def started():
     def start(args, marker):
         env = dict(os.environ, DAMPER_TEST_MARKER=marker)
         proc = subprocess.Popen([sys.executable, "-m", "damper", *args], cwd=ROOT, env=env,
-                                stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+                                stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                                preexec_fn=_default_sigint)
         procs.append((proc, marker))
         return proc
 

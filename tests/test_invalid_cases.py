@@ -85,6 +85,7 @@ VALUE_FILES = {
     "pitch_inertia_absurd.yaml",
     "travel_beyond_half_turn.yaml",
     "response_steps_too_many.yaml",
+    "envelope_speed_above_mach_limit.yaml",
 }
 
 #: A sample run as real processes, to prove there is no traceback outside Python's own handler.

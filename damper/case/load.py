@@ -297,6 +297,7 @@ def _build(values, file, sha, doc) -> Case:
             raise CaseError("an envelope needs an aerodynamics section (coefficient tables against Mach)", "envelope",
                             line=_line(doc, "envelope"))
         _check_aero_tables(values["aerodynamics"], doc)
+        _check_envelope_mach(values, doc)
     loop = _build_loop(values["loop"], doc)
     warnings.extend(_loop_warnings(loop))
     s = values["analysis"]
@@ -460,6 +461,32 @@ def _check_mach(v, a_sound, c, doc, i, line):
         _raw(doc, "conditions", i, key),
         line=_line(doc, "conditions", i, key) or line,
     )
+
+
+def _check_envelope_mach(values, doc):
+    """The envelope's largest true or equivalent airspeed stays within the Mach limit at every altitude of it."""
+    env = values["envelope"]
+    for key in ("airspeed", "equivalent_airspeed"):
+        rng = env.get(key)
+        if not rng or env.get("altitude") is None:
+            continue
+        h = np.linspace(env["altitude"]["min"], env["altitude"]["max"], 201)
+        if values["atmosphere"]["altitude_kind"] == "geometric":
+            h = geopotential_from_geometric(h)
+        try:
+            air = standard_atmosphere(np.clip(h, -2000.0, 84852.0))
+        except ValueError:
+            return  # an altitude outside the atmosphere is refused where the grid is built
+        v = rng["max"] * (np.sqrt(RHO0 / air.density) if key == "equivalent_airspeed" else 1.0)
+        mach = float(np.max(v / air.speed_of_sound))
+        if mach > MAX_MACH:
+            raise CaseError(
+                f"is Mach {mach:.3g} somewhere in the envelope's altitude range; damper accepts at most Mach "
+                f"{MAX_MACH:g} ({RANGES['mach'].why})",
+                f"envelope.{key}.max",
+                _raw(doc, "envelope", key, "max"),
+                line=_line(doc, "envelope", key, "max") or _line(doc, "envelope", key),
+            )
 
 
 def _check_control_power(d, c, doc, i, line):

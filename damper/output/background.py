@@ -137,18 +137,26 @@ class PlotJobs:
         if run is not None:
             fn, args = in_part, (run[2], fn, *args)
         if self._pool is None:
-            self._jobs.append([fn, args, None, list(fn(*args))])
+            self._jobs.append([None, None, None, list(fn(*args))])
             return len(self._jobs) - 1
         from concurrent.futures.process import BrokenProcessPool
 
+        self._forget_done()
         try:
             future = self._pool.submit(fn, *args)
         except (BrokenProcessPool, RuntimeError):  # the worker died: draw here from now on
             self._shutdown()
-            self._jobs.append([fn, args, None, list(fn(*args))])
+            self._jobs.append([None, None, None, list(fn(*args))])
             return len(self._jobs) - 1
         self._jobs.append([fn, args, future, None])
         return len(self._jobs) - 1
+
+    def _forget_done(self):
+        """Keep the paths of finished jobs and drop their arguments (memory: only pending jobs hold data)."""
+        for job in self._jobs:
+            future = job[2]
+            if future is not None and future.done() and not future.cancelled() and future.exception() is None:
+                job[0], job[1], job[2], job[3] = None, None, None, list(future.result())
 
     def submit_group(self, jobs) -> int:
         """Queue a list of jobs ``(fn, args)`` as one (their data are sent once); returns its number."""

@@ -26,20 +26,20 @@ byte-identical rebuild).
 
 from __future__ import annotations
 
-import base64
 import datetime as _dt
-import hashlib
 import json
 import math
 import os
 import re
 
 from ..errors import DamperError
+from .names import plot_slugs
+from .runfiles import MAX_SVG_BYTES  # noqa: F401 - part of this module's interface
+from .runfiles import image_uri as _image
+from .runfiles import read_json as _read_json
 
 #: Files of the run directory the report reads, in the order of its sections.
 OPTIONAL_DOCUMENTS = ("schedule.json", "robustness.json", "responses.json")
-#: Largest SVG inlined as vector graphics; a larger plot is inlined as its PNG, bytes.
-MAX_SVG_BYTES = 3_000_000
 R2D = 180.0 / math.pi
 KT = 0.514444  # m/s per knot (exact: 1852/3600)
 FT = 0.3048  # m per foot (exact)
@@ -221,65 +221,6 @@ def binding_text(binding):
 # ---------------------------------------------------------------------------------
 # reading the run directory
 # ---------------------------------------------------------------------------------
-def _read_json(files, name, required):
-    """A listed JSON document of the run and its SHA-256; (None, None) when it is not listed."""
-    data = files.read(name)
-    if data is None:
-        if required:
-            if name in files.changed:
-                raise DamperError(f"{os.path.join(files.root, name)}: changed since the run wrote it (its SHA-256 no "
-                                  "longer matches the run's list); rerun 'damper design'")
-            raise DamperError(
-                f"{files.root}: no design.json here; give the directory of a finished 'damper design CASE --out DIR' run"
-            )
-        return None, None
-    sha = hashlib.sha256(data).hexdigest()
-    try:
-        return json.loads(data.decode("utf-8")), sha
-    except (ValueError, UnicodeDecodeError) as exc:
-        if required:
-            raise DamperError(f"{os.path.join(files.root, name)}: not valid JSON ({exc}); rerun 'damper design'") from None
-        return {"_unreadable": f"not valid JSON ({exc})"}, sha
-
-
-def _data_uri(name, data):
-    ext = os.path.splitext(name)[1].lower()
-    mime = {".svg": "image/svg+xml", ".png": "image/png"}[ext]
-    return f"data:{mime};base64,{base64.b64encode(data).decode('ascii')}"
-
-
-def _image(files, stem_candidates):
-    """The data URI of the first listed plot among `stem_candidates` (SVG first), or None.
-
-    `files` is the run's :class:`~damper.output.runfiles.RunFiles`: a plot the run does
-    not list, or whose bytes changed since, is never embedded.
-    """
-    for stem in stem_candidates:
-        stem = stem.replace(os.sep, "/")
-        svg = files.read(stem + ".svg")
-        if svg is not None and len(svg) <= MAX_SVG_BYTES:
-            return _data_uri(stem + ".svg", svg)
-        png = files.read(stem + ".png")
-        if png is not None:
-            return _data_uri(stem + ".png", png)
-    return None
-
-
-def plot_slugs(names):
-    """The plot file slug of every condition, as :func:`damper.output.plots.design_plots` names them."""
-    from .plots import safe_name
-
-    taken, out = set(), []
-    for name in names:
-        base = safe_name(name)
-        slug, n = base, 2
-        while slug in taken:
-            slug, n = f"{base}-{n}", n + 1
-        taken.add(slug)
-        out.append(slug)
-    return out
-
-
 # ---------------------------------------------------------------------------------
 # view model
 # ---------------------------------------------------------------------------------
@@ -1179,6 +1120,13 @@ def report_context(run_dir, files=None) -> dict:
         _condition_view(i, c, slugs[i], files, summary_conds.get(c.get("name")))
         for i, c in enumerate(design["conditions"])
     ]
+    drawn = design.get("figures") if isinstance(design.get("figures"), dict) else None
+    if drawn is not None:  # a large case draws figures for some conditions only (design.json says which)
+        some = set(drawn.get("drawn_for") or ())
+        for view in conditions:
+            if view["name"] not in some:
+                for fg in view["figures"]:
+                    fg["missing"] = f"no figure for this condition: {drawn.get('rule', '')}"
     failing_first = sorted(conditions, key=lambda c: (c["feasible"], c["index"]))
     infeasible = [c for c in conditions if not c["feasible"]]
     level_values = [c["level"] for c in conditions if c["level"] != DASH]

@@ -7,12 +7,17 @@ file added, changed or left behind by anything else is not shown (docs/run-direc
 
 from __future__ import annotations
 
+import base64
 import hashlib
+import json
 import os
 from dataclasses import dataclass
 
 from ..errors import DamperError
 from . import journal
+
+#: Largest SVG inlined as vector graphics; a larger plot is inlined as its PNG, bytes.
+MAX_SVG_BYTES = 3_000_000
 
 
 @dataclass(frozen=True)
@@ -90,6 +95,53 @@ class RunFiles:
         return sorted(p for p in self.listed if p.startswith(prefix) and "/" not in p[len(prefix):])
 
 
+# ---------------------------------------------------------------------------------
+# reading for the report
+# ---------------------------------------------------------------------------------
+def read_json(files, name, required):
+    """A listed JSON document of the run and its SHA-256; (None, None) when it is not listed."""
+    data = files.read(name)
+    if data is None:
+        if required:
+            if name in files.changed:
+                raise DamperError(f"{os.path.join(files.root, name)}: changed since the run wrote it (its SHA-256 no "
+                                  "longer matches the run's list); rerun 'damper design'")
+            raise DamperError(
+                f"{files.root}: no design.json here; give the directory of a finished 'damper design CASE --out DIR' run"
+            )
+        return None, None
+    sha = hashlib.sha256(data).hexdigest()
+    try:
+        return json.loads(data.decode("utf-8")), sha
+    except (ValueError, UnicodeDecodeError) as exc:
+        if required:
+            raise DamperError(f"{os.path.join(files.root, name)}: not valid JSON ({exc}); rerun 'damper design'") from None
+        return {"_unreadable": f"not valid JSON ({exc})"}, sha
+
+
+def _data_uri(name, data):
+    ext = os.path.splitext(name)[1].lower()
+    mime = {".svg": "image/svg+xml", ".png": "image/png"}[ext]
+    return f"data:{mime};base64,{base64.b64encode(data).decode('ascii')}"
+
+
+def image_uri(files, stem_candidates):
+    """The data URI of the first listed plot among `stem_candidates` (SVG first), or None.
+
+    `files` is the run's :class:`~damper.output.runfiles.RunFiles`: a plot the run does
+    not list, or whose bytes changed since, is never embedded.
+    """
+    for stem in stem_candidates:
+        stem = stem.replace(os.sep, "/")
+        svg = files.read(stem + ".svg")
+        if svg is not None and len(svg) <= MAX_SVG_BYTES:
+            return _data_uri(stem + ".svg", svg)
+        png = files.read(stem + ".png")
+        if png is not None:
+            return _data_uri(stem + ".png", png)
+    return None
+
+
 def _norm(rel) -> str:
     return os.fspath(rel).replace(os.sep, "/")
 
@@ -107,4 +159,4 @@ def _read(root, rel):
 MAX_FILE_BYTES = 1 << 31
 
 
-__all__ = ["RunFiles"]
+__all__ = ["RunFiles", "image_uri", "read_json"]
