@@ -215,12 +215,25 @@ def test_report_embeds_only_listed_files_with_matching_hashes(tmp_path, one_run,
     for ext in ("svg", "png"):
         path = out / "plots" / f"only-one-root-locus.{ext}"
         path.write_bytes(path.read_bytes() + b" ")
+    # a plot the run did not write (here: taken off the manifest), where the report looks for one: not shown
+    manifest = json.loads((out / MANIFEST_NAME).read_text())
+    manifest["files"] = [f for f in manifest["files"] if "only-one-gain-sweep" not in f["path"]]
+    (out / MANIFEST_NAME).write_text(json.dumps(manifest), encoding="utf-8")
     assert main(["report", str(out)]) == 0
     err = capsys.readouterr().err
     assert "left out of the report" in err and "only-one-root-locus" in err
     html = (out / "report.html").read_text()
-    assert html.count("data:image") == n_images - 1 and "changed since it was written" in html.replace("\n", " ")
+    assert html.count("data:image") == n_images - 2 and "changed since it was written" in html.replace("\n", " ")
     assert "INCOMPLETE RUN" not in html
+    # a report.html of someone else's is never replaced
+    (out / "report.html").unlink()
+    (out / "report.html").write_text("mine", encoding="utf-8")
+    manifest = json.loads((out / MANIFEST_NAME).read_text())
+    manifest["files"] = [f for f in manifest["files"] if f["path"] != "report.html"]
+    (out / MANIFEST_NAME).write_text(json.dumps(manifest), encoding="utf-8")
+    assert main(["report", str(out)]) == 2
+    assert "report.html was not written by a damper run" in capsys.readouterr().err
+    assert (out / "report.html").read_text() == "mine"
 
 
 def test_report_marks_an_incomplete_run(tmp_path, one_run, capsys):

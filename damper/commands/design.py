@@ -170,7 +170,7 @@ def _design(args, case, out, command, jobs):
             idx = figures[a:b]
             sub = sub_case(case, idx)
             job_ids += _queue_design_plots(jobs, sub, search(sub, settings), out, [slugs[i] for i in idx])
-    drawn = None if figures is None else {
+    drawn = None if figures is None or args.no_plots else {
         "drawn_for": [case.conditions[i].name for i in figures],
         "rule": f"per-condition figures for at most {args.max_figures} conditions: the infeasible ones first, then "
         "those with the least slack at the chosen gain (--max-figures)",

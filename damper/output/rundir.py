@@ -229,6 +229,11 @@ class RunDirectory:
 
     def _prepare(self):
         manifest, entries, files, dirs, unaccounted = self._state()
+        if self.mode == "report":  # the report touches report.html only; other files are just not shown
+            unaccounted = [f for f in unaccounted if f == "report.html"]
+            if unaccounted:
+                raise RunDirectoryError(f"{self.root}: its report.html was not written by a damper run; move it away "
+                                        "first (damper never replaces a file it did not write)")
         if unaccounted:
             self._refuse_foreign(unaccounted[0])
         empty = not [f for f in files if f != journal.LOCK_NAME] and not dirs
