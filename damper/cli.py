@@ -76,7 +76,11 @@ def _join_negative_numbers(parser, argv):
 
 
 def main(argv=None) -> int:
-    """Run the command line; returns the exit code (0 ok, 2 bad input, 1 internal error)."""
+    """Run the command line; returns the exit code.
+
+    0 ok, 2 bad input or output location, 1 internal error, 130 after SIGINT (Ctrl-C),
+    143 after SIGTERM.
+    """
     argv = sys.argv[1:] if argv is None else list(argv)
     parser, runners = _parser()
     args = parser.parse_args(_join_negative_numbers(parser, argv))
@@ -88,11 +92,30 @@ def main(argv=None) -> int:
     if not args.command:
         parser.print_help()
         return 0
+    with _signals():
+        return _run(runners[args.command], args, argv)
+
+
+def _note(exc):
+    """The run directory's note on an exception (an incomplete run left behind), if any."""
+    note = getattr(exc, "damper_note", None)
+    if note:
+        print(note, file=sys.stderr)
+
+
+def _run(runner, args, argv) -> int:
+    from .errors import Interrupted
+
     try:
-        return runners[args.command](args, argv)
-    except KeyboardInterrupt:
+        return runner(args, argv)
+    except KeyboardInterrupt as exc:
         print("damper: interrupted", file=sys.stderr)
+        _note(exc)
         return 130
+    except Interrupted as exc:
+        print("damper: terminated", file=sys.stderr)
+        _note(exc)
+        return 128 + exc.signal_number
     except BrokenPipeError:  # output piped into e.g. `head`
         import os
 
@@ -105,12 +128,48 @@ def main(argv=None) -> int:
             raise
         if isinstance(exc, DamperError):
             print(f"damper: error: {exc}", file=sys.stderr)
+            _note(exc)
             return 2
         print(
             f"damper: internal error: {type(exc).__name__}: {exc} (run with --debug for the traceback)",
             file=sys.stderr,
         )
+        _note(exc)
         return 1
+
+
+class _signals:
+    """SIGTERM raises :class:`~damper.errors.Interrupted` (as SIGINT raises KeyboardInterrupt), so every
+    command ends the same way: workers stopped, the run directory left consistent, exit 143. SIGXFSZ
+    is ignored, so a file-size limit is an error on the write (exit 2) rather than a crash.
+    Handlers are restored on exit (``main`` is also called in-process by tests)."""
+
+    def __enter__(self):
+        import signal
+
+        self.saved = {}
+
+        def terminated(signum, frame):
+            from .errors import Interrupted
+
+            raise Interrupted(signum)
+
+        for name, handler in (("SIGTERM", terminated), ("SIGXFSZ", signal.SIG_IGN)):
+            sig = getattr(signal, name, None)
+            if sig is None:
+                continue
+            try:
+                self.saved[sig] = signal.signal(sig, handler)
+            except (ValueError, OSError):  # not the main thread
+                pass
+        return self
+
+    def __exit__(self, *exc):
+        import signal
+
+        for sig, handler in self.saved.items():
+            signal.signal(sig, handler)
+        return False
 
 
 def warn_case(case):

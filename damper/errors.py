@@ -149,4 +149,21 @@ def kind(value) -> str:
 
 
 class RunDirectoryError(DamperError):
-    """An output directory that would overwrite an earlier run."""
+    """An output directory that holds another run, a user's files, or a run in progress."""
+
+
+class OutputError(DamperError):
+    """An OS error on the output path (disk full, read-only, permission ...): the user's to fix, exit 2."""
+
+
+class Interrupted(BaseException):
+    """SIGTERM arrived (SIGINT raises KeyboardInterrupt). Not an Exception, so no handler swallows it.
+
+    Attributes
+    ----------
+    signal_number : int
+    """
+
+    def __init__(self, signal_number):
+        super().__init__(signal_number)
+        self.signal_number = signal_number

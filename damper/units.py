@@ -1,8 +1,10 @@
 """Physical quantities in case files.
 
-A plain number is taken in the documented SI unit. A string is parsed with the
-`pint` units library (imported lazily: it costs ~0.3 s) and converted to SI
-base units. Angles are dimensionless in pint (radian = 1), so ``"-0.05 1/deg"``
+A plain number is taken in the documented SI unit. A string is a number and a
+unit; the unit is checked against damper's own grammar (:mod:`damper.unit_grammar`:
+no powers of numbers, small exponents, bounded size) and only then parsed with the
+`pint` units library (imported lazily: it costs ~0.3 s) and converted to SI base
+units. Angles are dimensionless in pint (radian = 1), so ``"-0.05 1/deg"``
 becomes ``-2.865`` per radian.
 """
 
@@ -13,6 +15,11 @@ import re
 from functools import lru_cache
 
 from .errors import CaseError
+from .unit_grammar import UnitSyntaxError, check_units
+
+#: Smallest positive normal double; a non-zero magnitude below it is subnormal (it has
+#: lost precision, and its reciprocal overflows): refused for every quantity.
+SMALLEST_NORMAL = 2.2250738585072014e-308
 
 #: Reference SI unit of each named dimension, used by the case schema.
 DIMENSIONS = {
@@ -167,22 +174,7 @@ def parse_quantity(value, allowed, path="", cycles=False) -> tuple[float, str]:
             return parse_quantity(plain, allowed, path, cycles)
         if not _SAFE_UNIT_TEXT.match(text) or "__" in text:
             raise CaseError("not a number with units (unexpected characters)", path, value)
-        lead = _LEADING_NUMBER.match(text)
-        if not lead:
-            raise CaseError(
-                f"needs a number before the unit (e.g. '1 {text}'; a unit alone is not a value)", path, value
-            )
-        unit_part = text[lead.end():]
-        for extra in _INNER_NUMBER.finditer(unit_part):
-            before = unit_part[: extra.start()].rstrip().rstrip("+-").rstrip()
-            if before.endswith("^") or before.endswith("**"):
-                continue  # an exponent: "m**2", "s^-1"
-            rest = unit_part[extra.end():].lstrip()
-            if extra.group() == "1" and rest.startswith("/"):
-                continue  # "1/deg", "1/s**2"
-            raise CaseError(
-                f"has a second number {extra.group()!r} after the first; write one number and a unit", path, value
-            )
+        _check_unit_text(text, path, value)
         try:
             magnitude, dimensionality, unit_names = _parse(text)
         except Exception as exc:  # pint raises many types; all mean "cannot parse"
@@ -213,7 +205,36 @@ def parse_quantity(value, allowed, path="", cycles=False) -> tuple[float, str]:
         raise CaseError(f"expected a number or a string with units, got {kind(value)}", path, value)
     if not math.isfinite(magnitude):
         raise CaseError("must be a finite number", path, value)
+    if magnitude != 0.0 and abs(magnitude) < SMALLEST_NORMAL:
+        raise CaseError(
+            f"is a subnormal number (not zero, but below {SMALLEST_NORMAL:.4g} in magnitude): too small to compute "
+            "with; check the value and its unit",
+            path,
+            value,
+        )
     return magnitude, dimension
+
+
+def _check_unit_text(text, path, value) -> None:
+    """One leading number, then a unit of the grammar of :mod:`damper.unit_grammar` (checked before pint)."""
+    lead = _LEADING_NUMBER.match(text)
+    if not lead:
+        raise CaseError(f"needs a number before the unit (e.g. '1 {text}'; a unit alone is not a value)", path, value)
+    unit_part = text[lead.end():]
+    for extra in _INNER_NUMBER.finditer(unit_part):
+        before = unit_part[: extra.start()].rstrip().rstrip("+-").rstrip()
+        if before.endswith("^") or before.endswith("**"):
+            continue  # an exponent: "m**2", "s^-1"
+        rest = unit_part[extra.end():].lstrip()
+        if extra.group() == "1" and rest.startswith("/"):
+            continue  # "1/deg", "1/s**2"
+        raise CaseError(
+            f"has a second number {extra.group()!r} after the first; write one number and a unit", path, value
+        )
+    try:  # only a checked subset reaches pint, which evaluates what it is given (10**10**10 ...)
+        check_units(unit_part)
+    except UnitSyntaxError as exc:
+        raise CaseError(f"not a unit damper accepts: {exc}", path, value) from None
 
 
 def _dimension_word(dimensionality) -> str:

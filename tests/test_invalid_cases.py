@@ -76,6 +76,16 @@ VALUE_FILES = {
     "bad_date_value.yaml",
     "quantity_text_too_long.yaml",
     "condition_name_too_long.yaml",
+    # issue 17
+    "subnormal_M_delta.yaml",
+    "M_delta_negligible.yaml",
+    "speed_beyond_orbital.yaml",
+    "speed_above_mach_limit.yaml",
+    "mass_absurd.yaml",
+    "pitch_inertia_absurd.yaml",
+    "travel_beyond_half_turn.yaml",
+    "response_steps_too_many.yaml",
+    "envelope_speed_above_mach_limit.yaml",
 }
 
 #: A sample run as real processes, to prove there is no traceback outside Python's own handler.
@@ -90,6 +100,9 @@ SUBPROCESS_SAMPLE = (
     "merge_bomb.yaml",
     "alias_bomb.yaml",
     "overflowing_model.yaml",
+    "unit_power_tower_speed.yaml",
+    "unit_power_tower_mass.yaml",
+    "too_many_conditions.yaml",
 )
 
 
@@ -189,6 +202,27 @@ def test_deep_nesting_is_refused(tmp_path, capsys):
     err = capsys.readouterr().err
     assert code == 2
     assert err.splitlines() == [f"damper: error: {path}: YAML is nested too deeply for a case file"]
+
+
+def test_special_files_are_refused_without_blocking(tmp_path, capsys):
+    # issue 17: a FIFO given as the case file blocked forever (a device never ends)
+    fifo = tmp_path / "case.yaml"
+    os.mkfifo(fifo)
+    proc = _run_cli(["assess", str(fifo), "--gain", "0.3"])  # the 120 s time-out guards the old hang
+    assert proc.returncode == 2
+    assert proc.stderr.splitlines() == [
+        f"damper: error: {fifo}: is a FIFO (named pipe), not a regular file: give a case file (damper never reads "
+        "from a pipe or a device, which could block or never end)"
+    ]
+    if os.path.exists("/dev/zero"):
+        assert main(["assess", "/dev/zero", "--gain", "0.3"]) == 2
+        assert "is a character device, not a regular file" in capsys.readouterr().err
+    run = tmp_path / "run"
+    run.mkdir()
+    os.mkfifo(run / "design.json")
+    assert main(["robust", str(CORPUS.parent.parent.parent / "cases" / "utility_single_uncertain.yaml"),
+                 "--design", str(run), "--out", str(tmp_path / "out")]) == 2
+    assert "is a FIFO (named pipe)" in capsys.readouterr().err
 
 
 def test_missing_file_and_directory(tmp_path, capsys):

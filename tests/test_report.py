@@ -228,15 +228,29 @@ def _robustness_doc(sha):
     }
 
 
+def _every_file(run):
+    """Every file under `run` as if a run had listed it (to render hand-written documents)."""
+    import hashlib
+
+    from damper.output.runfiles import RunFiles
+
+    listed = {}
+    for base, _, names in os.walk(run):
+        for name in names:
+            rel = os.path.relpath(os.path.join(base, name), run).replace(os.sep, "/")
+            with open(os.path.join(base, name), "rb") as fh:
+                listed[rel] = {"sha256": hashlib.sha256(fh.read()).hexdigest()}
+    return RunFiles.verified(str(run), listed)
+
+
 def test_optional_sections_appear_when_their_json_exists(demo_run, tmp_path, capsys):
     run = tmp_path / "run"
-    run.mkdir()
+    assert main(["respond", DEMO, "--gain", "0.1", "--out", str(run), "--no-plots"]) == 0
     shutil.copy(demo_run / "design.json", run / "design.json")
     sha = json.loads((run / "design.json").read_text())["provenance"]["input_sha256"]
-    assert main(["respond", DEMO, "--gain", "0.1", "--out", str(run), "--force", "--no-plots"]) == 0
     (run / "schedule.json").write_text(json.dumps(_schedule_doc(sha)), encoding="utf-8")
     (run / "robustness.json").write_text(json.dumps(_robustness_doc(sha)), encoding="utf-8")
-    html = build_report(run)
+    html = build_report(run, _every_file(run))
     text = _text(html)
     assert "not run for this case" not in text
     # schedule: verdict, gain table with units, failing verification points first
@@ -257,7 +271,7 @@ def test_unreadable_optional_json_is_reported_not_fatal(demo_run, tmp_path):
     run.mkdir()
     shutil.copy(demo_run / "design.json", run / "design.json")
     (run / "robustness.json").write_text("{not json", encoding="utf-8")
-    text = _text(build_report(run))
+    text = _text(build_report(run, _every_file(run)))
     assert "robustness file could not be read" in text and text.count("not run for this case") == 2
 
 

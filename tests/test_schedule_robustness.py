@@ -202,7 +202,7 @@ def test_table_names_the_requirement_met_by_the_fewest_samples():
 def test_robustness_titles_fit_the_figure(extra):
     # a verification label as condition name makes long titles: they shrink or break, never clip
     from damper.output.figures import DPI, new_figure
-    from damper.output.robustness_out import _title
+    from damper.output.robustness_plots import _title
 
     fig = new_figure(6.8, 5.0)
     fig.set_dpi(DPI)
@@ -215,7 +215,7 @@ def test_robustness_titles_fit_the_figure(extra):
 def test_pass_fraction_plot_fits_long_condition_names(tmp_path):
     # verification labels as condition names: every y tick label lies inside the figure
     from damper.output.figures import DPI
-    from damper.output.robustness_out import _draw_pass
+    from damper.output.robustness_plots import _draw_pass
 
     case = _twinjet(UNCERTAIN)
     study, gains, _ = schedule_study_case(case, design_schedule(case), 4)

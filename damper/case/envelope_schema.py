@@ -21,8 +21,8 @@ def _range(dims, doc, **kw):
 CONFIGURATION = Section(
     {
         "name": Text("Name of the mass / centre-of-gravity configuration."),
-        "mass": Quantity(("mass",), "Mass, kg.", **_POS),
-        "pitch_inertia": Quantity(("inertia",), "Pitch inertia, kg m^2.", **_POS),
+        "mass": Quantity(("mass",), "Mass, kg.", **_POS, plausible="mass"),
+        "pitch_inertia": Quantity(("inertia",), "Pitch inertia, kg m^2.", **_POS, plausible="inertia"),
         "cg": Number("Centre of gravity, fraction of the mean chord aft of its leading edge (default: aerodynamics.reference_cg).",
                      default=None, low=-1.0, high=2.0),
     },
@@ -32,9 +32,9 @@ CONFIGURATION = Section(
 ENVELOPE = Section(
     {
         "altitude": _range(("length",), "altitude, m", low=-2000.0, high=80000.0),
-        "airspeed": _range(("speed",), "true airspeed, m/s", **_POS),
-        "equivalent_airspeed": _range(("speed",), "equivalent airspeed, m/s", **_POS),
-        "mach": _range(("dimensionless",), "Mach number", **_POS),
+        "airspeed": _range(("speed",), "true airspeed, m/s", **_POS, plausible="speed"),
+        "equivalent_airspeed": _range(("speed",), "equivalent airspeed, m/s", **_POS, plausible="speed"),
+        "mach": _range(("dimensionless",), "Mach number", **_POS, plausible="mach"),
         "max_dynamic_pressure": Quantity(("pressure",), "Largest dynamic pressure, Pa.", default=None, **_POS),
         "max_mach": Quantity(("dimensionless",), "Largest Mach number.", default=None, **_POS),
         "min_equivalent_airspeed": Quantity(("speed",), "Smallest equivalent airspeed, m/s.", default=None, **_POS),

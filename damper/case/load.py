@@ -13,6 +13,7 @@ from ..model.airframe import Derivatives, from_coefficients
 from ..requirements.spec import build_requirements
 from . import schema
 from .model import Aircraft, Case, Condition, ElementSpec, LoopSpec, Settings
+from .ranges import MAX_MACH, MIN_CONTROL_POWER_RATIO, RANGES
 from .yamlio import read_yaml
 
 
@@ -28,14 +29,18 @@ def load_case(path) -> Case:
     CaseError
         Any problem with the file, naming the file, key path and value.
     """
+    from ..readfile import NotARegularFile, read_regular_file
+
     path = os.fspath(path)
     try:
-        with open(path, "rb") as fh:
-            data = fh.read(schema_max_bytes() + 1)  # never read more than the limit
+        data = read_regular_file(path, schema_max_bytes() + 1)  # never read more than the limit
     except FileNotFoundError:
         raise CaseError("no such file", file=path) from None
     except IsADirectoryError:
         raise CaseError("is a directory, not a case file", file=path) from None
+    except NotARegularFile as exc:
+        raise CaseError(f"is {exc.kind}, not a regular file: give a case file (damper never reads from a pipe or a "
+                        "device, which could block or never end)", file=path) from None
     except OSError as exc:
         raise CaseError(f"cannot read the file ({exc.strerror})", file=path) from None
     except ValueError:  # e.g. a NUL character in the name
@@ -193,6 +198,7 @@ def _resolve_derivatives(raw, mass, inertia, airspeed):
 
 
 def _build(values, file, sha, doc) -> Case:
+    _check_counts(values, doc)
     a = values["aircraft"]
     aircraft = Aircraft(a["name"], a["mass"], a["pitch_inertia"], a["wing_area"], a["mean_chord"])
     altitude_kind = values["atmosphere"]["altitude_kind"]
@@ -229,6 +235,7 @@ def _build(values, file, sha, doc) -> Case:
         else:
             v = c["mach"] * a_sound
         v = float(v)
+        _check_mach(v, a_sound, c, doc, i, line)
         qbar = 0.5 * rho * v * v
         mass = c["mass"] if c["mass"] is not None else aircraft.mass
         inertia = c["pitch_inertia"] if c["pitch_inertia"] is not None else aircraft.pitch_inertia
@@ -257,6 +264,7 @@ def _build(values, file, sha, doc) -> Case:
             source = "derivatives"
         d = Derivatives(**{k: np.asarray(float(getattr(d, k))) for k in Derivatives.__dataclass_fields__})
         _check_finite_model(d, path, name, line)
+        _check_control_power(d, c, doc, i, line)
         warnings.extend(_physics_warnings(d, f"{path} ({name})"))
         if c["coefficients"] is not None:
             warnings.extend(_coefficient_warnings(c["coefficients"], f"{path} ({name})"))
@@ -289,6 +297,7 @@ def _build(values, file, sha, doc) -> Case:
             raise CaseError("an envelope needs an aerodynamics section (coefficient tables against Mach)", "envelope",
                             line=_line(doc, "envelope"))
         _check_aero_tables(values["aerodynamics"], doc)
+        _check_envelope_mach(values, doc)
     loop = _build_loop(values["loop"], doc)
     warnings.extend(_loop_warnings(loop))
     s = values["analysis"]
@@ -311,14 +320,6 @@ def _build(values, file, sha, doc) -> Case:
             line=_line(doc, "analysis", "frequency_high"),
         )
     settings = Settings(s["frequency_low"], s["frequency_high"], s["points_per_decade"])
-    n_grid = len(settings.grid()) if np.log10(s["frequency_high"] / s["frequency_low"]) < 1e4 else np.inf
-    if n_grid > MAX_GRID_POINTS:
-        raise CaseError(
-            f"the margin-search grid would have {n_grid:.6g} points (decades x points_per_decade); at most "
-            f"{MAX_GRID_POINTS}: narrow frequency_low..frequency_high or lower points_per_decade",
-            "analysis",
-            line=_line(doc, "analysis"),
-        )
     requirements = build_requirements(values["requirements"])
     return Case(
         title=values["title"],
@@ -414,11 +415,101 @@ def _check_finite_model(d: Derivatives, path, name, line):
         )
 
 
+#: Most verification-grid points of an envelope (altitudes x speeds x configurations).
+MAX_ENVELOPE_POINTS = 200_000
+#: Most integration steps of a time response (duration / step).
+MAX_RESPONSE_STEPS = 2_000_000
+
+
+def _check_counts(values, doc):
+    """Refuse grids and step counts too large to compute, before anything is built."""
+    s = values["analysis"]
+    if s["frequency_low"] < s["frequency_high"]:
+        decades = np.log10(s["frequency_high"] / s["frequency_low"])
+        n_grid = max(2, int(round(decades * s["points_per_decade"])) + 1) if decades < 1e4 else np.inf  # Settings.grid
+        if n_grid > MAX_GRID_POINTS:
+            raise CaseError(
+                f"the margin-search grid would have {n_grid:.6g} points (decades x points_per_decade); at most "
+                f"{MAX_GRID_POINTS}: narrow frequency_low..frequency_high or lower points_per_decade",
+                "analysis",
+                line=_line(doc, "analysis"),
+            )
+    env = values.get("envelope")
+    if env is not None:
+        grid = env.get("grid") or {}
+        n = grid.get("altitudes", 9) * grid.get("speeds", 17) * max(1, len(env.get("configurations") or ()))
+        if n > MAX_ENVELOPE_POINTS:
+            raise CaseError(f"the verification grid would have {n} points (altitudes x speeds x configurations); "
+                            f"at most {MAX_ENVELOPE_POINTS}", "envelope.grid", line=_line(doc, "envelope", "grid"))
+    resp = values.get("responses")
+    if resp is not None and resp["duration"] / resp["step"] > MAX_RESPONSE_STEPS:
+        raise CaseError(f"gives {resp['duration'] / resp['step']:.3g} steps (duration / step); at most "
+                        f"{MAX_RESPONSE_STEPS:g}: use a larger step or a shorter duration", "responses.step",
+                        _raw(doc, "responses", "step"), line=_line(doc, "responses", "step"))
+
+
+def _check_mach(v, a_sound, c, doc, i, line):
+    """Every speed key, not only mach, stays within the Mach limit at its altitude."""
+    if v / a_sound <= MAX_MACH:
+        return
+    key = "airspeed" if c["airspeed"] is not None else "equivalent_airspeed" if c["equivalent_airspeed"] is not None \
+        else "mach"
+    raise CaseError(
+        f"is Mach {v / a_sound:.3g} at this altitude; damper accepts at most Mach {MAX_MACH:g} "
+        f"({RANGES['mach'].why})",
+        f"conditions[{i}].{key}",
+        _raw(doc, "conditions", i, key),
+        line=_line(doc, "conditions", i, key) or line,
+    )
+
+
+def _check_envelope_mach(values, doc):
+    """The envelope's largest true or equivalent airspeed stays within the Mach limit at every altitude of it."""
+    env = values["envelope"]
+    for key in ("airspeed", "equivalent_airspeed"):
+        rng = env.get(key)
+        if not rng or env.get("altitude") is None:
+            continue
+        h = np.linspace(env["altitude"]["min"], env["altitude"]["max"], 201)
+        if values["atmosphere"]["altitude_kind"] == "geometric":
+            h = geopotential_from_geometric(h)
+        try:
+            air = standard_atmosphere(np.clip(h, -2000.0, 84852.0))
+        except ValueError:
+            return  # an altitude outside the atmosphere is refused where the grid is built
+        v = rng["max"] * (np.sqrt(RHO0 / air.density) if key == "equivalent_airspeed" else 1.0)
+        mach = float(np.max(v / air.speed_of_sound))
+        if mach > MAX_MACH:
+            raise CaseError(
+                f"is Mach {mach:.3g} somewhere in the envelope's altitude range; damper accepts at most Mach "
+                f"{MAX_MACH:g} ({RANGES['mach'].why})",
+                f"envelope.{key}.max",
+                _raw(doc, "envelope", key, "max"),
+                line=_line(doc, "envelope", key, "max") or _line(doc, "envelope", key),
+            )
+
+
+def _check_control_power(d, c, doc, i, line):
+    """Refuse an elevator so weak against the airframe's own moments that it has no effect on the numbers."""
+    m_delta = abs(float(d.M_delta))
+    others = max(abs(float(d.M_alpha)), abs(float(d.M_q)), abs(float(d.M_alpha_dot)))
+    if others > 0 and m_delta < MIN_CONTROL_POWER_RATIO * others:
+        form, key = ("coefficients", "Cm_delta") if c["coefficients"] is not None else ("derivatives", "M_delta")
+        raise CaseError(
+            f"gives M_delta = {float(d.M_delta):.3g} 1/s^2, below {MIN_CONTROL_POWER_RATIO:g} of the largest other "
+            f"pitching-moment derivative ({others:.3g}): the elevator would have no effect; check the value and its "
+            "unit",
+            f"conditions[{i}].{form}.{key}",
+            _raw(doc, "conditions", i, form, key),
+            line=_line(doc, "conditions", i, form, key) or line,
+        )
+
+
 def _coefficient_warnings(coefficients, where):
     """Per-degree values given as plain numbers (which are per radian) are the usual slip."""
     out = []
     cla = coefficients["CL_alpha"]
-    if 0 < cla < 0.5:
+    if 0 < cla < RANGES["CL_alpha"].usual_low:
         out.append(
             f"{where}: CL_alpha = {cla:.4g} per rad is very small (usual 2 to 6 per rad): a per-degree value? "
             f"write e.g. '{cla:.4g} 1/deg'"
@@ -428,12 +519,12 @@ def _coefficient_warnings(coefficients, where):
 
 def _loop_warnings(loop):
     out = []
-    if loop.travel is not None and loop.travel > 1.0:
+    if loop.travel is not None and loop.travel > RANGES["travel"].usual_high:
         out.append(
             f"loop.actuator.travel = {loop.travel:.4g} rad ({np.degrees(loop.travel):.4g} deg) is unusually large: "
             "plain numbers are radians; write e.g. '10 deg'"
         )
-    if loop.rate_limit is not None and loop.rate_limit > 10.0:
+    if loop.rate_limit is not None and loop.rate_limit > RANGES["rate_limit"].usual_high:
         out.append(
             f"loop.actuator.rate_limit = {loop.rate_limit:.4g} rad/s ({np.degrees(loop.rate_limit):.4g} deg/s) is "
             "unusually large: plain numbers are rad/s; write e.g. '60 deg/s'"

@@ -25,6 +25,7 @@ import yaml
 from yaml.nodes import MappingNode, ScalarNode, SequenceNode
 
 from ..errors import CaseError, Raw
+from .ranges import MAX_CONDITIONS, MAX_LIST_ITEMS
 
 MAX_BYTES = 2_000_000  # a case file is a few kB; refuse anything absurdly large
 
@@ -55,7 +56,37 @@ class LineList(list):
     lines: list
 
 
+#: Longest list at a key path (top-level keys), counted while the file is composed.
+_LIST_LIMITS = {"conditions": MAX_CONDITIONS}
+
+
 class _Loader(yaml.SafeLoader):
+    """SafeLoader that counts list items while composing, so an oversized list is refused at
+    its first extra item instead of after the whole file is parsed."""
+
+    _keys: list
+
+    def compose_node(self, parent, index):
+        if not hasattr(self, "_keys"):
+            self._keys = []
+        if isinstance(parent, SequenceNode):
+            limit = _LIST_LIMITS.get(self._keys[-1]) if len(self._keys) == 2 and self._keys[0] is None else None
+            limit = MAX_LIST_ITEMS if limit is None else limit
+            if index >= limit:
+                where = self._keys[-1] if len(self._keys) == 2 and self._keys[0] is None else ""
+                raise CaseError(f"has more than {limit} items (refused while reading, before anything is built)",
+                                where or "", line=parent.start_mark.line + 1)
+            name = "[]"
+        elif isinstance(parent, MappingNode) and isinstance(index, ScalarNode):
+            name = index.value
+        else:
+            name = None
+        self._keys.append(name)
+        try:
+            return super().compose_node(parent, index)
+        finally:
+            self._keys.pop()
+
     def flatten_mapping(self, node):
         """Resolve merge keys, keeping only the winning pair of each key.
 

@@ -4,8 +4,12 @@ from __future__ import annotations
 
 import os
 import sys
+from dataclasses import dataclass
 
 NAME = "design"
+#: Conditions that get their own figures by default (docs/performance.md: a 2,000-condition run
+#: would otherwise draw about 6,000 figure files and a report too large to open).
+FIGURE_CONDITIONS = 48
 
 
 def register(sub) -> str:
@@ -24,6 +28,9 @@ def register(sub) -> str:
     p.add_argument("--gain-max", type=float, metavar="K", help="highest gain of the sweep, s")
     p.add_argument("--points", type=int, default=161, help="gains in the sweep (default 161)")
     p.add_argument("--no-plots", action="store_true", help="skip the plots")
+    p.add_argument("--max-figures", type=int, default=FIGURE_CONDITIONS, metavar="N",
+                   help=f"per-condition figures for at most N conditions (default {FIGURE_CONDITIONS}): every condition "
+                   "when the case has no more, else the infeasible ones and those with the least slack")
     p.add_argument("--no-responses", action="store_true", help="skip the time responses at the chosen gains")
     p.add_argument("--no-robustness", action="store_true", help="skip the robustness study of the case's uncertainty section")
     p.add_argument("--no-report", action="store_true", help="skip the HTML report (rebuild it later with 'damper report DIR')")
@@ -47,46 +54,45 @@ def _check_args(args):
         raise DamperError(f"--gain-min ({args.gain_min:g}) must be below --gain-max ({args.gain_max:g})")
     if not 8 <= args.points <= 5000:
         raise DamperError(f"--points = {args.points}: must be between 8 and 5000")
+    if not 0 <= args.max_figures <= 2000:
+        raise DamperError(f"--max-figures = {args.max_figures}: must be between 0 and 2000")
 
 
 def run(args, argv) -> int:
     _check_args(args)
-    from ..analysis.search import SearchSettings, search
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
-    from ..output.design_doc import design_document, design_table
-    from ..output.files import prepare_run_dir, write_atomic
-    from ..output.jsonout import dumps
+    from ..output.background import PlotJobs
+    from ..output.design_doc import design_table
+    from ..output.journal import part
+    from ..output.rundir import RunDirectory
 
     case = load_case(args.case)
-    out = prepare_run_dir(args.out, force=args.force)
-    warn_case(case)
-    settings = SearchSettings(
-        gain_min=args.gain_min,
-        gain_max=args.gain_max,
-        points=args.points,
-        policy=args.policy,
-        damping_target=args.target_damping,
-    )
     command = " ".join(["damper", *argv])
-    design = search(case, settings) if case.conditions else None
-    doc = design_document(case, design, command=command)
-    write_atomic(os.path.join(out, "design.json"), dumps(doc))
-    written = ["design.json"]
-    from ..output.background import PlotJobs
+    with RunDirectory(args.out, command, case.sha256, mode="new", force=args.force) as run:
+        out = run.root
+        warn_case(case)
+        written = ["design.json"]
+        # figures are drawn by a worker process while the analysis goes on (see PlotJobs)
+        rob_planned = case.raw.get("uncertainty") is not None and not args.no_robustness
+        with PlotJobs(enabled=(bool(case.conditions) or rob_planned) and not args.no_plots) as jobs:
+            design = _design(args, case, out, command, jobs)
+            robustness_text, spec, schedule = _analyses(args, case, design, out, command, jobs, written)
+        if not args.no_report:
+            from ..output.report import write_report
+            from ..output.runfiles import RunFiles
 
-    # figures are drawn by a worker process while the analysis goes on (see PlotJobs)
-    rob_planned = case.raw.get("uncertainty") is not None and not args.no_robustness
-    with PlotJobs(enabled=(design is not None or rob_planned) and not args.no_plots) as jobs:
-        robustness_text, spec, schedule = _analyses(args, case, design, out, command, jobs, written)
-    if not args.no_report:
-        from ..output.report import write_report
-
-        write_report(out)
-        written.append("report.html")
+            with part("report"):
+                write_report(out, RunFiles.verified(out, run.files()))
+            written.append("report.html")
+        run.finish()
+        written.append("manifest.json")
     print(f"{case.title}")
     if design is not None:
-        print(design_table(doc))
+        print(design_table(design.doc))
+        if design.figures is not None and not args.no_plots:
+            print(f"figures drawn for {len(design.figures)} of {len(design.conditions)} conditions (the infeasible ones "
+                  "and those with the least slack; --max-figures N to change)")
     if schedule is not None:
         from ..output.schedule_out import schedule_summary
 
@@ -105,6 +111,96 @@ def run(args, argv) -> int:
     return 0
 
 
+@dataclass(frozen=True)
+class DesignStream:
+    """What a design run keeps of its search, condition batch by condition batch.
+
+    Attributes
+    ----------
+    conditions : tuple of ConditionDesign
+        Every condition's result (feasible intervals, chosen gain K in s, reason).
+    doc : dict
+        The ``design.json`` document.
+    figures : tuple of int or None
+        Conditions with figures when not all of them have (None: every condition).
+    plot_jobs : tuple of int
+        Numbers of the design plot jobs queued on the run's PlotJobs.
+    """
+
+    conditions: tuple
+    doc: dict
+    figures: tuple | None
+    plot_jobs: tuple
+
+
+def _design(args, case, out, command, jobs):
+    """Search every condition in batches, queue the figures, write design.json (None without conditions)."""
+    import numpy as np
+
+    from ..analysis.batches import condition_batches, sub_case
+    from ..analysis.search import SearchSettings, search
+    from ..output.design_doc import condition_entries, design_document
+    from ..output.files import write_atomic
+    from ..output.journal import part
+    from ..output.jsonout import dump_part, dumps
+    from ..output.plots import plot_slugs
+
+    if not case.conditions:
+        with part("design"):
+            write_atomic(os.path.join(out, "design.json"), dumps(design_document(case, None, command=command)))
+        return None
+    settings = SearchSettings(gain_min=args.gain_min, gain_max=args.gain_max, points=args.points,
+                              policy=args.policy, damping_target=args.target_damping)
+    n = len(case.conditions)
+    slugs = plot_slugs(case.names)
+    draw_all = n <= args.max_figures
+    entries, conds, worst, job_ids = [], [], [], []
+    for a, b in condition_batches(n):  # memory: one batch's sweep at a time (damper/analysis/batches.py)
+        sub = sub_case(case, range(a, b))
+        d = search(sub, settings)
+        entries += [dump_part(e) for e in condition_entries(sub, d)]  # text: about 8 kB per condition
+        conds += d.conditions
+        worst.append(np.asarray(d.chosen.criteria.worst_slack, dtype=float).reshape(-1))
+        if draw_all and not args.no_plots:
+            job_ids += _queue_design_plots(jobs, sub, d, out, slugs[a:b])
+    figures = None
+    if not draw_all:
+        figures = _figure_conditions(conds, np.concatenate(worst), args.max_figures)
+        for a, b in condition_batches(len(figures)) if not args.no_plots else ():
+            idx = figures[a:b]
+            sub = sub_case(case, idx)
+            job_ids += _queue_design_plots(jobs, sub, search(sub, settings), out, [slugs[i] for i in idx])
+    drawn = None if figures is None or args.no_plots else {
+        "drawn_for": [case.conditions[i].name for i in figures],
+        "rule": f"per-condition figures for at most {args.max_figures} conditions: the infeasible ones first, then "
+        "those with the least slack at the chosen gain (--max-figures)",
+    }
+    doc = design_document(case, None, command=command, entries=entries, figures=drawn)
+    with part("design"):
+        write_atomic(os.path.join(out, "design.json"), dumps(doc))
+    return DesignStream(tuple(conds), doc, figures, tuple(job_ids))
+
+
+def _queue_design_plots(jobs, sub, design, out, slugs):
+    from ..output.journal import part
+    from ..output.plots import design_plot_jobs
+
+    plot_jobs = design_plot_jobs(sub, design, out, slugs)
+    with part("design"):
+        return [jobs.submit_group(plot_jobs[k : k + 3]) for k in range(0, len(plot_jobs), 3)]
+
+
+def _figure_conditions(conds, worst, limit) -> tuple:
+    """The conditions that get figures: infeasible first, then the least worst slack (NaN first), by index."""
+    import math
+
+    def key(i):
+        w = worst[i]
+        return (conds[i].feasible, -math.inf if w != w else w, i)
+
+    return tuple(sorted(sorted(range(len(conds)), key=key)[:limit]))
+
+
 def _analyses(args, case, design, out, command, jobs, written):
     """Schedule, responses and robustness after the search; figures go to `jobs`.
 
@@ -112,36 +208,30 @@ def _analyses(args, case, design, out, command, jobs, written):
     once every queued figure is drawn.
     """
     from ..output.files import write_atomic
+    from ..output.journal import part
     from ..output.jsonout import dumps
 
-    design_job = None
-    if design is not None and not args.no_plots:
-        from ..output.plots import design_plot_jobs
-
-        plot_jobs = design_plot_jobs(case, design, out)
-        design_job = [jobs.submit_group(plot_jobs[k : k + 3]) for k in range(0, len(plot_jobs), 3)]
     schedule = None
     if case.raw.get("schedule") is not None:
         from ..analysis.schedule import design_schedule
         from ..output.schedule_out import write_schedule
 
         schedule = design_schedule(case)
-        written += write_schedule(out, case, schedule, command=command)
-        if not args.no_plots:  # drawn here while the worker draws the search's figures
-            from ..output.schedule_plots import schedule_plots
+        with part("schedule"):
+            written += write_schedule(out, case, schedule, command=command)
+            if not args.no_plots:  # drawn here while the worker draws the search's figures
+                from ..output.schedule_plots import schedule_plots
 
-            written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
+                written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
     if design is not None and not args.no_responses:
         import numpy as np
 
-        from ..analysis.response import respond_case, response_spec
         from .respond import write_responses
 
-        rspec = response_spec(case)
         gains = np.array([c.chosen_gain for c in design.conditions])
-        responses = respond_case(case, gains, rspec)
-        write_responses(out, case, responses, rspec, command, plots=not args.no_plots, gain_text="chosen gain",
-                        jobs=jobs)
+        with part("responses"):
+            write_responses(out, case, gains, command, plots=not args.no_plots, gain_text="chosen gain",
+                            jobs=jobs, plot_only=design.figures)
         written.append("responses.json with time histories")
     robustness_text = spec = rob = rob_jobs = where = None
     studied = design is not None or schedule is not None
@@ -163,14 +253,15 @@ def _analyses(args, case, design, out, command, jobs, written):
         if not args.no_plots:
             from ..output.robustness_out import robustness_plot_jobs
 
-            rj = robustness_plot_jobs(case, rob, out)
+            rj = robustness_plot_jobs(case, rob, out, limit=args.max_figures)
             # four groups (the result is sent once per group): the worker and this process
             # share them at the end
             step = max(1, -(-len(rj) // 4))
-            rob_jobs = [jobs.submit_group(rj[k : k + step]) for k in range(0, len(rj), step)]
+            with part("robustness"):
+                rob_jobs = [jobs.submit_group(rj[k : k + step]) for k in range(0, len(rj), step)]
     jobs.finish()
-    if design_job is not None:
-        n = sum(len(jobs.paths(k)) for k in design_job)
+    if design is not None and design.plot_jobs:
+        n = sum(len(jobs.paths(k)) for k in design.plot_jobs)
         written.insert(1, f"{n} plot files in plots/")
     if rob is not None:
         from ..output.robustness_out import robustness_document, robustness_table
@@ -179,7 +270,8 @@ def _analyses(args, case, design, out, command, jobs, written):
         if rob_jobs is not None:
             files += sorted(os.path.relpath(p, out) for k in rob_jobs for p in jobs.paths(k))
         rdoc = robustness_document(case, rob, command=command, files=files, where=where)
-        write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
+        with part("robustness"):
+            write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
         written.append("robustness.json" + (f" with {len(files) - 1} robustness plot files" if len(files) > 1 else ""))
         robustness_text = robustness_table(rdoc)
     return robustness_text, spec, schedule

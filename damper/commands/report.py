@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 NAME = "report"
 
 
@@ -19,7 +21,10 @@ def run(args, argv) -> int:
 
     from ..cli import CAUTION_SHORT
     from ..errors import DamperError
+    from ..output.journal import part
     from ..output.report import write_report
+    from ..output.rundir import RunDirectory
+    from ..output.runfiles import RunFiles
 
     if not os.path.isdir(args.run_dir):
         raise DamperError(f"{args.run_dir}: no such directory; give the directory of a finished 'damper design' run")
@@ -27,7 +32,16 @@ def run(args, argv) -> int:
         raise DamperError(
             f"{args.run_dir}: no design.json here; run 'damper design CASE --out {args.run_dir}' first"
         )
-    path = write_report(args.run_dir)
-    print(f"wrote {path}")
+    command = " ".join(["damper", *argv])
+    with RunDirectory(args.run_dir, command, mode="report", parts=("report",)) as run:
+        files = RunFiles.verified(run.root, run.files(), complete=run.writes_manifest)
+        with part("report"):
+            path = write_report(run.root, files)
+        run.finish()
+    print(f"wrote {path}" + ("" if files.complete else " (the run is incomplete: the report says so)"))
+    if files.changed:
+        print(f"damper: warning: {len(files.changed)} file(s) listed by the run are missing or changed since and were "
+              f"left out of the report: {', '.join(files.changed[:5])}{', ...' if len(files.changed) > 5 else ''}",
+              file=sys.stderr)
     print(CAUTION_SHORT)
     return 0

@@ -15,21 +15,18 @@ def register(sub) -> str:
         "--gain", required=True, type=float, metavar="K", help="pitch-rate gain K in seconds (deg per deg/s)"
     )
     a.add_argument("--out", metavar="DIR", help="write CSV (one per condition and input), JSON and PNG/SVG plots here")
-    a.add_argument("--force", action="store_true", help="replace the files of an earlier run in DIR")
+    a.add_argument("--force", action="store_true",
+                   help="replace the responses of an earlier damper run in DIR (its other files are kept)")
     a.add_argument("--no-plots", action="store_true", help="with --out: skip the plots")
     return NAME
 
 
 def run(args, argv) -> int:
     import math
-    import os
 
-    from ..analysis.response import respond_case, response_spec
-    from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
+    from ..case import load_case
     from ..errors import DamperError
-    from ..output.files import prepare_run_dir
-    from ..output.response_plots import response_document, response_table
 
     if not math.isfinite(args.gain):
         raise DamperError(f"--gain = {args.gain}: must be a finite number of seconds")
@@ -37,60 +34,122 @@ def run(args, argv) -> int:
 
     case = design_points_case(load_case(args.case))  # an envelope case: its design points
     warn_case(case)
-    out = prepare_run_dir(args.out, force=args.force) if args.out else None
-    spec = response_spec(case)
-    result = respond_case(case, args.gain, spec)
     command = " ".join(["damper", *argv])
-    doc = write_responses(out, case, result, spec, command, plots=not args.no_plots, gain_text=f"K = {args.gain:g} s") if out \
-        else response_document(case, result, command=command, files={})
-    print(f"{case.title}: time responses with K = {args.gain:g} s" + (" (default doublet)" if spec.default else ""))
-    print(response_table(doc))
-    for note in result.notes:
-        print(f"note: {note}")
-    if out:
-        from ..output.report import refresh_report
-
-        rebuilt = refresh_report(out)
-        print(f"wrote responses.json, CSV and plots to {out}" + ("; rebuilt report.html" if rebuilt else ""))
-    else:
+    if not args.out:
+        doc, notes = write_responses(None, case, args.gain, command)
+        _print(case, args, doc, notes)
         print("no files written (give --out DIR for CSV, JSON and plots)")
+        print(CAUTION_SHORT)
+        return 0
+    from ..output.journal import part
+    from ..output.report import refresh_report
+    from ..output.rundir import RunDirectory
+
+    with RunDirectory(args.out, command, case.sha256, mode="add", parts=("responses",), force=args.force) as run:
+        with part("responses"):
+            doc, notes = write_responses(run.root, case, args.gain, command, plots=not args.no_plots,
+                                         gain_text=f"K = {args.gain:g} s")
+        rebuilt = refresh_report(run)
+        run.finish()
+    _print(case, args, doc, notes)
+    print(f"wrote responses.json, CSV and plots to {run.root}" + ("; rebuilt report.html" if rebuilt else ""))
     print(CAUTION_SHORT)
     return 0
 
 
-def write_responses(out, case, result, spec, command, plots=True, gain_text="chosen gains", jobs=None):
-    """Write each condition's CSV (and plots) and responses.json into `out`; return the document.
+def _print(case, args, doc, notes):
+    from ..output.response_plots import response_table
 
-    With `jobs` (a :class:`damper.output.background.PlotJobs`) the plots are queued there
-    (drawn by the time its ``finish()`` returns) instead of drawn here.
+    default = doc["simulation"]["default_inputs"]
+    print(f"{case.title}: time responses with K = {args.gain:g} s" + (" (default doublet)" if default else ""))
+    print(response_table(doc))
+    for note in notes:
+        print(f"note: {note}")
+
+
+def write_responses(out, case, gains, command, plots=True, gain_text="chosen gains", jobs=None, plot_only=None):
+    """Simulate every input at every condition, a batch of conditions at a time, and write the files.
+
+    Each condition's CSV (and plots) goes into `out` as its batch is simulated, then
+    responses.json; nothing is written when `out` is None. Memory holds one batch's time
+    histories (damper/analysis/batches.py). With `jobs` (a
+    :class:`damper.output.background.PlotJobs`) the plots are queued there; `plot_only`
+    (condition indices) limits the plots to those conditions.
+
+    Parameters
+    ----------
+    gains : float or array_like, shape (n_conditions,)
+        K, s.
+
+    Returns
+    -------
+    doc : dict
+        The responses.json document.
+    notes : list of str
     """
+    import numpy as np
+
+    from ..analysis.batches import condition_batches, sub_case
+    from ..analysis.response import respond_case, response_spec
+    from ..output.response_plots import response_document
+
+    n = len(case.conditions)
+    gains = np.broadcast_to(np.asarray(gains, dtype=float), (n,))
+    conditions, notes, doc = [], [], None
+    for a, b in condition_batches(n):
+        sub = sub_case(case, range(a, b))
+        spec = response_spec(sub)
+        result = respond_case(sub, gains[a:b], spec)
+        files = {} if out is None else _write_batch(out, sub, a, result, spec, plots, gain_text, jobs, plot_only)
+        doc = response_document(sub, result, command=command, files=files)
+        conditions += doc["conditions"]
+        notes += [note for note in result.notes if note not in notes]
+    doc = dict(doc, conditions=conditions, notes=list(notes))  # the case-level keys are the same in every batch
+    if out is not None:
+        import os
+
+        from ..output.files import write_atomic
+        from ..output.jsonout import dumps
+
+        write_atomic(os.path.join(out, "responses.json"), dumps(doc))
+    return doc, notes
+
+
+def _write_batch(out, sub, start, result, spec, plots, gain_text, jobs, plot_only):
+    """CSV (and plots) of one batch of conditions; ``{(i, j): [file names]}`` with i local to the batch."""
     import os
     from functools import partial
 
     from ..output.files import write_atomic
-    from ..output.jsonout import dumps
-    from ..output.response_plots import file_stem, plot_response, response_csv, response_document
+    from ..output.response_plots import file_stem, plot_response, response_csv
 
     files = {}
     stride = max(1, int(round(spec.output_step / spec.step)))
     for j, res in enumerate(result.responses):
-        for i, cond in enumerate(case.conditions):
+        for i, cond in enumerate(sub.conditions):
             bare, aug = res.bare.take(i), res.augmented.take(i)
-            stem = os.path.join(out, file_stem(i, cond.name, j, res.input.label))
+            stem = os.path.join(out, file_stem(start + i, cond.name, j, res.input.label))
             paths = [write_atomic(stem + ".csv", response_csv(bare, aug, stride))]
-            if plots:
+            if plots and (plot_only is None or start + i in plot_only):
                 draw = partial(
                     plot_response,
-                    title=f"{case.title}: {cond.name}",
+                    title=f"{sub.title}: {cond.name}",
                     subtitle=f"{res.input.label}; {gain_text}; dashed: actuator limits",
                     rate_limit=result.rate_limit, travel=result.travel, stride=stride,
                 )
                 if jobs is None:
                     paths += draw(stem, bare, aug)
-                else:
-                    jobs.submit(draw, stem, bare, aug)
+                else:  # copies: a view would keep the whole batch's histories alive while the job waits
+                    jobs.submit(draw, stem, _owned(bare), _owned(aug))
                     paths += [stem + ".png", stem + ".svg"]  # the names save_figure writes
             files[(i, j)] = [os.path.basename(p) for p in paths]
-    doc = response_document(case, result, command=command, files=files)
-    write_atomic(os.path.join(out, "responses.json"), dumps(doc))
-    return doc
+    return files
+
+
+def _owned(history):
+    """A time history whose arrays are its own (not views into a batch's arrays)."""
+    import dataclasses
+
+    import numpy as np
+
+    return dataclasses.replace(history, **{k: np.array(getattr(history, k)) for k in history.SERIES})

@@ -5,6 +5,8 @@ from __future__ import annotations
 import sys
 
 NAME = "robust"
+#: Largest design.json / gain-schedule.json read (a 2,000-condition design.json is about 20 MB).
+MAX_JSON_BYTES = 200_000_000
 
 
 def register(sub) -> str:
@@ -26,7 +28,8 @@ def register(sub) -> str:
     p.add_argument("--seed", type=int, metavar="S", help="random seed (default: the case's, else 1)")
     p.add_argument("--workers", type=int, metavar="W", help="threads evaluating chunks (default: up to 2)")
     p.add_argument("--out", metavar="DIR", help="run directory to create (default: robust-<case name>)")
-    p.add_argument("--force", action="store_true", help="replace the files of an earlier run in DIR")
+    p.add_argument("--force", action="store_true",
+                   help="replace the robustness files of an earlier damper run in DIR (its other files are kept)")
     p.add_argument("--no-plots", action="store_true", help="skip the plots")
     p.add_argument("--quiet", action="store_true", help="no progress bar on standard error")
     return NAME
@@ -77,13 +80,14 @@ def _read_design(path):
 
     from ..errors import DamperError
 
+    from ..readfile import read_regular_file
+
     file = os.path.join(path, "design.json") if os.path.isdir(path) else path
     try:
-        with open(file, encoding="utf-8") as fh:
-            return json.load(fh), file
+        return json.loads(read_regular_file(file, MAX_JSON_BYTES).decode("utf-8")), file
     except FileNotFoundError:
         raise DamperError(f"--design {path}: no design.json there (run `damper design CASE --out {path}` first)") from None
-    except (OSError, ValueError) as exc:
+    except (OSError, ValueError) as exc:  # NotARegularFile (a FIFO ...) is an OSError
         raise DamperError(f"--design {path}: cannot read {file} ({exc})") from None
 
 
@@ -94,10 +98,11 @@ def _read_schedule(path):
     from ..errors import DamperError
     from ..output.schedule_out import schedule_from_table
 
+    from ..readfile import read_regular_file
+
     file = os.path.join(path, "gain-schedule.json") if os.path.isdir(path) else path
     try:
-        with open(file, encoding="utf-8") as fh:
-            doc = json.load(fh)
+        doc = json.loads(read_regular_file(file, MAX_JSON_BYTES).decode("utf-8"))
     except FileNotFoundError:
         raise DamperError(f"--schedule {path}: no such file (a design run of a case with a schedule writes "
                           "gain-schedule.json)") from None
@@ -115,8 +120,11 @@ def run(args, argv) -> int:
     from ..analysis.robustness import gains_from_design, robustness, uncertainty_spec
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
-    from ..output.files import prepare_run_dir, write_atomic
+    from ..output.files import write_atomic
+    from ..output.journal import part
     from ..output.jsonout import dumps
+    from ..output.rundir import RunDirectory
+    from ..output.report import refresh_report
     from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
 
     case = load_case(args.case)
@@ -145,21 +153,27 @@ def run(args, argv) -> int:
             case = design_points_case(case)
             source = f"K = {args.gain:g} s at the {len(case.conditions)} envelope design points"
     stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
-    out = prepare_run_dir(args.out or f"robust-{stem}", force=args.force)
-    warn_case(case)
-    if not spec.parameters and spec.cg_shift is None:
-        print("damper: warning: the case has no uncertainty: section (or it is empty); every sample is the nominal",
-              file=sys.stderr)
-    start = time.perf_counter()
-    result = robustness(case, gains, spec, progress=None if args.quiet else _Progress(), workers=args.workers)
-    elapsed = time.perf_counter() - start
-    files = ["robustness.json"]
-    plot_paths = []
-    if not args.no_plots:
-        plot_paths = robustness_plots(case, result, out)
-        files += sorted(os.path.relpath(p, out) for p in plot_paths)
-    doc = robustness_document(case, result, command=" ".join(["damper", *argv]), files=files, where=where)
-    write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
+    command = " ".join(["damper", *argv])
+    with RunDirectory(args.out or f"robust-{stem}", command, case.sha256, mode="add", parts=("robustness",),
+                      force=args.force) as run:
+        out = run.root
+        warn_case(case)
+        if not spec.parameters and spec.cg_shift is None:
+            print("damper: warning: the case has no uncertainty: section (or it is empty); every sample is the nominal",
+                  file=sys.stderr)
+        start = time.perf_counter()
+        result = robustness(case, gains, spec, progress=None if args.quiet else _Progress(), workers=args.workers)
+        elapsed = time.perf_counter() - start
+        files = ["robustness.json"]
+        plot_paths = []
+        with part("robustness"):
+            if not args.no_plots:
+                plot_paths = robustness_plots(case, result, out)
+                files += sorted(os.path.relpath(p, out) for p in plot_paths)
+            doc = robustness_document(case, result, command=command, files=files, where=where)
+            write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
+        rebuilt = refresh_report(run)
+        run.finish()
     print(f"{case.title}: robustness with {source}")
     print(
         f"{spec.samples} samples (seed {spec.seed}), {len(result.corners_u)} corners"
@@ -172,9 +186,6 @@ def run(args, argv) -> int:
     if bad:
         print("note: equivalent-system fit did not converge for " + ", ".join(f"{n} ({k} samples)" for n, k in bad))
     written = "robustness.json" + (f" and {len(plot_paths)} plot files in plots/" if plot_paths else "")
-    from ..output.report import refresh_report
-
-    rebuilt = refresh_report(out)
     print(f"wrote {written} to {out}" + ("; rebuilt report.html" if rebuilt else ""))
     print(CAUTION_SHORT)
     return 0

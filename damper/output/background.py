@@ -12,6 +12,13 @@ whoever draws them. The worker is started with the ``spawn`` method (safe beside
 analysis's threads). If the worker cannot start or dies, the jobs are drawn in this
 process instead. ``DAMPER_PLOT_WORKERS=0`` in the environment (or ``workers=0``)
 draws everything in this process, in order.
+
+The worker never outlives this process: it ignores Ctrl-C (this process ends it, see
+:meth:`PlotJobs.close`), asks the kernel to kill it when its parent dies (Linux
+``PR_SET_PDEATHSIG``) and watches its parent's pid as well (any POSIX system), so even
+after ``kill -9`` of this process it stops within a fraction of a second. Its files are
+journaled in the run directory like this process's (the part of the run each job
+belongs to is the one active when it was submitted).
 """
 
 from __future__ import annotations
@@ -19,6 +26,48 @@ from __future__ import annotations
 import os
 
 __all__ = ["PlotJobs", "run_jobs"]
+
+#: How often the worker checks that its parent is alive, s.
+PARENT_CHECK_INTERVAL = 0.2
+
+
+def _die_with_parent(parent_pid: int) -> None:
+    """End this (worker) process as soon as the process `parent_pid` is gone."""
+    import sys
+    import threading
+    import time
+
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+            import signal
+
+            libc = ctypes.CDLL(None, use_errno=True)
+            libc.prctl(1, int(signal.SIGKILL), 0, 0, 0)  # PR_SET_PDEATHSIG = 1
+        except (OSError, AttributeError):
+            pass
+    if os.getppid() != parent_pid:  # the parent died before the request above took effect
+        os._exit(1)
+
+    def watch():
+        while True:
+            time.sleep(PARENT_CHECK_INTERVAL)
+            if os.getppid() != parent_pid:
+                os._exit(1)
+
+    threading.Thread(target=watch, name="damper-parent-watch", daemon=True).start()
+
+
+def _worker_start(parent_pid, run):
+    """Initializer of the plot worker: ignore Ctrl-C, die with the parent, journal into `run`."""
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    _die_with_parent(parent_pid)
+    if run is not None:
+        from .journal import activate
+
+        activate(*run)
 
 
 def run_jobs(jobs) -> list:
@@ -61,7 +110,13 @@ class PlotJobs:
                 import multiprocessing
                 from concurrent.futures import ProcessPoolExecutor
 
-                self._pool = ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"))
+                from .journal import active
+
+                run = active()
+                self._pool = ProcessPoolExecutor(
+                    max_workers=n, mp_context=multiprocessing.get_context("spawn"), initializer=_worker_start,
+                    initargs=(os.getpid(), None if run is None else run[:2]),
+                )
             except (OSError, ImportError, NotImplementedError, ValueError):
                 self._pool = None
         self._jobs = []  # [fn, args, future or None, paths or None]
@@ -72,20 +127,36 @@ class PlotJobs:
         return self._pool is not None
 
     def submit(self, fn, *args) -> int:
-        """Queue ``fn(*args)`` (run at once when there is no worker); returns the job's number."""
+        """Queue ``fn(*args)`` (run at once when there is no worker); returns the job's number.
+
+        The job's files belong to the part of the run active now, wherever it is drawn.
+        """
+        from .journal import active, in_part
+
+        run = active()
+        if run is not None:
+            fn, args = in_part, (run[2], fn, *args)
         if self._pool is None:
-            self._jobs.append([fn, args, None, list(fn(*args))])
+            self._jobs.append([None, None, None, list(fn(*args))])
             return len(self._jobs) - 1
         from concurrent.futures.process import BrokenProcessPool
 
+        self._forget_done()
         try:
             future = self._pool.submit(fn, *args)
         except (BrokenProcessPool, RuntimeError):  # the worker died: draw here from now on
             self._shutdown()
-            self._jobs.append([fn, args, None, list(fn(*args))])
+            self._jobs.append([None, None, None, list(fn(*args))])
             return len(self._jobs) - 1
         self._jobs.append([fn, args, future, None])
         return len(self._jobs) - 1
+
+    def _forget_done(self):
+        """Keep the paths of finished jobs and drop their arguments (memory: only pending jobs hold data)."""
+        for job in self._jobs:
+            future = job[2]
+            if future is not None and future.done() and not future.cancelled() and future.exception() is None:
+                job[0], job[1], job[2], job[3] = None, None, None, list(future.result())
 
     def submit_group(self, jobs) -> int:
         """Queue a list of jobs ``(fn, args)`` as one (their data are sent once); returns its number."""
@@ -134,9 +205,20 @@ class PlotJobs:
             self._pool = None
 
     def close(self) -> None:
-        """Stop the worker without waiting for queued jobs (after an error)."""
+        """End the worker at once, queued and running jobs alike (after an error or an interrupt)."""
         if self._pool is not None:
+            processes = list((getattr(self._pool, "_processes", None) or {}).values())
             self._pool.shutdown(wait=False, cancel_futures=True)
+            for p in processes:  # shutdown() lets a running job finish; this does not
+                try:
+                    p.terminate()
+                except (OSError, AttributeError, ValueError):
+                    pass
+            for p in processes:
+                try:
+                    p.join(timeout=10)
+                except (OSError, AttributeError, ValueError, AssertionError):
+                    pass
             self._pool = None
 
     def __enter__(self):

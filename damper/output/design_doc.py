@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import json
+
 from .jsonout import CAUTION, condition_result, num, provenance
 from .text import fmt, table
 
@@ -87,8 +89,29 @@ def case_summary(case) -> dict:
     }
 
 
-def design_document(case, design, command=None) -> dict:
-    """Per condition: chosen gain, feasible intervals, edges and the measures at the chosen gain."""
+def design_document(case, design, command=None, entries=None, figures=None) -> dict:
+    """Per condition: chosen gain, feasible intervals, edges and the measures at the chosen gain.
+
+    `entries` (from :func:`condition_entries`, batch by batch) replaces `design` for a case
+    searched in batches. `figures` (a dict) says which conditions have figures when not all do.
+    """
+    doc = {
+        "title": case.title,
+        "caution": CAUTION,
+        "warnings": list(case.warnings),
+        "damping_measure": case.requirements.damping_measure,
+        "requirements": requirements_list(case),
+        "conditions": entries if entries is not None else condition_entries(case, design),
+        "provenance": provenance(case, command),
+        "case_summary": case_summary(case),
+    }
+    if figures is not None:
+        doc["figures"] = figures
+    return doc
+
+
+def condition_entries(case, design) -> list:
+    """The ``design.json`` entry of every condition of `design` (a search of `case`)."""
     conds = []
     for i, d in enumerate(design.conditions if design is not None else ()):
         conds.append(
@@ -111,16 +134,7 @@ def design_document(case, design, command=None) -> dict:
                 "measures": condition_result(case, design.chosen, (i,)),
             }
         )
-    return {
-        "title": case.title,
-        "caution": CAUTION,
-        "warnings": list(case.warnings),
-        "damping_measure": case.requirements.damping_measure,
-        "requirements": requirements_list(case),
-        "conditions": conds,
-        "provenance": provenance(case, command),
-        "case_summary": case_summary(case),
-    }
+    return conds
 
 
 def _short(binding: str) -> str:
@@ -145,9 +159,15 @@ def design_table(doc) -> str:
         "level",
     ]
     rows = []
-    order = sorted(range(len(doc["conditions"])), key=lambda i: doc["conditions"][i]["feasible"])
+    conds = doc["conditions"]
+
+    def entry(i):  # an entry kept as JSON text (a large case) is read back one at a time
+        c = conds[i]
+        return json.loads(c) if isinstance(c, str) else c
+
+    order = sorted(range(len(conds)), key=lambda i: entry(i)["feasible"])
     for i in order:
-        c = doc["conditions"][i]
+        c = entry(i)
         m = c["measures"]
         eq = m["closed_loop"]["equivalent"] or {}
         sp = m["closed_loop"]["short_period"]

@@ -31,9 +31,47 @@ def clean(obj):
     return obj
 
 
+class JsonText(str):
+    """A part of a document already serialised by :func:`dump_part` (kept as text: a few kB
+    instead of the tens of kB its dicts and floats would hold in memory)."""
+
+
+def dump_part(obj) -> JsonText:
+    """Serialise one part of a larger document now; :func:`dumps` splices it in unchanged."""
+    return JsonText(json.dumps(clean(obj), indent=2, allow_nan=False))
+
+
 def dumps(obj) -> str:
-    """Deterministic JSON text (sorted keys off: our dicts are built in a fixed order)."""
-    return json.dumps(clean(obj), indent=2, allow_nan=False) + "\n"
+    """Deterministic JSON text (sorted keys off: our dicts are built in a fixed order).
+
+    Parts given as :class:`JsonText` are spliced in at their place and depth: the text is
+    byte for byte what serialising the original objects in place would give.
+    """
+    parts = []
+
+    def mark(x):
+        if isinstance(x, JsonText):
+            parts.append(x)
+            return f"\x00part{len(parts) - 1}\x00"
+        if isinstance(x, dict):
+            return {k: mark(v) for k, v in x.items()}
+        if isinstance(x, (list, tuple)):
+            return [mark(v) for v in x]
+        return x
+
+    text = json.dumps(clean(mark(obj)), indent=2, allow_nan=False) + "\n"
+    if not parts:
+        return text
+    out, pos = [], 0
+    for k, part in enumerate(parts):
+        token = json.dumps(f"\x00part{k}\x00")
+        at = text.index(token, pos)
+        indent = at - (text.rfind("\n", 0, at) + 1)
+        out.append(text[pos:at])
+        out.append(part.replace("\n", "\n" + " " * indent))
+        pos = at + len(token)
+    out.append(text[pos:])
+    return "".join(out)
 
 
 def _finite(values):

@@ -18,9 +18,9 @@ importing this module is cheap.
 from __future__ import annotations
 
 from .figures import new_figure, save_figure  # noqa: E402
+from .names import plot_slugs, safe_name  # noqa: F401 - other modules import safe_name from here
 
 import os
-import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -83,22 +83,11 @@ _RC = {
     "hatch.linewidth": 0.6,
 }
 _MARK_EVERY = 8  # markers on every 8th sweep point (the line carries the data)
-_WINDOWS_RESERVED = {"con", "prn", "aux", "nul", *(f"com{k}" for k in range(1, 10)), *(f"lpt{k}" for k in range(1, 10))}
 
 
 # ---------------------------------------------------------------------------------
 # helpers
 # ---------------------------------------------------------------------------------
-def safe_name(name: str) -> str:
-    """A filesystem-safe slug of a condition name (lower case, ``[a-z0-9._-]``)."""
-    s = re.sub(r"[^A-Za-z0-9._-]+", "-", str(name)).strip("-._").lower()[:80].strip("-._")
-    if not s:
-        s = "condition"
-    if s.split(".")[0] in _WINDOWS_RESERVED:
-        s = "condition-" + s
-    return s
-
-
 def _figure(width, height):
     return new_figure(width, height)
 
@@ -1066,24 +1055,22 @@ def _draw_sweep(case, design, i):
 # ---------------------------------------------------------------------------------
 # 4. all of them
 # ---------------------------------------------------------------------------------
-def design_plot_jobs(case, design, out_dir):
+def design_plot_jobs(case, design, out_dir, slugs=None):
     """The figures of :func:`design_plots` as separate jobs ``(fn, args)``, in file order.
 
     Each ``fn(*args)`` draws one figure and returns its written paths (see
-    :class:`damper.output.background.PlotJobs`).
+    :class:`damper.output.background.PlotJobs`). `slugs` gives each condition's file
+    slug (default: from the names of `design`'s conditions, as :func:`plot_slugs` makes
+    them); a batch of a larger case passes the slugs of the whole case.
     """
     from functools import partial
 
     plot_dir = os.path.join(os.fspath(out_dir), "plots")
     ol = open_loop_poles(case)
-    taken = set()
+    if slugs is None:
+        slugs = plot_slugs([cond.name for cond in design.conditions])
     jobs = []
-    for i, cond in enumerate(design.conditions):
-        base = safe_name(cond.name)
-        slug, n = base, 2
-        while slug in taken:
-            slug, n = f"{base}-{n}", n + 1
-        taken.add(slug)
+    for i, slug in enumerate(slugs):
         stem = os.path.join(plot_dir, slug)
         jobs.append((partial(root_locus, open_loop=ol), (case, design, i, stem + "-root-locus")))
         jobs.append((loop_response_plot, (case, design, i, stem + "-loop-response")))
@@ -1118,6 +1105,7 @@ __all__ = [
     "gain_sweep_plot",
     "loop_response_plot",
     "open_loop_poles",
+    "plot_slugs",
     "root_locus",
     "safe_name",
 ]

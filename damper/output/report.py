@@ -26,20 +26,20 @@ byte-identical rebuild).
 
 from __future__ import annotations
 
-import base64
 import datetime as _dt
-import hashlib
 import json
 import math
 import os
 import re
 
 from ..errors import DamperError
+from .names import plot_slugs
+from .runfiles import MAX_SVG_BYTES  # noqa: F401 - part of this module's interface
+from .runfiles import image_uri as _image
+from .runfiles import read_json as _read_json
 
 #: Files of the run directory the report reads, in the order of its sections.
 OPTIONAL_DOCUMENTS = ("schedule.json", "robustness.json", "responses.json")
-#: Largest SVG inlined as vector graphics; a larger plot is inlined as its PNG, bytes.
-MAX_SVG_BYTES = 3_000_000
 R2D = 180.0 / math.pi
 KT = 0.514444  # m/s per knot (exact: 1852/3600)
 FT = 0.3048  # m per foot (exact)
@@ -221,61 +221,6 @@ def binding_text(binding):
 # ---------------------------------------------------------------------------------
 # reading the run directory
 # ---------------------------------------------------------------------------------
-def _read_json(path, required):
-    try:
-        with open(path, encoding="utf-8") as fh:
-            text = fh.read()
-    except FileNotFoundError:
-        if required:
-            raise DamperError(
-                f"{os.path.dirname(path) or '.'}: no design.json here; "
-                "give the directory of a finished 'damper design CASE --out DIR' run"
-            ) from None
-        return None, None
-    except OSError as exc:
-        raise DamperError(f"{path}: cannot be read ({exc.strerror})") from None
-    try:
-        return json.loads(text), hashlib.sha256(text.encode("utf-8")).hexdigest()
-    except ValueError as exc:
-        if required:
-            raise DamperError(f"{path}: not valid JSON ({exc}); rerun 'damper design'") from None
-        return {"_unreadable": f"not valid JSON ({exc})"}, hashlib.sha256(text.encode("utf-8")).hexdigest()
-
-
-def _data_uri(path):
-    ext = os.path.splitext(path)[1].lower()
-    mime = {".svg": "image/svg+xml", ".png": "image/png"}[ext]
-    with open(path, "rb") as fh:
-        data = fh.read()
-    return f"data:{mime};base64,{base64.b64encode(data).decode('ascii')}"
-
-
-def _image(run_dir, stem_candidates):
-    """The data URI of the first existing plot among `stem_candidates` (SVG first), or None."""
-    for stem in stem_candidates:
-        svg, png = os.path.join(run_dir, stem + ".svg"), os.path.join(run_dir, stem + ".png")
-        if os.path.isfile(svg) and os.path.getsize(svg) <= MAX_SVG_BYTES:
-            return _data_uri(svg)
-        if os.path.isfile(png):
-            return _data_uri(png)
-    return None
-
-
-def plot_slugs(names):
-    """The plot file slug of every condition, as :func:`damper.output.plots.design_plots` names them."""
-    from .plots import safe_name
-
-    taken, out = set(), []
-    for name in names:
-        base = safe_name(name)
-        slug, n = base, 2
-        while slug in taken:
-            slug, n = f"{base}-{n}", n + 1
-        taken.add(slug)
-        out.append(slug)
-    return out
-
-
 # ---------------------------------------------------------------------------------
 # view model
 # ---------------------------------------------------------------------------------
@@ -286,7 +231,7 @@ def _status(ok):
     return {"cls": "pass", "symbol": "\u2714", "text": "met"} if ok else {"cls": "fail", "symbol": "\u2718", "text": "MISSED"}
 
 
-def _condition_view(i, c, slug, run_dir, summary_cond):
+def _condition_view(i, c, slug, files, summary_cond):
     m = c.get("measures") or {}
     fl = m.get("flight") or {}
     bare = (m.get("bare") or {}).get("short_period") or {}
@@ -398,7 +343,7 @@ def _condition_view(i, c, slug, run_dir, summary_cond):
         ("loop-response", "Loop response L(j\u03c9) at the chosen gain, loop broken at the actuator input (exact delay)."),
         ("gain-sweep", "Gain sweep: damping, margins and feasible gains against the gain K (s)."),
     ):
-        figures.append({"src": _image(run_dir, [os.path.join("plots", f"{slug}-{suffix}")]), "caption": caption, "kind": suffix})
+        figures.append({"src": _image(files, [os.path.join("plots", f"{slug}-{suffix}")]), "caption": caption, "kind": suffix})
 
     return {
         "index": i,
@@ -561,7 +506,7 @@ def _requirements_view(doc):
 
 
 # --- time responses ---------------------------------------------------------------
-def _responses_view(doc, run_dir, chosen=None):
+def _responses_view(doc, files, chosen=None):
     if doc is None:
         return None
     if "_unreadable" in doc:
@@ -605,7 +550,7 @@ def _responses_view(doc, run_dir, chosen=None):
             )
             stems = sorted({os.path.splitext(p)[0] for p in r.get("files") or [] if p.lower().endswith((".png", ".svg"))})
             for stem in stems:
-                src = _image(run_dir, [stem, os.path.join("responses", stem), os.path.join("plots", stem)])
+                src = _image(files, [stem, os.path.join("responses", stem), os.path.join("plots", stem)])
                 if src:
                     figures.append(
                         {"src": src, "caption": f"{c.get('name')}: {inp.get('name') or inp.get('kind')}, K = {f(c.get('gain_s'))} s"}
@@ -689,7 +634,7 @@ def _verdict(row):
     return None
 
 
-def _blocks(obj, run_dir, title="", depth=0):
+def _blocks(obj, files, title="", depth=0):
     """Render blocks (settings lists, tables, figures) of a generic JSON document."""
     blocks, figures = [], []
     pairs, subs = [], []
@@ -697,7 +642,7 @@ def _blocks(obj, run_dir, title="", depth=0):
         if key in _SKIP and depth == 0:
             continue
         if isinstance(v, str) and v.lower().endswith((".png", ".svg")):
-            src = _image(run_dir, [os.path.splitext(v)[0]])
+            src = _image(files, [os.path.splitext(v)[0]])
             if src:
                 figures.append({"src": src, "caption": f"{_head(key)}: {os.path.basename(v)}"})
                 continue
@@ -712,7 +657,7 @@ def _blocks(obj, run_dir, title="", depth=0):
     for key, v in subs:
         label = (f"{title}: " if title else "") + _head(key)
         if isinstance(v, dict):
-            b, fg = _blocks(v, run_dir, label, depth + 1) if depth < 3 else ([{"kind": "pairs", "title": label, "rows": [(k, _cell(x)) for k, x in v.items()]}], [])
+            b, fg = _blocks(v, files, label, depth + 1) if depth < 3 else ([{"kind": "pairs", "title": label, "rows": [(k, _cell(x)) for k, x in v.items()]}], [])
             blocks += b
             figures += fg
         elif isinstance(v, list) and v and all(isinstance(x, dict) for x in v):
@@ -731,7 +676,7 @@ def _blocks(obj, run_dir, title="", depth=0):
             for row in v:
                 for k, x in row.items():
                     if isinstance(x, str) and x.lower().endswith((".png", ".svg")):
-                        src = _image(run_dir, [os.path.splitext(x)[0]])
+                        src = _image(files, [os.path.splitext(x)[0]])
                         if src:
                             figures.append({"src": src, "caption": f"{label}: {os.path.basename(x)}"})
             more = len(v) - len(rows)
@@ -753,21 +698,19 @@ def _blocks(obj, run_dir, title="", depth=0):
     return blocks, figures
 
 
-def _generic_view(doc, run_dir, plot_prefix):
+def _generic_view(doc, files, plot_prefix):
     if doc is None:
         return None
     if "_unreadable" in doc:
         return {"error": doc["_unreadable"]}
-    blocks, figures = _blocks(doc, run_dir)
-    plot_dir = os.path.join(run_dir, "plots")
+    blocks, figures = _blocks(doc, files)
     named = {fg["src"] for fg in figures}
-    if os.path.isdir(plot_dir):
-        stems = sorted({os.path.splitext(n)[0] for n in os.listdir(plot_dir)
-                        if n.startswith(plot_prefix) and n.lower().endswith((".png", ".svg"))})
-        for stem in stems:
-            src = _image(run_dir, [os.path.join("plots", stem)])
-            if src and src not in named:
-                figures.append({"src": src, "caption": stem.replace("-", " ").replace("_", " ")})
+    stems = sorted({os.path.splitext(n)[0][len("plots/"):] for n in files.names("plots")
+                    if n[len("plots/"):].startswith(plot_prefix) and n.lower().endswith((".png", ".svg"))})
+    for stem in stems:
+        src = _image(files, ["plots/" + stem])
+        if src and src not in named:
+            figures.append({"src": src, "caption": stem.replace("-", " ").replace("_", " ")})
     headline = None
     for key in _VERDICT_KEYS:
         if isinstance(doc.get(key), bool):
@@ -809,7 +752,7 @@ def _table(title, heads, rows, fails=None, limit=MAX_TABLE_ROWS):
     }
 
 
-def _files_figures(run_dir, names, captions=None):
+def _files_figures(files, names, captions=None):
     stems, out = [], []
     for name in names or []:
         if isinstance(name, str) and name.lower().endswith((".png", ".svg")):
@@ -817,19 +760,16 @@ def _files_figures(run_dir, names, captions=None):
             if stem not in stems:
                 stems.append(stem)
     for stem in stems:
-        src = _image(run_dir, [stem, os.path.join("plots", stem)])
+        src = _image(files, [stem, os.path.join("plots", stem)])
         if src:
             base = os.path.basename(stem)
             out.append({"src": src, "caption": (captions or {}).get(base.split("-")[0], base.replace("-", " "))})
     return out
 
 
-def _plot_dir_figures(run_dir, prefixes, captions=None):
-    plot_dir = os.path.join(run_dir, "plots")
-    if not os.path.isdir(plot_dir):
-        return []
-    names = sorted(n for n in os.listdir(plot_dir) if n.startswith(prefixes) and n.lower().endswith((".png", ".svg")))
-    return _files_figures(run_dir, [os.path.join("plots", n) for n in names], captions)
+def _plot_dir_figures(files, prefixes, captions=None):
+    names = [n for n in files.names("plots") if n[len("plots/"):].startswith(prefixes) and n.lower().endswith((".png", ".svg"))]
+    return _files_figures(files, names, captions)
 
 
 def _headline(ok, message):
@@ -839,7 +779,7 @@ def _headline(ok, message):
     }
 
 
-def _schedule_view(doc, run_dir):
+def _schedule_view(doc, files):
     t = doc["table"]
     variables = t["variables"]
     gains = t["gains_s"]
@@ -928,7 +868,7 @@ def _schedule_view(doc, run_dir):
                 fails,
             )
         )
-    figures = _plot_dir_figures(run_dir, ("schedule",))
+    figures = _plot_dir_figures(files, ("schedule",))
     return {
         "error": None,
         "headline": _headline(bool(doc.get("passed")), doc.get("message")) if isinstance(doc.get("passed"), bool) else None,
@@ -944,7 +884,7 @@ def _interval_text(iv):
     return f"{100 * iv[0]:.1f} to {100 * iv[1]:.1f} %"
 
 
-def _robustness_view(doc, run_dir):
+def _robustness_view(doc, files):
     m = doc.get("method") or {}
     joint = doc.get("joint") or {}
     conf = m.get("confidence")
@@ -1048,13 +988,13 @@ def _robustness_view(doc, run_dir):
             text += f" The worst-case search found a requirement missed at: {', '.join(missed_at)}."
         headline = _headline(frac >= 1.0 and not missed_at, text)
     figures = _files_figures(
-        run_dir,
+        files,
         doc.get("files") or [],
         {"scatter": "damping ratio against the smallest gain margin, every sample", "sensitivity": "which parameters drive the worst slack",
          "pass": "fraction of samples meeting every requirement, per condition, with its interval"},
     )
     if not figures:
-        figures = _plot_dir_figures(run_dir, ("pass-fraction", "scatter-", "sensitivity-", "robust"))
+        figures = _plot_dir_figures(files, ("pass-fraction", "scatter-", "sensitivity-", "robust"))
     return {
         "error": None,
         "headline": headline,
@@ -1064,14 +1004,14 @@ def _robustness_view(doc, run_dir):
     }
 
 
-def _section_view(doc, run_dir, dedicated, prefix):
+def _section_view(doc, files, dedicated, prefix):
     """The dedicated view of a document, or the generic one when its structure is not the known one."""
     if doc is None or "_unreadable" in doc:
-        return _generic_view(doc, run_dir, prefix)
+        return _generic_view(doc, files, prefix)
     try:
-        return dedicated(doc, run_dir)
+        return dedicated(doc, files)
     except (KeyError, TypeError, ValueError, AttributeError, IndexError):
-        return _generic_view(doc, run_dir, prefix)
+        return _generic_view(doc, files, prefix)
 
 
 # --- provenance -------------------------------------------------------------------
@@ -1103,7 +1043,7 @@ def _library_versions():
     return out
 
 
-def _provenance_view(design, hashes, docs, run_dir):
+def _provenance_view(design, hashes, docs, run_files):
     p = design.get("provenance") or {}
     seed = p.get("seed")
     rows = [
@@ -1115,7 +1055,7 @@ def _provenance_view(design, hashes, docs, run_dir):
         ("scipy", p.get("scipy") or DASH),
         ("seed", "none (the design uses no random numbers)" if seed is None else str(seed)),
         ("command line", p.get("command") or DASH),
-        ("design written", _file_date(os.path.join(run_dir, "design.json"))),
+        ("design written", _file_date(os.path.join(run_files.root, "design.json"))),
         ("report built", _report_date()),
     ]
     files = [{"name": "design.json", "sha": hashes.get("design.json"), "same": None, "seed": None,
@@ -1138,35 +1078,37 @@ def _provenance_view(design, hashes, docs, run_dir):
             }
         )
     listed = {x["name"] for x in files}
-    for name in sorted(os.listdir(run_dir)):
-        path = os.path.join(run_dir, name)
-        if name in listed or name == "report.html" or name.startswith(".") or not os.path.isfile(path):
+    for name in run_files.names(""):
+        if name in listed or name == "report.html":
             continue
-        with open(path, "rb") as fh:
-            digest = hashlib.sha256(fh.read()).hexdigest()
-        files.append({"name": name, "sha": digest, "same": None, "seed": None, "command": None, "other": True})
-    n_plots = 0
-    plot_dir = os.path.join(run_dir, "plots")
-    if os.path.isdir(plot_dir):
-        n_plots = sum(1 for n in os.listdir(plot_dir) if n.lower().endswith((".png", ".svg")))
+        files.append({"name": name, "sha": run_files.listed[name], "same": None, "seed": None, "command": None,
+                      "other": True})
+    n_plots = sum(1 for n in run_files.names("plots") if n.lower().endswith((".png", ".svg")))
     return {"rows": rows, "files": files, "libraries": _library_versions(), "n_plots": n_plots}
 
 
 # ---------------------------------------------------------------------------------
 # entry points
 # ---------------------------------------------------------------------------------
-def report_context(run_dir) -> dict:
-    """Everything the template shows, formatted (no measure is computed here)."""
+def report_context(run_dir, files=None) -> dict:
+    """Everything the template shows, formatted (no measure is computed here).
+
+    `files` (a :class:`~damper.output.runfiles.RunFiles`) names what the report may read;
+    by default the files the directory's manifest (or journal) lists, with matching hashes.
+    """
+    from .runfiles import RunFiles
+
     run_dir = os.fspath(run_dir)
     if not os.path.isdir(run_dir):
         raise DamperError(f"{run_dir}: not a directory; give the directory of a finished 'damper design' run")
-    design, sha = _read_json(os.path.join(run_dir, "design.json"), required=True)
+    files = files if files is not None else RunFiles.of_directory(run_dir)
+    design, sha = _read_json(files, "design.json", required=True)
     if not isinstance(design, dict) or not isinstance(design.get("conditions"), list):
         raise DamperError(f"{os.path.join(run_dir, 'design.json')}: not a design document (no conditions); rerun 'damper design'")
     hashes = {"design.json": sha}
     docs = {}
     for name in OPTIONAL_DOCUMENTS:
-        d, h = _read_json(os.path.join(run_dir, name), required=False)
+        d, h = _read_json(files, name, required=False)
         if d is not None:
             docs[name] = d if isinstance(d, dict) else {"_unreadable": "not a JSON object"}
             hashes[name] = h
@@ -1175,16 +1117,23 @@ def report_context(run_dir) -> dict:
     names = [c.get("name") for c in design["conditions"]]
     slugs = plot_slugs(names)
     conditions = [
-        _condition_view(i, c, slugs[i], run_dir, summary_conds.get(c.get("name")))
+        _condition_view(i, c, slugs[i], files, summary_conds.get(c.get("name")))
         for i, c in enumerate(design["conditions"])
     ]
+    drawn = design.get("figures") if isinstance(design.get("figures"), dict) else None
+    if drawn is not None:  # a large case draws figures for some conditions only (design.json says which)
+        some = set(drawn.get("drawn_for") or ())
+        for view in conditions:
+            if view["name"] not in some:
+                for fg in view["figures"]:
+                    fg["missing"] = f"no figure for this condition: {drawn.get('rule', '')}"
     failing_first = sorted(conditions, key=lambda c: (c["feasible"], c["index"]))
     infeasible = [c for c in conditions if not c["feasible"]]
     level_values = [c["level"] for c in conditions if c["level"] != DASH]
     worst_level = None
     if level_values:
         worst_level = max(level_values, key=lambda v: v if isinstance(v, int) else 99)
-    prov = _provenance_view(design, hashes, docs, run_dir)
+    prov = _provenance_view(design, hashes, docs, files)
     return {
         "title": design.get("title") or "untitled case",
         "report_date": dict(prov["rows"])["report built"],
@@ -1201,12 +1150,13 @@ def report_context(run_dir) -> dict:
         "infeasible_names": [c["name"] for c in infeasible],
         "worst_level": worst_level,
         "policy_reasons": sorted({c["reason"] for c in conditions if c["reason"]}),
-        "schedule": _section_view(docs.get("schedule.json"), run_dir, _schedule_view, "schedule"),
-        "robustness": _section_view(docs.get("robustness.json"), run_dir, _robustness_view, "robust"),
+        "schedule": _section_view(docs.get("schedule.json"), files, _schedule_view, "schedule"),
+        "robustness": _section_view(docs.get("robustness.json"), files, _robustness_view, "robust"),
         "responses": _responses_view(
-            docs.get("responses.json"), run_dir, {c.get("name"): c.get("chosen_gain_s") for c in design["conditions"]}
+            docs.get("responses.json"), files, {c.get("name"): c.get("chosen_gain_s") for c in design["conditions"]}
         ),
         "provenance": prov,
+        "run_state": {"complete": files.complete, "changed": list(files.changed)},
         "any_plots": any(fg["src"] for c in conditions for fg in c["figures"]),
     }
 
@@ -1225,42 +1175,50 @@ def _environment():
     )
 
 
-def build_report(run_dir) -> str:
-    """The HTML text of the design report of a finished run directory.
+def build_report(run_dir, files=None) -> str:
+    """The HTML text of the design report of a run directory.
 
     Parameters
     ----------
     run_dir : str or path
         A directory holding ``design.json`` (and optionally ``schedule.json``,
         ``robustness.json``, ``responses.json`` and the plots).
+    files : RunFiles, optional
+        What the report may read (default: what the run's manifest or journal lists,
+        with matching SHA-256; see :mod:`damper.output.runfiles`).
 
     Raises
     ------
     DamperError
-        If `run_dir` holds no readable design document.
+        If `run_dir` holds no run or no readable design document.
     """
-    context = report_context(run_dir)
+    context = report_context(run_dir, files)
     return _environment().get_template("report.html.j2").render(**context)
 
 
-def write_report(run_dir) -> str:
+def write_report(run_dir, files=None) -> str:
     """Build the report and write ``run_dir/report.html`` atomically; returns its path."""
     from .files import write_atomic
 
-    html = build_report(run_dir)
+    html = build_report(run_dir, files)
     return write_atomic(os.path.join(os.fspath(run_dir), "report.html"), html)
 
 
-def refresh_report(run_dir):
-    """Rebuild ``run_dir/report.html`` if the directory holds a design run with a report.
+def refresh_report(run):
+    """Rebuild the report of the run directory `run` (a :class:`~damper.output.rundir.RunDirectory`
+    held by this process) if it holds a design run with a report.
 
-    For commands that add files to a run directory (``respond``, ``robust`` with ``--force``),
-    so the report never describes files that have since been replaced.  Returns the path,
-    or None when there was no report to refresh.
+    For commands that add files to a run (``respond``, ``robust``), so the report never
+    describes files that have since been replaced. Returns the path, or None when there
+    was no report to refresh.
     """
-    run_dir = os.fspath(run_dir)
-    if os.path.isfile(os.path.join(run_dir, "design.json")) and os.path.isfile(os.path.join(run_dir, "report.html")):
-        return write_report(run_dir)
+    from .journal import part
+    from .runfiles import RunFiles
+
+    listed = run.files()
+    if "design.json" in listed and os.path.isfile(os.path.join(run.root, "report.html")):
+        with part("report"):
+            return write_report(run.root, RunFiles.verified(run.root, listed))
     return None
 
 

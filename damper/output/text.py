@@ -133,3 +133,15 @@ def handling_table(doc) -> str:
     aligns = ["<"] + [">"] * 8 + ["<"]
     note = "Equivalent system: pitch rate to pilot command, exact delays. ! mismatch large: a low-order equivalent does not describe the response well."
     return table(headers, rows, aligns) + "\n" + note
+
+
+def pct(x, rounding="nearest"):
+    """Per cent with one decimal; 'down'/'up' never show 100.0 or 0.0 for a fraction short of it."""
+    if x is None:
+        return "-"
+    v = 100.0 * x
+    if rounding == "down":
+        v = math.floor(v * 10.0 + 1e-9) / 10.0
+    elif rounding == "up":
+        v = math.ceil(v * 10.0 - 1e-9) / 10.0
+    return f"{v:.1f}"

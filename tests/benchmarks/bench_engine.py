@@ -11,7 +11,9 @@ absolute times, are the result; the machine is shared and noisy).
 (c) floor: the minimal exact computation: ``np.linalg.eigvals`` on the same stack of closed
     loops + the roots of every loop's gain-crossing polynomial (stacked companion matrices).
 Also the batched equivalent-system fit against a per-system scipy least_squares loop,
-``damper --help`` start-up and ``damper design`` on the largest demo case.
+``damper --help`` start-up and ``damper design`` on the largest demo case; at the end the
+peak memory of large cases and studies and the time damper takes to stop
+(bench_limits.py, which also runs on its own).
 Not collected by pytest (tests/benchmarks is excluded in pyproject.toml).
 """
 
@@ -276,6 +278,11 @@ def main(quick=False):
             subprocess.run([sys.executable, "-m", "damper", "design", case, "--out", os.path.join(tmp, f"run{k}")],
                            capture_output=True, check=True, cwd=ROOT)
             print(f"damper design, {label}: {time.perf_counter() - t:.1f} s")
+    # peak memory of large cases and studies, and how fast damper stops (issue 17)
+    sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+    from bench_limits import main as limits
+
+    limits(quick=quick)
 
 
 if __name__ == "__main__":
