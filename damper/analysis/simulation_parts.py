@@ -253,22 +253,19 @@ def damper_command(model: Model, y, slew, tau, r, c):
 def slew_step(model: Model, slew: Slew, ud_start, ud_end, h) -> Slew:
     """The rate limiter after a step of `h` (s), from the demands at its start and end (rad).
 
-    Following: it starts to slew when the limited demand moved by more than ``R_a h``.
-    Slewing: it follows again once the ramp has reached the limited demand (the demand
-    crossed it within the step).
+    The command at the step's end is the limited demand ``s1 = clip(u_d, -A, A)`` when it
+    lies within ``R_a h`` of the command at the step's start (it follows), else that
+    command moved by ``R_a h`` toward s1 (it slews): the discrete rate limiter at the
+    step, with the ramp exact at the stages in between.
     """
     a = model.auth.limit
     s0 = np.minimum(np.maximum(ud_start, -a), a)
     s1 = np.minimum(np.maximum(ud_end, -a), a)
-    following = slew.direction == 0
-    start_from = np.where(following, s0, slew.value)
-    step = model.auth.slew_rate * h
-    d_new = np.where(following, np.where(np.abs(s1 - s0) > model.auth.rate * h, np.sign(s1 - s0), 0.0),
-                     slew.direction)
-    ramp_end = start_from + d_new * step
-    caught = (d_new != 0) & ((s1 - ramp_end) * d_new <= 0)
-    d_new = np.where(caught, 0.0, d_new)
-    return Slew(np.where(d_new != 0, ramp_end, s1), d_new)
+    z0 = np.where(slew.direction == 0, s0, slew.value)
+    gap = s1 - z0
+    slewing = np.abs(gap) > model.auth.rate * h
+    direction = np.where(slewing, np.sign(gap), 0.0)
+    return Slew(np.where(slewing, z0 + direction * model.auth.slew_rate * h, s1), direction)
 
 
 def _actuator_rates(sv: Servo, X, u, full):
