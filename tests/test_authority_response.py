@@ -65,10 +65,15 @@ def test_large_authority_changes_nothing_bit_for_bit(airframe, hw):
             np.testing.assert_array_equal(getattr(a, name), getattr(b, name), err_msg=name)
         np.testing.assert_array_equal(b.damper, a.damper_demand)
     for name in ("time_to_half", "settling_time", "overshoot", "peak_pitch_rate", "peak_load_factor",
-                 "time_at_rate_limit", "time_at_position_limit", "peak_damper_demand"):
+                 "time_at_rate_limit", "time_at_position_limit"):
         np.testing.assert_array_equal(getattr(free.augmented_measures, name),
                                       getattr(big.augmented_measures, name), err_msg=name)
     m = big.augmented_measures
+    # with an authority the peak demand is taken over every Runge-Kutta stage, so it is at
+    # least the samples' and above them by the sampling error, below (w h)^2 / 8 = 1e-4 for
+    # w up to 30 rad/s at 1 ms [derived]
+    sampled = free.augmented_measures.peak_damper_demand
+    assert np.all(m.peak_damper_demand >= sampled) and np.all(m.peak_damper_demand <= sampled * (1 + 1e-4))
     assert np.all(m.time_at_authority_limit == 0) and np.all(m.time_at_authority_rate_limit == 0)
     assert np.all(m.peak_damper_demand > 0.1 * DEG)  # the damper does work (the check can fail)
 
@@ -77,7 +82,7 @@ def test_large_authority_changes_nothing_bit_for_bit(airframe, hw):
 def test_small_authority_holds_the_damper_command(airframe):
     # Definition (docs/responses.md): without its own rate limit the damper's command is
     # its demand clipped to +/- authority; the time at the limit counts the samples where
-    # the demand is at or beyond it, times the step.
+    # the demand exceeds it, times the step.
     authority = 0.2 * DEG
     loop = Loop(airframes()[airframe], HARDWARE["lag+washout+delay"], 0.4)
     res = respond(loop, DOUBLET, duration=2.0, rate_limit=40 * DEG, authority=authority, authority_rate_limit=None)
@@ -85,7 +90,7 @@ def test_small_authority_holds_the_damper_command(airframe):
     assert np.max(np.abs(h.damper)) <= authority
     np.testing.assert_array_equal(h.damper, np.clip(h.damper_demand, -authority, authority))
     np.testing.assert_allclose(m.time_at_authority_limit,
-                               np.sum(np.abs(h.damper_demand) >= authority, -1) * h.step, rtol=1e-12)
+                               np.sum(np.abs(h.damper_demand) > authority, -1) * h.step, rtol=1e-12)
     assert np.all(m.time_at_authority_limit > 0.05)
     np.testing.assert_array_equal(m.peak_damper, authority)
     # the command at the actuator is pilot plus the limited damper command

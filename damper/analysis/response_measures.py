@@ -61,7 +61,8 @@ class ResponseMeasures:
         rad, largest |damper command| at the actuator input (after its limits).
     peak_damper_demand : ndarray
         rad, largest |damper demand| (before its limits): the authority the damper would
-        need for this response not to saturate.
+        need for this response not to saturate (with an authority, over every evaluation
+        of the simulation: :attr:`TimeHistory.damper_demand_peak`; else over the samples).
     """
 
     time_to_half: np.ndarray
@@ -163,7 +164,8 @@ def measure(h: TimeHistory) -> ResponseMeasures:
         time_at_authority_limit=seconds(h.authority_limited),
         time_at_authority_rate_limit=seconds(h.authority_rate_limited),
         peak_damper=largest(h.damper),
-        peak_damper_demand=largest(h.damper_demand),
+        peak_damper_demand=(largest(h.damper_demand) if h.damper_demand_peak is None
+                            else r(np.broadcast_to(h.damper_demand_peak, shape))),
     )
 
 

@@ -146,6 +146,7 @@ class TimeHistory:
     damper_demand: np.ndarray | None = None
     authority_limited: np.ndarray | None = None
     authority_rate_limited: np.ndarray | None = None
+    damper_demand_peak: np.ndarray | None = None
 
     SERIES = (
         "alpha", "q", "theta", "load_factor", "surface", "surface_rate", "command", "pilot", "gust_alpha",
@@ -157,6 +158,8 @@ class TimeHistory:
         """The histories of batch index `index` (tuple or int)."""
         changes = {k: getattr(self, k)[index] for k in self.SERIES if getattr(self, k) is not None}
         changes["input_end"] = np.asarray(self.input_end)[index]
+        if self.damper_demand_peak is not None:
+            changes["damper_demand_peak"] = np.asarray(self.damper_demand_peak)[index]
         return replace(self, **changes)
 
 
@@ -239,6 +242,7 @@ def simulate(loop: Loop, inp: Input, *, duration, step=1e-3, rate_limit=None, tr
 
 def _history(model, d, rec, shape, n_out, step, sub, notes, t_end, inp) -> TimeHistory:
     """The records as a :class:`TimeHistory` of batch shape `shape`."""
+    ud_peak = rec.pop("ud_peak", None)
     rec = {key: np.ascontiguousarray(val.T) for key, val in rec.items()}
     time = np.arange(n_out) * step
     if model.servo.kind == "ideal":
@@ -277,4 +281,5 @@ def _history(model, d, rec, shape, n_out, step, sub, notes, t_end, inp) -> TimeH
         damper_demand=back(rec["ud"]),
         authority_limited=back(rec["al"]) if "al" in rec else flags,
         authority_rate_limited=back(rec["arl"]) if "arl" in rec else flags,
+        damper_demand_peak=None if ud_peak is None else ud_peak.reshape(shape),
     )

@@ -323,7 +323,7 @@ def derivative(model: Model, X, slew, tau, r, ag, c, yd, full=False):
     dX[:, na:] = _matvec(model, xp) + lin.Bv * dlt[:, None] + lin.Ev * ag[:, None]
     al = arl = None
     if full and model.auth is not None and c is None:
-        al = np.abs(ud) >= model.auth.limit
+        al = np.abs(ud) > model.auth.limit
         arl = None if slew is None else slew.direction != 0
     return dX, (dlt, rate, u, rlim, plim, z, ud, al, arl)
 
@@ -342,12 +342,15 @@ def _project(model: Model, X):
 
 
 def _push(model: Model, k, X, slew, r4, c4, g4, yd4):
-    """Store the measurement and its derivative at ``t_(k+1)`` in the delay line."""
+    """Store the measurement and its derivative at ``t_(k+1)`` in the delay line; returns the
+    damper demand evaluated for an ideal actuator's surface (else None)."""
     lin, line, sv = model.lin, model.line, model.servo
     xp = X[:, sv.na:]
     yk = np.einsum("ni,ni->n", lin.Cv, xp)
+    ud = None
     if sv.kind == "ideal":
-        uu = damper_command(model, yd4 if line.all_delayed else np.where(line.delayed, yd4, yk), slew, 0.0, r4, c4)[0]
+        uu, _, ud = damper_command(model, yd4 if line.all_delayed else np.where(line.delayed, yd4, yk), slew, 0.0,
+                                   r4, c4)
         dl = np.minimum(np.maximum(uu, -sv.trav), sv.trav) if sv.has_trav else uu
     else:
         dl = X[:, 0]
@@ -355,6 +358,7 @@ def _push(model: Model, k, X, slew, r4, c4, g4, yd4):
     n_b = model.n_b
     line.buf[slot:slot + n_b] = yk
     line.buf[slot + n_b:slot + line.width] = np.einsum("ni,ni->n", line.CA, xp) + line.CB * dl + line.CE * g4
+    return ud
 
 
 RECORDS = ("alpha", "q", "theta", "surface", "rate", "u", "r", "ag", "ud")
@@ -392,7 +396,8 @@ def integrate(model: Model, signals, n_int, sub, h, n_out, with_damper=False):
     `signals(t)` gives the stage inputs at times `t` (s): pilot command at the actuator,
     gust angle and a failed damper's command (or None), each of shape ``(len(t), N)``.
     Returns the records, time-major arrays of shape ``(n_out, N)``; the damper command
-    ``z`` only `with_damper` (an authority or a failed damper; otherwise it is ``u_d``).
+    ``z`` only `with_damper` (an authority or a failed damper; otherwise it is ``u_d``);
+    with an authority ``ud_peak`` (N,): the largest |damper demand| at any evaluation.
     """
     n_b, na = model.n_b, model.servo.na
     rec = {k: np.zeros((n_out, n_b)) for k in RECORDS}
@@ -407,6 +412,8 @@ def integrate(model: Model, signals, n_int, sub, h, n_out, with_damper=False):
     X = np.zeros((n_b, na + model.lin.A.shape[-1]))
     line = model.line
     slew = Slew(np.zeros(n_b), np.zeros(n_b)) if model.auth is not None and model.auth.has_rate else None
+    # the largest |demand| the damper's limits see (every stage), with an authority only
+    peak = np.zeros(n_b) if model.auth is not None else None
     eps = 1e-6 * h  # left limit at the end of a step (>> EDGE_TOL)
     half, sixth = 0.5 * h, h / 6.0
     for c0 in range(0, n_int + 1, CHUNK):
@@ -422,18 +429,26 @@ def integrate(model: Model, signals, n_int, sub, h, n_out, with_damper=False):
             k1, aux = derivative(model, X, slew, 0.0, r1, g1, c1, y1, full=recording)
             if recording:
                 _record(rec, k // sub, model, X, aux, r1, g1)
+            if peak is not None:
+                peak = np.maximum(peak, np.abs(aux[6]))
             if k == n_int:
                 break
             y2 = read(line, k, 0.5) if line is not None else None
             y4 = read(line, k, 1.0) if line is not None else None
-            k2 = derivative(model, X + half * k1, slew, half, r2, g2, c2, y2)[0]
-            k3 = derivative(model, X + half * k2, slew, half, r2, g2, c2, y2)[0]
-            k4 = derivative(model, X + h * k3, slew, h, r4, g4, c4, y4)[0]
+            k2, aux2 = derivative(model, X + half * k1, slew, half, r2, g2, c2, y2)
+            k3, aux3 = derivative(model, X + half * k2, slew, half, r2, g2, c2, y2)
+            k4, aux4 = derivative(model, X + h * k3, slew, h, r4, g4, c4, y4)
             X = X + sixth * (k1 + 2.0 * (k2 + k3) + k4)
             _project(model, X)
+            ud_end = None
             if slew is not None:
                 ud_end = model.lin.kfb * measured(model, X[:, na:], y4)
                 slew = slew_step(model, slew, aux[6], ud_end, h)
-            if line is not None:
-                _push(model, k, X, slew, r4, c4, g4, y4)
+            ud_push = _push(model, k, X, slew, r4, c4, g4, y4) if line is not None else None
+            if peak is not None:
+                for ud in (aux2[6], aux3[6], aux4[6], ud_end, ud_push):
+                    if ud is not None:
+                        peak = np.maximum(peak, np.abs(ud))
+    if peak is not None:
+        rec["ud_peak"] = peak
     return rec
