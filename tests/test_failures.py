@@ -19,7 +19,7 @@ from damper.analysis.assess import assess, build_loop
 from damper.analysis.failure_spec import FailureSpec, ServoLimits, TransientLimits
 from damper.analysis.failure_study import study_failures
 from damper.analysis.failures import hardover, oscillatory, passive
-from damper.analysis.response import Input, measure, simulate
+from damper.analysis.response import Input, measure, respond, simulate
 from damper.atmosphere import G0
 from damper.case import load_case_text
 from damper.model.airframe import Derivatives
@@ -234,13 +234,16 @@ def test_passive_level_is_the_level_at_zero_gain():
     np.testing.assert_array_equal(strict.met, expected <= 1)
 
 
-@pytest.mark.parametrize("actuator_rate", [None, 6 * DEG], ids=["linear", "actuator rate-limited"])
-def test_upper_edge_is_where_a_hardover_meets_the_tightest_limit(actuator_rate):
+@pytest.mark.parametrize("actuator_rate,airframe", [(None, "short period"), (6 * DEG, "short period"),
+                                                    (None, "longitudinal")],
+                         ids=["linear", "actuator rate-limited", "longitudinal"])
+def test_upper_edge_is_where_a_hardover_meets_the_tightest_limit(actuator_rate, airframe):
     # The upper edge (docs/failures.md): a hardover there meets the tightest limit with
     # slack 0 (within 1e-4, the tolerance) and just above it exceeds it. With a
     # 6 deg/s actuator rate limit below the damper's 10 deg/s the transient is not linear in
     # the authority and the edge comes from the refinement by simulation.
-    loop = Loop(BOTH_SIGNS, Hardware(actuator=Lag(0.05), washout=Washout(1.0)), 0.3)
+    d = BOTH_SIGNS if airframe == "short period" else textbook_longitudinal()
+    loop = Loop(d, Hardware(actuator=Lag(0.05), washout=Washout(1.0)), 0.3)
     servo = ServoLimits(authority=1 * DEG, authority_rate_limit=10 * DEG, rate_limit=actuator_rate, travel=10 * DEG)
     spec = FailureSpec(kinds=("hardover",), limits=TransientLimits(load_factor_g=0.3, pitch_attitude_rad=2 * DEG))
     edge = au.largest_safe_authority(loop, servo, spec)
@@ -273,7 +276,7 @@ def test_lower_edge_is_the_largest_damper_demand():
     loop = Loop(BOTH_SIGNS, Hardware(actuator=Lag(0.04), washout=Washout(1.0)), 0.4)
     inputs = [Input("doublet", amplitude=2 * DEG, start=0.2, half_period=0.5),
               Input("gust_sharp", gust_velocity=6.0, start=0.2, name="gust")]
-    kw = dict(duration=3.0, rate_limit=40 * DEG, travel=10 * DEG)
+    kw = dict(duration=2.0, rate_limit=40 * DEG, travel=10 * DEG)
     req = au.required_authority(loop, inputs, authority_rate_limit=40 * DEG, **kw)
     for inp in inputs:
         free = simulate(loop, inp, authority=np.inf, authority_rate_limit=40 * DEG, **kw)
@@ -283,6 +286,12 @@ def test_lower_edge_is_the_largest_damper_demand():
     worst = [i for i, x in enumerate(inputs) if x.label == req.input_name[0]][0]
     below = simulate(loop, inputs[worst], authority=0.99 * req.value_rad, authority_rate_limit=40 * DEG, **kw)
     assert measure(below).time_at_authority_limit[0] > 0
+    # from responses already simulated: the same when no authority acted, refused otherwise
+    runs = [respond(loop, inp, authority=np.inf, authority_rate_limit=40 * DEG, **kw) for inp in inputs]
+    again = au.required_authority_from_responses(runs)
+    np.testing.assert_array_equal(again.value_rad, req.value_rad)
+    with pytest.raises(ValueError, match="saturates"):
+        au.required_authority_from_responses([respond(loop, inputs[worst], authority=0.5 * req.value_rad, **kw)])
 
 
 def test_window_intersection_and_its_reason():
