@@ -306,12 +306,11 @@ def largest_safe_authority(loop: Loop, servo: ServoLimits, spec: FailureSpec, os
     idx = np.arange(n)
     found = {}
     if "hardover" in spec.kinds:
-        a0 = _hardover_estimate(loop, servo, spec)
-        s0, b0 = np.full(n, 1.0), np.full(n, "", dtype=object)
-        fin = np.nonzero(np.isfinite(a0))[0]
-        if fin.size:
-            s0[fin], b0[fin] = failure_slack(loop, servo, spec, "hardover", a0[fin], fin)
-        found["hardover"] = _refine(lambda a, act: failure_slack(loop, servo, spec, "hardover", a, act), a0, s0, b0)
+        # unbounded by linearity: verified at the cap (the actuator's limits could matter)
+        a0 = np.minimum(_hardover_estimate(loop, servo, spec), AUTHORITY_CAP)
+        s0, b0 = failure_slack(loop, servo, spec, "hardover", a0, idx)
+        found["hardover"] = _refine(lambda a, act: failure_slack(loop, servo, spec, "hardover", a, act), a0,
+                                    np.asarray(s0, dtype=float), np.asarray(b0, dtype=object))
     if "oscillatory" in spec.kinds:
         ref = oscillatory_reference or fl.oscillatory(loop, servo, spec)
         a_ref = fl._per_member(servo.failure_authority(), shape)
