@@ -226,10 +226,11 @@ def failure_slack(loop: Loop, servo: ServoLimits, spec: FailureSpec, kind, autho
 def _refine(evaluate, a, s, names):
     """Refine the edges by simulation until the slack is within :data:`SLACK_TOL` of zero.
 
-    Proportional steps ``a / (1 - s)`` (exact for a transient proportional to the
-    authority), kept inside the bracket of known safe and unsafe authorities (regula
-    falsi, else bisection, when they leave it); an authority at :data:`AUTHORITY_CAP`
-    still within the limits makes the edge unbounded.
+    Before a bracket of a safe and an unsafe authority is known: a secant step through the
+    last two evaluations (the first step proportional, ``a / (1 - s)``, exact for a
+    transient proportional to the authority), pushed 2 % further to cross the edge; with a
+    bracket: Illinois false position inside it. An authority at :data:`AUTHORITY_CAP` still
+    within the limits makes the edge unbounded.
 
     Returns
     -------
@@ -239,28 +240,45 @@ def _refine(evaluate, a, s, names):
     n = len(a)
     lo, f_lo = np.zeros(n), np.ones(n)
     hi, f_hi = np.full(n, np.inf), np.full(n, -1.0)
+    a_prev, s_prev = np.full(n, np.nan), np.full(n, np.nan)
+    side = np.zeros(n, int)
     done = (np.abs(s) <= SLACK_TOL) | ~np.isfinite(a)
     for _ in range(REFINE_STEPS):
         safe = s >= 0
-        lo, f_lo = np.where(safe & (a > lo), a, lo), np.where(safe & (a > lo), s, f_lo)
-        hi, f_hi = np.where(~safe & (a < hi), a, hi), np.where(~safe & (a < hi), s, f_hi)
+        new_lo, new_hi = safe & (a > lo), ~safe & (a < hi)
+        # Illinois: halve the kept end's value when the same end is kept twice
+        f_hi = np.where(new_lo & (side == 1), 0.5 * f_hi, f_hi)
+        f_lo = np.where(new_hi & (side == -1), 0.5 * f_lo, f_lo)
+        side = np.where(new_lo, 1, np.where(new_hi, -1, side))
+        lo, f_lo = np.where(new_lo, a, lo), np.where(new_lo, s, f_lo)
+        hi, f_hi = np.where(new_hi, a, hi), np.where(new_hi, s, f_hi)
         done |= safe & (a >= AUTHORITY_CAP)
         act = np.nonzero(~done)[0]
         if act.size == 0:
             break
-        with np.errstate(divide="ignore", invalid="ignore"):
-            prop = np.where(s[act] < 1, a[act] / (1.0 - s[act]), np.inf)
-            falsi = (lo[act] * f_hi[act] - hi[act] * f_lo[act]) / (f_hi[act] - f_lo[act])
-        inside = (prop > lo[act]) & (prop < hi[act])
-        falsi = np.where(np.isfinite(falsi) & (falsi > lo[act]) & (falsi < hi[act]), falsi, 0.5 * (lo[act] + hi[act]))
-        prop = np.minimum(np.where(inside, prop, np.where(np.isfinite(hi[act]), falsi, prop)), AUTHORITY_CAP)
+        prop = _proposal(a[act], s[act], a_prev[act], s_prev[act], lo[act], f_lo[act], hi[act], f_hi[act])
+        a_prev[act], s_prev[act] = a[act], s[act]
         s_new, b_new = evaluate(prop, act)
         a[act], s[act], names[act] = prop, s_new, b_new
         done[act] = np.abs(s_new) <= SLACK_TOL
-    unbounded = (s >= 0) & (a >= AUTHORITY_CAP) | ~np.isfinite(a)
+    unbounded = ((s >= 0) & (a >= AUTHORITY_CAP)) | ~np.isfinite(a)
     converged = (np.abs(s) <= SLACK_TOL) | unbounded
     edge = np.where(unbounded, np.inf, np.where(converged, a, lo))
     return edge, np.where(unbounded, np.nan, s), names, converged
+
+
+def _proposal(a, s, a_prev, s_prev, lo, f_lo, hi, f_hi):
+    """The next authority to simulate (see :func:`_refine`)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        bracketed = np.isfinite(hi)
+        falsi = (lo * f_hi - hi * f_lo) / (f_hi - f_lo)
+        falsi = np.where(np.isfinite(falsi) & (falsi > lo) & (falsi < hi), falsi, 0.5 * (lo + hi))
+        secant = a - s * (a - a_prev) / (s - s_prev)
+        proportional = np.where(s < 1, a / (1.0 - s), np.inf)
+        first = np.where(np.isfinite(secant) & (secant > lo), secant, proportional)
+        ahead = a + 1.02 * (first - a)  # a little past the predicted edge, to bracket it
+        ahead = np.where(np.isfinite(ahead) & (ahead > lo), ahead, 2.0 * np.maximum(a, lo))
+    return np.minimum(np.where(bracketed, falsi, ahead), AUTHORITY_CAP)
 
 
 @dataclass(frozen=True)
@@ -426,7 +444,11 @@ def intersect(window: AuthorityWindow, names=None) -> CommonWindow:
     shape = np.shape(window.lower_rad)
     lower, upper = np.asarray(window.lower_rad).reshape(-1), np.asarray(window.upper_rad).reshape(-1)
     i_lo, i_hi = int(np.argmax(lower)), int(np.argmin(upper))
-    label = (lambda i: names[i]) if names is not None else (lambda i: f"condition {np.unravel_index(i, shape)}")
+    def label(i):
+        if names is not None:
+            return names[i]
+        return f"condition {tuple(int(k) for k in np.unravel_index(i, shape))}"
+
     lo, hi = float(lower[i_lo]), float(upper[i_hi])
     need = f"{label(i_lo)} needs {_deg(lo)} ({np.asarray(window.lower_input).reshape(-1)[i_lo]})"
     if not np.isfinite(hi):
@@ -436,5 +458,5 @@ def intersect(window: AuthorityWindow, names=None) -> CommonWindow:
         limit = np.asarray(window.upper.binding_limit).reshape(-1)[i_hi]
         edge = f"at {label(i_hi)} a {kind} failure above {_deg(hi)} exceeds the {limit} limit"
         reason = f"empty: {need} but {edge}" if lo > hi else f"{need}; {edge}"
-    return CommonWindow(None if lo > hi else [lo, hi], reason, np.unravel_index(i_lo, shape),
-                        np.unravel_index(i_hi, shape))
+    return CommonWindow(None if lo > hi else [lo, hi], reason, tuple(int(k) for k in np.unravel_index(i_lo, shape)),
+                        tuple(int(k) for k in np.unravel_index(i_hi, shape)))
