@@ -265,8 +265,13 @@ class CaseResponses:
     authority_rate_limit: float | None = None
 
 
-def respond_case(case, gains, spec: ResponseSpec | None = None, *, authority=None,
-                 authority_rate_limit=SAME_AS_ACTUATOR) -> CaseResponses:
+#: Default of :func:`respond_case`'s authority and its rate limit: the case's ``loop.authority``
+#: and ``loop.authority_rate_limit`` (else the actuator's rate limit).
+FROM_CASE = "case"
+
+
+def respond_case(case, gains, spec: ResponseSpec | None = None, *, authority=FROM_CASE,
+                 authority_rate_limit=FROM_CASE) -> CaseResponses:
     """Simulate every input of `spec` (default :func:`response_spec`) at every condition.
 
     Parameters
@@ -274,13 +279,20 @@ def respond_case(case, gains, spec: ResponseSpec | None = None, *, authority=Non
     case : Case
     gains : array_like
         K, s: scalar, ``(n_conditions,)`` or ``(n_conditions, n_gains)``.
-    authority : float or None
-        The damper's authority, rad (None: none; the case layer will pass
+    authority : float or None or "case"
+        The damper's authority, rad (None: none; default :data:`FROM_CASE`: the case's
         ``loop.authority``).
-    authority_rate_limit : float or None or "actuator"
-        The damper command's own rate limit, rad/s (default: the actuator's).
+    authority_rate_limit : float or None or "actuator" or "case"
+        The damper command's own rate limit, rad/s (default: the case's
+        ``loop.authority_rate_limit``, else the actuator's).
     """
     from .assess import build_loop
+
+    if isinstance(authority, str) and authority == FROM_CASE:
+        authority = getattr(case.loop, "authority", None)
+    if isinstance(authority_rate_limit, str) and authority_rate_limit == FROM_CASE:
+        own = getattr(case.loop, "authority_rate_limit", None)
+        authority_rate_limit = SAME_AS_ACTUATOR if own is None else own
 
     spec = spec or response_spec(case)
     loop = build_loop(case, gains)

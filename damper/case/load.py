@@ -181,6 +181,8 @@ def _build_loop(values, doc) -> LoopSpec:
         pade_order=values["pade_order"],
         rate_limit=(act or {}).get("rate_limit"),
         travel=(act or {}).get("travel"),
+        authority=values.get("authority"),
+        authority_rate_limit=values.get("authority_rate_limit"),
     )
 
 
@@ -300,6 +302,9 @@ def _build(values, file, sha, doc) -> Case:
         _check_envelope_mach(values, doc)
     loop = _build_loop(values["loop"], doc)
     warnings.extend(_loop_warnings(loop))
+    if values.get("failures") is not None and loop.authority is None and loop.travel is None:
+        raise CaseError("a failure study needs loop.authority (or loop.actuator.travel for a full-authority damper)",
+                        "failures", line=_line(doc, "failures"))
     s = values["analysis"]
     if not s["frequency_low"] < s["frequency_high"]:
         # blame the key the user wrote (both: frequency_low)

@@ -158,7 +158,12 @@ class LoopSpec:
     rate_limit : float or None
         Actuator rate limit, rad/s.
     travel : float or None
-        Damper authority, +/- rad.
+        Surface travel, +/- rad, on the sum of pilot and damper commands.
+    authority : float or None
+        The damper's own authority (series-servo stroke), +/- rad of surface (None: none).
+    authority_rate_limit : float or None
+        The damper command's own rate limit, rad/s, as given (None: the actuator's rate
+        limit, see :meth:`damper_rate_limit`).
     """
 
     actuator: ElementSpec | None = None
@@ -170,6 +175,13 @@ class LoopSpec:
     pade_order: int = 2
     rate_limit: float | None = None
     travel: float | None = None
+    authority: float | None = None
+    authority_rate_limit: float | None = None
+
+    @property
+    def damper_rate_limit(self) -> float | None:
+        """The damper command's rate limit, rad/s: its own, else the actuator's (None: none)."""
+        return self.authority_rate_limit if self.authority_rate_limit is not None else self.rate_limit
 
     @property
     def total_delay(self) -> float:

@@ -130,7 +130,8 @@ ACTUATOR = Section(
             plausible="rate_limit",
         ),
         "travel": Quantity(
-            ("dimensionless",), "Damper authority: +/- surface travel, rad (e.g. '10 deg'); used in time responses.",
+            ("dimensionless",), "Surface travel, +/- rad (e.g. '10 deg'), applied to the sum of pilot and damper "
+            "commands; used in time responses. The damper's own limit is loop.authority.",
             default=None, **_POS, plausible="travel",
         ),
     },
@@ -180,6 +181,16 @@ LOOP = Section(
             ("frequency",), "Digital sample rate, Hz (adds half a sample of delay for the zero-order hold).", default=None, **_POS
         ),
         "pade_order": Integer("Order of the Pade approximant of the delay in eigenvalue work.", default=2, low=1, high=8),
+        "authority": Quantity(
+            ("dimensionless",), "The largest surface deflection the damper alone can command (series-servo stroke), "
+            "+/- rad (e.g. '3 deg'); the damper's command is limited to it in every time response and a failed "
+            "damper runs to it (absent: no limit of its own; a failure runs to loop.actuator.travel).",
+            default=None, **_POS, plausible="travel",
+        ),
+        "authority_rate_limit": Quantity(
+            ("angular_rate",), "The damper command's own rate limit, rad/s (e.g. '10 deg/s'; absent: "
+            "loop.actuator.rate_limit, else none).", default=None, **_POS, plausible="rate_limit",
+        ),
     },
     "The pitch-rate loop's hardware; every missing element is ideal.",
     default={},
@@ -207,6 +218,12 @@ def _uncertainty_spec():
     return UNCERTAINTY
 
 
+def _failures_spec():
+    from .failures_schema import FAILURES
+
+    return FAILURES
+
+
 def _requirements_spec():
     from .requirements_schema import REQUIREMENTS
 
@@ -230,6 +247,7 @@ CASE = Section(
         "responses": RESPONSES,
         "analysis": ANALYSIS,
         "uncertainty": _uncertainty_spec(),
+        "failures": _failures_spec(),
     },
     "A damper case.",
 )

@@ -1,0 +1,209 @@
+"""Outputs of the failure study: failures.json, its verdict and the terminal summary.
+
+Nothing is computed here beyond unit conversion for display (rad to deg) and the distance of
+a reported peak from its band; the results come from
+:func:`damper.analysis.failure_run.run_failures`. The terminal summary and the report read
+the document written here, whose ``verdict`` object comes from :func:`failure_verdict`.
+"""
+
+from __future__ import annotations
+
+import math
+
+from ..verdict import Detail, Item, Verdict
+from .jsonout import CAUTION, num, provenance
+from .text import fmt, table
+
+R2D = 180.0 / math.pi
+
+#: Per limit: the peak's key in a transient record, the band's key in ``settings.limits`` and the unit.
+LIMIT_KEYS = {
+    "load_factor": ("peak_load_factor_increment_g", "load_factor_g", "g"),
+    "pitch_attitude": ("peak_pitch_attitude_change_rad", "pitch_attitude_rad", "rad"),
+    "angle_of_attack": ("peak_angle_of_attack_change_rad", "angle_of_attack_rad", "rad"),
+}
+LIMIT_WORDS = {"load_factor": "incremental load factor", "pitch_attitude": "pitch-attitude change",
+               "angle_of_attack": "angle-of-attack change"}
+
+
+def _band(b):
+    return None if b is None else [num(b[0]), num(b[1])]
+
+
+def _settings(run) -> dict:
+    spec, servo = run.spec, run.servo
+    lim = spec.limits
+    return {
+        "recognition_time_s": spec.recognition_time_s,
+        "kinds": list(spec.kinds),
+        "limits": {"load_factor_g": _band(lim.load_factor_g), "pitch_attitude_rad": _band(lim.pitch_attitude_rad),
+                   "angle_of_attack_rad": _band(lim.angle_of_attack_rad)},
+        "passive_level_required": spec.passive_level_required,
+        "passive_category": spec.passive_category,
+        "sources": dict(spec.sources),
+        "servo": {
+            "authority_rad": None if servo.authority is None else num(servo.authority),
+            "authority_rate_limit_rad_s": None if servo.authority_rate_limit is None else num(servo.authority_rate_limit),
+            "actuator_rate_limit_rad_s": None if servo.rate_limit is None else num(servo.rate_limit),
+            "actuator_travel_rad": None if servo.travel is None else num(servo.travel),
+            "failures_run_to": "loop.authority" if servo.authority is not None else "loop.actuator.travel (no authority)",
+        },
+        "step_s": spec.time_grid()[0],
+        "frequency_range_x_short_period": list(spec.frequency_range),
+        "frequency_points": spec.frequency_points,
+    }
+
+
+def _saturation(rows) -> list:
+    return [{"input": s.input, "time_at_authority_limit_s": num(s.time_at_authority_limit_s),
+             "time_at_authority_rate_limit_s": num(s.time_at_authority_rate_limit_s),
+             "peak_damper_demand_rad": num(s.peak_damper_demand_rad), "duration_s": num(s.duration_s)} for s in rows]
+
+
+def failures_document(case, run, command=None, files=()) -> dict:
+    """The failures.json document (SI units; null for NaN and unbounded values).
+
+    Per condition ``failures`` follows the design.json contract of docs/failures.md; beside it
+    ``saturation`` (per response input: time at the authority limit, at its rate limit, the
+    largest damper demand). At top level ``failures`` (the common window) and ``verdict``.
+    """
+    conds = [{"name": n, "gain_s": num(g), "failures": rec, "saturation": _saturation(sat)}
+             for n, g, rec, sat in zip(run.names, run.gains, run.records, run.saturation)]
+    return {
+        "title": case.title,
+        "caution": CAUTION,
+        "warnings": list(case.warnings),
+        "verdict": failure_verdict(run).doc(),
+        "settings": _settings(run),
+        "failures": run.summary,
+        "conditions": conds,
+        "files": list(files),
+        "provenance": provenance(case, command),
+    }
+
+
+# ---------------------------------------------------------------------------
+# The verdict (part "failures")
+# ---------------------------------------------------------------------------
+
+
+def _limit_items(name, kind, rec, bands) -> list:
+    items = []
+    for limit, ok in (rec.get("limits_met") or {}).items():
+        if ok:
+            continue
+        key, band_key, unit = LIMIT_KEYS[limit]
+        value, (lo, hi) = rec[key], bands[band_key]
+        slack = None if value is None else min(hi - value, value - lo)
+        shown = f"{value * R2D:.3g} deg" if unit == "rad" else f"{value:.3g} g"
+        limits = f"{lo * R2D:.3g} to {hi * R2D:.3g} deg" if unit == "rad" else f"{lo:.3g} to {hi:.3g} g"
+        items.append(Item("failures", name, f"{kind}_{limit}", False, Detail(value, lo, hi, slack, unit),
+                          f"{kind} failure: {LIMIT_WORDS[limit]} {shown}, limits {limits}"))
+    return items
+
+
+def _condition_items(name, rec, bands, level_required, edges) -> list:
+    items = []
+    for kind in ("hardover", "oscillatory"):
+        if rec.get(kind) is not None:
+            items += _limit_items(name, kind, rec[kind], bands)
+    p = rec.get("passive")
+    if p is not None and p.get("met") is False:
+        items.append(Item("failures", name, "passive_level", False,
+                          Detail(p["level"], None, level_required, level_required - p["level"], "level"),
+                          f"damper off: handling level {p['level']}, level {level_required} required"))
+    if "authority_window_rad" in rec and rec["authority_window_rad"] is None:
+        lo, hi = (num(x) for x in edges)
+        items.append(Item("failures", name, "authority_window", False,
+                          Detail(lo, None, hi, None if hi is None else hi - lo, "rad"), rec["authority_window_reason"]))
+    return items
+
+
+def failure_verdict(run) -> Verdict:
+    """The run's verdict on its failures (part ``failures``): one summary item, then an item
+    per condition and limit not met (hardover or oscillatory transient beyond a limit, passive
+    level below the required one, empty authority window), and one when the common window is
+    empty. Details: value, band (lower, upper), slack (distance of the reported peak from the
+    nearer bound, positive inside) and unit; for a window, the authority the damper needs as
+    the value and the largest safe one as the upper bound (rad)."""
+    doc = _settings(run)
+    bands, required = doc["limits"], run.spec.passive_level_required
+    items = []
+    for i, (name, rec) in enumerate(zip(run.names, run.records)):
+        edges = (run.window.lower_rad[i], run.window.upper_rad[i])
+        items += _condition_items(name, rec, bands, required, edges)
+    summary = run.summary
+    lo, hi = summary["required_authority_rad"], summary["largest_safe_authority_rad"]
+    common_ok = summary["authority_window_rad"] is not None
+    if not common_ok:
+        items.append(Item("failures", None, "authority_window", False,
+                          Detail(lo, None, hi, None if hi is None else hi - lo, "rad"), summary["authority_window_reason"]))
+    n, k = len(run.names), int(sum(bool(m) for m in run.met))
+    window = (f"one authority for every condition: {_deg_range(summary['authority_window_rad'])}" if common_ok
+              else "no one authority fits every condition")
+    head = Item("failures", None, "all", k == n and common_ok, Detail(k, n, None, k - n, "conditions"),
+                f"{k} of {n} conditions meet every failure requirement; {window}")
+    return Verdict((head, *items))
+
+
+def _deg_range(pair) -> str:
+    lo, hi = pair
+    top = "unbounded" if hi is None else f"{hi * R2D:.3g} deg"
+    return f"{lo * R2D:.3g} deg to {top}"
+
+
+# ---------------------------------------------------------------------------
+# Terminal
+# ---------------------------------------------------------------------------
+
+
+def _deg(x, spec=".3g"):
+    return fmt(None if x is None else x * R2D, spec)
+
+
+def failures_summary(doc) -> str:
+    """The terminal summary of failures.json (angles in deg for reading)."""
+    s = doc["settings"]
+    headers = ["condition", "hardover\nnz g", "hardover\ndtheta deg", "oscill.\nrad/s", "oscill.\nnz g",
+               "passive\nlevel", "window\ndeg", "saturates\ns", "met"]
+    rows = []
+    for c, ok in zip(doc["conditions"], _met(doc)):
+        f = c["failures"]
+        h, o, p = f.get("hardover") or {}, f.get("oscillatory") or {}, f.get("passive") or {}
+        w = f.get("authority_window_rad", False)
+        window = "-" if w is False else ("empty" if w is None else
+                                        f"{_deg(w[0])}-{'inf' if w[1] is None else _deg(w[1])}")
+        sat = [x["time_at_authority_limit_s"] for x in c["saturation"]]
+        rows.append([c["name"], fmt(h.get("peak_load_factor_increment_g"), "+.3f"),
+                     _deg(h.get("peak_pitch_attitude_change_rad"), "+.3g"), fmt(o.get("frequency_rad_s")),
+                     fmt(o.get("peak_load_factor_increment_g"), "+.3f"), fmt(p.get("level"), ".0f"), window,
+                     fmt(max(sat), ".3f") if sat else "-", "yes" if ok else "NO"])
+    servo = s["servo"]
+    auth = "none (failures run to the travel)" if servo["authority_rad"] is None else _deg(servo["authority_rad"], ".4g") + " deg"
+    head = (f"failures (recognition time {s['recognition_time_s']:g} s; damper authority {auth}; "
+            f"limits: {_limits_text(s['limits'])}):")
+    top = doc["failures"]
+    common = top["authority_window_rad"]
+    tail = [f"authority window over every condition: {_deg_range(common) if common else 'EMPTY'} - "
+            f"{top['authority_window_reason']}",
+            "nz: incremental load factor; dtheta: pitch-attitude change, both at the hardover sign with the least slack "
+            "within the recognition time; saturates: longest time at the authority limit in the design's responses."]
+    return "\n".join([head, table(headers, rows), *tail])
+
+
+def _met(doc):
+    bad = {i["condition"] for i in doc["verdict"]["items"] if not i["met"] and i["condition"] is not None}
+    return [c["name"] not in bad for c in doc["conditions"]]
+
+
+def _limits_text(limits) -> str:
+    out = []
+    for limit, (_, key, unit) in LIMIT_KEYS.items():
+        b = limits.get(key)
+        if b is not None:
+            text = f"{b[0]:+.3g}/{b[1]:+.3g} g" if unit == "g" else f"{b[0] * R2D:+.3g}/{b[1] * R2D:+.3g} deg"
+            out.append(f"{LIMIT_WORDS[limit]} {text}")
+    return ", ".join(out)
+
+
+__all__ = ["failure_verdict", "failures_document", "failures_summary"]
