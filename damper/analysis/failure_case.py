@@ -75,7 +75,8 @@ def failure_spec(case) -> FailureSpec | None:
         "pitch_attitude_rad": _band(lim.get("pitch_attitude")),
         "angle_of_attack_rad": _band(lim.get("angle_of_attack")),
     }
-    explicit = [k for k, v in given.items() if v is not None]
+    words = {"load_factor_g": "load factor", "pitch_attitude_rad": "pitch attitude", "angle_of_attack_rad": "angle of attack"}
+    explicit = [words[k] for k, v in given.items() if v is not None]
     if preset is not None and given["load_factor_g"] is None:
         given["load_factor_g"] = preset.load_factor_g
     if preset is None:

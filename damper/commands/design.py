@@ -33,6 +33,7 @@ def register(sub) -> str:
                    "when the case has no more, else the infeasible ones and those with the least slack")
     p.add_argument("--no-responses", action="store_true", help="skip the time responses at the chosen gains")
     p.add_argument("--no-robustness", action="store_true", help="skip the robustness study of the case's uncertainty section")
+    p.add_argument("--no-failures", action="store_true", help="skip the failure study of the case's failures section")
     p.add_argument("--no-report", action="store_true", help="skip the HTML report (rebuild it later with 'damper report DIR')")
     return NAME
 
@@ -77,7 +78,7 @@ def run(args, argv) -> int:
         rob_planned = case.raw.get("uncertainty") is not None and not args.no_robustness
         with PlotJobs(enabled=(bool(case.conditions) or rob_planned) and not args.no_plots) as jobs:
             design = _design(args, case, out, command, jobs)
-            robustness_text, spec, schedule = _analyses(args, case, design, out, command, jobs, written)
+            robustness_text, spec, schedule, failures_text = _analyses(args, case, design, out, command, jobs, written)
         if not args.no_report:
             from ..output.report import write_report
             from ..output.runfiles import RunFiles
@@ -101,6 +102,8 @@ def run(args, argv) -> int:
         where = "the scheduled gains, at the tightest verification points" if schedule is not None else "the chosen gains"
         print(f"robustness at {where} ({spec.samples} samples, seed {spec.seed}):")
         print(robustness_text)
+    if failures_text is not None:
+        print(failures_text)
     print(f"wrote {', '.join(written)} to {out}")
     print(CAUTION_SHORT)
     bad = [c.name for c in design.conditions if not c.feasible] if design is not None else []
@@ -204,8 +207,8 @@ def _figure_conditions(conds, worst, limit) -> tuple:
 def _analyses(args, case, design, out, command, jobs, written):
     """Schedule, responses and robustness after the search; figures go to `jobs`.
 
-    Returns (robustness table text or None, uncertainty spec or None, schedule or None)
-    once every queued figure is drawn.
+    Returns (robustness table text or None, uncertainty spec or None, schedule or None,
+    failure summary text or None) once every queued figure is drawn.
     """
     from ..output.files import write_atomic
     from ..output.journal import part
@@ -233,6 +236,7 @@ def _analyses(args, case, design, out, command, jobs, written):
             write_responses(out, case, gains, command, plots=not args.no_plots, gain_text="chosen gain",
                             jobs=jobs, plot_only=design.figures)
         written.append("responses.json with time histories")
+    failures_text = _failures(args, case, design, out, command, jobs, written)
     robustness_text = spec = rob = rob_jobs = where = None
     studied = design is not None or schedule is not None
     if studied and case.raw.get("uncertainty") is not None and not args.no_robustness:
@@ -274,4 +278,22 @@ def _analyses(args, case, design, out, command, jobs, written):
             write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
         written.append("robustness.json" + (f" with {len(files) - 1} robustness plot files" if len(files) > 1 else ""))
         robustness_text = robustness_table(rdoc)
-    return robustness_text, spec, schedule
+    return robustness_text, spec, schedule, failures_text
+
+
+def _failures(args, case, design, out, command, jobs, written):
+    """The failure study of the case's ``failures:`` section at the chosen gains (docs/failures.md):
+    failures.json and its figure; returns the terminal summary (None when not run)."""
+    if design is None or args.no_failures or case.raw.get("failures") is None:
+        return None
+    import numpy as np
+
+    from ..analysis.failure_run import run_failures
+    from ..output.failures_out import write_failures
+    from ..output.journal import part
+
+    result = run_failures(case, np.array([c.chosen_gain for c in design.conditions]))
+    with part("failures"):
+        text, files = write_failures(out, case, result, command, jobs=None if args.no_plots else jobs)
+    written.append(files)
+    return text

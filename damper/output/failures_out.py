@@ -206,4 +206,24 @@ def _limits_text(limits) -> str:
     return ", ".join(out)
 
 
-__all__ = ["failure_verdict", "failures_document", "failures_summary"]
+def write_failures(out, case, run, command, jobs=None, title=None):
+    """Write failures.json (and queue the hardover figure on `jobs`, a
+    :class:`~damper.output.background.PlotJobs`, when given); returns the terminal summary
+    and a description of the files for the run's list of written files."""
+    import os
+
+    from .failure_plots import failure_plot_jobs
+    from .files import write_atomic
+    from .jsonout import dumps
+
+    files = []
+    if jobs is not None:
+        for fn, args in failure_plot_jobs(run, out, title or case.title):
+            jobs.submit(fn, *args)
+            files += [os.path.relpath(args[0], out) + ext for ext in (".png", ".svg")]  # the names save_figure writes
+    doc = failures_document(case, run, command=command, files=files)
+    write_atomic(os.path.join(out, "failures.json"), dumps(doc))
+    return failures_summary(doc), "failures.json" + (f" with {len(files)} failure plot files" if files else "")
+
+
+__all__ = ["failure_verdict", "failures_document", "failures_summary", "write_failures"]

@@ -29,7 +29,7 @@ BOOKKEEPING = (LOCK_NAME, JOURNAL_NAME, MANIFEST_NAME)
 MANIFEST_FORMAT = "damper run manifest"
 MANIFEST_VERSION = 1
 #: Parts of a run: a command that adds to a run replaces only its own parts.
-PARTS = ("design", "schedule", "responses", "robustness", "report")
+PARTS = ("design", "schedule", "responses", "robustness", "failures", "report")
 
 # The process's active run: root directory (absolute), journal path and current part.
 # Set by :class:`damper.output.rundir.RunDirectory` (main process) and by the plot

@@ -39,7 +39,7 @@ from .runfiles import image_uri as _image
 from .runfiles import read_json as _read_json
 
 #: Files of the run directory the report reads, in the order of its sections.
-OPTIONAL_DOCUMENTS = ("schedule.json", "robustness.json", "responses.json")
+OPTIONAL_DOCUMENTS = ("schedule.json", "robustness.json", "responses.json", "failures.json")
 R2D = 180.0 / math.pi
 KT = 0.514444  # m/s per knot (exact: 1852/3600)
 FT = 0.3048  # m per foot (exact)
@@ -1155,10 +1155,17 @@ def report_context(run_dir, files=None) -> dict:
         "responses": _responses_view(
             docs.get("responses.json"), files, {c.get("name"): c.get("chosen_gain_s") for c in design["conditions"]}
         ),
+        "failures": _failures_view(docs.get("failures.json"), files),
         "provenance": prov,
         "run_state": {"complete": files.complete, "changed": list(files.changed)},
         "any_plots": any(fg["src"] for c in conditions for fg in c["figures"]),
     }
+
+
+def _failures_view(doc, files):
+    from .failures_report import failures_view
+
+    return _section_view(doc, files, failures_view, "failures")
 
 
 def _environment():
