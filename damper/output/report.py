@@ -439,7 +439,7 @@ def _case_view(doc):
     loop = [
         ("actuator", lp.get("actuator") or DASH),
         ("actuator rate limit", _limit(lp.get("actuator_rate_limit_rad_s"), "deg/s", "rad/s")),
-        ("damper authority (travel)", _limit(lp.get("actuator_travel_rad"), "deg", "rad", plusminus=True)),
+        ("surface travel (pilot plus damper)", _limit(lp.get("actuator_travel_rad"), "deg", "rad", plusminus=True)),
         ("rate sensor", lp.get("rate_sensor") or DASH),
         ("washout", lp.get("washout") or DASH),
     ]
