@@ -75,7 +75,7 @@ def _design(tmp_path, text, name, *extra):
     assert code in (0, 3), err.getvalue()
     design = json.loads((out / "design.json").read_text())
     failures = json.loads((out / "failures.json").read_text()) if (out / "failures.json").exists() else None
-    return design, failures, buf.getvalue()
+    return design, failures, buf.getvalue(), out
 
 
 def _rhs(d, delta):
@@ -124,7 +124,7 @@ def run_a(tmp_path_factory):
 
 
 def test_hardover_peaks_against_an_independent_integration(run_a):
-    design, doc, _ = run_a
+    design, doc, _, _ = run_a
     for i, c in enumerate(doc["conditions"]):
         rec = c["failures"]
         assert rec["authority_rad"] == pytest.approx(0.82 * DEG, rel=1e-12)  # loop.authority
@@ -142,7 +142,7 @@ def test_hardover_peaks_against_an_independent_integration(run_a):
 
 
 def test_upper_edge_is_a_hardover_at_the_limit(run_a):
-    _, doc, _ = run_a
+    _, doc, _, _ = run_a
     for i, c in enumerate(doc["conditions"]):
         window = c["failures"]["authority_window_rad"]
         assert window is not None and window[1] is not None
@@ -176,7 +176,7 @@ def _closed_loop_q(d, gain, authority, amplitude, half, start=0.5, duration=6.0)
 
 
 def test_lower_edge_is_the_largest_damper_demand(run_a):
-    design, doc, _ = run_a
+    design, doc, _, _ = run_a
     for i, c in enumerate(doc["conditions"]):
         gain = design["conditions"][i]["chosen_gain_s"]
         assert c["gain_s"] == gain
@@ -207,7 +207,7 @@ def _bare_level(d):
 
 
 def test_passive_level_from_the_bare_airframe_and_the_verdict(run_a):
-    _, doc, _ = run_a
+    _, doc, _, _ = run_a
     levels = []
     for i, c in enumerate(doc["conditions"]):
         level, zeta = _bare_level(_derivs(CASE_A, i))
@@ -268,7 +268,7 @@ def _nz_response(d, w):
 
 
 def test_oscillatory_frequency_and_saturation_through_design(tmp_path):
-    design, doc, text = _design(tmp_path, CASE_B, "b")
+    design, doc, text, _ = _design(tmp_path, CASE_B, "b")
     d = _derivs(CASE_B, 0)
     c = doc["conditions"][0]
     o = c["failures"]["oscillatory"]
@@ -296,8 +296,52 @@ def test_oscillatory_frequency_and_saturation_through_design(tmp_path):
 
 
 def test_no_failures_option_and_cases_without_the_section(tmp_path):
-    _, doc, text = _design(tmp_path, CASE_B, "skip", "--no-failures", "--no-responses")
+    _, doc, text, _ = _design(tmp_path, CASE_B, "skip", "--no-failures", "--no-responses")
     assert doc is None and "failures (" not in text
     plain = CASE_B.split("failures:")[0]
-    _, doc, _ = _design(tmp_path, plain, "plain", "--no-responses")
+    _, doc, _, _ = _design(tmp_path, plain, "plain", "--no-responses")
     assert doc is None
+
+
+def test_report_section_reads_failures_json(run_a):
+    from damper.output.report import build_report
+
+    _, doc, _, out = run_a
+    html = build_report(out)
+    section = html[html.index('<section id="failures"'):html.index('<section id="trace"')]
+    head = next(i for i in doc["verdict"]["items"] if i["requirement"] == "all")
+    assert "FAILED" in section and head["text"] in section  # the verdict's summary, as failures.json holds it
+    # every condition with its hardover peak in g (3 digits) and the passive level [derived: failures.json]
+    for c in doc["conditions"]:
+        assert f">{c['name']}<" in section
+        assert f"{c['failures']['hardover']['peak_load_factor_increment_g']:.3g}" in section
+    assert "reaches its authority" in section and "in 0 of 2 responses" in section
+    assert "failures.json" in html[html.index('<section id="trace"'):]  # listed among the run's documents
+
+
+def test_failures_section_to_settings():
+    from damper.analysis.failure_case import PRESETS, failure_spec, servo_limits
+    from damper.analysis.failure_spec import KINDS as ANALYSIS_KINDS
+    from damper.case import load_case_text
+    from damper.case.failures_schema import KINDS, LIMIT_PRESETS
+
+    assert KINDS == ANALYSIS_KINDS and LIMIT_PRESETS == tuple(PRESETS)  # one set of words
+    base = CASE_B.split("failures:")[0]
+    spec = failure_spec(load_case_text(base + "failures: {}\n"))
+    # defaults: 1 s (MIL-F-8785C 3.4.9), +/-0.5 g (MIL-F-9490D 3.1.3.7), Level 2 (MIL-F-8785C
+    # 3.1.10), every kind (Source: docs/failures.md, values from memory)
+    assert spec.recognition_time_s == 1.0 and spec.limits.bands() == {"load_factor": (-0.5, 0.5)}
+    assert spec.passive_level_required == 2 and spec.kinds == ("hardover", "oscillatory", "passive")
+    faa = failure_spec(load_case_text(base + "failures: {limits: {preset: FAA-flight-guidance}}\n"))
+    # 0 to 2 g total and 3 s recognition (Source: FAA advisory material on flight-guidance
+    # malfunctions, from memory, lower confidence)
+    assert faa.recognition_time_s == 3.0 and faa.limits.bands() == {"load_factor": (-1.0, 1.0)}
+    mixed = failure_spec(load_case_text(
+        base + "failures: {recognition_time: 2 s, limits: {preset: FAA-flight-guidance, load_factor: {min: -0.3}}}\n"))
+    assert mixed.recognition_time_s == 2.0 and mixed.limits.bands() == {"load_factor": (-0.3, 0.3)}  # one bound mirrored
+    only = failure_spec(load_case_text(base + "failures: {limits: {pitch_attitude: {max: 5 deg}}}\n"))
+    assert only.limits.bands() == {"pitch_attitude": (-5 * DEG, 5 * DEG)}  # without a preset: only what is given
+    servo = servo_limits(load_case_text(base.replace('authority: "0.5 deg"', 'authority: "0.5 deg"\n  actuator: '
+                                                     '{bandwidth: 20, rate_limit: "30 deg/s"}') + "failures: {}\n"))
+    # the damper's rate limit defaults to the actuator's (docs/failures.md)
+    assert servo.authority_rate_limit == pytest.approx(30 * DEG) and servo.travel is None

@@ -82,9 +82,9 @@ def test_design_writes_a_report_with_every_section_and_condition(demo_run, capsy
     # the cautions come first
     assert text.index("preliminary engineering analysis") < text.index("Outcome at a glance")
     assert "simulation, ground test and flight test" in text and "airworthiness rules" in text
-    # sections not run for this case (schedule, robustness) say so plainly; the design
-    # also simulates the default doublet, so the time responses are there
-    assert text.count("not run for this case") == 2
+    # sections not run for this case (schedule, robustness, failures) say so plainly; the
+    # design also simulates the default doublet, so the time responses are there
+    assert text.count("not run for this case") == 3
     # case summary: aircraft, conditions with units, loop hardware, requirements with sources
     for s in ("Invented six-seat utility turboprop", "true airspeed (kt)", "dynamic pressure (Pa)", "Mach",
               "mass (kg)", "washout, time constant 1.5 s", "Pad\u00e9 order 3", "MIL-F-9490D", "case file"):
@@ -252,7 +252,7 @@ def test_optional_sections_appear_when_their_json_exists(demo_run, tmp_path, cap
     (run / "robustness.json").write_text(json.dumps(_robustness_doc(sha)), encoding="utf-8")
     html = build_report(run, _every_file(run))
     text = _text(html)
-    assert "not run for this case" not in text
+    assert text.count("not run for this case") == 1 and "Failure study not run" in text  # no failures.json here
     # schedule: verdict, gain table with units, failing verification points first
     assert "\u2718 FAILED 2 of 3 verification points fail" in text
     assert "dynamic pressure (Pa)" in text and "gain K (s)" in text
@@ -272,7 +272,7 @@ def test_unreadable_optional_json_is_reported_not_fatal(demo_run, tmp_path):
     shutil.copy(demo_run / "design.json", run / "design.json")
     (run / "robustness.json").write_text("{not json", encoding="utf-8")
     text = _text(build_report(run, _every_file(run)))
-    assert "robustness file could not be read" in text and text.count("not run for this case") == 2
+    assert "robustness file could not be read" in text and text.count("not run for this case") == 3
 
 
 # ---------------------------------------------------------------------------------
