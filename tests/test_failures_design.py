@@ -345,3 +345,14 @@ def test_failures_section_to_settings():
                                                      '{bandwidth: 20, rate_limit: "30 deg/s"}') + "failures: {}\n"))
     # the damper's rate limit defaults to the actuator's (docs/failures.md)
     assert servo.authority_rate_limit == pytest.approx(30 * DEG) and servo.travel is None
+
+
+def test_authority_warnings():
+    from damper.case import load_case_text
+
+    base = CASE_B.split("failures:")[0]
+    case = load_case_text(base.replace('authority: "0.5 deg"', 'authority: 2\n  actuator: {bandwidth: 20, travel: "5 deg"}'))
+    # a plain 2 is 2 rad (114.6 deg) [derived]: unusual, and beyond the travel
+    assert any("loop.authority = 2 rad" in w for w in case.warnings)
+    assert any("exceeds loop.actuator.travel" in w for w in case.warnings)
+    assert load_case_text(base).warnings == ()

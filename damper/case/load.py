@@ -529,6 +529,12 @@ def _loop_warnings(loop):
             f"loop.actuator.travel = {loop.travel:.4g} rad ({np.degrees(loop.travel):.4g} deg) is unusually large: "
             "plain numbers are radians; write e.g. '10 deg'"
         )
+    if loop.authority is not None and loop.authority > RANGES["travel"].usual_high:
+        out.append(f"loop.authority = {loop.authority:.4g} rad ({np.degrees(loop.authority):.4g} deg) is unusually "
+                   "large: plain numbers are radians; write e.g. '2 deg'")
+    if loop.authority is not None and loop.travel is not None and loop.authority > loop.travel:
+        out.append(f"loop.authority ({np.degrees(loop.authority):.4g} deg) exceeds loop.actuator.travel "
+                   f"({np.degrees(loop.travel):.4g} deg): the surface travel limits the damper first")
     if loop.rate_limit is not None and loop.rate_limit > RANGES["rate_limit"].usual_high:
         out.append(
             f"loop.actuator.rate_limit = {loop.rate_limit:.4g} rad/s ({np.degrees(loop.rate_limit):.4g} deg/s) is "
