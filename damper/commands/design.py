@@ -78,7 +78,7 @@ def run(args, argv) -> int:
         rob_planned = case.raw.get("uncertainty") is not None and not args.no_robustness
         with PlotJobs(enabled=(bool(case.conditions) or rob_planned) and not args.no_plots) as jobs:
             design = _design(args, case, out, command, jobs)
-            robustness_text, spec, schedule, failures_text = _analyses(args, case, design, out, command, jobs, written)
+            robustness_text, spec, schedule, failures = _analyses(args, case, design, out, command, jobs, written)
         if not args.no_report:
             from ..output.report import write_report
             from ..output.runfiles import RunFiles
@@ -102,8 +102,8 @@ def run(args, argv) -> int:
         where = "the scheduled gains, at the tightest verification points" if schedule is not None else "the chosen gains"
         print(f"robustness at {where} ({spec.samples} samples, seed {spec.seed}):")
         print(robustness_text)
-    if failures_text is not None:
-        print(failures_text)
+    if failures is not None:
+        print(failures[0])
     print(f"wrote {', '.join(written)} to {out}")
     print(CAUTION_SHORT)
     bad = [c.name for c in design.conditions if not c.feasible] if design is not None else []
@@ -208,7 +208,7 @@ def _analyses(args, case, design, out, command, jobs, written):
     """Schedule, responses and robustness after the search; figures go to `jobs`.
 
     Returns (robustness table text or None, uncertainty spec or None, schedule or None,
-    failure summary text or None) once every queued figure is drawn.
+    (failure summary text, failures verdict) or None) once every queued figure is drawn.
     """
     from ..output.files import write_atomic
     from ..output.journal import part
@@ -236,7 +236,7 @@ def _analyses(args, case, design, out, command, jobs, written):
             write_responses(out, case, gains, command, plots=not args.no_plots, gain_text="chosen gain",
                             jobs=jobs, plot_only=design.figures)
         written.append("responses.json with time histories")
-    failures_text = _failures(args, case, design, out, command, jobs, written)
+    failures = _failures(args, case, design, out, command, jobs, written)
     robustness_text = spec = rob = rob_jobs = where = None
     studied = design is not None or schedule is not None
     if studied and case.raw.get("uncertainty") is not None and not args.no_robustness:
@@ -278,12 +278,13 @@ def _analyses(args, case, design, out, command, jobs, written):
             write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
         written.append("robustness.json" + (f" with {len(files) - 1} robustness plot files" if len(files) > 1 else ""))
         robustness_text = robustness_table(rdoc)
-    return robustness_text, spec, schedule, failures_text
+    return robustness_text, spec, schedule, failures
 
 
 def _failures(args, case, design, out, command, jobs, written):
     """The failure study of the case's ``failures:`` section at the chosen gains (docs/failures.md):
-    failures.json and its figure; returns the terminal summary (None when not run)."""
+    failures.json and its figure; returns (terminal summary, :class:`damper.verdict.Verdict` of
+    part ``failures``), or None when not run."""
     if design is None or args.no_failures or case.raw.get("failures") is None:
         return None
     import numpy as np
@@ -294,6 +295,6 @@ def _failures(args, case, design, out, command, jobs, written):
 
     result = run_failures(case, np.array([c.chosen_gain for c in design.conditions]))
     with part("failures"):
-        text, files = write_failures(out, case, result, command, jobs=None if args.no_plots else jobs)
+        text, files, verdict = write_failures(out, case, result, command, jobs=None if args.no_plots else jobs)
     written.append(files)
-    return text
+    return text, verdict

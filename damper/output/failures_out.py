@@ -60,20 +60,22 @@ def _saturation(rows) -> list:
              "peak_damper_demand_rad": num(s.peak_damper_demand_rad), "duration_s": num(s.duration_s)} for s in rows]
 
 
-def failures_document(case, run, command=None, files=()) -> dict:
+def failures_document(case, run, command=None, files=(), verdict=None) -> dict:
     """The failures.json document (SI units; null for NaN and unbounded values).
 
     Per condition ``failures`` follows the design.json contract of docs/failures.md; beside it
     ``saturation`` (per response input: time at the authority limit, at its rate limit, the
-    largest damper demand). At top level ``failures`` (the common window) and ``verdict``.
+    largest damper demand). At top level ``failures`` (the common window) and ``verdict``
+    (`verdict`, default :func:`failure_verdict` of `run`).
     """
+    verdict = verdict if verdict is not None else failure_verdict(run)
     conds = [{"name": n, "gain_s": num(g), "failures": rec, "saturation": _saturation(sat)}
              for n, g, rec, sat in zip(run.names, run.gains, run.records, run.saturation)]
     return {
         "title": case.title,
         "caution": CAUTION,
         "warnings": list(case.warnings),
-        "verdict": failure_verdict(run).doc(),
+        "verdict": verdict.doc(),
         "settings": _settings(run),
         "failures": run.summary,
         "conditions": conds,
@@ -208,8 +210,17 @@ def _limits_text(limits) -> str:
 
 def write_failures(out, case, run, command, jobs=None, title=None):
     """Write failures.json (and queue the hardover figure on `jobs`, a
-    :class:`~damper.output.background.PlotJobs`, when given); returns the terminal summary
-    and a description of the files for the run's list of written files."""
+    :class:`~damper.output.background.PlotJobs`, when given).
+
+    Returns
+    -------
+    summary : str
+        The terminal summary.
+    written : str
+        The files, for the run's list of written files.
+    verdict : damper.verdict.Verdict
+        The part ``failures`` of the run's verdict (the one failures.json holds).
+    """
     import os
 
     from .failure_plots import failure_plot_jobs
@@ -221,9 +232,10 @@ def write_failures(out, case, run, command, jobs=None, title=None):
         for fn, args in failure_plot_jobs(run, out, title or case.title):
             jobs.submit(fn, *args)
             files += [os.path.relpath(args[0], out) + ext for ext in (".png", ".svg")]  # the names save_figure writes
-    doc = failures_document(case, run, command=command, files=files)
+    verdict = failure_verdict(run)
+    doc = failures_document(case, run, command=command, files=files, verdict=verdict)
     write_atomic(os.path.join(out, "failures.json"), dumps(doc))
-    return failures_summary(doc), "failures.json" + (f" with {len(files)} failure plot files" if files else "")
+    return failures_summary(doc), "failures.json" + (f" with {len(files)} failure plot files" if files else ""), verdict
 
 
 __all__ = ["failure_verdict", "failures_document", "failures_summary", "write_failures"]
