@@ -154,9 +154,11 @@ def _concat(windows):
                               upper)
 
 
-def run_failures(case, gains, spec: FailureSpec | None = None) -> FailureRun | None:
-    """The failure study of `case` at `gains` (s, one per condition); None when the case has
+def run_failures(case, gains, spec: FailureSpec | None = None, batch: int | None = None) -> FailureRun | None:
+    """The failure study of `case` at `gains` (s, one per condition), `batch` conditions at a
+    time (default :data:`damper.analysis.batches.BATCH_CONDITIONS`); None when the case has
     no ``failures:`` section and no `spec` is given, or no conditions."""
+    from . import batches
     from .assess import build_loop
     from .batches import condition_batches, sub_case
     from .failure_study import study_failures
@@ -167,7 +169,7 @@ def run_failures(case, gains, spec: FailureSpec | None = None) -> FailureRun | N
     servo = servo_limits(case)
     gains = np.broadcast_to(np.asarray(gains, dtype=float), (len(case.conditions),))
     records, met, saturation, windows, worst = [], [], [], [], []
-    for a, b in condition_batches(len(case.conditions)):
+    for a, b in condition_batches(len(case.conditions), batch or batches.BATCH_CONDITIONS):
         sub = sub_case(case, range(a, b))
         loop = build_loop(sub, gains[a:b])
         lower, sat = _lower_edge(sub, gains[a:b], loop, servo)
