@@ -285,8 +285,13 @@ def _failures(args, case, design, out, command, jobs, written):
     """The failure study of the case's ``failures:`` section at the chosen gains (docs/failures.md):
     failures.json and its figure; returns (terminal summary, :class:`damper.verdict.Verdict` of
     part ``failures``), or None when not run."""
-    if design is None or args.no_failures or case.raw.get("failures") is None:
+    if args.no_failures or case.raw.get("failures") is None:
         return None
+    if design is None:
+        from ..verdict import Verdict
+
+        return ("failures: not studied: the case has no conditions of its own (its gains come from the schedule; "
+                "the failure study of a schedule's points is not available yet)", Verdict())
     import numpy as np
 
     from ..analysis.failure_run import run_failures
