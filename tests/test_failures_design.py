@@ -370,3 +370,15 @@ def test_failure_study_does_not_depend_on_the_batch():
     assert [w[:2] for w in one.worst] == [w[:2] for w in both.worst]
     assert [w[0] for w in one.worst] == [1, 0]  # least slack first: "fast" misses its limit [derived above]
     np.testing.assert_array_equal(one.worst[0][2].load_factor, both.worst[0][2].load_factor)
+
+
+def test_long_recognition_times_study_fewer_conditions_at_a_time():
+    from damper.analysis.failure_run import BATCH_SAMPLES, default_batch
+    from damper.analysis.failure_spec import FailureSpec
+
+    # 1 s at 1 ms, 33 frequencies: 33,000 samples per condition, 16 conditions; 20 s at 2 ms:
+    # 330,000, 6 conditions; 60 s at 1 ms: 1.98 million, one condition [derived: BATCH_SAMPLES = 2e6]
+    assert BATCH_SAMPLES == 2_000_000
+    assert default_batch(FailureSpec()) == 16
+    assert default_batch(FailureSpec(recognition_time_s=20.0, step_s=2e-3)) == 6
+    assert default_batch(FailureSpec(recognition_time_s=60.0)) == 1

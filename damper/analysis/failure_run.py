@@ -26,6 +26,19 @@ from .failure_spec import FailureSpec, ServoLimits
 
 #: Conditions whose hardover transients are kept for the figures (least slack first).
 FIGURE_CONDITIONS = 4
+#: Samples (conditions x frequencies x steps) of one batch's oscillatory search at most: a
+#: long recognition time studies fewer conditions at a time (about 200 MB of time histories).
+BATCH_SAMPLES = 2_000_000
+
+
+def default_batch(spec: FailureSpec) -> int:
+    """Conditions studied together: :data:`damper.analysis.batches.BATCH_CONDITIONS`, fewer when
+    one condition's frequency search holds more than ``BATCH_SAMPLES / BATCH_CONDITIONS``
+    samples (at least one)."""
+    from .batches import BATCH_CONDITIONS
+
+    per_condition = spec.time_grid()[1] * (spec.frequency_points if "oscillatory" in spec.kinds else 2)
+    return max(1, min(BATCH_CONDITIONS, BATCH_SAMPLES // per_condition))
 
 
 @dataclass(frozen=True)
@@ -156,9 +169,8 @@ def _concat(windows):
 
 def run_failures(case, gains, spec: FailureSpec | None = None, batch: int | None = None) -> FailureRun | None:
     """The failure study of `case` at `gains` (s, one per condition), `batch` conditions at a
-    time (default :data:`damper.analysis.batches.BATCH_CONDITIONS`); None when the case has
+    time (default :func:`default_batch`); None when the case has
     no ``failures:`` section and no `spec` is given, or no conditions."""
-    from . import batches
     from .assess import build_loop
     from .batches import condition_batches, sub_case
     from .failure_study import study_failures
@@ -169,7 +181,7 @@ def run_failures(case, gains, spec: FailureSpec | None = None, batch: int | None
     servo = servo_limits(case)
     gains = np.broadcast_to(np.asarray(gains, dtype=float), (len(case.conditions),))
     records, met, saturation, windows, worst = [], [], [], [], []
-    for a, b in condition_batches(len(case.conditions), batch or batches.BATCH_CONDITIONS):
+    for a, b in condition_batches(len(case.conditions), batch or default_batch(spec)):
         sub = sub_case(case, range(a, b))
         loop = build_loop(sub, gains[a:b])
         lower, sat = _lower_edge(sub, gains[a:b], loop, servo)
@@ -202,4 +214,4 @@ def _num(x):
     return x if np.isfinite(x) else None
 
 
-__all__ = ["FIGURE_CONDITIONS", "FailureRun", "Saturation", "run_failures"]
+__all__ = ["BATCH_SAMPLES", "FIGURE_CONDITIONS", "FailureRun", "Saturation", "default_batch", "run_failures"]

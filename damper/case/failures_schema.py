@@ -34,6 +34,17 @@ class BandSection(Section):
         return {"min": lo, "max": hi}
 
 
+class LimitsSection(Section):
+    """The transient limits: a preset, limits, or both (an empty section checks nothing)."""
+
+    def check(self, value, path):
+        out = super().check(value, path)
+        if all(v is None for v in out.values()):
+            raise CaseError(f"give a preset ({', '.join(LIMIT_PRESETS)}) or at least one limit "
+                            "(load_factor, pitch_attitude, angle_of_attack)", path)
+        return out
+
+
 def _band(doc, spec):
     return BandSection(
         {"min": spec(f"Lower limit ({doc}), below zero."), "max": spec(f"Upper limit ({doc}), above zero.")},
@@ -51,7 +62,7 @@ def _angle(doc):
     return Quantity(("dimensionless",), doc + " rad (e.g. '5 deg').", default=None)
 
 
-LIMITS = Section(
+LIMITS = LimitsSection(
     {
         "preset": Choice(
             LIMIT_PRESETS,

@@ -305,6 +305,11 @@ def _build(values, file, sha, doc) -> Case:
     if values.get("failures") is not None and loop.authority is None and loop.travel is None:
         raise CaseError("a failure study needs loop.authority (or loop.actuator.travel for a full-authority damper)",
                         "failures", line=_line(doc, "failures"))
+    fs = values.get("failures")
+    if fs is not None and (fs["recognition_time"] or 3.0) / fs["step"] * fs["frequency_points"] > MAX_FAILURE_SAMPLES:
+        raise CaseError(f"recognition_time / step x frequency_points must be at most {MAX_FAILURE_SAMPLES:.0e} "
+                        "samples (memory of one condition's frequency search): use a larger step", "failures.step",
+                        _raw(doc, "failures", "step"), line=_line(doc, "failures", "step") or _line(doc, "failures"))
     s = values["analysis"]
     if not s["frequency_low"] < s["frequency_high"]:
         # blame the key the user wrote (both: frequency_low)
@@ -340,6 +345,10 @@ def _build(values, file, sha, doc) -> Case:
         raw=values,
     )
 
+
+#: Most samples of one condition's oscillatory-failure search (recognition time / step x
+#: frequency points; about 400 MB of time histories).
+MAX_FAILURE_SAMPLES = 4_000_000
 
 #: Most margin-search grid points accepted (the default grid has 601).
 MAX_GRID_POINTS = 100_001
