@@ -181,6 +181,27 @@ def test_exit_status_terminal_json_and_report_agree(case, tmp_path):
     expected = {p: total.summary(p).met for p in total.parts}
     assert t_parts == expected and r_parts == expected
     assert judged.items() <= expected.items()
+    _look_at_report(out_dir / "report.html", tmp_path, total.met)
+
+
+def _look_at_report(path, tmp_path, met):
+    """Open the report in headless Chromium: no console error, the verdict box in the first
+    screen, the screenshot not blank (tests/test_report.py has the browser client)."""
+    from .test_report import Page, _non_blank, console_errors, require_chromium
+
+    page = Page(require_chromium(), str(tmp_path / "profile"), width=1280, height=900)
+    try:
+        events = page.open(path.resolve().as_uri())
+        top = page.evaluate("document.querySelector('.run-verdict').getBoundingClientRect().top")
+        head = page.evaluate("document.querySelector('.run-verdict .verdict-head').textContent")
+        shot = page.screenshot(str(tmp_path / "report.png"))
+    finally:
+        page.close()
+    assert console_errors(events) == []
+    assert 0 < top < 900, top  # the verdict is on the first screen
+    assert ("Every requirement judged in this run is met." in head) is met, head
+    size, colours, dark = _non_blank(shot)
+    assert size == (1280, 900) and colours > 20 and dark > 0.02
 
 
 # --- exit status 3 on each kind of failure -------------------------------------------------
