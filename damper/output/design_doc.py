@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 
 from .jsonout import CAUTION, condition_result, num, provenance
+from .longitudinal_out import longitudinal_table
 from .text import fmt, table
 
 
@@ -192,6 +193,8 @@ def design_table(doc) -> str:
             ]
         )
     out = table(headers, rows, aligns=["<", "<", ">", "<", "<", ">", ">", ">", ">", ">", ">"])
+    lon = longitudinal_table(entry(i)["measures"] for i in order)
+    out = out + ("\n\n" + lon + "\n" if lon else "")
     notes = [
         f"Damping band applies to the {doc['damping_measure']} damping ratio. Slack is normalised: "
         "negative means missed by that fraction of the limit.",
