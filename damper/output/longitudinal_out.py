@@ -118,3 +118,47 @@ def longitudinal_table(conditions) -> str:
     if differ:
         notes.append("The two-state approximation misleads at: " + ", ".join(differ))
     return table(headers, rows, ["<"] + [">"] * 10 + ["<"]) + "\n" + "\n".join(notes)
+
+
+def longitudinal_rows(measures: dict, fmt_number) -> list | None:
+    """Report rows ``(label, unit, value)`` of one condition's phugoid and two-state approximation.
+
+    Parameters
+    ----------
+    measures : dict
+        One condition's ``assess`` structure.
+    fmt_number : callable
+        ``fmt_number(x, digits)``: the report's number formatting.
+
+    Returns
+    -------
+    list of tuple or None
+        None for a short-period condition.
+    """
+    if measures.get("model") != "longitudinal":
+        return None
+    cl = measures["closed_loop"]
+    bare, ph, two = measures["bare"]["phugoid"], cl["phugoid"], cl["short_period_two_state"]
+    plain = (cl.get("equivalent") or {}).get("plain_form") or {}
+    return [
+        ("flight-path angle", "deg", fmt_number(_deg(measures["flight"].get("flight_path_angle_rad")), 3)),
+        ("phugoid damping ratio, bare", "\u2013", fmt_number(bare["damping_ratio"], 3)),
+        ("phugoid damping ratio, closed loop", "\u2013", fmt_number(ph["damping_ratio"], 3)),
+        ("phugoid frequency, bare", "rad/s", fmt_number(bare["natural_frequency_rad_s"], 4)),
+        ("phugoid frequency, closed loop", "rad/s", fmt_number(ph["natural_frequency_rad_s"], 4)),
+        ("phugoid period, closed loop", "s", fmt_number(ph["period_s"], 4)),
+        ("phugoid time to double, closed loop", "s", fmt_number(ph["time_to_double_s"], 4)
+         if ph["time_to_double_s"] is not None else "none (not divergent)"),
+        ("phugoid pick ambiguous", "", "yes" if ph["ambiguous"] else "no"),
+        ("short-period damping, two-state model", "\u2013", fmt_number(two["damping_ratio"], 3)),
+        ("short-period frequency, two-state model", "rad/s", fmt_number(two["natural_frequency_rad_s"], 4)),
+        (f"two-state model differs (> {DAMPING_TOLERANCE:g} damping or {100 * FREQUENCY_TOLERANCE:g} % frequency)",
+         "", "YES" if two["differs"] else "no"),
+        ("mismatch J of the short-period form fitted with the phugoid left in (the equivalent system above has its factor taken out)", "\u2013", fmt_number(plain.get("mismatch"), 3)),
+    ]
+
+
+def _deg(x):
+    import math
+
+    return None if x is None else math.degrees(x)
