@@ -367,3 +367,22 @@ def test_demo_case_designs_cleanly(tmp_path):
         assert m["model"] == "longitudinal"
         assert m["closed_loop"]["phugoid"]["damping_ratio"] >= 0.04  # MIL-F-8785C level 1 (from memory)
     assert "phugoid" in out
+
+
+@pytest.mark.parametrize("level, name, minimum", [
+    (1, "phugoid_damping_ratio", 0.04),  # Source: MIL-F-8785C para 3.2.1.2, level 1 (from memory)
+    (2, "phugoid_damping_ratio", 0.0),  # Source: MIL-F-8785C para 3.2.1.2, level 2 (from memory)
+    (3, "phugoid_time_to_double", 55.0),  # Source: MIL-F-8785C para 3.2.1.2, level 3, s (from memory)
+])
+def test_phugoid_preset_by_level(level, name, minimum):
+    from damper.requirements.spec import build_requirements
+
+    raw = {"preset": {"standard": "MIL-F-8785C", "level": level, "category": "B", "aircraft_class": None},
+           "margins_preset": None, "damping_measure": None, "free_zero": "no"}
+    lon = {c.name: c for c in build_requirements(raw, model="longitudinal").criteria}
+    assert lon[name].lower == minimum and lon[name].upper == float("inf")
+    assert "3.2.1.2" in lon[name].source and "from memory" in lon[name].source
+    assert lon["damping_ratio"].measure == "modal"
+    short = build_requirements(raw, model="short_period")
+    assert not [c for c in short.criteria if c.name.startswith("phugoid")]
+    assert short.damping_measure == "equivalent"

@@ -204,6 +204,20 @@ def _resolve_derivatives(raw, mass, inertia, airspeed):
     return Derivatives(airspeed=np.asarray(airspeed), **{k: np.asarray(v) for k, v in out.items()})
 
 
+def _airframe(c, aircraft, qbar, v, mass, inertia, gamma, longitudinal):
+    """The bare-airframe model of one validated condition `c` (either model; SI arguments:
+    dynamic pressure Pa, true airspeed m/s, mass kg, pitch inertia kg m^2, flight-path angle rad)."""
+    if c["coefficients"] is not None:
+        flight = dict(dynamic_pressure=qbar, airspeed=v, mass=mass, pitch_inertia=inertia,
+                      wing_area=aircraft.wing_area, mean_chord=aircraft.mean_chord)
+        if longitudinal:
+            return speed_terms_from_coefficients(c["coefficients"], gamma, **flight)
+        short = {key: x for key, x in c["coefficients"].items() if key not in SPEED_COEFFICIENTS}
+        return from_coefficients(**flight, **short)
+    d = _resolve_derivatives(c["derivatives"], mass, inertia, v)
+    return speed_terms_from_derivatives(d, c["derivatives"], mass, inertia, gamma) if longitudinal else d
+
+
 def _build(values, file, sha, doc) -> Case:
     _check_counts(values, doc)
     check_model_keys(values, lambda *k: _raw(doc, *k), lambda *k: _line(doc, *k))
@@ -257,21 +271,9 @@ def _build(values, file, sha, doc) -> Case:
                     f"{path}.coefficients",
                     line=_line(doc, "conditions", i, "coefficients"),
                 )
-            flight = dict(dynamic_pressure=qbar, airspeed=v, mass=mass, pitch_inertia=inertia,
-                          wing_area=aircraft.wing_area, mean_chord=aircraft.mean_chord)
-            with np.errstate(over="ignore", invalid="ignore"):  # overflow: refused just below, with a message
-                if longitudinal:
-                    d = speed_terms_from_coefficients(c["coefficients"], gamma, **flight)
-                else:
-                    d = from_coefficients(**flight, **{k: v for k, v in c["coefficients"].items()
-                                                       if k not in SPEED_COEFFICIENTS})
-            source = "coefficients"
-        else:
-            with np.errstate(over="ignore", invalid="ignore"):
-                d = _resolve_derivatives(c["derivatives"], mass, inertia, v)
-                if longitudinal:
-                    d = speed_terms_from_derivatives(d, c["derivatives"], mass, inertia, gamma)
-            source = "derivatives"
+        with np.errstate(over="ignore", invalid="ignore"):  # overflow: refused just below, with a message
+            d = _airframe(c, aircraft, qbar, v, mass, inertia, gamma, longitudinal)
+        source = "coefficients" if c["coefficients"] is not None else "derivatives"
         d = type(d)(**{k: np.asarray(float(getattr(d, k))) for k in type(d).__dataclass_fields__})
         _check_finite_model(d, path, name, line)
         _check_control_power(d, c, doc, i, line)
