@@ -89,7 +89,7 @@ def _check_envelope_keys(values, model, raw, line):
     if aero is not None:
         for key in SPEED_COEFFICIENTS:
             if model == SHORT_PERIOD and aero.get(key) is not None:
-                raise _not_used(f"aerodynamics.{key}", None, line("aerodynamics", key))
+                raise _not_used(f"aerodynamics.{key}", raw("aerodynamics", key), line("aerodynamics", key))
             if model == LONGITUDINAL and aero.get(key) is None and values.get("envelope") is not None:
                 raise CaseError(f"a longitudinal case needs the speed-coefficient table {key} (one value per Mach "
                                 "breakpoint)", "aerodynamics", line=line("aerodynamics"))
