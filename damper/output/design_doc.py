@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 
 from .jsonout import CAUTION, condition_result, num, provenance
-from .longitudinal_out import longitudinal_table
+from .longitudinal_out import longitudinal_table, speed_derivatives_summary
 from .text import fmt, table
 
 
@@ -57,6 +57,7 @@ def case_summary(case) -> dict:
                     "M_alpha_dot_1_s": num(d.M_alpha_dot),
                     "M_q_1_s": num(d.M_q),
                     "M_delta_1_s2": num(d.M_delta),
+                    **speed_derivatives_summary(d),
                 },
             }
         )

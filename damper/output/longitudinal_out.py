@@ -74,6 +74,22 @@ def with_longitudinal(entry: dict, cond, result, index, bare_index) -> dict:
     return entry
 
 
+def speed_derivatives_summary(d) -> dict:
+    """The speed derivatives and flight-path angle of a longitudinal airframe for ``case_summary``
+    (empty for a short-period airframe): ``X_u_1_s``, ``X_alpha_m_s2``, ``Z_u_1_s``, ``M_u_1_m_s``,
+    ``X_delta_m_s2``, ``flight_path_angle_rad``."""
+    if not hasattr(d, "M_u"):
+        return {}
+    return {
+        "X_u_1_s": num(d.X_u),
+        "X_alpha_m_s2": num(d.X_alpha),
+        "Z_u_1_s": num(d.Z_u),
+        "M_u_1_m_s": num(d.M_u),
+        "X_delta_m_s2": num(d.X_delta),
+        "flight_path_angle_rad": num(d.flight_path_angle),
+    }
+
+
 def longitudinal_table(conditions) -> str:
     """Terminal table of the phugoid and the two-state approximation ("" without a longitudinal entry).
 
