@@ -82,6 +82,12 @@ def check_model_keys(values, raw, line):
             raise _not_used(f"conditions[{i}].flight_path_angle", raw("conditions", i, "flight_path_angle"),
                             line("conditions", i, "flight_path_angle"))
     _check_envelope_keys(values, model, raw, line)
+    req = values.get("requirements") or {}
+    for key in ("phugoid_damping_ratio", "phugoid_time_to_double"):
+        if model == SHORT_PERIOD and req.get(key) is not None:
+            raise CaseError("a phugoid requirement needs the longitudinal model (this case's model is short_period: "
+                            "add 'model: longitudinal' and the speed derivatives)", f"requirements.{key}",
+                            line=line("requirements", key))
 
 
 def _check_envelope_keys(values, model, raw, line):
