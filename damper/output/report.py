@@ -33,6 +33,7 @@ import os
 import re
 
 from ..errors import DamperError
+from .longitudinal_out import longitudinal_rows
 from .names import plot_slugs
 from .runfiles import MAX_SVG_BYTES  # noqa: F401 - part of this module's interface
 from .runfiles import image_uri as _image
@@ -380,6 +381,7 @@ def _condition_view(i, c, slug, files, summary_cond):
         "equivalent": equivalent,
         "equivalent_large_mismatch": bool(eq and eq.get("large_mismatch")),
         "handling": handling,
+        "longitudinal": longitudinal_rows(m, f),
         "margins": margins,
         "crossings": crossings,
         "criteria": criteria,
