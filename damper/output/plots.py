@@ -1,13 +1,11 @@
-"""Design plots per condition: root locus, loop response (Bode) and gain sweep.
+"""Design plots per condition: root locus, loop response (Bode; :mod:`damper.output.loop_plot`) and gain sweep.
 
 Every function takes the case, the :class:`~damper.analysis.search.DesignResult` of
 :func:`damper.analysis.search.search`, a condition index and an output path stem; it
 writes ``<stem>.png`` and ``<stem>.svg`` atomically and returns the written paths.
 
 Nothing here computes a measure: the plots show what the search and the assessment
-found. Two values come from library functions at drawing time: the loop frequency
-response ``L(jw)`` of the Bode plot (:func:`damper.model.loop.loop_response`, exact
-delay, the same phase convention as the margin search) and the open-loop (K = 0)
+found. One value comes from library functions at drawing time: the open-loop (K = 0)
 poles of the root locus (:func:`damper.measures.modes.closed_loop_modes` on the
 library's closed-loop matrix with zero gain; Pade delay like every eigenvalue view).
 
@@ -473,323 +471,7 @@ def matplotlib_mid_colour():
 
 
 # ---------------------------------------------------------------------------------
-# 2. loop response (Bode)
-# ---------------------------------------------------------------------------------
-@dataclass(frozen=True)
-class BodeData:
-    """What the Bode plot draws and annotates for one condition.
-
-    Attributes
-    ----------
-    gain : float
-        K, s.
-    frequency_rad_s, gain_db, phase_deg : ndarray
-        L(jw) on the grid (exact delay); phase unwrapped from the grid's low end like the
-        margin search (rational part unwrapped, minus ``w T`` of the delay).
-    gain_crossings : tuple of (float, float)
-        (frequency rad/s, phase margin deg) of every gain crossing, from the assessment.
-    phase_crossings : tuple of (float, float)
-        (frequency rad/s, gain margin dB) of every phase crossing, from the assessment.
-    gain_margin_db, gain_margin_low_db, phase_margin_deg, delay_margin_s, disk_margin : float
-        The headline margins of the assessment (NaN: undefined / unbounded).
-    delay_s : float
-        The loop's pure delay, s (0 without one).
-    stable : bool
-        Closed-loop stability at this gain.
-    per_unit_gain : bool
-        The chosen gain is 0 (the loop is open): the curve is L per unit gain (K = 1 s).
-    """
-
-    gain: float
-    frequency_rad_s: np.ndarray
-    gain_db: np.ndarray
-    phase_deg: np.ndarray
-    gain_crossings: tuple
-    phase_crossings: tuple
-    gain_margin_db: float
-    gain_margin_low_db: float
-    phase_margin_deg: float
-    phase_margin_signed_deg: float
-    delay_margin_s: float
-    disk_margin: float
-    delay_s: float
-    stable: bool
-    per_unit_gain: bool = False
-
-
-def bode_data(case, assessment, i, w=None) -> BodeData:
-    """The Bode data of condition `i` at the gain of `assessment` (batch (n_conditions,)).
-
-    Parameters
-    ----------
-    case : Case
-    assessment : Assessment
-        E.g. ``design.chosen``, or :func:`damper.analysis.assess.assess` at other gains.
-    i : int
-    w : ndarray, optional
-        rad/s, ascending; default the case's margin grid (so the phase branch matches).
-    """
-    from ..model.batch import map_arrays
-    from ..model.loop import Loop, loop_response
-
-    w = case.settings.grid() if w is None else np.asarray(w, dtype=float)
-    gain = float(np.asarray(assessment.gains)[i])
-    d = map_arrays(case.derivatives(), lambda a: a[[i]] if np.ndim(a) else a)
-    hw = case.loop.hardware()
-    per_unit = gain == 0.0
-    loop = Loop(d, hw, np.array([1.0 if per_unit else gain]))
-    L = loop_response(loop, w[None, :])[0]
-    T = 0.0 if hw.delay is None else float(np.asarray(hw.delay.time))
-    rational = L * np.exp(1j * w * T)
-    phase = np.rad2deg(np.unwrap(np.angle(rational)) - w * T)
-    with np.errstate(divide="ignore"):
-        gain_db = 20.0 * np.log10(np.abs(L))
-    m = assessment.margins
-
-    def pairs(x, y):
-        x = np.asarray(x)[i]
-        y = np.asarray(y)[i]
-        ok = np.isfinite(x) & np.isfinite(y)
-        return tuple((float(a), float(b)) for a, b in zip(x[ok], y[ok]))
-
-    return BodeData(
-        gain=gain,
-        frequency_rad_s=w,
-        gain_db=gain_db,
-        phase_deg=phase,
-        gain_crossings=pairs(m.gain_crossings_rad_s, m.phase_margins_deg),
-        phase_crossings=pairs(m.phase_crossings_rad_s, m.gain_margins_db),
-        gain_margin_db=float(np.asarray(m.gain_margin_db)[i]),
-        gain_margin_low_db=float(np.asarray(m.gain_margin_low_db)[i]),
-        phase_margin_deg=float(np.asarray(m.phase_margin_deg)[i]),
-        phase_margin_signed_deg=float(np.asarray(m.phase_margin_signed_deg)[i]),
-        delay_margin_s=float(np.asarray(m.delay_margin_s)[i]),
-        disk_margin=float(np.asarray(m.disk_margin)[i]),
-        delay_s=T,
-        stable=bool(np.asarray(assessment.modes.stable)[i]),
-        per_unit_gain=per_unit,
-    )
-
-
-def _interp_log(w, y, wq):
-    return np.interp(np.log10(wq), np.log10(w), y)
-
-
-def loop_response_plot(case, design, i, stem):
-    """Bode plot of L(jw) of condition `i` at the chosen gain (exact delay); PNG and SVG.
-
-    Returns
-    -------
-    list of str
-    """
-    data = bode_data(case, design.chosen, i)
-    return _render(_draw_bode, stem, case, design, i, data)
-
-
-def _fmt(v, fmt, unit, none):
-    return f"{v:{fmt}} {unit}" if np.isfinite(v) else none
-
-
-def _draw_bode(case, design, i, b: BodeData):
-    from matplotlib.lines import Line2D
-    from matplotlib.ticker import MultipleLocator
-
-    cond = design.conditions[i]
-    w = b.frequency_rad_s
-    fig = _figure(10.5, 7.0)
-    gs = fig.add_gridspec(2, 1, left=0.085, right=0.70, top=0.875, bottom=0.085, hspace=0.12)
-    ax_g = fig.add_subplot(gs[0])
-    ax_p = fig.add_subplot(gs[1], sharex=ax_g)
-    ax_g.plot(w, b.gain_db, color=PALETTE["primary"], linestyle="-", linewidth=1.6, label="|L| (dB)")
-    ax_p.plot(w, b.phase_deg, color=PALETTE["secondary"], linestyle="--", linewidth=1.6, label="phase of L (deg)")
-    ax_g.axhline(0.0, **LINES["critical"])
-    # -180 deg and its 360 deg repeats within the drawn phase range
-    pmin, pmax = float(np.nanmin(b.phase_deg)), float(np.nanmax(b.phase_deg))
-    # the -180 deg (mod 360) level each phase margin is measured from must be in view
-    for wc, pm in b.gain_crossings:
-        ref = float(_interp_log(w, b.phase_deg, wc)) - pm
-        pmin, pmax = min(pmin, ref), max(pmax, ref)
-    pmin, pmax = min(pmin, -180.0), max(pmax, -180.0)
-    lo_k = int(np.floor((pmin + 180.0) / 360.0))
-    hi_k = int(np.ceil((pmax + 180.0) / 360.0))
-    for k in range(lo_k, hi_k + 1):
-        level = -180.0 + 360.0 * k
-        if pmin - 1.0 <= level <= pmax + 1.0:
-            ax_p.axhline(level, **LINES["critical"], alpha=1.0 if k == 0 else 0.55)
-    ax_p.axhline(-180.0, **LINES["critical"])
-
-    box = {"boxstyle": "round,pad=0.25", "fc": "white", "ec": PALETTE["grid"], "alpha": 0.92}
-    # gain crossings: phase margin
-    for n, (wc, pm) in enumerate(b.gain_crossings):
-        ph = _interp_log(w, b.phase_deg, wc)
-        ref = ph - pm  # the -180 deg (mod 360) level the margin is measured from
-        ax_g.plot(
-            [wc],
-            [0.0],
-            marker="o",
-            markersize=6,
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["primary"],
-            markeredgewidth=1.5,
-            linestyle="none",
-            zorder=5,
-        )
-        ax_p.plot([wc, wc], [ref, ph], color=PALETTE["primary"], linewidth=1.4, zorder=4)
-        ax_p.plot(
-            [wc],
-            [ph],
-            marker="o",
-            markersize=6,
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["primary"],
-            markeredgewidth=1.5,
-            linestyle="none",
-            zorder=5,
-        )
-        ax_g.axvline(wc, color=PALETTE["primary"], linestyle=":", linewidth=0.8)
-        head = np.isclose(pm, b.phase_margin_signed_deg)
-        ax_p.annotate(
-            f"PM {pm:.1f} deg at {wc:.3g} rad/s",
-            xy=(wc, 0.5 * (ref + ph)),
-            xytext=(-9, 10 - 22 * (n % 2)),
-            textcoords="offset points",
-            ha="right",
-            va="center",
-            fontsize=8,
-            fontweight="bold" if head else "normal",
-            bbox=box,
-            zorder=6,
-        )
-    # phase crossings: gain margin
-    for n, (wp, gm) in enumerate(b.phase_crossings):
-        gdb = _interp_log(w, b.gain_db, wp) if wp > w[0] else b.gain_db[0]
-        ph = _interp_log(w, b.phase_deg, wp)
-        ax_g.plot([wp, wp], [gdb, 0.0], color=PALETTE["secondary"], linewidth=1.4, zorder=4)
-        ax_g.plot(
-            [wp],
-            [gdb],
-            marker="s",
-            markersize=6,
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["secondary"],
-            markeredgewidth=1.5,
-            linestyle="none",
-            zorder=5,
-        )
-        ax_p.plot(
-            [wp],
-            [ph],
-            marker="s",
-            markersize=6,
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["secondary"],
-            markeredgewidth=1.5,
-            linestyle="none",
-            zorder=5,
-        )
-        ax_p.axvline(wp, color=PALETTE["secondary"], linestyle=":", linewidth=0.8)
-        head = np.isclose(gm, b.gain_margin_db) or np.isclose(gm, b.gain_margin_low_db)
-        ax_g.annotate(
-            f"GM {gm:.1f} dB at {wp:.3g} rad/s",
-            xy=(wp, gdb),
-            xytext=(-9, -2),
-            textcoords="offset points",
-            ha="right",
-            va="top",
-            fontsize=8,
-            fontweight="bold" if head else "normal",
-            bbox=box,
-            zorder=6,
-        )
-
-    finite_g = b.gain_db[np.isfinite(b.gain_db)]
-    g_lo = max(float(finite_g.min()), -200.0) if finite_g.size else -60.0
-    g_hi = max(float(finite_g.max()), 0.0)
-    ax_g.set_ylim(g_lo - 5.0, g_hi + 10.0)
-    span = pmax - pmin
-    ax_p.yaxis.set_major_locator(MultipleLocator(180.0 if span > 720 else 90.0))
-    ax_p.set_ylim(pmin - 25.0, pmax + 45.0)
-    ax_g.set_xlim(w[0], w[-1])
-    ax_g.set_ylabel("gain |L| (dB)")
-    ax_p.set_ylabel("phase of L (deg)")
-    ax_p.set_xlabel("frequency (rad/s)")
-    ax_g.tick_params(which="both", labelbottom=False)
-    for ax in (ax_g, ax_p):
-        _log_x(ax)
-
-    # summary box on the right
-    dm = b.delay_margin_s
-    lines = [
-        f"gain K = {b.gain:.4g} s (chosen)",
-        "loop broken at the actuator input",
-        f"exact delay {b.delay_s * 1e3:.3g} ms (no Pade)" if b.delay_s > 0 else "no delay in the loop",
-        f"closed loop {'stable' if b.stable else 'UNSTABLE'}",
-        "",
-        "gain margin: " + _fmt(b.gain_margin_db, ".1f", "dB", "none (unbounded)"),
-        "downward gain margin: " + _fmt(b.gain_margin_low_db, ".1f", "dB", "none"),
-        "phase margin: " + _fmt(b.phase_margin_deg, ".1f", "deg", "none"),
-        "delay margin: " + _fmt(dm, ".3g", "s", "none"),
-        "disk margin alpha: " + _fmt(b.disk_margin, ".3f", "", "none").strip(),
-    ]
-    if b.per_unit_gain:
-        lines += ["", "K = 0: there is no loop, so no", "margins; the curve is L at", "K = 1 s, for its shape only"]
-    elif not b.gain_crossings:
-        lines += ["", "|L| < 1 at every frequency:", "no gain crossing, so phase and", "delay margins are unbounded"]
-    req = []
-    for name, unit in (("gain_margin", "dB"), ("phase_margin", "deg"), ("delay_margin", "s")):
-        for c in _criteria(case, name):
-            req.append(f"{name.replace('_', ' ')} {_fmt_band(c.lower, c.upper, unit)}")
-    if req:
-        lines += ["", "required:"] + [f"  {r}" for r in req]
-    fig.text(
-        0.725,
-        0.875,
-        "\n".join(lines),
-        va="top",
-        ha="left",
-        fontsize=8.5,
-        family="DejaVu Sans",
-        linespacing=1.35,
-        bbox={"boxstyle": "round,pad=0.5", "fc": "#f7f7f7", "ec": PALETTE["grid"]},
-    )
-    handles = [
-        Line2D([], [], color=PALETTE["primary"], linestyle="-", linewidth=1.6, label="gain |L|"),
-        Line2D([], [], color=PALETTE["secondary"], linestyle="--", linewidth=1.6, label="phase of L"),
-        Line2D(
-            [],
-            [],
-            linestyle="none",
-            marker="o",
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["primary"],
-            markeredgewidth=1.5,
-            label="gain crossing (PM)",
-        ),
-        Line2D(
-            [],
-            [],
-            linestyle="none",
-            marker="s",
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["secondary"],
-            markeredgewidth=1.5,
-            label="phase crossing (GM)",
-        ),
-        Line2D([], [], **LINES["critical"], label="0 dB, -180 deg (mod 360)"),
-    ]
-    fig.legend(handles=handles, loc="lower left", bbox_to_anchor=(0.72, 0.085), frameon=True, fontsize=8)
-    title = f"{cond.name}: loop response L(jw) at the chosen gain"
-    if b.per_unit_gain:
-        title = f"{cond.name}: chosen gain K = 0 (loop open); drawn: L(jw) per unit gain, K = 1 s"
-    fig.suptitle(title, fontsize=12, x=0.085, ha="left", y=0.975)
-    fig.text(
-        0.085, 0.915, f"{case.title}  |  exact delay in every frequency response", fontsize=8.5, color=PALETTE["ink"]
-    )
-    return fig
-
-
-# ---------------------------------------------------------------------------------
-# 3. gain sweep
+# 2. gain sweep
 # ---------------------------------------------------------------------------------
 def _label(name):
     return name.replace("_", " ")
@@ -1053,7 +735,7 @@ def _draw_sweep(case, design, i):
 
 
 # ---------------------------------------------------------------------------------
-# 4. all of them
+# 3. all of them
 # ---------------------------------------------------------------------------------
 def design_plot_jobs(case, design, out_dir, slugs=None):
     """The figures of :func:`design_plots` as separate jobs ``(fn, args)``, in file order.
@@ -1064,6 +746,8 @@ def design_plot_jobs(case, design, out_dir, slugs=None):
     them); a batch of a larger case passes the slugs of the whole case.
     """
     from functools import partial
+
+    from .loop_plot import loop_response_plot
 
     plot_dir = os.path.join(os.fspath(out_dir), "plots")
     ol = open_loop_poles(case)
@@ -1099,11 +783,8 @@ def design_plots(case, design, out_dir):
 __all__ = [
     "design_plot_jobs",
     "PALETTE",
-    "BodeData",
-    "bode_data",
     "design_plots",
     "gain_sweep_plot",
-    "loop_response_plot",
     "open_loop_poles",
     "plot_slugs",
     "root_locus",
