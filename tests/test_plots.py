@@ -139,6 +139,7 @@ def test_an_infeasible_condition_still_gets_its_plots(demo, tmp_path):
     assert len(paths) == 6 and all(os.path.getsize(p) > 5000 for p in paths)
     text = "".join(ET.parse(str(tmp_path / "sweep.svg")).getroot().itertext())
     assert "closest miss" in text
+    assert "slack -inf" not in text and "-inf" not in text  # issue 19: said in words
 
 
 def test_safe_names():

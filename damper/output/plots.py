@@ -81,6 +81,7 @@ _RC = {
     "hatch.linewidth": 0.6,
 }
 _MARK_EVERY = 8  # markers on every 8th sweep point (the line carries the data)
+SUBTITLE_WIDTH = 145  # characters of a gain-sweep subtitle line (8.5 pt across a 10.5 in figure)
 
 
 # ---------------------------------------------------------------------------------
@@ -383,11 +384,7 @@ def _draw_root_locus(case, design, i, open_loop):
     cb = fig.colorbar(sc, cax=cax)
     cb.set_label("gain K (s)")
     _short_log_labels(cax.yaxis, float(gains.min()), float(gains.max()))
-    for lo, hi in cond.intervals:
-        cax.axhspan(
-            lo, hi, xmin=0.0, xmax=0.4, facecolor=PALETTE["feasible"], edgecolor=PALETTE["tertiary"], linewidth=0.8
-        )
-    cax.axhline(cond.chosen_gain, color=PALETTE["secondary"], linewidth=2.2)
+    _colour_bar_marks(cax, cond, float(gains.min()), float(gains.max()))
 
     # legend below the panels
     handles = [
@@ -463,6 +460,34 @@ def _draw_root_locus(case, design, i, open_loop):
     return fig
 
 
+def _colour_bar_marks(cax, cond, k_min, k_max):
+    """Feasible intervals and the chosen gain on the log colour bar; a gain below its scale
+    (K = 0 has no place on a log axis) is marked at the bar's foot with its value."""
+    for lo, hi in cond.intervals:
+        lo, hi = max(lo, k_min), min(hi, k_max)
+        if hi > lo:
+            cax.axhspan(
+                lo, hi, xmin=0.0, xmax=0.4, facecolor=PALETTE["feasible"], edgecolor=PALETTE["tertiary"], linewidth=0.8
+            )
+    if cond.chosen_gain >= k_min:
+        cax.axhline(cond.chosen_gain, color=PALETTE["secondary"], linewidth=2.2)
+        return
+    cax.plot([0.0, 1.0], [0.0, 0.0], transform=cax.transAxes, color=PALETTE["secondary"], linewidth=4.0,
+             clip_on=False, zorder=5)
+    cax.annotate(
+        f"chosen\nK = {cond.chosen_gain:.3g} s\n(below\nthe scale)",
+        xy=(0.5, 0.0),
+        xycoords="axes fraction",
+        xytext=(0.5, -0.035),
+        textcoords="axes fraction",
+        ha="center",
+        va="top",
+        fontsize=7.5,
+        color=PALETTE["ink"],
+        arrowprops={"arrowstyle": "-|>", "color": PALETTE["secondary"], "linewidth": 1.2},
+    )
+
+
 def matplotlib_mid_colour():
     """The middle colour of the gain colour scale (for legend swatches)."""
     import matplotlib
@@ -485,6 +510,15 @@ def gain_sweep_plot(case, design, i, stem):
     list of str
     """
     return _render(_draw_sweep, stem, case, design, i)
+
+
+def _slack_text(v):
+    """A normalised slack in words where it is not a number (never 'slack -inf')."""
+    if v == -np.inf:
+        return "not met, no value at that gain (closed loop unstable there, or the measure undefined)"
+    if v == np.inf:
+        return "met, unbounded"
+    return f"{v:+.2f}"
 
 
 def _sweep_notes(cond, k, stable, pm, gm_up, conv):
@@ -512,13 +546,19 @@ def _sweep_notes(cond, k, stable, pm, gm_up, conv):
             f"Equivalent-system fit not converged at K {_fmt_runs(_runs(~conv, k))}: "
             "equivalent damping not drawn there."
         )
-    if cond.chosen_gain <= k[0] * 1.01:
+    if cond.chosen_gain < k[0]:
+        notes.append(
+            f"The chosen K is {cond.chosen_gain:.3g} s, below the swept range (K = 0 has no place on a log axis; "
+            "it is marked at the left edge): the bare airframe already meets every requirement with the most "
+            f"slack, so the {cond.policy} policy needs no damper gain here."
+        )
+    elif cond.chosen_gain <= k[0] * 1.01:
         notes.append(
             "The chosen K is at the lower end of the sweep: every requirement is already met at the smallest swept "
             f"gain and the {cond.policy} policy found its best point there (the damper adds almost nothing)."
         )
     if not cond.feasible:
-        miss = ", ".join(f"{_label(n)} {v:+.2f}" for n, v in cond.binding)
+        miss = ", ".join(f"{_label(n)} {_slack_text(v)}" for n, v in cond.binding)
         notes.append(f"No gain meets every requirement; the chosen K is the closest miss (slack: {miss}).")
     notes.append(
         "Damping from the closed-loop eigenvalues (Pade delay) and the equivalent-system fit; "
@@ -551,8 +591,9 @@ def _draw_sweep(case, design, i):
 
     wrapped = "\n".join(textwrap.fill(n, 118) for n in _sweep_notes(cond, k, stable, pm, gm_up, conv))
     n_lines = wrapped.count("\n") + 1
-    # fixed panel height; the figure grows with the notes (inches)
-    bottom_in, panels_in, top_in = 0.75 + 0.15 * n_lines, 6.2, 1.15
+    subtitle = textwrap.fill(f"{case.title}  |  {len(k)} sweep points  |  {cond.reason}", SUBTITLE_WIDTH)
+    # fixed panel height; the figure grows with the notes and the subtitle's lines (inches)
+    bottom_in, panels_in, top_in = 0.75 + 0.15 * n_lines, 6.2, 1.15 + 0.16 * subtitle.count("\n")
     height = bottom_in + panels_in + top_in
     fig = _figure(10.5, height)
     gs = fig.add_gridspec(
@@ -569,7 +610,7 @@ def _draw_sweep(case, design, i):
             ax.axvspan(lo, hi, facecolor=PALETTE["feasible"], edgecolor="none", zorder=0)
         for lo, hi in _span_edges(~stable, k):
             ax.axvspan(lo, hi, facecolor="none", edgecolor=PALETTE["unstable"], hatch="///", linewidth=0, zorder=0)
-        ax.axvline(cond.chosen_gain, **LINES["chosen"], zorder=4)
+        ax.axvline(max(cond.chosen_gain, k[0]), **LINES["chosen"], zorder=4)
         for pair in cond.edges:
             for e in pair:
                 ax.axvline(e.gain, color=PALETTE["tertiary"], linestyle=":", linewidth=1.0, zorder=1)
@@ -661,10 +702,11 @@ def _draw_sweep(case, design, i):
             linespacing=1.1,
         )
     ax_z.text(
-        cond.chosen_gain,
+        max(cond.chosen_gain, k[0]),
         0.97,
         f" chosen K = {cond.chosen_gain:.4g} s"
-        + (" (at the sweep's lower end)" if cond.chosen_gain <= k[0] * 1.01 else ""),
+        + (" (below the swept range: drawn at its left edge)" if cond.chosen_gain < k[0]
+           else " (at the sweep's lower end)" if cond.chosen_gain <= k[0] * 1.01 else ""),
         transform=tr,
         ha="left",
         va="top",
@@ -726,8 +768,9 @@ def _draw_sweep(case, design, i):
     )
     fig.text(
         0.085,
-        1.0 - 0.42 / height,
-        f"{case.title}  |  {len(k)} sweep points  |  {cond.reason}",
+        1.0 - 0.34 / height,
+        subtitle,
+        va="top",
         fontsize=8.5,
         color=PALETTE["ink"],
     )
