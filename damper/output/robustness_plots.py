@@ -325,7 +325,8 @@ def _draw_pass(case, result, total=None):
     ax.set_xticks([0, 20, 40, 60, 80, 100])
     ax.axvline(100.0, color=STYLE["grid"], linewidth=1.0, zorder=0)
     for yy, c in zip(y, conds):  # counts beside each row
-        ax.text(1.0, yy, f"{c.passed_all}/{c.samples} meet all ({_pct(c.fraction_all, 'down')} %)", fontsize=7,
+        ax.text(1.0, yy, f"{c.passed_all}/{c.samples} meet all ({_pct(c.fraction_all, 'down')} %; interval "
+                f"{_pct(c.lower_all, 'down')}-{_pct(c.upper_all, 'up')} %)", fontsize=7,
                 va="center", ha="left", color=STYLE["ink"],
                 bbox=dict(boxstyle="round,pad=0.15", facecolor="white", edgecolor="none", alpha=0.85))
     ax.set_xlabel(f"samples meeting the requirements (%), bars: {100 * result.spec.confidence:.0f} % Clopper-Pearson interval")
