@@ -26,7 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .plots import LINES, PALETTE, _criteria, _fmt_band, _log_x, _render, _short_log_labels
+from .plot_style import LINES, PALETTE, _criteria, _figure, _fmt_band, _log_x, _render, _short_log_labels
 
 #: Points of the drawn curve across the chosen frequency range.
 CURVE_POINTS = 600
@@ -395,8 +395,6 @@ def _axes_setup(ax_g, ax_p, b: BodeData, lo, hi, pmin, pmax):
 
 def _draw_bode(case, name, b: BodeData):
     import textwrap
-
-    from .plots import _figure
 
     w = b.frequency_rad_s
     lo, hi = float(w[0]), float(w[-1])
