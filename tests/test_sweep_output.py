@@ -12,6 +12,7 @@ negative real part. No damper code is used for the oracle.
 from __future__ import annotations
 
 import contextlib
+import os
 import csv
 import io
 import json
@@ -127,3 +128,28 @@ def test_table_shows_no_margin_values_on_unstable_rows(outputs):
         else:
             float(cells[6])  # a number: the gain margin of a stable loop with a phase crossing
     assert "closed loop unstable: no margins" in table
+
+
+DEMOS = sorted(
+    os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "cases", f)
+    for f in os.listdir(os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "cases"))
+    if f.endswith(".yaml")
+)
+
+
+@pytest.mark.parametrize("case", DEMOS, ids=[os.path.basename(c) for c in DEMOS])
+def test_sweep_json_on_every_demo_case(case):
+    """Up to 20 s the demo loops go unstable ([derived] from their sweeps): null margins there."""
+    buf = io.StringIO()
+    with contextlib.redirect_stdout(buf):
+        assert main(["assess", case, "--gain", "0.1", "--json"]) == 0
+    name = json.loads(buf.getvalue())["conditions"][0]["name"]
+    buf = io.StringIO()
+    with contextlib.redirect_stdout(buf):
+        assert main(["sweep", case, "--condition", name, "--points", "9", "--gain-max", "20", "--json"]) == 0
+    rows = json.loads(buf.getvalue())["rows"]
+    assert len(rows) == 9
+    assert any(not row["stable"] for row in rows)  # the check below is not empty
+    for row in rows:
+        if not row["stable"]:
+            assert all(row["margins"][k] is None for k in MARGINS), row["margins"]
