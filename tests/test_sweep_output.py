@@ -142,7 +142,7 @@ def test_sweep_json_on_every_demo_case(case):
     """Up to 20 s the demo loops go unstable ([derived] from their sweeps): null margins there."""
     buf = io.StringIO()
     with contextlib.redirect_stdout(buf):
-        assert main(["assess", case, "--gain", "0.1", "--json"]) == 0
+        assert main(["assess", case, "--gain", "0.1", "--json"]) in (0, 3)  # 3: a requirement not met
     name = json.loads(buf.getvalue())["conditions"][0]["name"]
     buf = io.StringIO()
     with contextlib.redirect_stdout(buf):
