@@ -22,7 +22,6 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import CaseError
-from ..model.airframe import Derivatives
 from ..model.elements import Delay, Lag, SecondOrderLag
 from ..model.loop import Loop
 
@@ -30,7 +29,9 @@ from ..model.loop import Loop
 SHARD_SAMPLES = 4096
 
 #: Derivative axes (fields of :class:`~damper.model.airframe.Derivatives`).
-DERIVATIVE_AXES = ("M_alpha", "M_q", "M_alpha_dot", "M_delta", "Z_alpha", "Z_delta", "Z_q")
+DERIVATIVE_AXES = ("M_alpha", "M_q", "M_alpha_dot", "M_delta", "Z_alpha", "Z_delta", "Z_q", "X_u", "X_alpha", "Z_u", "M_u")
+#: Axes of the longitudinal model's speed derivatives (a short-period case has none).
+SPEED_AXES = ("X_u", "X_alpha", "Z_u", "M_u")
 #: Units of each axis, for outputs.
 AXIS_UNITS = {
     "M_alpha": "1/s^2",
@@ -40,6 +41,10 @@ AXIS_UNITS = {
     "Z_alpha": "m/s^2",
     "Z_delta": "m/s^2",
     "Z_q": "m/s",
+    "X_u": "1/s",
+    "X_alpha": "m/s^2",
+    "Z_u": "1/s",
+    "M_u": "1/(m s)",
     "mass": "kg",
     "pitch_inertia": "kg m^2",
     "actuator_bandwidth": "rad/s",
@@ -146,6 +151,10 @@ class UncertaintySpec:
     schedule_points : int
         With a schedule: the verification points studied (see
         :mod:`damper.analysis.schedule_points`).
+    required_fraction : float or None
+        The fraction of samples that must meet every requirement at every condition, judged on
+        the lower bound of its interval at `confidence`; None: every sample, corner and
+        worst-case point must (:func:`damper.analysis.verdicts.robustness_verdict`).
     """
 
     samples: int = 2000
@@ -160,6 +169,7 @@ class UncertaintySpec:
     refine_min_step: float = 1.0 / 64.0
     chunk: int = 2048
     schedule_points: int = 12
+    required_fraction: float | None = None
 
 
 def uncertainty_spec(case, samples=None, seed=None, **overrides) -> UncertaintySpec:
@@ -189,6 +199,7 @@ def uncertainty_spec(case, samples=None, seed=None, **overrides) -> UncertaintyS
         parameters=params,
         cg_shift=cg,
         schedule_points=int(raw.get("schedule_points", 12)),
+        required_fraction=None if raw.get("required_fraction") is None else float(raw["required_fraction"]),
     )
     return dataclasses.replace(spec, **overrides) if overrides else spec
 
@@ -245,6 +256,9 @@ def _nominal_of(case, name, gains, path):
     loop = case.loop
     d = case.derivatives()
     n = len(case.conditions)
+    if name in SPEED_AXES and not hasattr(d, name):
+        raise CaseError("is a speed derivative of the longitudinal model; this case's model is short_period",
+                        path + ".name", name)
     if name in DERIVATIVE_AXES:
         return np.asarray(getattr(d, name), dtype=float)
     if name == "mass":
@@ -441,7 +455,8 @@ def sampled_loop(case, axes: Axes, gains, cidx, u) -> Loop:
     d0 = case.derivatives()
     cidx = np.asarray(cidx)
     u = None if u is None else np.asarray(u, dtype=float)
-    fields = {f: np.asarray(getattr(d0, f), dtype=float)[cidx] for f in Derivatives.__dataclass_fields__}
+    kind = type(d0)  # either airframe model: the longitudinal fields survive the sampling
+    fields = {f: np.asarray(getattr(d0, f), dtype=float)[cidx] for f in kind.__dataclass_fields__}
     gain = np.asarray(gains, dtype=float)[cidx]
     hw = case.loop.hardware()
     changes = {}
@@ -476,14 +491,16 @@ def sampled_loop(case, axes: Axes, gains, cidx, u) -> Loop:
         elif name == "delay":
             changes["delay"] = Delay(value(k), hw.delay.pade_order)
     if scale_z is not None:
-        for f in ("Z_alpha", "Z_q", "Z_delta"):
-            fields[f] = fields[f] * scale_z
+        for f in ("Z_alpha", "Z_q", "Z_delta", "X_u", "X_alpha", "Z_u", "X_delta"):
+            if f in fields:
+                fields[f] = fields[f] * scale_z
     if scale_m is not None:
-        for f in ("M_alpha", "M_alpha_dot", "M_q", "M_delta"):
-            fields[f] = fields[f] * scale_m
+        for f in ("M_alpha", "M_alpha_dot", "M_q", "M_delta", "M_u"):
+            if f in fields:
+                fields[f] = fields[f] * scale_m
     if changes:
         hw = dataclasses.replace(hw, **changes)
-    return Loop(Derivatives(**fields), hw, gain)
+    return Loop(kind(**fields), hw, gain)
 
 
 __all__ = [

@@ -29,6 +29,10 @@ PARAMETERS = {
     "Z_alpha": ("acceleration", "Z_alpha, m/s^2 per rad (per unit mass)"),
     "Z_delta": ("acceleration", "Z_delta, m/s^2 per rad"),
     "Z_q": ("speed", "Z_q, m/s per rad/s"),
+    "X_u": ("frequency", "X_u, 1/s (model: longitudinal)"),
+    "X_alpha": ("acceleration", "X_alpha, m/s^2 per rad (model: longitudinal)"),
+    "Z_u": ("frequency", "Z_u, 1/s (model: longitudinal)"),
+    "M_u": ("per_length_time", "M_u, 1/(m s) (model: longitudinal)"),
     "mass": ("mass", "mass, kg (scales every Z derivative by nominal/sampled mass)"),
     "pitch_inertia": ("inertia", "pitch inertia, kg m^2 (scales every M derivative by nominal/sampled inertia)"),
     "actuator_bandwidth": ("frequency", "servo bandwidth, rad/s (first-order: 1/time constant; second-order: natural frequency)"),
@@ -179,6 +183,12 @@ UNCERTAINTY = UncertaintySection(
             "With a schedule: the study runs at this many verification points, those with the least "
             "slack under the scheduled gain (the tightest of each configuration first).",
             default=12, low=1, high=1000,
+        ),
+        "required_fraction": Number(
+            "Fraction of samples that must meet every requirement at every condition, judged on the lower "
+            "bound of its Clopper-Pearson interval at `confidence`. Absent: every sample, every corner and "
+            "every worst-case point must meet every requirement.",
+            default=None, low=0.0, high=1.0,
         ),
     },
     "Uncertainty for the robustness analysis (damper robust): uncertain derivatives, mass, "

@@ -23,7 +23,8 @@ def run(args, argv) -> int:
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
     from ..errors import DamperError
-    from ..output.jsonout import assess_document, dumps
+    from ..analysis.verdicts import assess_verdict
+    from ..output.jsonout import assess_document, dumps, with_verdict
     from ..output.text import assess_table
 
     if not math.isfinite(args.gain):
@@ -33,7 +34,8 @@ def run(args, argv) -> int:
     envelope = not case.conditions
     case = design_points_case(case)
     result = assess(case, args.gain)
-    doc = assess_document(case, result, command=" ".join(["damper", *argv]))
+    verdict = assess_verdict(case.names, result, f"K = {args.gain:g} s")
+    doc = with_verdict(assess_document(case, result, command=" ".join(["damper", *argv])), verdict)
     if args.json:
         sys.stdout.write(dumps(doc))
     else:
@@ -42,5 +44,6 @@ def run(args, argv) -> int:
             print(f"(no conditions in the case: evaluated at the {len(case.conditions)} envelope design points "
                   "that damper design starts its schedule from)")
         print(assess_table(doc))
+        print("\n".join(verdict.lines()))
         print(CAUTION_SHORT)
-    return 0
+    return verdict.exit_status()

@@ -33,6 +33,7 @@ import os
 import re
 
 from ..errors import DamperError
+from .longitudinal_out import longitudinal_rows
 from .names import plot_slugs
 from .runfiles import MAX_SVG_BYTES  # noqa: F401 - part of this module's interface
 from .runfiles import image_uri as _image
@@ -51,7 +52,8 @@ CAUTION_POINTS = (
     "Whether a design is acceptable is decided under the applicable airworthiness rules by "
     "qualified, licensed engineers, not by this tool.",
     "The models are linear, small-perturbation, short-period approximations: they say nothing "
-    "about structural modes, failures, or flight outside the conditions analysed.",
+    "about structural modes or flight outside the conditions analysed; a failure study only "
+    "estimates the motion until the pilot acts and replaces no failure analysis or test.",
 )
 
 # ---------------------------------------------------------------------------------
@@ -303,7 +305,8 @@ def _condition_view(i, c, slug, files, summary_cond):
         if key in hq:
             handling.append((label, unit, f(hq.get(key))))
 
-    unb = "none (unbounded)"
+    # a null margin: no such crossing (unbounded) on a stable loop, no margin at all on an unstable one
+    unb = "none (unbounded)" if cl.get("stable", True) else "none: closed loop unstable"
     margins = [
         ("gain margin, gain may rise by", "dB", f(mg.get("gain_margin_db"), 3, unb), f(mg.get("phase_crossover_rad_s"), 4, DASH)),
         ("gain margin, gain may fall by", "dB", f(mg.get("gain_margin_low_db"), 3, unb), DASH),
@@ -314,10 +317,11 @@ def _condition_view(i, c, slug, files, summary_cond):
         ("disk phase margin", "\u00b1deg", f(mg.get("disk_phase_margin_deg"), 3, unb), DASH),
     ]
     crossings = [
-        {"kind": "gain crossing |L| = 1", "w": f(x.get("frequency_rad_s")), "value": f(x.get("phase_margin_deg"), 4), "unit": "deg phase margin"}
+        # a crossing's offset is a margin only where it sets the reported one (table above)
+        {"kind": "gain crossing |L| = 1", "w": f(x.get("frequency_rad_s")), "value": f(x.get("phase_margin_deg"), 4), "unit": "deg from \u2212180 deg"}
         for x in mg.get("gain_crossings") or []
     ] + [
-        {"kind": "phase crossing \u2220L = \u2212180 deg", "w": f(x.get("frequency_rad_s")), "value": f(x.get("gain_margin_db"), 4), "unit": "dB gain margin"}
+        {"kind": "phase crossing \u2220L = \u2212180 deg", "w": f(x.get("frequency_rad_s")), "value": f(x.get("gain_margin_db"), 4), "unit": "dB below 0 dB"}
         for x in mg.get("phase_crossings") or []
     ]
 
@@ -380,6 +384,7 @@ def _condition_view(i, c, slug, files, summary_cond):
         "equivalent": equivalent,
         "equivalent_large_mismatch": bool(eq and eq.get("large_mismatch")),
         "handling": handling,
+        "longitudinal": longitudinal_rows(m, f),
         "margins": margins,
         "crossings": crossings,
         "criteria": criteria,
@@ -583,6 +588,8 @@ _VERDICT_KEYS = ("met", "feasible", "ok", "pass", "passed", "meets")
 #: Rows of a generic table shown in the report (failing rows first, up to MAX_FAILING_ROWS).
 MAX_TABLE_ROWS = 40
 MAX_FAILING_ROWS = 200
+#: Items not met the first section lists per part (the JSON verdict objects hold them all).
+GLANCE_ROWS = 10
 
 
 def _scalar(v):
@@ -779,6 +786,51 @@ def _headline(ok, message):
     }
 
 
+def _part_headline(doc, part):
+    """The headline of a section: its part's summary item of the document's verdict object."""
+    from ..verdict import Verdict
+
+    try:
+        item = Verdict.from_doc(doc.get("verdict")).summary(part)
+    except (ValueError, KeyError, TypeError):
+        return None
+    return None if item is None else _headline(item.met, item.text)
+
+
+def verdict_view(docs) -> dict:
+    """The report's first section: the run's verdict, the sum of the documents' verdict objects.
+
+    Parameters
+    ----------
+    docs : dict
+        File name to parsed JSON document (design.json and whatever optional documents exist).
+    """
+    from ..verdict import Verdict
+
+    total, unreadable = Verdict(), []
+    for name, doc in docs.items():
+        if not isinstance(doc, dict) or "verdict" not in doc:
+            continue
+        try:
+            total = total + Verdict.from_doc(doc["verdict"])
+        except (ValueError, KeyError, TypeError):
+            unreadable.append(name)
+    parts = []
+    for p in total.parts:
+        s = total.summary(p)
+        misses = [i for i in total.items if i.part == p and not i.met and i is not s]
+        parts.append({
+            "part": p,
+            "status": _status(s.met if s is not None else not misses),
+            "text": s.text if s is not None else "",
+            "misses": [{"condition": i.condition or "", "requirement": "every requirement" if i.requirement == "all"
+                        else requirement_label(i.requirement), "text": i.text} for i in misses[:GLANCE_ROWS]],
+            "more": max(0, len(misses) - GLANCE_ROWS),
+        })
+    return {"met": total.met, "judged": bool(total.items), "status": _status(total.met), "parts": parts,
+            "unreadable": unreadable}
+
+
 def _schedule_view(doc, files):
     t = doc["table"]
     variables = t["variables"]
@@ -871,7 +923,8 @@ def _schedule_view(doc, files):
     figures = _plot_dir_figures(files, ("schedule",))
     return {
         "error": None,
-        "headline": _headline(bool(doc.get("passed")), doc.get("message")) if isinstance(doc.get("passed"), bool) else None,
+        "headline": _part_headline(doc, "schedule") or (_headline(bool(doc.get("passed")), doc.get("message"))
+                                                          if isinstance(doc.get("passed"), bool) else None),
         "blocks": blocks,
         "figures": figures,
         "warnings": [str(w) for w in doc.get("warnings") or []],
@@ -977,16 +1030,7 @@ def _robustness_view(doc, files):
         )
     )
     blocks += worst_blocks
-    headline = None
-    if joint.get("fraction") is not None:
-        frac = joint["fraction"]
-        text = (
-            f"{100 * frac:.1f} % of the samples ({joint.get('passed', DASH)}) meet every requirement at every condition; "
-            f"interval {_interval_text(joint.get('interval'))}."
-        )
-        if missed_at:
-            text += f" The worst-case search found a requirement missed at: {', '.join(missed_at)}."
-        headline = _headline(frac >= 1.0 and not missed_at, text)
+    headline = _part_headline(doc, "robustness")
     figures = _files_figures(
         files,
         doc.get("files") or [],
@@ -1145,6 +1189,7 @@ def report_context(run_dir, files=None) -> dict:
         "requirements": _requirements_view(design),
         "case": _case_view(design),
         "conditions": failing_first,
+        "run_verdict": verdict_view({"design.json": design, **docs}),
         "n_conditions": len(conditions),
         "n_infeasible": len(infeasible),
         "infeasible_names": [c["name"] for c in infeasible],
