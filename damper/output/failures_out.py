@@ -144,6 +144,7 @@ def write_failures(out, case, run, command, jobs=None, title=None):
     import os
 
     from .failure_plots import failure_plot_jobs
+    from .figures import formats
     from .files import write_atomic
     from .jsonout import dumps
 
@@ -151,7 +152,7 @@ def write_failures(out, case, run, command, jobs=None, title=None):
     if jobs is not None:
         for fn, args in failure_plot_jobs(run, out, title or case.title):
             jobs.submit(fn, *args)
-            files += [os.path.relpath(args[0], out) + ext for ext in (".png", ".svg")]  # the names save_figure writes
+            files += [f"{os.path.relpath(args[0], out)}.{fmt}" for fmt in formats()]  # the names save_figure writes
     verdict = failure_verdict(run)
     doc = failures_document(case, run, command=command, files=files, verdict=verdict)
     write_atomic(os.path.join(out, "failures.json"), dumps(doc))
