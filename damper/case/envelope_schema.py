@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from .ranges import RANGES
 from .schema import Choice, Integer, Items, Number, Quantity, Section, Text
 
 _POS = dict(positive=True)
@@ -31,7 +32,7 @@ CONFIGURATION = Section(
 
 ENVELOPE = Section(
     {
-        "altitude": _range(("length",), "altitude, m", low=-2000.0, high=80000.0),
+        "altitude": _range(("length",), "altitude, m", low=RANGES["altitude"].low, high=RANGES["altitude"].high),
         "airspeed": _range(("speed",), "true airspeed, m/s", **_POS, plausible="speed"),
         "equivalent_airspeed": _range(("speed",), "equivalent airspeed, m/s", **_POS, plausible="speed"),
         "mach": _range(("dimensionless",), "Mach number", **_POS, plausible="mach"),

@@ -66,6 +66,9 @@ class Condition:
     note : str or None
     configuration : str or None
         Mass / CG configuration label (schedules interpolate within one configuration).
+    written : tuple of damper.case.written.Written
+        The speed key and the altitude as the case file wrote them (empty for conditions
+        damper made, e.g. envelope points).
     """
 
     name: str
@@ -82,6 +85,7 @@ class Condition:
     source: str
     note: str | None = None
     configuration: str | None = None
+    written: tuple = field(default=(), compare=False)
 
     @property
     def equivalent_airspeed(self) -> float:

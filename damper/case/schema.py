@@ -9,7 +9,7 @@ is generated from this module (``python -m damper.case.docgen``).
 from __future__ import annotations
 
 from ..errors import CaseError
-from .ranges import MAX_CONDITIONS
+from .ranges import MAX_CONDITIONS, RANGES
 from .spec_types import (  # noqa: F401 - the kinds are imported from here by the other schema modules
     CYCLE_RATE_KEYS,
     REQUIRED,
@@ -96,7 +96,8 @@ CONDITION = Section(
                                         **_POS, plausible="speed"),
         "mach": Quantity(("dimensionless",), "Mach number (instead of airspeed).", default=REQUIRED, positive=True, high=5.0),
         "altitude": Quantity(
-            ("length",), "Altitude, m (see atmosphere.altitude_kind).", low=-2000.0, high=80000.0
+            ("length",), "Altitude, m (see atmosphere.altitude_kind).", low=RANGES["altitude"].low,
+            high=RANGES["altitude"].high
         ),
         "mass": Quantity(("mass",), "Mass at this condition, kg (default: aircraft.mass).", default=None, **_POS,
                          plausible="mass"),

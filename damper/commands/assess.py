@@ -41,6 +41,9 @@ def run(args, argv) -> int:
         if envelope:
             print(f"(no conditions in the case: evaluated at the {len(case.conditions)} envelope design points "
                   "that damper design starts its schedule from)")
-        print(assess_table(doc))
+        from ..output.understood import echo_for, with_level_legend
+
+        print(echo_for(case))
+        print(with_level_legend(assess_table(doc), case))
         print(CAUTION_SHORT)
     return 0

@@ -89,7 +89,10 @@ def run(args, argv) -> int:
         written.append("manifest.json")
     print(f"{case.title}")
     if design is not None:
-        print(design_table(design.doc))
+        from ..output.understood import echo_for, with_level_legend
+
+        print(echo_for(case, design.doc))
+        print(with_level_legend(design_table(design.doc), case))
         if design.figures is not None and not args.no_plots:
             print(f"figures drawn for {len(design.figures)} of {len(design.conditions)} conditions (the infeasible ones "
                   "and those with the least slack; --max-figures N to change)")
