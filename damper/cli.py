@@ -136,6 +136,10 @@ def _run(runner, args, argv) -> int:
         )
         _note(exc)
         return 1
+    finally:
+        from .output.progress import reset
+
+        reset()  # a command's progress reporter ends with it (main is also called in-process)
 
 
 class _signals:

@@ -46,8 +46,8 @@ def test_a_file_size_limit_is_an_error_of_the_output_location(tmp_path, one_case
     def limit():  # 50 kB: design.json (about 9 kB) fits, a response table (about 200 kB) does not
         resource.setrlimit(resource.RLIMIT_FSIZE, (50_000, 50_000))
 
-    proc = subprocess.run([sys.executable, "-m", "damper", "design", one_case, "--out", str(out), "--no-plots"],
-                          cwd=ROOT, capture_output=True, text=True, timeout=120, preexec_fn=limit)
+    proc = subprocess.run([sys.executable, "-m", "damper", "design", one_case, "--out", str(out), "--no-plots",
+                           "--quiet"], cwd=ROOT, capture_output=True, text=True, timeout=120, preexec_fn=limit)
     assert proc.returncode == 2, proc.stderr
     line = _one_error_line(proc.stderr)
     assert "response-01-only-one-1-doublet.csv: cannot write" in line and "file-size limit" in line

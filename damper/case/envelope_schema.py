@@ -35,9 +35,9 @@ ENVELOPE = Section(
         "altitude": _range(("length",), "altitude, m", low=RANGES["altitude"].low, high=RANGES["altitude"].high),
         "airspeed": _range(("speed",), "true airspeed, m/s", **_POS, plausible="speed"),
         "equivalent_airspeed": _range(("speed",), "equivalent airspeed, m/s", **_POS, plausible="speed"),
-        "mach": _range(("dimensionless",), "Mach number", **_POS, plausible="mach"),
+        "mach": _range(("dimensionless",), "Mach number", **_POS, plausible="mach", what="Mach number"),
         "max_dynamic_pressure": Quantity(("pressure",), "Largest dynamic pressure, Pa.", default=None, **_POS),
-        "max_mach": Quantity(("dimensionless",), "Largest Mach number.", default=None, **_POS),
+        "max_mach": Quantity(("dimensionless",), "Largest Mach number.", default=None, **_POS, what="Mach number"),
         "min_equivalent_airspeed": Quantity(("speed",), "Smallest equivalent airspeed, m/s.", default=None, **_POS),
         "max_equivalent_airspeed": Quantity(("speed",), "Largest equivalent airspeed, m/s.", default=None, **_POS),
         "configurations": Items(CONFIGURATION, "Mass / CG configurations (default: the aircraft's mass at the reference CG).",
@@ -58,19 +58,21 @@ ENVELOPE = Section(
     exactly_one=(("airspeed", "equivalent_airspeed", "mach"),),
 )
 
-_TABLE = Items(Quantity(("dimensionless",), "value"), "A value at every Mach breakpoint.", default=None, max_items=200)
+_PER_RAD = Quantity(("dimensionless",), "value", what="per rad")
+_TABLE = Items(_PER_RAD, "A value at every Mach breakpoint.", default=None, max_items=200)
 
 AERODYNAMICS = Section(
     {
         "reference_cg": Number("CG (fraction of mean chord) at which Cm_alpha is given.", default=0.25, low=-1.0, high=2.0),
-        "mach": Items(Quantity(("dimensionless",), "Mach"), "Mach breakpoints of the tables (ascending).", min_items=1, max_items=200),
-        "CL_alpha": Items(Quantity(("dimensionless",), "value"), "Lift-curve slope per rad at each Mach.", max_items=200),
+        "mach": Items(Quantity(("dimensionless",), "Mach", what="Mach number"), "Mach breakpoints of the tables (ascending).", min_items=1, max_items=200),
+        "CL_alpha": Items(_PER_RAD, "Lift-curve slope per rad at each Mach.", max_items=200),
         "CD": Items(Quantity(("dimensionless",), "value"), "Trim drag coefficient at each Mach.", max_items=200),
         "CL_delta": _TABLE,
-        "Cm_alpha": Items(Quantity(("dimensionless",), "value"), "Cm_alpha per rad at the reference CG, at each Mach.", max_items=200),
+        "Cm_alpha": Items(_PER_RAD, "Cm_alpha per rad at the reference CG, at each Mach.", max_items=200),
         "Cm_alpha_dot": _TABLE,
-        "Cm_q": Items(Quantity(("dimensionless",), "value"), "Cm_q per rad at each Mach.", max_items=200),
-        "Cm_delta": Items(Quantity(("dimensionless",), "value"), "Cm_delta per rad at each Mach.", max_items=200),
+        "Cm_q": Items(_PER_RAD, "Cm_q per rad at each Mach.", max_items=200),
+        "Cm_delta": Items(_PER_RAD, "Cm_delta per rad at each Mach (negative for a conventional airframe: elevator "
+                          "trailing-edge down positive).", max_items=200),
         "CL_q": _TABLE,
     },
     "Non-dimensional coefficients tabulated against Mach (linear interpolation, clamped at the "

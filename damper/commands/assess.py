@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import sys
 
+from ..output.progress import add_quiet_option, configure
+
 NAME = "assess"
 
 
@@ -12,6 +14,7 @@ def register(sub) -> str:
     a.add_argument("case", help="case file (YAML)")
     a.add_argument("--gain", required=True, type=float, metavar="K", help="pitch-rate gain K in seconds (deg per deg/s)")
     a.add_argument("--json", action="store_true", help="print the results as JSON on standard output")
+    add_quiet_option(a)
     return NAME
 
 
@@ -32,7 +35,8 @@ def run(args, argv) -> int:
     warn_case(case)
     envelope = not case.conditions
     case = design_points_case(case)
-    result = assess(case, args.gain)
+    with configure(args.quiet).stage("assess", len(case.conditions), "conditions"):
+        result = assess(case, args.gain)
     doc = assess_document(case, result, command=" ".join(["damper", *argv]))
     if args.json:
         sys.stdout.write(dumps(doc))

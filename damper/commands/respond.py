@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from ..output.progress import add_quiet_option, configure, current
+
 NAME = "respond"
 
 
@@ -18,6 +20,7 @@ def register(sub) -> str:
     a.add_argument("--force", action="store_true",
                    help="replace the responses of an earlier damper run in DIR (its other files are kept)")
     a.add_argument("--no-plots", action="store_true", help="with --out: skip the plots")
+    add_quiet_option(a)
     return NAME
 
 
@@ -34,6 +37,7 @@ def run(args, argv) -> int:
 
     case = design_points_case(load_case(args.case))  # an envelope case: its design points
     warn_case(case)
+    configure(args.quiet)
     command = " ".join(["damper", *argv])
     if not args.out:
         doc, notes = write_responses(None, case, args.gain, command)
@@ -96,6 +100,7 @@ def write_responses(out, case, gains, command, plots=True, gain_text="chosen gai
     n = len(case.conditions)
     gains = np.broadcast_to(np.asarray(gains, dtype=float), (n,))
     conditions, notes, doc = [], [], None
+    stage = current().stage("responses", n, "conditions")
     for a, b in condition_batches(n):
         sub = sub_case(case, range(a, b))
         spec = response_spec(sub)
@@ -104,6 +109,8 @@ def write_responses(out, case, gains, command, plots=True, gain_text="chosen gai
         doc = response_document(sub, result, command=command, files=files)
         conditions += doc["conditions"]
         notes += [note for note in result.notes if note not in notes]
+        stage.update(b)
+    stage.finish()
     doc = dict(doc, conditions=conditions, notes=list(notes))  # the case-level keys are the same in every batch
     if out is not None:
         import os

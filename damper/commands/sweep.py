@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import os
 
+from ..output.progress import add_quiet_option, configure
+
 NAME = "sweep"
 
 
@@ -16,6 +18,7 @@ def register(sub) -> str:
     p.add_argument("--points", type=int, default=25, help="number of log-spaced gains (default 25)")
     p.add_argument("--csv", metavar="FILE", help="write the table as CSV (refused if FILE exists, unless --force)")
     p.add_argument("--force", action="store_true", help="replace an existing CSV file")
+    add_quiet_option(p)
     return NAME
 
 
@@ -84,7 +87,8 @@ def run(args, argv) -> int:
     if not lo < hi:
         raise DamperError(f"--gain-min ({lo:g}) must be below --gain-max ({hi:g})")
     gains = np.logspace(np.log10(lo), np.log10(hi), args.points)
-    rows = sweep_rows(case, i, gains)
+    with configure(args.quiet).stage("sweep", len(gains), "gains"):
+        rows = sweep_rows(case, i, gains)
     headers = ["K\ns", "zeta\nequiv.", "zeta\nmodal", "wn equiv.\nrad/s", "wn modal\nrad/s", "stable", "GM\ndB",
                "PM\ndeg", "delay m.\ns", "disk\nmargin", "meets\nall"]
     body = [
