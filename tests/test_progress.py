@@ -99,3 +99,12 @@ def test_the_schedule_reports_its_rounds():
     result = design_schedule(load_case(TWIN), progress=lambda done, total, stage: calls.append((done, total, stage)))
     assert calls[0] == (0, None, "schedule") and calls[-1] == (result.rounds, result.rounds, "schedule")
     assert [c[0] for c in calls[1:-1]] == list(range(1, result.rounds + 1))
+
+
+def test_an_error_or_interrupt_message_starts_its_own_line():
+    buf = io.StringIO()
+    r = Reporter(stream=buf, terminal=True)
+    r.stage("search", 10, "conditions").update(3)
+    assert not buf.getvalue().endswith("\n")
+    r.end_line()  # what damper.cli does before printing "damper: interrupted" or an error
+    assert buf.getvalue().endswith("\n") and buf.getvalue().count("\n") == 1

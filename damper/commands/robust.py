@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import sys
 
-from ..output.progress import add_quiet_option, configure
+from ..output.progress import add_quiet_option, configure, current
 
 NAME = "robust"
 #: Largest design.json / gain-schedule.json read (a 2,000-condition design.json is about 20 MB).
@@ -146,7 +146,8 @@ def run(args, argv) -> int:
         plot_paths = []
         with part("robustness"):
             if not args.no_plots:
-                plot_paths = robustness_plots(case, result, out)
+                with current().stage("figures"):
+                    plot_paths = robustness_plots(case, result, out)
                 files += sorted(os.path.relpath(p, out) for p in plot_paths)
             doc = robustness_document(case, result, command=command, files=files, where=where)
             write_atomic(os.path.join(out, "robustness.json"), dumps(doc))

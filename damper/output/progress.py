@@ -176,6 +176,11 @@ class Reporter:
         else:
             self._open = s
 
+    def end_line(self) -> None:
+        """End a bar's line left open (before an error or interrupt message)."""
+        if self._open is not None:
+            self._abandon(self._open)
+
     def _abandon(self, s) -> None:
         """A stage left by an exception: end the bar's line so the error starts on its own."""
         s.closed = True
