@@ -232,7 +232,8 @@ def _analyses(args, case, design, out, command, jobs, written):
             if not args.no_plots:  # drawn here while the worker draws the search's figures
                 from ..output.schedule_plots import schedule_plots
 
-                written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
+                with current().stage("schedule plots"):
+                    written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
     if design is not None and not args.no_responses:
         import numpy as np
 
