@@ -26,7 +26,8 @@ def run(args, argv) -> int:
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
     from ..errors import DamperError
-    from ..output.jsonout import assess_document, dumps
+    from ..analysis.verdicts import assess_verdict
+    from ..output.jsonout import assess_document, dumps, with_verdict
     from ..output.text import assess_table
 
     if not math.isfinite(args.gain):
@@ -37,7 +38,8 @@ def run(args, argv) -> int:
     case = design_points_case(case)
     with configure(args.quiet).stage("assess", len(case.conditions), "conditions"):
         result = assess(case, args.gain)
-    doc = assess_document(case, result, command=" ".join(["damper", *argv]))
+    verdict = assess_verdict(case.names, result, f"K = {args.gain:g} s")
+    doc = with_verdict(assess_document(case, result, command=" ".join(["damper", *argv])), verdict)
     if args.json:
         sys.stdout.write(dumps(doc))
     else:
@@ -49,5 +51,6 @@ def run(args, argv) -> int:
 
         print(echo_for(case))
         print(with_level_legend(assess_table(doc), case))
+        print("\n".join(verdict.lines()))
         print(CAUTION_SHORT)
-    return 0
+    return verdict.exit_status()
