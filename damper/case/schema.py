@@ -101,13 +101,14 @@ COEFFICIENTS = Section(
 CONDITION = Section(
     {
         "name": Text("Unique name of the flight condition."),
-        "airspeed": Quantity(("speed",), "True airspeed, m/s.", default=REQUIRED, **_POS, plausible="speed"),
-        "equivalent_airspeed": Quantity(("speed",), "Equivalent airspeed, m/s (instead of airspeed).", default=REQUIRED,
+        "airspeed": Quantity(("speed",), "True airspeed, m/s (a plain number above Mach 1 draws a warning: knots are written '250 kt').", default=REQUIRED, **_POS, plausible="speed"),
+        "equivalent_airspeed": Quantity(("speed",), "Equivalent airspeed, m/s (instead of airspeed; a plain number above Mach 1 draws a warning).", default=REQUIRED,
                                         **_POS, plausible="speed"),
         "mach": Quantity(("dimensionless",), "Mach number (instead of airspeed).", default=REQUIRED, positive=True, high=5.0,
                          what="Mach number"),
         "altitude": Quantity(
-            ("length",), "Altitude, m (see atmosphere.altitude_kind).", low=RANGES["altitude"].low,
+            ("length",), "Altitude, m (see atmosphere.altitude_kind; a plain number above 25 km draws a warning: feet are "
+            "written '30000 ft').", low=RANGES["altitude"].low,
             high=RANGES["altitude"].high
         ),
         "mass": Quantity(("mass",), "Mass at this condition, kg (default: aircraft.mass).", default=None, **_POS,
