@@ -144,8 +144,8 @@ def run(args, argv) -> int:
         result = robustness(case, gains, spec, progress=configure(args.quiet), workers=args.workers)
         elapsed = time.perf_counter() - start
         files = ["robustness.json"]
-        plot_paths = []
         with part("robustness"):
+            plot_paths = []
             if not args.no_plots:
                 with current().stage("figures"):
                     plot_paths = robustness_plots(case, result, out)
