@@ -100,7 +100,7 @@ def condition_result(case, result, index) -> dict:
     gpm = mg.phase_margins_deg[index]
     px = mg.phase_crossings_rad_s[index]
     pgm = mg.gain_margins_db[index]
-    return {
+    entry = {
         "name": cond.name,
         "gain_s": num(result.gains[index]),
         "flight": {
@@ -165,6 +165,9 @@ def condition_result(case, result, index) -> dict:
         "criteria": _criteria(result, index),
         "level": _level(result, index),
     }
+    from .longitudinal_out import with_longitudinal
+
+    return with_longitudinal(entry, cond, result, index, bi)
 
 
 def _equivalent(result, index):

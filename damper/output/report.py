@@ -34,6 +34,7 @@ import re
 
 from ..errors import DamperError
 from ..requirements.criteria import KINDS
+from .longitudinal_out import longitudinal_rows
 from .names import plot_slugs
 from .runfiles import MAX_SVG_BYTES  # noqa: F401 - part of this module's interface
 from .runfiles import image_uri as _image
@@ -381,6 +382,7 @@ def _condition_view(i, c, slug, files, summary_cond):
         "equivalent": equivalent,
         "equivalent_large_mismatch": bool(eq and eq.get("large_mismatch")),
         "handling": handling,
+        "longitudinal": longitudinal_rows(m, f),
         "margins": margins,
         "crossings": crossings,
         "criteria": criteria,
