@@ -108,7 +108,7 @@ def _run(runner, args, argv) -> int:
     from .errors import Interrupted
 
     try:
-        return runner(args, argv)
+        return _call(runner, args, argv)
     except KeyboardInterrupt as exc:
         print("damper: interrupted", file=sys.stderr)
         _note(exc)
@@ -137,6 +137,21 @@ def _run(runner, args, argv) -> int:
         )
         _note(exc)
         return 1
+    finally:
+        from .output.progress import reset
+
+        reset()  # a command's progress reporter ends with it (main is also called in-process)
+
+
+def _call(runner, args, argv):
+    """Run a command; on any exception end a progress bar's line first, so the message starts its own."""
+    try:
+        return runner(args, argv)
+    except BaseException:
+        from .output.progress import current
+
+        current().end_line()
+        raise
 
 
 class _signals:

@@ -99,7 +99,8 @@ def test_sigint_stops_robust_with_two_workers_and_a_large_study(tmp_path, starte
     # issue 17, problem 3: with two workers and 300,000 samples the exit came 202 s after SIGINT
     marker = uuid.uuid4().hex
     out = tmp_path / "run"
-    proc = started(["robust", UNCERTAIN, "--gain", "0.3", "--samples", "3000000", "--workers", "2", "--out", str(out)],
+    proc = started(["robust", UNCERTAIN, "--gain", "0.3", "--samples", "3000000", "--workers", "2", "--out", str(out),
+                    "--quiet"],
                   marker)
     _wait_for(lambda: (out / ".damper-journal").exists(), "the run start")
     time.sleep(1.5)  # inside the Monte Carlo (the study takes minutes)
@@ -114,7 +115,7 @@ def test_sigint_stops_robust_with_two_workers_and_a_large_study(tmp_path, starte
 def test_sigterm_during_the_figures_leaves_an_incomplete_run_that_force_replaces(tmp_path, started):
     marker = uuid.uuid4().hex
     out = tmp_path / "run"
-    proc = started(["design", DEMO, "--out", str(out)], marker)
+    proc = started(["design", DEMO, "--out", str(out), "--quiet"], marker)
     _wait_for(lambda: _figures(out), "a figure")
     proc.send_signal(signal.SIGTERM)
     _, err = proc.communicate(timeout=TIMEOUT)

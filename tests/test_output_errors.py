@@ -46,8 +46,8 @@ def test_a_file_size_limit_is_an_error_of_the_output_location(tmp_path, one_case
     def limit():  # 50 kB: design.json (about 9 kB) fits, a response table (about 200 kB) does not
         resource.setrlimit(resource.RLIMIT_FSIZE, (50_000, 50_000))
 
-    proc = subprocess.run([sys.executable, "-m", "damper", "design", one_case, "--out", str(out), "--no-plots"],
-                          cwd=ROOT, capture_output=True, text=True, timeout=120, preexec_fn=limit)
+    proc = subprocess.run([sys.executable, "-m", "damper", "design", one_case, "--out", str(out), "--no-plots",
+                           "--quiet"], cwd=ROOT, capture_output=True, text=True, timeout=120, preexec_fn=limit)
     assert proc.returncode == 2, proc.stderr
     line = _one_error_line(proc.stderr)
     assert "response-01-only-one-1-doublet.csv: cannot write" in line and "file-size limit" in line
@@ -89,11 +89,11 @@ def test_a_read_only_directory_is_an_error_of_the_output_location(tmp_path, one_
     ro = tmp_path / "ro"
     _read_only_case(monkeypatch, ro)
     try:
-        assert main(["design", one_case, "--out", str(ro / "run"), "--no-plots"]) == 2
+        assert main(["design", one_case, "--out", str(ro / "run"), "--no-plots", "--quiet"]) == 2
         line = _one_error_line(capsys.readouterr().err)
         assert f"{ro / 'run'}: cannot create or lock the run directory" in line
         assert ("read-only" in line) or ("permission denied" in line)
-        assert main(["design", one_case, "--out", str(ro), "--no-plots"]) == 2
+        assert main(["design", one_case, "--out", str(ro), "--no-plots", "--quiet"]) == 2
         _one_error_line(capsys.readouterr().err)
     finally:
         ro.chmod(0o755)
@@ -117,7 +117,7 @@ def test_a_full_disk_is_an_error_of_the_output_location(tmp_path, one_case, monk
     if not os.path.isdir("/proc/self/fd"):
         pytest.skip("needs /proc/self/fd to tell which file is written")
     monkeypatch.setattr(os, "write", full)
-    assert main(["design", one_case, "--out", str(out), "--no-plots"]) == 2
+    assert main(["design", one_case, "--out", str(out), "--no-plots", "--quiet"]) == 2
     line = _one_error_line(capsys.readouterr().err)
     assert "response-01-only-one-1-doublet.csv: cannot write: the disk is full" in line
     assert "free space or choose another output location" in line
@@ -139,7 +139,7 @@ def test_odd_output_locations_are_one_line_and_exit_2(tmp_path, one_case, capsys
     f = tmp_path / "a-file"
     f.write_text("x", encoding="utf-8")
     where = where.replace("FILE", str(f))
-    assert main(["design", one_case, "--out", where, "--no-plots"]) == 2
+    assert main(["design", one_case, "--out", where, "--no-plots", "--quiet"]) == 2
     assert expected in _one_error_line(capsys.readouterr().err)
     assert f.read_text() == "x"
 
@@ -148,5 +148,5 @@ def test_sweep_csv_into_a_directory_that_cannot_exist(tmp_path, capsys):
     f = tmp_path / "a-file"
     f.write_text("x", encoding="utf-8")
     demo = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
-    assert main(["sweep", demo, "--condition", "SL-climb-fwd", "--csv", str(f / "sweep.csv")]) == 2
+    assert main(["sweep", demo, "--condition", "SL-climb-fwd", "--csv", str(f / "sweep.csv"), "--quiet"]) == 2
     assert "cannot write" in _one_error_line(capsys.readouterr().err)

@@ -417,8 +417,20 @@ def _refine_1d(b, ver, max_bp):
     return np.unique(np.concatenate([b, mids]))
 
 
-def design_schedule(case) -> ScheduleResult:
-    """Design and verify the schedule of `case` (its ``schedule:`` section)."""
+def design_schedule(case, progress=None) -> ScheduleResult:
+    """Design and verify the schedule of `case` (its ``schedule:`` section).
+
+    `progress`, if given, is called as ``progress(done, total, "schedule")``: rounds done,
+    total None while refinement may go on, then ``(rounds, rounds)`` at the end.
+    """
+    report = progress or (lambda done, total, stage: None)
+    report(0, None, "schedule")
+    result = _design_schedule(case, report)
+    report(result.rounds, result.rounds, "schedule")
+    return result
+
+
+def _design_schedule(case, report) -> ScheduleResult:
     s = case.raw.get("schedule")
     if s is None:
         raise DamperError(f"{case.file}: the case has no schedule section")
@@ -440,6 +452,7 @@ def design_schedule(case) -> ScheduleResult:
     while True:
         rounds += 1
         schedule, bd, ver = _envelope_round(case, env, aero, variables, form, bps)
+        report(rounds, None, "schedule")
         nfail = int(np.sum(~ver.passed))
         history.append((int(np.prod([len(b) for b in bps])), nfail))
         if nfail == 0 or form != "table" or s["max_breakpoints"] == 0 or rounds >= 12:

@@ -61,12 +61,18 @@ def _section_doc(spec, grouped):
     return doc
 
 
+#: Sections whose derivatives or coefficients carry signs: the convention is stated there.
+SIGNED_SECTIONS = ("conditions[].derivatives", "conditions[].coefficients", "aerodynamics")
+
+
 def _render_section(section, path, lines, doc=None):
     """A section's heading, its own keys in one table, then each sub-section in turn."""
     title = f"`{path}`" if path else "top level"
     lines.append(f"\n## {title}\n")
     if doc:
         lines.append(f"{doc}\n")
+    if path in SIGNED_SECTIONS:
+        lines.append(f"{schema.SIGN_CONVENTION}\n")
     for group in getattr(section, "exactly_one", ()):
         lines.append(f"Give exactly one of: {', '.join('`' + g + '`' for g in group)}.\n")
     for group in getattr(section, "at_most_one", ()):

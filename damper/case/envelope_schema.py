@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from .ranges import RANGES
 from .schema import Choice, Integer, Items, Number, Quantity, Section, Text
 
 _POS = dict(positive=True)
@@ -27,19 +28,19 @@ CONFIGURATION = Section(
                      default=None, low=-1.0, high=2.0),
         "flight_path_angle": Quantity(("dimensionless",), "Trim flight-path angle gamma, rad (e.g. '-3 deg'), "
                                       "positive climbing. model: longitudinal only (absent: 0).", default=None,
-                                      low=-1.0, high=1.0),
+                                      low=-1.0, high=1.0, what="angle"),
     },
     "One mass / CG configuration.",
 )
 
 ENVELOPE = Section(
     {
-        "altitude": _range(("length",), "altitude, m", low=-2000.0, high=80000.0),
+        "altitude": _range(("length",), "altitude, m", low=RANGES["altitude"].low, high=RANGES["altitude"].high),
         "airspeed": _range(("speed",), "true airspeed, m/s", **_POS, plausible="speed"),
         "equivalent_airspeed": _range(("speed",), "equivalent airspeed, m/s", **_POS, plausible="speed"),
-        "mach": _range(("dimensionless",), "Mach number", **_POS, plausible="mach"),
+        "mach": _range(("dimensionless",), "Mach number", **_POS, plausible="mach", what="Mach number"),
         "max_dynamic_pressure": Quantity(("pressure",), "Largest dynamic pressure, Pa.", default=None, **_POS),
-        "max_mach": Quantity(("dimensionless",), "Largest Mach number.", default=None, **_POS),
+        "max_mach": Quantity(("dimensionless",), "Largest Mach number.", default=None, **_POS, what="Mach number"),
         "min_equivalent_airspeed": Quantity(("speed",), "Smallest equivalent airspeed, m/s.", default=None, **_POS),
         "max_equivalent_airspeed": Quantity(("speed",), "Largest equivalent airspeed, m/s.", default=None, **_POS),
         "configurations": Items(CONFIGURATION, "Mass / CG configurations (default: the aircraft's mass at the reference CG).",
@@ -60,7 +61,8 @@ ENVELOPE = Section(
     exactly_one=(("airspeed", "equivalent_airspeed", "mach"),),
 )
 
-_TABLE = Items(Quantity(("dimensionless",), "value"), "A value at every Mach breakpoint.", default=None, max_items=200)
+_PER_RAD = Quantity(("dimensionless",), "value", what="per rad")
+_TABLE = Items(_PER_RAD, "A value at every Mach breakpoint.", default=None, max_items=200)
 _SPEED_TABLE = Items(Quantity(("dimensionless",), "value"),
                      "Speed-derivative coefficient (as in conditions[].coefficients) at every Mach breakpoint; "
                      "model: longitudinal only, required there.", default=None, max_items=200)
@@ -68,14 +70,15 @@ _SPEED_TABLE = Items(Quantity(("dimensionless",), "value"),
 AERODYNAMICS = Section(
     {
         "reference_cg": Number("CG (fraction of mean chord) at which Cm_alpha is given.", default=0.25, low=-1.0, high=2.0),
-        "mach": Items(Quantity(("dimensionless",), "Mach"), "Mach breakpoints of the tables (ascending).", min_items=1, max_items=200),
-        "CL_alpha": Items(Quantity(("dimensionless",), "value"), "Lift-curve slope per rad at each Mach.", max_items=200),
+        "mach": Items(Quantity(("dimensionless",), "Mach", what="Mach number"), "Mach breakpoints of the tables (ascending).", min_items=1, max_items=200),
+        "CL_alpha": Items(_PER_RAD, "Lift-curve slope per rad at each Mach.", max_items=200),
         "CD": Items(Quantity(("dimensionless",), "value"), "Trim drag coefficient at each Mach.", max_items=200),
         "CL_delta": _TABLE,
-        "Cm_alpha": Items(Quantity(("dimensionless",), "value"), "Cm_alpha per rad at the reference CG, at each Mach.", max_items=200),
+        "Cm_alpha": Items(_PER_RAD, "Cm_alpha per rad at the reference CG, at each Mach.", max_items=200),
         "Cm_alpha_dot": _TABLE,
-        "Cm_q": Items(Quantity(("dimensionless",), "value"), "Cm_q per rad at each Mach.", max_items=200),
-        "Cm_delta": Items(Quantity(("dimensionless",), "value"), "Cm_delta per rad at each Mach.", max_items=200),
+        "Cm_q": Items(_PER_RAD, "Cm_q per rad at each Mach.", max_items=200),
+        "Cm_delta": Items(_PER_RAD, "Cm_delta per rad at each Mach (negative for a conventional airframe: elevator "
+                          "trailing-edge down positive).", max_items=200),
         "CL_q": _TABLE,
         "CL_u": _SPEED_TABLE,
         "CD_u": _SPEED_TABLE,

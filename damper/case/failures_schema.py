@@ -59,7 +59,7 @@ def _number(doc):
 
 
 def _angle(doc):
-    return Quantity(("dimensionless",), doc + " rad (e.g. '5 deg').", default=None)
+    return Quantity(("dimensionless",), doc + " rad (e.g. '5 deg').", default=None, what="angle")
 
 
 LIMITS = LimitsSection(

@@ -14,6 +14,7 @@ from ..requirements.spec import build_requirements
 from . import schema
 from .model import Aircraft, Case, Condition, ElementSpec, LoopSpec, Settings
 from .ranges import MAX_MACH, MIN_CONTROL_POWER_RATIO, RANGES
+from .written import as_written, plain_number_warnings
 from .speed_terms import (
     LONGITUDINAL,
     default_duration,
@@ -298,6 +299,7 @@ def _build(values, file, sha, doc) -> Case:
                 source=source,
                 note=c["note"],
                 configuration=c.get("configuration"),
+                written=as_written(_raw(doc, "conditions", i)),
                 flight_path_angle=gamma,
             )
         )
@@ -313,6 +315,7 @@ def _build(values, file, sha, doc) -> Case:
                             line=_line(doc, "envelope"))
         _check_aero_tables(values["aerodynamics"], doc)
         _check_envelope_mach(values, doc)
+    warnings.extend(plain_number_warnings(conditions, values["envelope"], altitude_kind))
     loop = _build_loop(values["loop"], doc)
     warnings.extend(_loop_warnings(loop))
     if values.get("failures") is not None and loop.authority is None and loop.travel is None:

@@ -68,6 +68,9 @@ class Condition:
         Mass / CG configuration label (schedules interpolate within one configuration).
     flight_path_angle : float
         Trim flight-path angle, rad, positive climbing (0 for the short-period model).
+    written : tuple of damper.case.written.Written
+        The speed key and the altitude as the case file wrote them (empty for conditions
+        damper made, e.g. envelope points).
 
     `derivatives` is a :class:`~damper.model.airframe.Derivatives` for a short-period case and a
     :class:`~damper.model.longitudinal.LongitudinalDerivatives` for a longitudinal one.
@@ -88,6 +91,7 @@ class Condition:
     note: str | None = None
     configuration: str | None = None
     flight_path_angle: float = 0.0
+    written: tuple = field(default=(), compare=False)
 
     @property
     def equivalent_airspeed(self) -> float:

@@ -62,7 +62,11 @@ MAX_MACH = 5.0
 
 RANGES = {
     "speed": Plausible("a speed", "m/s", None, ORBITAL_SPEED, "at or above orbital speed (about 7.9 km/s) nothing flies on wings"),
-    "mach": Plausible("a Mach number", "-", None, MAX_MACH, "the short-period models here are for subsonic to moderately supersonic flight"),
+    "mach": Plausible("a Mach number", "-", None, MAX_MACH, "the short-period models here are for subsonic to moderately supersonic flight",
+                      usual_high=1.0, hint="a plain number for a speed is m/s; write e.g. '250 kt' (damper/case/written.py)"),
+    "altitude": Plausible("an altitude", "m", -2000.0, 80000.0, "the standard atmosphere damper computes with ends there",
+                          usual_high=25000.0, hint="a plain number for an altitude is m; write e.g. '8000 ft' "
+                          "(damper/case/written.py)"),
     "mass": Plausible("a mass", "kg", 1e-3, 1e7, "no aircraft weighs less than a gram or more than 10,000 t"),
     "inertia": Plausible("a pitch inertia", "kg*m^2", 1e-9, 1e11,
                          "no aircraft has a pitch inertia below 1e-9 or above 1e11 kg m^2"),

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from ..requirements.criteria import KINDS
 from ..requirements.presets import AIRCRAFT_CLASSES, CATEGORIES, SPEED_RANGES, STANDARDS
 from .schema import Choice, Integer, Number, Quantity, Section
 
@@ -62,7 +63,7 @@ REQUIREMENTS = Section(
         "free_zero": Choice(("no", "yes"), "Fit 1/T_theta2 in the equivalent system instead of holding it at the bare-airframe value.", default="no"),
         "damping_ratio": _band("short-period damping ratio", _number),
         "natural_frequency": _band("short-period natural frequency, rad/s", _rate),
-        "cap": _band("control anticipation parameter, (rad/s^2)/g", _number),
+        "cap": _band(f"control anticipation parameter, {KINDS['cap'].unit}", _number),
         "equivalent_time_delay": _band("equivalent time delay, s", _time),
         "gain_margin": _band("gain margin, dB (applies up and down)", _number),
         "phase_margin": _band("phase margin, deg", _number),

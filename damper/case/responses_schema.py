@@ -67,6 +67,7 @@ INPUT = InputSection(
             "2 deg (pull first).",
             default=None,
             nonzero=True,
+            what="angle",
         ),
         "half_period": Quantity(
             ("time",), "Doublet: duration of each half, s (default: half the bare short-period period).",

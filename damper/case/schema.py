@@ -9,7 +9,7 @@ is generated from this module (``python -m damper.case.docgen``).
 from __future__ import annotations
 
 from ..errors import CaseError
-from .ranges import MAX_CONDITIONS
+from .ranges import MAX_CONDITIONS, RANGES
 from .spec_types import (  # noqa: F401 - the kinds are imported from here by the other schema modules
     CYCLE_RATE_KEYS,
     REQUIRED,
@@ -57,6 +57,13 @@ ATMOSPHERE = Section(
     default={"altitude_kind": "geopotential"},
 )
 
+#: The sign conventions, stated in docs/case-file.md where the derivatives and coefficients are
+#: (docs/theory.md section 1; damper/case/docgen.py).
+SIGN_CONVENTION = (
+    "**Signs** (docs/theory.md section 1): stability axes; the elevator is positive trailing-edge down, so a "
+    "conventional airframe has M_delta < 0 (Cm_delta < 0); the damper commands -sign(M_delta) K q, so a "
+    "positive gain K adds damping for either sign; the pilot command is positive nose-up."
+)
 _DERIV_DOC = "per unit {0} ({1}), or the {2} form ({3}), divided by the {0}"
 DERIVATIVES = Section(
     {
@@ -68,7 +75,8 @@ DERIVATIVES = Section(
             ("frequency", "moment_time"), "M_alpha_dot: 1/s, or N m s per rad (divided by pitch inertia).", default=0.0
         ),
         "M_q": Quantity(("frequency", "moment_time"), "M_q: 1/s, or N m s per rad (divided by pitch inertia)."),
-        "M_delta": Quantity(("frequency2", "moment"), "M_delta: 1/s^2, or N m per rad (divided by pitch inertia).", nonzero=True),
+        "M_delta": Quantity(("frequency2", "moment"), "M_delta: 1/s^2, or N m per rad (divided by pitch inertia); negative for a "
+                            "conventional airframe (elevator trailing-edge down positive).", nonzero=True),
         "X_u": Quantity(("frequency", "force_per_speed"), "X_u: 1/s (m/s^2 per m/s), or N s/m (divided by mass). "
                         "model: longitudinal only, required there.", default=None),
         "X_alpha": Quantity(("acceleration", "force"), "X_alpha: m/s^2 per rad, or N per rad (divided by mass). "
@@ -86,14 +94,16 @@ DERIVATIVES = Section(
 _COEF = ("dimensionless",)
 COEFFICIENTS = Section(
     {
-        "CL_alpha": Quantity(_COEF, "Lift-curve slope, per rad (or e.g. '0.09 1/deg')."),
-        "CD": Quantity(_COEF, "Trim drag coefficient.", nonnegative=True),
-        "CL_delta": Quantity(_COEF, "Lift per elevator, per rad.", default=0.0),
-        "Cm_alpha": Quantity(_COEF, "Pitching moment per angle of attack, per rad."),
-        "Cm_alpha_dot": Quantity(_COEF, "Per rad, with alpha_dot made non-dimensional by c/(2V).", default=0.0),
-        "Cm_q": Quantity(_COEF, "Per rad, with q made non-dimensional by c/(2V)."),
-        "Cm_delta": Quantity(_COEF, "Pitching moment per elevator, per rad.", nonzero=True),
-        "CL_q": Quantity(_COEF, "Lift per non-dimensional pitch rate, per rad.", default=0.0),
+        "CL_alpha": Quantity(_COEF, "Lift-curve slope, per rad (or e.g. '0.09 1/deg').", what="per rad"),
+        "CD": Quantity(_COEF, "Trim drag coefficient.", nonnegative=True, what="number"),
+        "CL_delta": Quantity(_COEF, "Lift per elevator, per rad.", default=0.0, what="per rad"),
+        "Cm_alpha": Quantity(_COEF, "Pitching moment per angle of attack, per rad.", what="per rad"),
+        "Cm_alpha_dot": Quantity(_COEF, "Per rad, with alpha_dot made non-dimensional by c/(2V).", default=0.0,
+                                 what="per rad"),
+        "Cm_q": Quantity(_COEF, "Per rad, with q made non-dimensional by c/(2V).", what="per rad"),
+        "Cm_delta": Quantity(_COEF, "Pitching moment per elevator, per rad; negative for a conventional airframe "
+                             "(elevator trailing-edge down positive).", nonzero=True, what="per rad"),
+        "CL_q": Quantity(_COEF, "Lift per non-dimensional pitch rate, per rad.", default=0.0, what="per rad"),
         "CL_u": Quantity(_COEF, "Speed derivative V dCL/du (dimensionless). model: longitudinal only, required there.",
                          default=None),
         "CD_u": Quantity(_COEF, "Speed derivative V dCD/du (dimensionless). model: longitudinal only, required there.",
@@ -102,7 +112,8 @@ COEFFICIENTS = Section(
                          default=None),
         "CT_u": Quantity(_COEF, "Thrust derivative (1/(q S)) dT/d(u/V) (dimensionless; 0 for constant thrust, -CD "
                          "for constant power in level flight). model: longitudinal only, required there.", default=None),
-        "CD_alpha": Quantity(_COEF, "Drag-curve slope, per rad. model: longitudinal only, required there.", default=None),
+        "CD_alpha": Quantity(_COEF, "Drag-curve slope, per rad. model: longitudinal only, required there.", default=None,
+                             what="per rad"),
     },
     "Non-dimensional coefficients (stability axes); need wing_area and mean_chord.",
 )
@@ -110,12 +121,15 @@ COEFFICIENTS = Section(
 CONDITION = Section(
     {
         "name": Text("Unique name of the flight condition."),
-        "airspeed": Quantity(("speed",), "True airspeed, m/s.", default=REQUIRED, **_POS, plausible="speed"),
-        "equivalent_airspeed": Quantity(("speed",), "Equivalent airspeed, m/s (instead of airspeed).", default=REQUIRED,
+        "airspeed": Quantity(("speed",), "True airspeed, m/s (a plain number above Mach 1 draws a warning: knots are written '250 kt').", default=REQUIRED, **_POS, plausible="speed"),
+        "equivalent_airspeed": Quantity(("speed",), "Equivalent airspeed, m/s (instead of airspeed; a plain number above Mach 1 draws a warning).", default=REQUIRED,
                                         **_POS, plausible="speed"),
-        "mach": Quantity(("dimensionless",), "Mach number (instead of airspeed).", default=REQUIRED, positive=True, high=5.0),
+        "mach": Quantity(("dimensionless",), "Mach number (instead of airspeed).", default=REQUIRED, positive=True, high=5.0,
+                         what="Mach number"),
         "altitude": Quantity(
-            ("length",), "Altitude, m (see atmosphere.altitude_kind).", low=-2000.0, high=80000.0
+            ("length",), "Altitude, m (see atmosphere.altitude_kind; a plain number above 25 km draws a warning: feet are "
+            "written '30000 ft').", low=RANGES["altitude"].low,
+            high=RANGES["altitude"].high
         ),
         "mass": Quantity(("mass",), "Mass at this condition, kg (default: aircraft.mass).", default=None, **_POS,
                          plausible="mass"),
@@ -125,7 +139,7 @@ CONDITION = Section(
         ),
         "flight_path_angle": Quantity(("dimensionless",), "Trim flight-path angle gamma, rad (e.g. '-3 deg'), "
                                       "positive climbing. model: longitudinal only (absent: 0).", default=None,
-                                      low=-1.0, high=1.0),
+                                      low=-1.0, high=1.0, what="angle"),
         "note": Text("Free text shown in reports (e.g. the CG position).", default=None),
         "configuration": Text("Mass / CG configuration this condition belongs to (a schedule interpolates "
                               "derivatives only between conditions of the same configuration; two conditions "
@@ -154,7 +168,7 @@ ACTUATOR = Section(
         "travel": Quantity(
             ("dimensionless",), "Surface travel, +/- rad (e.g. '10 deg'), applied to the sum of pilot and damper "
             "commands; used in time responses. The damper's own limit is loop.authority.",
-            default=None, **_POS, plausible="travel",
+            default=None, **_POS, plausible="travel", what="angle",
         ),
     },
     "Servo actuator, from damper command to surface; absent = ideal.",
@@ -200,14 +214,15 @@ LOOP = Section(
         "filters": Items(FILTER, "Further filters in the feedback path, in signal order.", default=(), min_items=0, max_items=20),
         "delay": Quantity(("time",), "Computation / transport delay, s.", default=0.0, nonnegative=True, high=1.0),
         "sample_rate": Quantity(
-            ("frequency",), "Digital sample rate, Hz (adds half a sample of delay for the zero-order hold).", default=None, **_POS
+            ("frequency",), "Digital sample rate, Hz (adds half a sample of delay for the zero-order hold).", default=None, **_POS,
+            cycles=True,
         ),
         "pade_order": Integer("Order of the Pade approximant of the delay in eigenvalue work.", default=2, low=1, high=8),
         "authority": Quantity(
             ("dimensionless",), "The largest surface deflection the damper alone can command (series-servo stroke), "
             "+/- rad (e.g. '3 deg'); the damper's command is limited to it in every time response and a failed "
             "damper runs to it (absent: no limit of its own; a failure runs to loop.actuator.travel).",
-            default=None, **_POS, plausible="travel",
+            default=None, **_POS, plausible="travel", what="angle",
         ),
         "authority_rate_limit": Quantity(
             ("angular_rate",), "The damper command's own rate limit, rad/s (e.g. '10 deg/s'; absent: "

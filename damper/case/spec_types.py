@@ -44,6 +44,7 @@ class Quantity:
     nonzero: bool = False
     cycles: bool | None = None
     plausible: str | None = None  # a key of damper.case.ranges.RANGES: refused outside its accepted range
+    what: str | None = None  # a dimensionless value's readable type (docs): "Mach number", "per rad", "angle"
 
     def check(self, value, path):
         cycles = self.cycles if self.cycles is not None else _last_key(path) in CYCLE_RATE_KEYS
@@ -68,14 +69,49 @@ class Quantity:
         return (si, dim) if len(self.dims) > 1 else si
 
     def describe(self) -> str:
-        units = " or ".join(SI_UNIT_TEXT[d] for d in self.dims)
+        """The readable type of the key for docs/case-file.md ("speed in m/s (plain number: m/s)")."""
+        first = self.dims[0]
+        if first == "dimensionless":
+            text = _DIMENSIONLESS_TYPES.get(self.what or "number", self.what)
+        elif len(self.dims) > 1:  # a derivative: the per-unit form or the force / moment form
+            others = " or ".join(SI_UNIT_TEXT[d] for d in self.dims[1:])
+            text = f"{SI_UNIT_TEXT[first]} (plain number) or {others} per rad"
+        else:
+            word, unit = _DIMENSION_TYPES.get(first, ("quantity", SI_UNIT_TEXT[first]))
+            if self.cycles:
+                unit = "Hz"
+            text = f"{word} in {unit} (plain number: {unit})"
         if self.plausible is not None:
             from .ranges import RANGES
 
             r = RANGES[self.plausible]
             span = f"{r.low:g} to {r.high:g}" if r.low is not None else f"at most {r.high:g}"
-            return f"quantity ({units}; accepted: {span})"
-        return f"quantity ({units})"
+            text += f"; accepted: {span}"
+        return text
+
+
+#: Readable types of dimensioned quantities: dimension -> (word, SI unit of a plain number).
+_DIMENSION_TYPES = {
+    "length": ("length", "m"),
+    "time": ("time", "s"),
+    "speed": ("speed", "m/s"),
+    "frequency": ("frequency", "rad/s"),
+    "mass": ("mass", "kg"),
+    "area": ("area", "m^2"),
+    "inertia": ("inertia", "kg*m^2"),
+    "acceleration": ("acceleration", "m/s^2"),
+    "pressure": ("pressure", "Pa"),
+    "angular_rate": ("angular rate", "rad/s"),
+    "angular_acceleration": ("angular acceleration", "rad/s^2"),
+}
+
+#: Readable types of dimensionless quantities (``Quantity.what``).
+_DIMENSIONLESS_TYPES = {
+    "number": "number",
+    "Mach number": "Mach number",
+    "per rad": "per rad (plain number; or e.g. '0.09 1/deg')",
+    "angle": "angle in rad (plain number: rad; or e.g. '10 deg')",
+}
 
 
 @dataclass(frozen=True)
@@ -154,6 +190,8 @@ class Integer:
         return value
 
     def describe(self) -> str:
+        if self.high is None or self.high >= 2**31:
+            return f"whole number, at least {self.low}"
         return f"whole number {self.low}-{self.high}"
 
 
@@ -320,6 +358,8 @@ class Items:
         return out
 
     def describe(self) -> str:
+        if isinstance(self.item, (Quantity, Number, Integer, Text, Choice)):
+            return f"list, each: {self.item.describe()}"
         return "list"
 
 

@@ -58,7 +58,7 @@ class _AbsoluteSpread:
         raise CaseError("needs a parameter name", path, value)
 
     def describe(self) -> str:
-        return "quantity (unit of the parameter)"
+        return "quantity in the parameter's own unit (plain number: its SI unit)"
 
 
 class ParameterSection(Section):
@@ -140,6 +140,7 @@ CG_SHIFT = CgShiftSection(
             "normal-force slope -Z_alpha m / (qbar S)).",
             default=None,
             positive=True,
+            what="per rad",
         ),
     },
     "Centre-of-gravity shift: changes M_alpha only (M_q, M_alpha_dot, M_delta and Z terms neglected; "

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import sys
 
+from ..output.progress import add_quiet_option, configure
+
 NAME = "assess"
 
 
@@ -12,6 +14,7 @@ def register(sub) -> str:
     a.add_argument("case", help="case file (YAML)")
     a.add_argument("--gain", required=True, type=float, metavar="K", help="pitch-rate gain K in seconds (deg per deg/s)")
     a.add_argument("--json", action="store_true", help="print the results as JSON on standard output")
+    add_quiet_option(a)
     return NAME
 
 
@@ -33,7 +36,8 @@ def run(args, argv) -> int:
     warn_case(case)
     envelope = not case.conditions
     case = design_points_case(case)
-    result = assess(case, args.gain)
+    with configure(args.quiet).stage("assess", len(case.conditions), "conditions"):
+        result = assess(case, args.gain)
     verdict = assess_verdict(case.names, result, f"K = {args.gain:g} s")
     doc = with_verdict(assess_document(case, result, command=" ".join(["damper", *argv])), verdict)
     if args.json:
@@ -43,7 +47,10 @@ def run(args, argv) -> int:
         if envelope:
             print(f"(no conditions in the case: evaluated at the {len(case.conditions)} envelope design points "
                   "that damper design starts its schedule from)")
-        print(assess_table(doc))
+        from ..output.understood import echo_for, with_level_legend
+
+        print(echo_for(case))
+        print(with_level_legend(assess_table(doc), case))
         print("\n".join(verdict.lines()))
         print(CAUTION_SHORT)
     return verdict.exit_status()

@@ -6,6 +6,8 @@ import os
 import sys
 from dataclasses import dataclass
 
+from ..output.progress import add_quiet_option, configure, current
+
 NAME = "design"
 #: Conditions that get their own figures by default (docs/performance.md: a 2,000-condition run
 #: would otherwise draw about 6,000 figure files and a report too large to open).
@@ -37,6 +39,7 @@ def register(sub) -> str:
     p.add_argument("--no-robustness", action="store_true", help="skip the robustness study of the case's uncertainty section")
     p.add_argument("--no-failures", action="store_true", help="skip the failure study of the case's failures section")
     p.add_argument("--no-report", action="store_true", help="skip the HTML report (rebuild it later with 'damper report DIR')")
+    add_quiet_option(p)
     return NAME
 
 
@@ -74,6 +77,7 @@ def run(args, argv) -> int:
     from ..output.rundir import RunDirectory
 
     case = load_case(args.case)
+    configure(args.quiet)
     command = " ".join(["damper", *argv])
     with RunDirectory(args.out, command, case.sha256, mode="new", force=args.force) as run:
         out = run.root
@@ -91,14 +95,17 @@ def run(args, argv) -> int:
             from ..output.report import write_report
             from ..output.runfiles import RunFiles
 
-            with part("report"):
+            with part("report"), current().stage("report"):
                 write_report(out, RunFiles.verified(out, run.files()))
             written.append("report.html")
         run.finish()
         written.append("manifest.json")
     print(f"{case.title}")
     if design is not None:
-        print(design_table(design.doc))
+        from ..output.understood import echo_for, with_level_legend
+
+        print(echo_for(case, design.doc))
+        print(with_level_legend(design_table(design.doc), case))
         if design.figures is not None and not args.no_plots:
             print(f"figures drawn for {len(design.figures)} of {len(design.conditions)} conditions (the infeasible ones "
                   "and those with the least slack; --max-figures N to change)")
@@ -168,6 +175,7 @@ def _design(args, case, out, command, jobs):
     slugs = plot_slugs(case.names)
     draw_all = n <= args.max_figures
     entries, conds, worst, job_ids, misses = [], [], [], [], []
+    stage = current().stage("search", n, "conditions")
     for a, b in condition_batches(n):  # memory: one batch's sweep at a time (damper/analysis/batches.py)
         sub = sub_case(case, range(a, b))
         d = search(sub, settings)
@@ -177,6 +185,8 @@ def _design(args, case, out, command, jobs):
         worst.append(np.asarray(d.chosen.criteria.worst_slack, dtype=float).reshape(-1))
         if draw_all and not args.no_plots:
             job_ids += _queue_design_plots(jobs, sub, d, out, slugs[a:b])
+        stage.update(b)
+    stage.finish()
     figures = None
     if not draw_all:
         figures = _figure_conditions(conds, np.concatenate(worst), args.max_figures)
@@ -235,14 +245,15 @@ def _analyses(args, case, design, out, command, jobs, written):
         from ..analysis.verdicts import schedule_verdict
         from ..output.schedule_out import write_schedule
 
-        schedule = design_schedule(case)
+        schedule = design_schedule(case, progress=current())
         verdict = schedule_verdict(schedule)
         with part("schedule"):
             written += write_schedule(out, case, schedule, command=command, verdict=verdict)
             if not args.no_plots:  # drawn here while the worker draws the search's figures
                 from ..output.schedule_plots import schedule_plots
 
-                written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
+                with current().stage("schedule plots"):
+                    written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
     if design is not None and not args.no_responses:
         import numpy as np
 
@@ -260,7 +271,6 @@ def _analyses(args, case, design, out, command, jobs, written):
         import numpy as np
 
         from ..analysis.robustness import robustness, uncertainty_spec
-        from .robust import _Progress
 
         spec = uncertainty_spec(case)
         if schedule is not None:  # the schedule is what flies: its tightest verification points
@@ -270,7 +280,7 @@ def _analyses(args, case, design, out, command, jobs, written):
             where = study_description(len(gains))
         else:
             gains = np.array([c.chosen_gain for c in design.conditions])
-        rob = robustness(case, gains, spec, progress=_Progress())
+        rob = robustness(case, gains, spec, progress=current())
         if not args.no_plots:
             from ..output.robustness_out import robustness_plot_jobs
 
@@ -319,8 +329,8 @@ def _failures(args, case, design, out, command, jobs, written):
     from ..output.failures_out import write_failures
     from ..output.journal import part
 
-    result = run_failures(case, np.array([c.chosen_gain for c in design.conditions]))
-    with part("failures"):
+    with part("failures"), current().stage("failures"):
+        result = run_failures(case, np.array([c.chosen_gain for c in design.conditions]))
         text, files, verdict = write_failures(out, case, result, command, jobs=None if args.no_plots else jobs)
     written.append(files)
     return text, verdict

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from ..output.progress import add_quiet_option, configure, current
+
 NAME = "respond"
 
 
@@ -20,6 +22,7 @@ def register(sub) -> str:
     a.add_argument("--no-plots", action="store_true", help="with --out: skip the plots")
     a.add_argument("--figures", default="png,svg", metavar="FORMATS",
                    help="figure formats, comma-separated: png, svg or both (default png,svg; the report embeds SVG when there is one; one format draws the figures in about half the time)")
+    add_quiet_option(a)
     return NAME
 
 
@@ -39,6 +42,7 @@ def run(args, argv) -> int:
 
     case = design_points_case(load_case(args.case))  # an envelope case: its design points
     warn_case(case)
+    configure(args.quiet)
     command = " ".join(["damper", *argv])
     if not args.out:
         doc, notes = write_responses(None, case, args.gain, command)
@@ -101,6 +105,7 @@ def write_responses(out, case, gains, command, plots=True, gain_text="chosen gai
     n = len(case.conditions)
     gains = np.broadcast_to(np.asarray(gains, dtype=float), (n,))
     conditions, notes, doc = [], [], None
+    stage = current().stage("responses", n, "conditions")
     for a, b in condition_batches(n):
         sub = sub_case(case, range(a, b))
         spec = response_spec(sub)
@@ -109,6 +114,8 @@ def write_responses(out, case, gains, command, plots=True, gain_text="chosen gai
         doc = response_document(sub, result, command=command, files=files)
         conditions += doc["conditions"]
         notes += [note for note in result.notes if note not in notes]
+        stage.update(b)
+    stage.finish()
     doc = dict(doc, conditions=conditions, notes=list(notes))  # the case-level keys are the same in every batch
     from ..output.jsonout import with_verdict
     from ..verdict import Verdict

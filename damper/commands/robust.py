@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import sys
 
+from ..output.progress import add_quiet_option, configure, current
+
 NAME = "robust"
 #: Largest design.json / gain-schedule.json read (a 2,000-condition design.json is about 20 MB).
 MAX_JSON_BYTES = 200_000_000
@@ -33,7 +35,7 @@ def register(sub) -> str:
     p.add_argument("--no-plots", action="store_true", help="skip the plots")
     p.add_argument("--figures", default="png,svg", metavar="FORMATS",
                    help="figure formats, comma-separated: png, svg or both (default png,svg; the report embeds SVG when there is one; one format draws the figures in about half the time)")
-    p.add_argument("--quiet", action="store_true", help="no progress bar on standard error")
+    add_quiet_option(p)
     return NAME
 
 
@@ -50,30 +52,6 @@ def _check_args(args):
         raise DamperError(f"--seed = {args.seed}: must not be negative")
     if args.workers is not None and not 1 <= args.workers <= 64:
         raise DamperError(f"--workers = {args.workers}: must be between 1 and 64")
-
-
-class _Progress:
-    """A plain-text progress bar on standard error (only on a terminal unless forced)."""
-
-    def __init__(self, stream=None, enabled=None):
-        self.stream = stream or sys.stderr
-        self.enabled = self.stream.isatty() if enabled is None else enabled
-        self.last = None
-
-    def __call__(self, done, total, stage):
-        if not self.enabled or total <= 0:
-            return
-        width = 30
-        frac = min(1.0, done / total)
-        key = (stage, int(frac * 100))
-        if key == self.last:
-            return
-        self.last = key
-        bar = "#" * int(round(frac * width))
-        self.stream.write(f"\r{stage:<18} [{bar:<{width}}] {100 * frac:5.1f} % ({done}/{total})")
-        if done >= total:
-            self.stream.write("\n")
-        self.stream.flush()
 
 
 def _read_design(path):
@@ -168,13 +146,14 @@ def run(args, argv) -> int:
             print("damper: warning: the case has no uncertainty: section (or it is empty); every sample is the nominal",
                   file=sys.stderr)
         start = time.perf_counter()
-        result = robustness(case, gains, spec, progress=None if args.quiet else _Progress(), workers=args.workers)
+        result = robustness(case, gains, spec, progress=configure(args.quiet), workers=args.workers)
         elapsed = time.perf_counter() - start
         files = ["robustness.json"]
-        plot_paths = []
         with part("robustness"):
+            plot_paths = []
             if not args.no_plots:
-                plot_paths = robustness_plots(case, result, out)
+                with current().stage("figures"):
+                    plot_paths = robustness_plots(case, result, out)
                 files += sorted(os.path.relpath(p, out) for p in plot_paths)
             verdict = robustness_verdict(result, spec.required_fraction)
             doc = with_verdict(robustness_document(case, result, command=command, files=files, where=where), verdict)

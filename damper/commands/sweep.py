@@ -8,6 +8,8 @@ from __future__ import annotations
 import os
 import sys
 
+from ..output.progress import add_quiet_option, configure
+
 NAME = "sweep"
 
 
@@ -21,6 +23,7 @@ def register(sub) -> str:
     p.add_argument("--csv", metavar="FILE", help="write the table as CSV (refused if FILE exists, unless --force)")
     p.add_argument("--force", action="store_true", help="replace an existing CSV file")
     p.add_argument("--json", action="store_true", help="print the sweep as JSON on standard output")
+    add_quiet_option(p)
     return NAME
 
 
@@ -61,7 +64,8 @@ def run(args, argv) -> int:
     if not lo < hi:
         raise DamperError(f"--gain-min ({lo:g}) must be below --gain-max ({hi:g})")
     gains = np.logspace(np.log10(lo), np.log10(hi), args.points)
-    rows = sweep_rows(evaluate_points(case, np.full(len(gains), i), gains))
+    with configure(args.quiet).stage("sweep", len(gains), "gains"):
+        rows = sweep_rows(evaluate_points(case, np.full(len(gains), i), gains))
     if args.csv:
         write_atomic(args.csv, sweep_csv(rows))
     if args.json:

@@ -177,12 +177,21 @@ class PlotJobs:
 
     def finish(self) -> list:
         """Wait for every job (drawing the unstarted ones here); the written paths, in submission order."""
+        from .progress import current
+
+        stage = current().stage("figures", len(self._jobs), "plot jobs") if self._jobs else None
+
+        def tick():
+            if stage is not None:
+                stage.update(sum(j[3] is not None or (j[2] is not None and j[2].done()) for j in self._jobs))
+
         # take back not-yet-started jobs one at a time from the end of the queue and draw
         # them here, while the worker goes on from the front
         while True:
             for job in reversed(self._jobs):
                 if job[2] is not None and job[2].cancel():
                     job[2], job[3] = None, list(job[0](*job[1]))
+                    tick()
                     break
             else:
                 break
@@ -199,7 +208,10 @@ class PlotJobs:
                     raise
                 job[3] = list(fn(*args))  # the worker died: draw it here
             job[2] = None
+            tick()
         self._shutdown()
+        if stage is not None:
+            stage.finish()
         out = []
         for job in self._jobs:
             out += job[3]

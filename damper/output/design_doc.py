@@ -49,6 +49,7 @@ def case_summary(case) -> dict:
                 "dynamic_pressure_pa": num(c.dynamic_pressure),
                 "mass_kg": num(c.mass),
                 "pitch_inertia_kg_m2": num(c.pitch_inertia),
+                "as_written": {w.key: w.text for w in c.written},
                 "derivatives": {
                     "Z_alpha_m_s2": num(d.Z_alpha),
                     "Z_q_m_s": num(d.Z_q),

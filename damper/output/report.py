@@ -33,6 +33,7 @@ import os
 import re
 
 from ..errors import DamperError
+from ..requirements.criteria import KINDS
 from .longitudinal_out import longitudinal_rows
 from .names import plot_slugs
 from .runfiles import MAX_SVG_BYTES  # noqa: F401 - part of this module's interface
@@ -291,8 +292,8 @@ def _condition_view(i, c, slug, files, summary_cond):
             ("fit converged", "", "yes" if eq.get("converged") else "NO"),
         ]
     handling = [
-        ("CAP (equivalent frequency)", "(rad/s\u00b2)/g", f(hq.get("cap_equivalent"))),
-        ("CAP (modal frequency)", "(rad/s\u00b2)/g", f(hq.get("cap_modal"))),
+        ("CAP (equivalent frequency)", unit_text(KINDS["cap"].unit), f(hq.get("cap_equivalent"))),
+        ("CAP (modal frequency)", unit_text(KINDS["cap"].unit), f(hq.get("cap_modal"))),
         ("n/\u03b1", "g/rad", f(hq.get("n_alpha_g_per_rad"))),
     ]
     for key, label, unit in (

@@ -93,13 +93,15 @@ def assess_table(doc) -> str:
 
 def handling_table(doc) -> str:
     """Equivalent system, CAP, level and the requirements' verdict per condition."""
+    from ..requirements.criteria import KINDS
+
     headers = [
         "condition",
         "equiv.\nzeta",
         "equiv. wn\nrad/s",
         "tau_e\ns",
         "mismatch",
-        "CAP\n1/(s^2 g)",
+        "CAP\n" + KINDS["cap"].unit,
         "bandwidth\nrad/s",
         "phase del.\ns",
         "level",
