@@ -1,4 +1,4 @@
-"""``damper assess CASE --gain K``: measure the loop with a given gain at every condition."""
+"""``damper assess CASE (--gain K | --design RUN_DIR | --schedule FILE)``: measure the loop at given gains."""
 
 from __future__ import annotations
 
@@ -8,36 +8,40 @@ NAME = "assess"
 
 
 def register(sub) -> str:
-    a = sub.add_parser(NAME, help="measure the loop with a given gain at every condition")
+    from .gain_source import add_gain_options
+
+    a = sub.add_parser(NAME, help="measure the loop at every condition with a given gain, a design's chosen gains "
+                       "or a schedule's gains")
     a.add_argument("case", help="case file (YAML)")
-    a.add_argument("--gain", required=True, type=float, metavar="K", help="pitch-rate gain K in seconds (deg per deg/s)")
+    add_gain_options(a)
     a.add_argument("--json", action="store_true", help="print the results as JSON on standard output")
     return NAME
 
 
 def run(args, argv) -> int:
-    import math
-
     from ..analysis.assess import assess
     from ..analysis.schedule_points import design_points_case
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
-    from ..errors import DamperError
     from ..output.jsonout import assess_document, dumps
     from ..output.text import assess_table
+    from .gain_source import check_gain, resolve_gains
 
-    if not math.isfinite(args.gain):
-        raise DamperError(f"--gain = {args.gain}: must be a finite number of seconds")
+    check_gain(args.gain)
     case = load_case(args.case)
     warn_case(case)
     envelope = not case.conditions
     case = design_points_case(case)
-    result = assess(case, args.gain)
+    gains = resolve_gains(case, args)
+    result = assess(case, gains.values)
     doc = assess_document(case, result, command=" ".join(["damper", *argv]))
+    doc["gain_source"] = {"kind": gains.kind, "text": gains.text}
+    for note in gains.notes:
+        print(f"damper: note: {note}", file=sys.stderr)
     if args.json:
         sys.stdout.write(dumps(doc))
     else:
-        print(f"{case.title}: loop with K = {args.gain:g} s")
+        print(f"{case.title}: loop with {gains.text}")
         if envelope:
             print(f"(no conditions in the case: evaluated at the {len(case.conditions)} envelope design points "
                   "that damper design starts its schedule from)")

@@ -16,6 +16,9 @@ def register(sub) -> str:
     p.add_argument("--points", type=int, default=25, help="number of log-spaced gains (default 25)")
     p.add_argument("--csv", metavar="FILE", help="write the table as CSV (refused if FILE exists, unless --force)")
     p.add_argument("--force", action="store_true", help="replace an existing CSV file")
+    from .gain_source import add_gain_options
+
+    add_gain_options(p, required=False, gain=False)  # --design / --schedule: mark that condition's gain
     return NAME
 
 
@@ -42,6 +45,7 @@ def sweep_rows(case, index, gains):
                 "delay_margin_s": float(res.margins.delay_margin_s[j]),
                 "disk_margin": float(res.margins.disk_margin[j]),
                 "all_met": bool(res.criteria.all_met[j]),
+                "marked": "",
             }
         )
     return rows
@@ -84,21 +88,36 @@ def run(args, argv) -> int:
     if not lo < hi:
         raise DamperError(f"--gain-min ({lo:g}) must be below --gain-max ({hi:g})")
     gains = np.logspace(np.log10(lo), np.log10(hi), args.points)
+    mark = None
+    if args.design is not None or args.schedule is not None:
+        from .gain_source import resolve_gains
+
+        source = resolve_gains(case, args)
+        mark = float(source.values[i])
+        gains = np.unique(np.append(gains, mark))  # the marked gain is a row of its own
     rows = sweep_rows(case, i, gains)
+    if mark is not None:
+        for r in rows:
+            r["marked"] = source.label if r["gain_s"] == mark else ""
     headers = ["K\ns", "zeta\nequiv.", "zeta\nmodal", "wn equiv.\nrad/s", "wn modal\nrad/s", "stable", "GM\ndB",
-               "PM\ndeg", "delay m.\ns", "disk\nmargin", "meets\nall"]
+               "PM\ndeg", "delay m.\ns", "disk\nmargin", "meets\nall"] + (["gain\nof"] if mark is not None else [])
     body = [
         [fmt(r["gain_s"], ".4g"), fmt(r["damping_equivalent"], ".3f"), fmt(r["damping_modal"], ".3f") + ("*" if r["ambiguous"] else ""),
          fmt(r["frequency_equivalent_rad_s"], ".3g"), fmt(r["frequency_modal_rad_s"], ".3g"), "yes" if r["stable"] else "NO",
          fmt(r["gain_margin_db"], ".1f", "none"), fmt(r["phase_margin_deg"], ".1f", "none"),
          fmt(r["delay_margin_s"], ".3f", "none"), fmt(r["disk_margin"], ".2f"), "yes" if r["all_met"] else "no"]
+        + ([r["marked"]] if mark is not None else [])
         for r in rows
     ]
     print(f"{case.title}: gain sweep at {args.condition}")
     print(table(headers, body))
     print("* modal pick ambiguous. 'none': no such crossing (unbounded).")
+    if mark is not None:
+        print(f"gain of: the row at K = {mark:.4g} s is {source.label}, from {source.text}")
+        for note in source.notes:
+            print(f"note: {note}")
     if args.csv:
-        cols = list(rows[0])
+        cols = [c for c in rows[0] if c != "marked" or mark is not None]
         lines = [",".join(cols)] + [",".join("" if (isinstance(r[c], float) and not math.isfinite(r[c])) else str(r[c]) for c in cols) for r in rows]
         write_atomic(args.csv, "\n".join(lines) + "\n")
         print(f"wrote {args.csv}")
