@@ -196,3 +196,24 @@ def test_bad_input_is_one_line_exit_2(runs, tmp_path):
     assert code == 2 and "is one of the compared runs" in err
     assert (runs["a"] / "design.json").exists()
     assert not (tmp_path / "o1").exists() and not (tmp_path / "o3").exists()
+
+
+def test_worse_counts_unbounded_slack_and_a_lower_pass_fraction():
+    from damper.output.compare_doc import compare_point, point_record
+
+    def entry(pm_slack, pm_met, gm_slack, k):
+        crit = [{"name": "phase_margin", "slack": pm_slack, "met": pm_met},
+                {"name": "gain_margin", "slack": gm_slack, "met": gm_slack >= 0}]
+        return {"chosen_gain_s": k, "feasible": True, "feasible_gains_s": [[0.01, 0.5]],
+                "measures": {"criteria": crit, "level": {"overall": "worse than 3"}}}
+
+    a = point_record(entry(None, True, 2.0, 0.1), pass_fraction=0.99)   # no gain crossing: PM unbounded
+    b = point_record(entry(1.5, True, 2.5, 0.2), pass_fraction=0.95)
+    cmp = compare_point(a, b)
+    # Source: the definitions in docs/compare.md: an unbounded met slack that becomes finite decreased;
+    # a larger slack did not; a lower pass fraction is worse
+    assert cmp["worse"] == ["phase_margin", "robustness_pass_fraction"]
+    assert cmp["delta"]["slack"] == {"phase_margin": None, "gain_margin": 0.5}
+    assert cmp["delta"]["chosen_gain_s"] == 0.2 - 0.1 and cmp["delta"]["robustness_pass_fraction"] == 0.95 - 0.99
+    assert a["feasible_low_s"] == 0.01 and a["feasible_high_s"] == 0.5 and a["level"] == 4.0
+    assert compare_point(a, a)["worse"] == [] and compare_point(b, a)["worse"] == ["gain_margin"]
