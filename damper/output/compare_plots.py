@@ -9,19 +9,24 @@ from __future__ import annotations
 
 import numpy as np
 
-from . import plots as style
 from .figures import new_figure, save_figure
+from .plots import _RC, DPI, LINES, PALETTE  # the house style (re-exported by plots.py)
+
+
+def _plain_log_label(v, _pos=None):
+    """A log-axis tick label as a plain number (0.01, 1, 100)."""
+    return f"{v:g}"
 
 
 def _render(draw, stem, *args):
     import matplotlib
 
-    with matplotlib.rc_context(style._RC):
-        return save_figure(draw(*args), stem, style.DPI)
+    with matplotlib.rc_context(_RC):
+        return save_figure(draw(*args), stem, DPI)
 
 
 def _line(ax, x, y, which, label):
-    kw = dict(style.LINES[which])
+    kw = dict(LINES[which])
     kw["markevery"] = max(1, len(x) // 10)
     ax.plot(x, y, label=label, **kw)
 
@@ -61,14 +66,14 @@ def _draw_overlay(title, sa, sb, chosen, band, labels):
             _line(ax, sweep.gains, y, which, f"run {label}")
         for k, which, label in zip(chosen, ("primary", "secondary"), labels):
             if k is not None and k > 0:
-                ax.axvline(k, color=style.PALETTE[which], linestyle=":", linewidth=1.2)
+                ax.axvline(k, color=PALETTE[which], linestyle=":", linewidth=1.2)
         ax.set_ylabel(ylabel)
         ax.set_xscale("log")
-        ax.xaxis.set_major_formatter(style._plain_log_label)
+        ax.xaxis.set_major_formatter(_plain_log_label)
     lo, hi = band
     if lo is not None or hi is not None:
         ylo, yhi = axes[0].get_ylim()
-        axes[0].axhspan(lo if lo is not None else ylo, hi if hi is not None else yhi, color=style.PALETTE["band"],
+        axes[0].axhspan(lo if lo is not None else ylo, hi if hi is not None else yhi, color=PALETTE["band"],
                         alpha=0.5, zorder=0, label="required band (B)")
         axes[0].set_ylim(ylo, yhi)
     axes[0].legend(loc="best")
@@ -102,12 +107,12 @@ def _draw_schedules(title, q, gains, slack, labels):
     top, bottom = fig.subplots(2, 1, sharex=True)
     order = np.argsort(q, kind="stable")
     for k, s, which, label in zip(gains, slack, ("primary", "secondary"), labels):
-        kw = dict(style.LINES[which])
+        kw = dict(LINES[which])
         kw.pop("linestyle")
         kw["markersize"] = 3.5
         top.plot(q[order], k[order], linestyle="none", label=f"run {label}", **kw)
         bottom.plot(q[order], s[order], linestyle="none", label=f"run {label}", **kw)
-    bottom.axhline(0.0, **style.LINES["limit"])
+    bottom.axhline(0.0, **LINES["limit"])
     top.set_ylabel("scheduled gain K, s")
     bottom.set_ylabel("worst normalised slack")
     bottom.set_xlabel("dynamic pressure, Pa (each point of both verification grids)")
