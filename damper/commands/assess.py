@@ -36,6 +36,13 @@ def run(args, argv) -> int:
     result = assess(case, gains.values)
     doc = assess_document(case, result, command=" ".join(["damper", *argv]))
     doc["gain_source"] = {"kind": gains.kind, "text": gains.text}
+    from ..analysis.turbulence_case import case_turbulence
+
+    study = case_turbulence(case, gains.values)
+    if study is not None:
+        from ..output.turbulence_out import add_turbulence
+
+        add_turbulence(doc, study)
     for note in gains.notes:
         print(f"damper: note: {note}", file=sys.stderr)
     if args.json:
@@ -46,5 +53,12 @@ def run(args, argv) -> int:
             print(f"(no conditions in the case: evaluated at the {len(case.conditions)} envelope design points "
                   "that damper design starts its schedule from)")
         print(assess_table(doc))
+        if study is not None:
+            from ..output.turbulence_out import turbulence_table
+
+            print(f"continuous turbulence (Dryden, vertical; covariance analysis, delay as "
+                  f"{study.closed_loop.delay_model}); rates: expected excursions per second beyond the limit, "
+                  "either sign (Rice)")
+            print(turbulence_table(doc))
         print(CAUTION_SHORT)
     return 0

@@ -158,7 +158,9 @@ def _design(args, case, out, command, jobs):
     for a, b in condition_batches(n):  # memory: one batch's sweep at a time (damper/analysis/batches.py)
         sub = sub_case(case, range(a, b))
         d = search(sub, settings)
-        entries += [dump_part(e) for e in condition_entries(sub, d)]  # text: about 8 kB per condition
+        batch = condition_entries(sub, d)
+        _add_turbulence(sub, d, batch)
+        entries += [dump_part(e) for e in batch]  # text: about 8 kB per condition
         conds += d.conditions
         worst.append(np.asarray(d.chosen.criteria.worst_slack, dtype=float).reshape(-1))
         if draw_all and not args.no_plots:
@@ -199,6 +201,19 @@ def _figure_conditions(conds, worst, limit) -> tuple:
         return (conds[i].feasible, -math.inf if w != w else w, i)
 
     return tuple(sorted(sorted(range(len(conds)), key=key)[:limit]))
+
+
+def _add_turbulence(case, design, entries):
+    """With a ``turbulence:`` section: the responses at the chosen gains into the design.json entries."""
+    import numpy as np
+
+    from ..analysis.turbulence_case import case_turbulence
+
+    study = case_turbulence(case, np.array([c.chosen_gain for c in design.conditions]))
+    if study is not None:
+        from ..output.turbulence_out import add_turbulence
+
+        add_turbulence({"conditions": entries}, study)
 
 
 def _analyses(args, case, design, out, command, jobs, written):
