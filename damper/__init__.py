@@ -4,3 +4,36 @@ Preliminary engineering analysis only; see README.md for the cautions.
 """
 
 __version__ = "0.1.0"
+
+#: The Python API's entry points (docs/api.md), imported on first use so that ``import damper``
+#: (and the command line's start-up) does not load numpy, scipy or python-control.
+API = {
+    "load_case": "damper.case.load",
+    "search": "damper.analysis.search",
+    "assess": "damper.analysis.assess",
+    "build_loop": "damper.analysis.assess",
+    "design_schedule": "damper.analysis.schedule",
+    "robustness": "damper.analysis.robustness",
+    "uncertainty_spec": "damper.analysis.uncertainty",
+    "respond_case": "damper.analysis.response",
+    "turbulence_for_spec": "damper.analysis.turbulence",
+    "to_control": "damper.model.loop",
+}
+
+__all__ = ["__version__", *API]
+
+
+def __getattr__(name):
+    """``damper.<entry point>``: import its module on first use (PEP 562)."""
+    module = API.get(name)
+    if module is None:
+        raise AttributeError(f"module 'damper' has no attribute {name!r}")
+    import importlib
+
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(API))

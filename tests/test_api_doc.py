@@ -43,3 +43,20 @@ def test_api_doc_examples_run(monkeypatch):
     assert namespace["slack"].shape == (len(case.requirements.criteria), n)
     # Source: python-control's ss() of a loop with the case's states (order 2 airframe + hardware + Pade)
     assert namespace["closed"].nstates == len(namespace["mine"])
+
+
+def test_entry_points_are_importable_from_damper_lazily():
+    import subprocess
+    import sys
+
+    code = ("import sys, damper; assert 'numpy' not in sys.modules, 'import damper loaded numpy'; "
+            "f = damper.assess; assert 'numpy' in sys.modules; "
+            "from damper.analysis.assess import assess; assert f is assess; "
+            "assert set(damper.API) <= set(dir(damper)); "
+            "[getattr(damper, n) for n in damper.API]; "
+            "\n"
+            "try:\n    damper.no_such_thing\nexcept AttributeError as e:\n    assert 'no_such_thing' in str(e)\n"
+            "else:\n    raise SystemExit('no AttributeError')")
+    env = dict(os.environ, PYTHONPATH=ROOT)
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, cwd=ROOT, timeout=120)
+    assert proc.returncode == 0, proc.stderr
