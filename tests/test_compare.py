@@ -217,3 +217,16 @@ def test_worse_counts_unbounded_slack_and_a_lower_pass_fraction():
     assert cmp["delta"]["chosen_gain_s"] == 0.2 - 0.1 and cmp["delta"]["robustness_pass_fraction"] == 0.95 - 0.99
     assert a["feasible_low_s"] == 0.01 and a["feasible_high_s"] == 0.5 and a["level"] == 4.0
     assert compare_point(a, a)["worse"] == [] and compare_point(b, a)["worse"] == ["gain_margin"]
+
+
+def test_union_of_grids_keeps_each_point_once_and_names_label_clashes_apart():
+    from types import SimpleNamespace
+
+    from damper.analysis.compare_points import _union
+
+    a = SimpleNamespace(labels=("p", "q", "q"), altitude=np.array([0.0, 1.0, 1.0]),
+                        airspeed=np.array([10.0, 20.0, 20.01]))
+    b = SimpleNamespace(labels=("q", "r"), altitude=np.array([1.0, 2.0]), airspeed=np.array([20.0, 30.0]))
+    idx, names = _union([a, b])
+    # Source: the rule in the function's docstring, applied by hand: b's "q" is a's first "q"
+    assert idx.tolist() == [0, 1, 2, 4] and names == ["p", "q", "q (2)", "r"]

@@ -40,16 +40,24 @@ class ScheduledPoints:
 
 
 def _union(point_sets):
-    """Indices into the concatenation of PointSets keeping each label once (first wins)."""
-    seen, keep = set(), []
+    """Indices into the concatenation of PointSets keeping each point once, and their names.
+
+    A point is the same point when its label, altitude and airspeed (to 1e-6 m, m/s) are; two
+    different points that share a label (labels round the airspeed) are named ``label (2)``,
+    ``label (3)`` ... in the order they come, so both runs name them alike.
+    """
+    seen, keep, names, count = set(), [], [], {}
     offset = 0
     for pts in point_sets:
         for k, label in enumerate(pts.labels):
-            if label not in seen:
-                seen.add(label)
+            key = (label, round(float(pts.altitude[k]), 6), round(float(pts.airspeed[k]), 6))
+            if key not in seen:
+                seen.add(key)
+                count[label] = count.get(label, 0) + 1
                 keep.append(offset + k)
+                names.append(label if count[label] == 1 else f"{label} ({count[label]})")
         offset += len(pts.labels)
-    return np.array(keep, dtype=int)
+    return np.array(keep, dtype=int), names
 
 
 def union_grid_points(case, schedule, schedules):
@@ -89,9 +97,10 @@ def union_grid_points(case, schedule, schedules):
     if not sets:
         raise DamperError(f"{case.file}: no verification grid of the compared schedules exists for this case")
     pts = _concat(sets) if len(sets) > 1 else sets[0]
-    idx = _union(sets)
+    idx, names = _union(sets)
     conditions = points_as_conditions(pts, idx, configurations, "schedule verification point",
                                       "{kind} point of the schedule verification")
+    conditions = tuple(dataclasses.replace(c, name=n) for c, n in zip(conditions, names))
     raw = dict(case.raw or {})
     raw["conditions"] = []
     study = dataclasses.replace(case, conditions=conditions, raw=raw)
