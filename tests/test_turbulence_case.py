@@ -134,3 +134,40 @@ def test_bad_turbulence_sections_are_one_line_errors(tmp_path):
         path.write_text(CASE + section, encoding="utf-8")
         code, _, err = run("assess", path, "--gain", "0.1")
         assert code == 2 and words in err and "Traceback" not in err, err
+
+
+def test_turbulence_requirements_are_checked_per_condition(tmp_path):
+    ref = _oracle(0.15, 2.0, 533.4)
+    low, high = 0.5 * ref["nz"], 2.0 * ref["nz"]
+    for limit, met in ((low, False), (high, True)):
+        req = (f"requirements:\n  damping_ratio: {{min: 0.4}}\n  turbulence_load_factor_rms: {{max: {float(limit)!r}}}\n"
+               "  rate_limit_exceedances: {max: 0.1}\n")
+        path = tmp_path / "req.yaml"
+        path.write_text(CASE.replace("requirements:\n  damping_ratio: {min: 0.4}\n", req)
+                        + "turbulence: {gust_rms: 2.0, scale_length: 533.4}\n", encoding="utf-8")
+        code, out, err = run("assess", path, "--gain", "0.15", "--json")
+        checks = {c["name"]: c for c in json.loads(out)["conditions"][0]["closed_loop"]["turbulence"]["requirements"]}
+        nz = checks["turbulence_load_factor_rms"]
+        # Source: the frequency-domain integral above against the limit written here
+        assert nz["met"] is met and nz["value"] == pytest.approx(ref["nz"], rel=1e-4)
+        assert nz["slack"] == pytest.approx((limit - nz["value"]) / limit, rel=1e-12)
+        # no rate limit in this case (ideal hardware): not judged as met, with the reason
+        assert checks["rate_limit_exceedances"]["met"] is False and checks["rate_limit_exceedances"]["reason"]
+        code, text, _ = run("assess", path, "--gain", "0.15")
+        assert ("not met in turbulence: cruise: turbulence_load_factor_rms" in text) is not met
+    from damper.analysis.turbulence_case import case_turbulence, check_turbulence, turbulence_items
+    from damper.case import load_case
+
+    case = load_case(str(path))
+    items = turbulence_items(case, check_turbulence(case, case_turbulence(case, 0.15).closed_loop))
+    assert [(i.part, i.condition, i.requirement, i.met) for i in items] == [
+        ("design", "cruise", "rate_limit_exceedances", False)]
+
+
+def test_a_turbulence_requirement_needs_the_section(tmp_path):
+    path = tmp_path / "nosection.yaml"
+    path.write_text(CASE.replace("  damping_ratio: {min: 0.4}\n",
+                                 "  damping_ratio: {min: 0.4}\n  turbulence_load_factor_rms: {max: 0.1}\n"),
+                    encoding="utf-8")
+    code, _, err = run("assess", path, "--gain", "0.1")
+    assert code == 2 and "needs a turbulence: section" in err

@@ -36,13 +36,13 @@ def run(args, argv) -> int:
     result = assess(case, gains.values)
     doc = assess_document(case, result, command=" ".join(["damper", *argv]))
     doc["gain_source"] = {"kind": gains.kind, "text": gains.text}
-    from ..analysis.turbulence_case import case_turbulence
+    from ..analysis.turbulence_case import case_turbulence, check_turbulence
 
     study = case_turbulence(case, gains.values)
     if study is not None:
         from ..output.turbulence_out import add_turbulence
 
-        add_turbulence(doc, study)
+        add_turbulence(doc, study, check_turbulence(case, study.closed_loop))
     for note in gains.notes:
         print(f"damper: note: {note}", file=sys.stderr)
     if args.json:
@@ -60,5 +60,9 @@ def run(args, argv) -> int:
                   f"{study.closed_loop.delay_model}); rates: expected excursions per second beyond the limit, "
                   "either sign (Rice)")
             print(turbulence_table(doc))
+            from ..output.turbulence_out import turbulence_not_met
+
+            for line in turbulence_not_met(doc):
+                print(line)
         print(CAUTION_SHORT)
     return 0

@@ -207,13 +207,13 @@ def _add_turbulence(case, design, entries):
     """With a ``turbulence:`` section: the responses at the chosen gains into the design.json entries."""
     import numpy as np
 
-    from ..analysis.turbulence_case import case_turbulence
+    from ..analysis.turbulence_case import case_turbulence, check_turbulence
 
     study = case_turbulence(case, np.array([c.chosen_gain for c in design.conditions]))
     if study is not None:
         from ..output.turbulence_out import add_turbulence
 
-        add_turbulence({"conditions": entries}, study)
+        add_turbulence({"conditions": entries}, study, check_turbulence(case, study.closed_loop))
 
 
 def _analyses(args, case, design, out, command, jobs, written):

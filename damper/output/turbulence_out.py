@@ -20,14 +20,30 @@ def turbulence_entry(result, index) -> dict:
     return record | {"reasons": result.reasons_at(index, contract_only=True), "delay_model": result.delay_model}
 
 
-def add_turbulence(doc, study):
+def add_turbulence(doc, study, checks=None):
     """Put a :class:`~damper.analysis.turbulence.TurbulenceStudy` (one member per condition) into
-    the ``conditions`` of an assess-structure document (``bare`` / ``closed_loop``)."""
+    the ``conditions`` of an assess-structure document (``bare`` / ``closed_loop``), with the
+    turbulence requirements checked per condition (`checks`, from
+    :func:`damper.analysis.turbulence_case.check_turbulence`) under ``closed_loop.turbulence.requirements``."""
     for i, cond in enumerate(doc["conditions"]):
         target = cond.get("measures", cond)  # a design.json entry keeps its measures one level down
         target["bare"]["turbulence"] = turbulence_entry(study.bare, (i,))
         target["closed_loop"]["turbulence"] = turbulence_entry(study.closed_loop, (i,))
+        if checks and checks[i]:
+            target["closed_loop"]["turbulence"]["requirements"] = [
+                {k: (num(v) if isinstance(v, float) else v) for k, v in c.items()} for c in checks[i]]
     return doc
+
+
+def turbulence_not_met(doc) -> list:
+    """Lines for the terminal: every turbulence requirement not met."""
+    out = []
+    for c in doc["conditions"]:
+        for r in (c["closed_loop"].get("turbulence") or {}).get("requirements") or ():
+            if not r["met"]:
+                why = f"{r['value']:.4g} {r['unit']}, at most {r['max']:.4g}" if r["value"] is not None else r["reason"]
+                out.append(f"not met in turbulence: {c['name']}: {r['name']} ({why})")
+    return out
 
 
 def _g(x, spec):
