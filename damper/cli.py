@@ -33,7 +33,8 @@ def _parser():
     p = argparse.ArgumentParser(
         prog="damper",
         description="Design and check pitch-rate dampers (pitch stability augmentation) from a YAML case file.",
-        epilog=CAUTION_SHORT,
+        epilog="Exit status: 0 every requirement met, 3 some requirement not met, 2 bad input or output "
+        "location, 1 a bug in damper, 130/143 interrupted. " + CAUTION_SHORT,
     )
     p.add_argument("--version", action="store_true", help="print the version and exit")
     p.add_argument("--debug", action="store_true", help="show a traceback on errors")
@@ -77,10 +78,10 @@ def _join_negative_numbers(parser, argv):
 
 
 def main(argv=None) -> int:
-    """Run the command line; returns the exit code.
+    """Run the command line; returns the exit code (docs/verdict.md).
 
-    0 ok, 2 bad input or output location, 1 internal error, 130 after SIGINT (Ctrl-C),
-    143 after SIGTERM.
+    0 every requirement met, 3 some requirement not met (the analysis succeeded), 2 bad input
+    or output location, 1 internal error, 130 after SIGINT (Ctrl-C), 143 after SIGTERM.
     """
     argv = sys.argv[1:] if argv is None else list(argv)
     parser, runners = _parser()

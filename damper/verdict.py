@@ -131,15 +131,32 @@ class Verdict:
         return Verdict(tuple(items))
 
     def doc(self) -> dict:
-        """The ``verdict`` object of the JSON documents."""
-        return {"met": self.met, "items": [i.doc() for i in self.items]}
+        """The ``verdict`` object of the JSON documents (``parts``: the parts this one judged)."""
+        return {"met": self.met, "parts": list(self.parts), "items": [i.doc() for i in self.items]}
+
+    @classmethod
+    def from_doc(cls, doc) -> "Verdict":
+        """The verdict a JSON document's ``verdict`` object holds (what :meth:`doc` wrote).
+
+        Raises ValueError on an object that is not one.
+        """
+        if not isinstance(doc, dict) or not isinstance(doc.get("items"), list):
+            raise ValueError("not a verdict object")
+        items = []
+        for i in doc["items"]:
+            d = i.get("detail") or {}
+            items.append(Item(i["part"], i.get("condition"), str(i["requirement"]), bool(i["met"]),
+                              Detail(d.get("value"), d.get("lower"), d.get("upper"), d.get("slack"), d.get("unit", "")),
+                              str(i.get("text", ""))))
+        return cls(tuple(items))
 
     def exit_status(self) -> int:
         """0 when met, :data:`EXIT_NOT_MET` otherwise."""
         return 0 if self.met else EXIT_NOT_MET
 
-    def lines(self) -> list:
-        """The terminal's verdict lines: one per part, then every item not met."""
+    def lines(self, limit: int = 12) -> list:
+        """The terminal's verdict lines: one per part, then its items not met (at most `limit` a part;
+        the JSON documents list them all)."""
         if not self.items:
             return ["verdict: nothing judged"]
         head = "verdict: every requirement met" if self.met else "verdict: NOT MET"
@@ -148,10 +165,13 @@ class Verdict:
             s = self.summary(p)
             if s is not None:
                 out.append(f"  {p}: {'met' if s.met else 'NOT MET'}" + (f" - {s.text}" if s.text else ""))
-            for i in self.items:
-                if i.part == p and not i.met and i is not s:
-                    where = f"{i.condition}: " if i.condition else ""
-                    out.append(f"    not met: {where}{i.requirement}" + (f" ({i.text})" if i.text else ""))
+            misses = [i for i in self.items if i.part == p and not i.met and i is not s]
+            for i in misses[:limit]:
+                where = f"{i.condition}: " if i.condition else ""
+                what = "every requirement" if i.requirement == "all" else i.requirement
+                out.append(f"    not met: {where}{what}" + (f" ({i.text})" if i.text else ""))
+            if len(misses) > limit:
+                out.append(f"    ... and {len(misses) - limit} more (every item is in the JSON's verdict object)")
         return out
 
 
@@ -165,7 +185,8 @@ def _num(x):
 def fraction_text(k: int, n: int) -> str:
     """`k` of `n` as a percentage that never rounds a fraction below 1 up to 100 % (nor above 0 to 0 %).
 
-    Examples: 1999 of 2000 -> "99.95 %", 2000 of 2000 -> "100 %", 1 of 100000 -> "0.001 %".
+    The distance to 0 or 100 % is shown to at least two significant digits. Examples: 1999 of
+    2000 -> "99.95 %", 2000 of 2000 -> "100 %", 1 of 100000 -> "0.001 %", 1441 of 2000 -> "72.0 %".
     """
     if n <= 0:
         return "-"
@@ -174,8 +195,9 @@ def fraction_text(k: int, n: int) -> str:
     if k == 0:
         return "0 %"
     p = 100.0 * k / n
-    for digits in range(1, 8):
-        s = f"{p:.{digits}f}"
-        if 0.0 < float(s) < 100.0:
-            return f"{s} %"
-    return f"{p:.8g} %"
+    gap = min(p, 100.0 - p)  # distance to the nearer whole: shown to two significant digits at least
+    digits = max(1, math.ceil(-math.log10(gap)) + 1)
+    text = f"{p:.{digits}f}"
+    if digits > 1:
+        text = text.rstrip("0")
+    return f"{text} %"

@@ -15,7 +15,7 @@ DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
 
 
 def test_assess_json_structure(capsys):
-    assert main(["assess", DEMO, "--gain", "0.1", "--json"]) == 0
+    assert main(["assess", DEMO, "--gain", "0.1", "--json"]) in (0, 3)  # 0 met, 3 not met: the verdict (docs/verdict.md) is checked in tests/test_verdict.py
     doc = json.loads(capsys.readouterr().out)
     assert len(doc["conditions"]) == 7
     c = doc["conditions"][0]
@@ -39,7 +39,7 @@ def test_assess_json_structure(capsys):
 
 def test_no_crossing_is_null(capsys):
     # a small gain: |L| < 1 everywhere, so no gain crossing and no phase margin (null)
-    assert main(["assess", DEMO, "--gain", "0.01", "--json"]) == 0
+    assert main(["assess", DEMO, "--gain", "0.01", "--json"]) in (0, 3)  # 0 met, 3 not met: the verdict (docs/verdict.md) is checked in tests/test_verdict.py
     c = json.loads(capsys.readouterr().out)["conditions"][0]
     assert c["margins"]["phase_margin_deg"] is None
     assert c["margins"]["gain_crossover_rad_s"] is None
@@ -47,7 +47,7 @@ def test_no_crossing_is_null(capsys):
 
 
 def test_table_output_has_units_and_caution(capsys):
-    assert main(["assess", DEMO, "--gain", "0.1"]) == 0
+    assert main(["assess", DEMO, "--gain", "0.1"]) in (0, 3)  # 0 met, 3 not met: the verdict (docs/verdict.md) is checked in tests/test_verdict.py
     out = capsys.readouterr().out
     assert "rad/s" in out and "dB" in out and "deg" in out
     assert "Preliminary engineering analysis" in out

@@ -121,7 +121,7 @@ def test_renamed_condition_and_unmet_requirement_are_listed_and_exit_3(runs, tmp
     assert infeasible, "the 45 dB gain margin is out of reach somewhere"
     # Source: run C's design.json (its feasibility): the verdict is C's own
     assert not doc["verdict"]["met"]
-    failed = sorted(i["condition"] for i in doc["verdict"]["items"] if not i["met"] and i["condition"])
+    failed = sorted({i["condition"] for i in doc["verdict"]["items"] if not i["met"] and i["condition"]})
     assert failed == infeasible
     # points where C misses a requirement A met come first
     first = [r["name"] for r in doc["conditions"][: len(infeasible)]]

@@ -407,7 +407,7 @@ def test_cli_robust_writes_and_refuses_to_overwrite(tmp_path, capsys):
     out = tmp_path / "run"
     rc = main(["robust", str(case), "--gain", "0.1", "--samples", "6", "--out", str(out), "--quiet"])
     text = capsys.readouterr().out
-    assert rc == 0
+    assert rc in (0, 3)  # 0 met, 3 not met: the verdict (docs/verdict.md) is checked in tests/test_verdict.py
     assert "Preliminary engineering analysis only" in text and "meets all" in text and "dB" in text
     doc = json.loads((out / "robustness.json").read_text())
     assert doc["method"]["samples"] == 6
@@ -429,7 +429,7 @@ def test_cli_robust_reads_chosen_gains_from_a_design(tmp_path, capsys):
     np.testing.assert_array_equal(gains_from_design(case, json.loads((design / "design.json").read_text())), [0.2, 0.07])
     out = tmp_path / "run"
     rc = main(["robust", str(case_path), "--design", str(design), "--samples", "4", "--out", str(out), "--no-plots", "--quiet"])
-    assert rc == 0
+    assert rc in (0, 3)  # 0 met, 3 not met: the verdict (docs/verdict.md) is checked in tests/test_verdict.py
     doc = json.loads((out / "robustness.json").read_text())
     assert [c["gain_s"] for c in doc["conditions"]] == [0.2, 0.07]
     capsys.readouterr()

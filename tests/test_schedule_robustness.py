@@ -86,7 +86,7 @@ def test_design_runs_the_study_on_a_schedule_case(tmp_path, capsys):
     out = tmp_path / "run"
     rc = main(["design", str(path), "--out", str(out), "--no-plots", "--no-responses"])
     text = capsys.readouterr().out
-    assert rc == 0
+    assert rc in (0, 3)  # 0 met, 3 not met: the verdict (docs/verdict.md) is checked in tests/test_verdict.py
     assert "robustness at the scheduled gains, at the tightest verification points" in text
     doc = json.loads((out / "robustness.json").read_text())
     assert len(doc["conditions"]) == 4
@@ -132,9 +132,9 @@ def test_robust_reads_a_schedule_file_and_studies_its_tightest_points(tmp_path, 
     path = tmp_path / "twinjet.yaml"
     path.write_text(_twinjet_text(UNCERTAIN), encoding="utf-8")
     design = tmp_path / "design"
-    assert main(["design", str(path), "--out", str(design), "--no-plots", "--no-responses"]) == 0
+    assert main(["design", str(path), "--out", str(design), "--no-plots", "--no-responses"]) in (0, 3)  # 0 met, 3 not met: the verdict (docs/verdict.md) is checked in tests/test_verdict.py
     out = tmp_path / "robust"
-    assert main(["robust", str(path), "--schedule", str(design), "--out", str(out), "--no-plots", "--quiet"]) == 0
+    assert main(["robust", str(path), "--schedule", str(design), "--out", str(out), "--no-plots", "--quiet"]) in (0, 3)
     assert "tightest verification points" in capsys.readouterr().out
     a = json.loads((design / "robustness.json").read_text())
     b = json.loads((out / "robustness.json").read_text())

@@ -146,6 +146,10 @@ class UncertaintySpec:
     schedule_points : int
         With a schedule: the verification points studied (see
         :mod:`damper.analysis.schedule_points`).
+    required_fraction : float or None
+        The fraction of samples that must meet every requirement at every condition, judged on
+        the lower bound of its interval at `confidence`; None: every sample, corner and
+        worst-case point must (:func:`damper.analysis.verdicts.robustness_verdict`).
     """
 
     samples: int = 2000
@@ -160,6 +164,7 @@ class UncertaintySpec:
     refine_min_step: float = 1.0 / 64.0
     chunk: int = 2048
     schedule_points: int = 12
+    required_fraction: float | None = None
 
 
 def uncertainty_spec(case, samples=None, seed=None, **overrides) -> UncertaintySpec:
@@ -189,6 +194,7 @@ def uncertainty_spec(case, samples=None, seed=None, **overrides) -> UncertaintyS
         parameters=params,
         cg_shift=cg,
         schedule_points=int(raw.get("schedule_points", 12)),
+        required_fraction=None if raw.get("required_fraction") is None else float(raw["required_fraction"]),
     )
     return dataclasses.replace(spec, **overrides) if overrides else spec
 

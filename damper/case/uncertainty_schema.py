@@ -180,6 +180,12 @@ UNCERTAINTY = UncertaintySection(
             "slack under the scheduled gain (the tightest of each configuration first).",
             default=12, low=1, high=1000,
         ),
+        "required_fraction": Number(
+            "Fraction of samples that must meet every requirement at every condition, judged on the lower "
+            "bound of its Clopper-Pearson interval at `confidence`. Absent: every sample, every corner and "
+            "every worst-case point must meet every requirement.",
+            default=None, low=0.0, high=1.0,
+        ),
     },
     "Uncertainty for the robustness analysis (damper robust): uncertain derivatives, mass, "
     "inertia, hardware and gain tolerances, and a CG shift. Seeded Monte Carlo, every corner "

@@ -23,7 +23,8 @@ def run(args, argv) -> int:
     from ..analysis.schedule_points import design_points_case
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
-    from ..output.jsonout import assess_document, dumps
+    from ..analysis.verdicts import assess_verdict
+    from ..output.jsonout import assess_document, dumps, with_verdict
     from ..output.text import assess_table
     from .gain_source import check_gain, resolve_gains
 
@@ -34,15 +35,20 @@ def run(args, argv) -> int:
     case = design_points_case(case)
     gains = resolve_gains(case, args)
     result = assess(case, gains.values)
+    verdict = assess_verdict(case.names, result, gains.text)
     doc = assess_document(case, result, command=" ".join(["damper", *argv]))
     doc["gain_source"] = {"kind": gains.kind, "text": gains.text}
-    from ..analysis.turbulence_case import case_turbulence, check_turbulence
+    from ..analysis.turbulence_case import case_turbulence, check_turbulence, turbulence_items
 
     study = case_turbulence(case, gains.values)
     if study is not None:
         from ..output.turbulence_out import add_turbulence
+        from ..verdict import Verdict
 
-        add_turbulence(doc, study, check_turbulence(case, study.closed_loop))
+        checks = check_turbulence(case, study.closed_loop)
+        add_turbulence(doc, study, checks)
+        verdict = verdict + Verdict(turbulence_items(case, checks))
+    doc = with_verdict(doc, verdict)
     for note in gains.notes:
         print(f"damper: note: {note}", file=sys.stderr)
     if args.json:
@@ -60,9 +66,6 @@ def run(args, argv) -> int:
                   f"{study.closed_loop.delay_model}); rates: expected excursions per second beyond the limit, "
                   "either sign (Rice)")
             print(turbulence_table(doc))
-            from ..output.turbulence_out import turbulence_not_met
-
-            for line in turbulence_not_met(doc):
-                print(line)
+        print("\n".join(verdict.lines()))
         print(CAUTION_SHORT)
-    return 0
+    return verdict.exit_status()

@@ -77,7 +77,9 @@ def run(args, argv) -> int:
         rob_planned = case.raw.get("uncertainty") is not None and not args.no_robustness
         with PlotJobs(enabled=(bool(case.conditions) or rob_planned) and not args.no_plots) as jobs:
             design = _design(args, case, out, command, jobs)
-            robustness_text, spec, schedule = _analyses(args, case, design, out, command, jobs, written)
+            robustness_text, spec, schedule, verdict = _analyses(args, case, design, out, command, jobs, written)
+            if design is not None:
+                verdict = design.verdict + verdict
         if not args.no_report:
             from ..output.report import write_report
             from ..output.runfiles import RunFiles
@@ -102,13 +104,9 @@ def run(args, argv) -> int:
         print(f"robustness at {where} ({spec.samples} samples, seed {spec.seed}):")
         print(robustness_text)
     print(f"wrote {', '.join(written)} to {out}")
+    print("\n".join(verdict.lines()))
     print(CAUTION_SHORT)
-    bad = [c.name for c in design.conditions if not c.feasible] if design is not None else []
-    if bad:
-        print(f"damper: {len(bad)} condition(s) have no gain meeting every requirement: {', '.join(bad)}", file=sys.stderr)
-    if schedule is not None and not schedule.passed:
-        print(f"damper: the gain schedule fails verification: {schedule.message}", file=sys.stderr)
-    return 0
+    return verdict.exit_status()
 
 
 @dataclass(frozen=True)
@@ -125,12 +123,15 @@ class DesignStream:
         Conditions with figures when not all of them have (None: every condition).
     plot_jobs : tuple of int
         Numbers of the design plot jobs queued on the run's PlotJobs.
+    verdict : damper.verdict.Verdict
+        The ``design`` part of the run's verdict.
     """
 
     conditions: tuple
     doc: dict
     figures: tuple | None
     plot_jobs: tuple
+    verdict: object
 
 
 def _design(args, case, out, command, jobs):
@@ -139,29 +140,33 @@ def _design(args, case, out, command, jobs):
 
     from ..analysis.batches import condition_batches, sub_case
     from ..analysis.search import SearchSettings, search
+    from ..analysis.verdicts import design_misses, design_verdict
     from ..output.design_doc import condition_entries, design_document
     from ..output.files import write_atomic
     from ..output.journal import part
-    from ..output.jsonout import dump_part, dumps
+    from ..output.jsonout import dump_part, dumps, with_verdict
     from ..output.plots import plot_slugs
+    from ..verdict import Verdict
 
-    if not case.conditions:
+    if not case.conditions:  # an envelope case: the schedule part judges it
         with part("design"):
-            write_atomic(os.path.join(out, "design.json"), dumps(design_document(case, None, command=command)))
+            doc = with_verdict(design_document(case, None, command=command), Verdict())
+            write_atomic(os.path.join(out, "design.json"), dumps(doc))
         return None
     settings = SearchSettings(gain_min=args.gain_min, gain_max=args.gain_max, points=args.points,
                               policy=args.policy, damping_target=args.target_damping)
     n = len(case.conditions)
     slugs = plot_slugs(case.names)
     draw_all = n <= args.max_figures
-    entries, conds, worst, job_ids = [], [], [], []
+    entries, conds, worst, job_ids, misses, turbulence_misses = [], [], [], [], [], []
     for a, b in condition_batches(n):  # memory: one batch's sweep at a time (damper/analysis/batches.py)
         sub = sub_case(case, range(a, b))
         d = search(sub, settings)
         batch = condition_entries(sub, d)
-        _add_turbulence(sub, d, batch)
+        turbulence_misses += _add_turbulence(sub, d, batch)
         entries += [dump_part(e) for e in batch]  # text: about 8 kB per condition
         conds += d.conditions
+        misses += design_misses(sub.names, d)
         worst.append(np.asarray(d.chosen.criteria.worst_slack, dtype=float).reshape(-1))
         if draw_all and not args.no_plots:
             job_ids += _queue_design_plots(jobs, sub, d, out, slugs[a:b])
@@ -177,10 +182,11 @@ def _design(args, case, out, command, jobs):
         "rule": f"per-condition figures for at most {args.max_figures} conditions: the infeasible ones first, then "
         "those with the least slack at the chosen gain (--max-figures)",
     }
-    doc = design_document(case, None, command=command, entries=entries, figures=drawn)
+    verdict = design_verdict(case.names, [c.feasible for c in conds], misses) + Verdict(tuple(turbulence_misses))
+    doc = with_verdict(design_document(case, None, command=command, entries=entries, figures=drawn), verdict)
     with part("design"):
         write_atomic(os.path.join(out, "design.json"), dumps(doc))
-    return DesignStream(tuple(conds), doc, figures, tuple(job_ids))
+    return DesignStream(tuple(conds), doc, figures, tuple(job_ids), verdict)
 
 
 def _queue_design_plots(jobs, sub, design, out, slugs):
@@ -204,36 +210,44 @@ def _figure_conditions(conds, worst, limit) -> tuple:
 
 
 def _add_turbulence(case, design, entries):
-    """With a ``turbulence:`` section: the responses at the chosen gains into the design.json entries."""
+    """With a ``turbulence:`` section: the responses at the chosen gains into the design.json entries;
+    returns the turbulence requirements not met (verdict items of part ``design``)."""
     import numpy as np
 
-    from ..analysis.turbulence_case import case_turbulence, check_turbulence
+    from ..analysis.turbulence_case import case_turbulence, check_turbulence, turbulence_items
 
     study = case_turbulence(case, np.array([c.chosen_gain for c in design.conditions]))
-    if study is not None:
-        from ..output.turbulence_out import add_turbulence
+    if study is None:
+        return []
+    from ..output.turbulence_out import add_turbulence
 
-        add_turbulence({"conditions": entries}, study, check_turbulence(case, study.closed_loop))
+    checks = check_turbulence(case, study.closed_loop)
+    add_turbulence({"conditions": entries}, study, checks)
+    return list(turbulence_items(case, checks))
 
 
 def _analyses(args, case, design, out, command, jobs, written):
     """Schedule, responses and robustness after the search; figures go to `jobs`.
 
-    Returns (robustness table text or None, uncertainty spec or None, schedule or None)
-    once every queued figure is drawn.
+    Returns (robustness table text or None, uncertainty spec or None, schedule or None, the
+    verdict of the schedule and robustness parts) once every queued figure is drawn.
     """
     from ..output.files import write_atomic
     from ..output.journal import part
-    from ..output.jsonout import dumps
+    from ..output.jsonout import dumps, with_verdict
+    from ..verdict import Verdict
 
     schedule = None
+    verdict = Verdict()
     if case.raw.get("schedule") is not None:
         from ..analysis.schedule import design_schedule
+        from ..analysis.verdicts import schedule_verdict
         from ..output.schedule_out import write_schedule
 
         schedule = design_schedule(case)
+        verdict = schedule_verdict(schedule)
         with part("schedule"):
-            written += write_schedule(out, case, schedule, command=command)
+            written += write_schedule(out, case, schedule, command=command, verdict=verdict)
             if not args.no_plots:  # drawn here while the worker draws the search's figures
                 from ..output.schedule_plots import schedule_plots
 
@@ -284,9 +298,13 @@ def _analyses(args, case, design, out, command, jobs, written):
         files = ["robustness.json"]
         if rob_jobs is not None:
             files += sorted(os.path.relpath(p, out) for k in rob_jobs for p in jobs.paths(k))
-        rdoc = robustness_document(case, rob, command=command, files=files, where=where)
+        from ..analysis.verdicts import robustness_verdict
+
+        rv = robustness_verdict(rob, spec.required_fraction)
+        verdict = verdict + rv
+        rdoc = with_verdict(robustness_document(case, rob, command=command, files=files, where=where), rv)
         with part("robustness"):
             write_atomic(os.path.join(out, "robustness.json"), dumps(rdoc))
         written.append("robustness.json" + (f" with {len(files) - 1} robustness plot files" if len(files) > 1 else ""))
         robustness_text = robustness_table(rdoc)
-    return robustness_text, spec, schedule
+    return robustness_text, spec, schedule, verdict

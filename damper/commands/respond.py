@@ -107,6 +107,10 @@ def write_responses(out, case, gains, command, plots=True, gain_text="chosen gai
         conditions += doc["conditions"]
         notes += [note for note in result.notes if note not in notes]
     doc = dict(doc, conditions=conditions, notes=list(notes))  # the case-level keys are the same in every batch
+    from ..output.jsonout import with_verdict
+    from ..verdict import Verdict
+
+    doc = with_verdict(doc, Verdict())  # no requirement on the responses yet: nothing judged (docs/verdict.md)
     if out is not None:
         import os
 

@@ -83,7 +83,8 @@ def run(args, argv) -> int:
     from ..cli import CAUTION_SHORT, warn_case
     from ..output.files import write_atomic
     from ..output.journal import part
-    from ..output.jsonout import dumps
+    from ..analysis.verdicts import robustness_verdict
+    from ..output.jsonout import dumps, with_verdict
     from ..output.rundir import RunDirectory
     from ..output.report import refresh_report
     from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
@@ -134,7 +135,8 @@ def run(args, argv) -> int:
             if not args.no_plots:
                 plot_paths = robustness_plots(case, result, out)
                 files += sorted(os.path.relpath(p, out) for p in plot_paths)
-            doc = robustness_document(case, result, command=command, files=files, where=where)
+            verdict = robustness_verdict(result, spec.required_fraction)
+            doc = with_verdict(robustness_document(case, result, command=command, files=files, where=where), verdict)
             write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
         rebuilt = refresh_report(run)
         run.finish()
@@ -151,5 +153,6 @@ def run(args, argv) -> int:
         print("note: equivalent-system fit did not converge for " + ", ".join(f"{n} ({k} samples)" for n, k in bad))
     written = "robustness.json" + (f" and {len(plot_paths)} plot files in plots/" if plot_paths else "")
     print(f"wrote {written} to {out}" + ("; rebuilt report.html" if rebuilt else ""))
+    print("\n".join(verdict.lines()))
     print(CAUTION_SHORT)
-    return 0
+    return verdict.exit_status()

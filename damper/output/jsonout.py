@@ -278,3 +278,20 @@ CAUTION = (
     "validate by simulation, ground and flight test, and have the design approved under the "
     "applicable airworthiness rules by qualified engineers."
 )
+
+
+def with_verdict(doc: dict, verdict) -> dict:
+    """`doc` with a top-level ``verdict`` object (:class:`damper.verdict.Verdict`) after its caution.
+
+    Every JSON document of a run carries the verdict of the parts it contains, from the same object
+    the terminal, the report and the exit status read.
+    """
+    out = {}
+    for k, v in doc.items():
+        if k != "verdict":
+            out[k] = v
+        if k == "caution":
+            out["verdict"] = verdict.doc()
+    if "verdict" not in out:
+        out = {"verdict": verdict.doc(), **out}
+    return out

@@ -583,6 +583,8 @@ _VERDICT_KEYS = ("met", "feasible", "ok", "pass", "passed", "meets")
 #: Rows of a generic table shown in the report (failing rows first, up to MAX_FAILING_ROWS).
 MAX_TABLE_ROWS = 40
 MAX_FAILING_ROWS = 200
+#: Items not met the first section lists per part (the JSON verdict objects hold them all).
+GLANCE_ROWS = 10
 
 
 def _scalar(v):
@@ -779,6 +781,51 @@ def _headline(ok, message):
     }
 
 
+def _part_headline(doc, part):
+    """The headline of a section: its part's summary item of the document's verdict object."""
+    from ..verdict import Verdict
+
+    try:
+        item = Verdict.from_doc(doc.get("verdict")).summary(part)
+    except (ValueError, KeyError, TypeError):
+        return None
+    return None if item is None else _headline(item.met, item.text)
+
+
+def verdict_view(docs) -> dict:
+    """The report's first section: the run's verdict, the sum of the documents' verdict objects.
+
+    Parameters
+    ----------
+    docs : dict
+        File name to parsed JSON document (design.json and whatever optional documents exist).
+    """
+    from ..verdict import Verdict
+
+    total, unreadable = Verdict(), []
+    for name, doc in docs.items():
+        if not isinstance(doc, dict) or "verdict" not in doc:
+            continue
+        try:
+            total = total + Verdict.from_doc(doc["verdict"])
+        except (ValueError, KeyError, TypeError):
+            unreadable.append(name)
+    parts = []
+    for p in total.parts:
+        s = total.summary(p)
+        misses = [i for i in total.items if i.part == p and not i.met and i is not s]
+        parts.append({
+            "part": p,
+            "status": _status(s.met if s is not None else not misses),
+            "text": s.text if s is not None else "",
+            "misses": [{"condition": i.condition or "", "requirement": "every requirement" if i.requirement == "all"
+                        else requirement_label(i.requirement), "text": i.text} for i in misses[:GLANCE_ROWS]],
+            "more": max(0, len(misses) - GLANCE_ROWS),
+        })
+    return {"met": total.met, "judged": bool(total.items), "status": _status(total.met), "parts": parts,
+            "unreadable": unreadable}
+
+
 def _schedule_view(doc, files):
     t = doc["table"]
     variables = t["variables"]
@@ -871,7 +918,8 @@ def _schedule_view(doc, files):
     figures = _plot_dir_figures(files, ("schedule",))
     return {
         "error": None,
-        "headline": _headline(bool(doc.get("passed")), doc.get("message")) if isinstance(doc.get("passed"), bool) else None,
+        "headline": _part_headline(doc, "schedule") or (_headline(bool(doc.get("passed")), doc.get("message"))
+                                                          if isinstance(doc.get("passed"), bool) else None),
         "blocks": blocks,
         "figures": figures,
         "warnings": [str(w) for w in doc.get("warnings") or []],
@@ -977,16 +1025,7 @@ def _robustness_view(doc, files):
         )
     )
     blocks += worst_blocks
-    headline = None
-    if joint.get("fraction") is not None:
-        frac = joint["fraction"]
-        text = (
-            f"{100 * frac:.1f} % of the samples ({joint.get('passed', DASH)}) meet every requirement at every condition; "
-            f"interval {_interval_text(joint.get('interval'))}."
-        )
-        if missed_at:
-            text += f" The worst-case search found a requirement missed at: {', '.join(missed_at)}."
-        headline = _headline(frac >= 1.0 and not missed_at, text)
+    headline = _part_headline(doc, "robustness")
     figures = _files_figures(
         files,
         doc.get("files") or [],
@@ -1145,6 +1184,7 @@ def report_context(run_dir, files=None) -> dict:
         "requirements": _requirements_view(design),
         "case": _case_view(design),
         "conditions": failing_first,
+        "run_verdict": verdict_view({"design.json": design, **docs}),
         "n_conditions": len(conditions),
         "n_infeasible": len(infeasible),
         "infeasible_names": [c["name"] for c in infeasible],

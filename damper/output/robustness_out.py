@@ -273,6 +273,10 @@ def robustness_table(doc) -> str:
         f"zeta is the {doc['damping_measure']} damping ratio; worst = least slack to its band over samples, corners "
         "and the worst-case search ('!' marks a missed requirement); GM/PM 'none': no crossing (unbounded).",
     ]
+    v = doc.get("verdict")
+    s = next((i for i in (v or {}).get("items", []) if i["condition"] is None and i["requirement"] == "all"), None)
+    if s is not None:  # the part's verdict, as the run's verdict lines repeat it
+        lines.append(f"robustness verdict: {'met' if s['met'] else 'NOT MET'} - {s['text']}")
     return "\n".join(lines)
 
 

@@ -241,15 +241,21 @@ def schedule_document(case, result, command=None) -> dict:
     }
 
 
-def write_schedule(out_dir, case, result, command=None) -> list:
-    """Write gain-schedule.csv/.json/.yaml, gain_schedule.h and schedule.json; return names."""
+def write_schedule(out_dir, case, result, command=None, verdict=None) -> list:
+    """Write gain-schedule.csv/.json/.yaml, gain_schedule.h and schedule.json; return names.
+
+    `verdict` (a :class:`damper.verdict.Verdict`, the ``schedule`` part) goes into schedule.json.
+    """
+    from .jsonout import with_verdict
+
     s = result.schedule
+    sdoc = schedule_document(case, result, command)
     files = {
         "gain-schedule.csv": to_csv(s, case),
         "gain-schedule.json": json.dumps(table_dict(s, case), indent=2) + "\n",
         "gain-schedule.yaml": to_yaml(s, case),
         "gain_schedule.h": to_c_header(s, case),
-        "schedule.json": dumps(schedule_document(case, result, command)),
+        "schedule.json": dumps(sdoc if verdict is None else with_verdict(sdoc, verdict)),
     }
     for name, text in files.items():
         write_atomic(os.path.join(out_dir, name), text)

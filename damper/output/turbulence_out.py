@@ -35,17 +35,6 @@ def add_turbulence(doc, study, checks=None):
     return doc
 
 
-def turbulence_not_met(doc) -> list:
-    """Lines for the terminal: every turbulence requirement not met."""
-    out = []
-    for c in doc["conditions"]:
-        for r in (c["closed_loop"].get("turbulence") or {}).get("requirements") or ():
-            if not r["met"]:
-                why = f"{r['value']:.4g} {r['unit']}, at most {r['max']:.4g}" if r["value"] is not None else r["reason"]
-                out.append(f"not met in turbulence: {c['name']}: {r['name']} ({why})")
-    return out
-
-
 def _g(x, spec):
     return fmt(x, spec, "-") if x is None or math.isfinite(x) else "-"
 
