@@ -2,8 +2,9 @@
 
 A plain number is taken in the documented SI unit. A string is a number and a
 unit; the unit is checked against damper's own grammar (:mod:`damper.unit_grammar`:
-no powers of numbers, small exponents, bounded size) and only then parsed with the
-`pint` units library (imported lazily: it costs ~0.3 s) and converted to SI base
+no powers of numbers, small exponents, bounded size), then evaluated with the small table of
+:mod:`damper.unit_table` when every name is in it, otherwise parsed with the `pint` units
+library (imported lazily: building its registry costs 0.3-0.7 s) and converted to SI base
 units. Angles are dimensionless in pint (radian = 1), so ``"-0.05 1/deg"``
 becomes ``-2.865`` per radian.
 """
@@ -105,18 +106,45 @@ def _registry():
     return ureg
 
 
+def _dims(dimensionality) -> tuple:
+    """pint's dimensionality as damper's canonical form: sorted (base, exponent) pairs, zeros left out."""
+    from fractions import Fraction
+
+    return tuple(sorted((str(k), Fraction(v).limit_denominator(1000)) for k, v in dict(dimensionality).items() if v))
+
+
+def _table_dims(exponents) -> tuple:
+    from .unit_table import BASE
+
+    return tuple(sorted((b, e) for b, e in zip(BASE, exponents) if e))
+
+
 @lru_cache(maxsize=4096)
 def _parse(text: str):
+    """(magnitude in SI, canonical dimension, unit names) of a checked quantity string.
+
+    The units of :mod:`damper.unit_table` are evaluated there; anything else by pint.
+    """
+    from .unit_table import NotInTable, evaluate
+
+    lead = _LEADING_NUMBER.match(text)
+    if lead is not None:
+        try:
+            factor, exponents, names = evaluate(text[lead.end():])
+        except NotInTable:
+            pass
+        else:
+            return float(text[: lead.end()]) * factor, _table_dims(exponents), names
     ureg = _registry()
     quantity = ureg.Quantity(text)
     base = quantity.to_base_units()
     names = tuple(name for name, _ in quantity.unit_items())
-    return float(base.magnitude), base.dimensionality, names
+    return float(base.magnitude), _dims(base.dimensionality), names
 
 
 @lru_cache(maxsize=64)
 def _dimensionality(name: str):
-    return _registry().Quantity(DIMENSIONS[name]).dimensionality
+    return _parse("1 " + DIMENSIONS[name])[1]
 
 
 def parse_quantity(value, allowed, path="", cycles=False) -> tuple[float, str]:
@@ -241,11 +269,18 @@ def _dimension_word(dimensionality) -> str:
     for name, word in DIMENSION_WORDS.items():
         if dimensionality == _dimensionality(name):
             return word
-    return str(dimensionality) if len(dimensionality) else "no dimension"
+    if not dimensionality:
+        return "no dimension"
+    return " * ".join(f"{b}" if e == 1 else f"{b} ** {e}" for b, e in dimensionality)
 
 
 @lru_cache(maxsize=256)
 def _is_angle_unit(name: str) -> bool:
+    from .unit_table import is_angle
+
+    known = is_angle(name)
+    if known is not None:
+        return known
     _, root = _registry().get_root_units(name)
     return "radian" in str(root)
 
