@@ -88,6 +88,7 @@ def run(args, argv) -> int:
     from ..output.rundir import RunDirectory
     from ..output.report import refresh_report
     from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
+    from .gain_source import design_gains, read_design_run, read_schedule
 
     case = load_case(args.case)
     spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
@@ -96,8 +97,6 @@ def run(args, argv) -> int:
         from ..analysis.schedule import verification_points, verify
         from ..analysis.schedule_points import CheckedSchedule, schedule_study_case, study_description
 
-        from .gain_source import read_schedule
-
         sched, _, _ = read_schedule(args.schedule)
         pts, _, confs = verification_points(case, sched)
         checked = CheckedSchedule(verify(case, sched, pts), confs)
@@ -105,8 +104,6 @@ def run(args, argv) -> int:
         source = f"the schedule {args.schedule} at its {len(gains)} tightest verification points"
         where = study_description(len(gains), args.schedule)
     elif args.design is not None:
-        from .gain_source import design_gains, read_design_run
-
         gains = design_gains(case, read_design_run(args.design, case).design, f"--design {args.design}")
         source = f"chosen gains of {args.design}"
     else:
