@@ -286,7 +286,9 @@ def verdict_lines(doc) -> list:
             out.append(f"  not met: {it['part']}: {where}{it['requirement']}" + (f" ({it['text']})" if it["text"] else ""))
     worse = v["worsened"]
     if worse:
-        out.append(f"worse in B than in A ({len(worse)} items at {len({w['condition'] for w in worse})} points):")
+        points = len({w["condition"] for w in worse})
+        out.append(f"worse in B than in A ({len(worse)} item{'s' * (len(worse) != 1)} at {points} "
+                   f"point{'s' * (points != 1)}):")
         for w in worse[:10]:
             out.append(f"  {w['condition']}: {w['requirement']} {fmt(w['a'], '.3g', 'none')} -> {fmt(w['b'], '.3g', 'none')}")
         if len(worse) > 10:

@@ -46,6 +46,8 @@ def build_compare_report(doc, root, version) -> str:
     from .report import _environment
 
     v = doc["verdict"]
+    kinds = {r["kind"] for r in doc["conditions"]}
+    mixed = len(kinds) > 1  # a kind column only when the table mixes conditions and schedule points
     worsened = [(w["condition"], w["requirement"], fmt(w["a"], ".3g", "none"), fmt(w["b"], ".3g", "none"))
                 for w in v["worsened"][:MAX_ROWS]]
     context = {
@@ -58,8 +60,10 @@ def build_compare_report(doc, root, version) -> str:
         "worse_points": len({w["condition"] for w in v["worsened"]}),
         "worsened_rows": worsened,
         "worsened_more": max(0, len(v["worsened"]) - MAX_ROWS),
-        "heads": HEADS,
-        "rows": [{"cells": _cells(r), "worse": ", ".join(r["worse"])} for r in doc["conditions"][:MAX_ROWS]],
+        "heads": HEADS if mixed else [h for h in HEADS if h != "kind"],
+        "rows": [{"cells": _cells(r) if mixed else [c for k, c in enumerate(_cells(r)) if k != 1],
+                  "worse": ", ".join(r["worse"])} for r in doc["conditions"][:MAX_ROWS]],
+        "kinds": sorted(kinds),
         "total": len(doc["conditions"]),
         "only": (("Only in A", doc["only_in_a"]), ("Only in B", doc["only_in_b"])),
         "figures": [_figure(root, fg) for fg in doc["figures"]],
