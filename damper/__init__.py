@@ -1,6 +1,23 @@
 """damper: design and verification of pitch-rate dampers.
 
 Preliminary engineering analysis only; see README.md for the cautions.
+
+The Python API's entry points are importable from here (docs/api.md). From the repository root:
+
+>>> import damper
+>>> case = damper.load_case("cases/utility_single_aft_cg.yaml")
+>>> design = damper.search(case)                      # the gain (s) at every condition
+>>> [c.name for c in design.conditions][:2]
+['SL-climb-fwd', 'SL-climb-aft']
+>>> all(c.intervals[0][0] <= c.chosen_gain <= c.intervals[-1][1] for c in design.conditions if c.feasible)
+True
+>>> result = damper.assess(case, 0.15)                # one gain (s) at every condition
+>>> result.damping_ratio("equivalent").shape == (len(case.conditions),)
+True
+>>> import control
+>>> closed = damper.to_control(damper.build_loop(case, 0.15), index=(0,))
+>>> isinstance(closed, control.StateSpace)
+True
 """
 
 __version__ = "0.1.0"

@@ -60,3 +60,13 @@ def test_entry_points_are_importable_from_damper_lazily():
     env = dict(os.environ, PYTHONPATH=ROOT)
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, cwd=ROOT, timeout=120)
     assert proc.returncode == 0, proc.stderr
+
+
+def test_package_docstring_examples_run_as_doctests(monkeypatch):
+    import doctest
+
+    import damper
+
+    monkeypatch.chdir(ROOT)
+    failed, attempted = doctest.testmod(damper, verbose=False, report=True)
+    assert attempted >= 6 and failed == 0
