@@ -11,7 +11,7 @@ import pytest
 from damper.analysis.assess import assess
 from damper.analysis.search import SearchSettings, search
 from damper.case import load_case
-from damper.output import plots
+from damper.output import loop_plot, plots
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
@@ -79,7 +79,7 @@ def _bode_at(case, assessment, i):
     extra = np.concatenate([m.gain_crossings_rad_s[i], m.phase_crossings_rad_s[i]])
     extra = extra[np.isfinite(extra) & (extra > 0)]
     w = np.unique(np.concatenate([case.settings.grid(), extra]))
-    return plots.bode_data(case, assessment, i, w=w)
+    return loop_plot.bode_data(case, assessment, i, w=w)
 
 
 def _check_annotations(b, tol_db=0.02, tol_deg=0.05):
@@ -134,11 +134,12 @@ def test_an_infeasible_condition_still_gets_its_plots(demo, tmp_path):
     design = search(case, SearchSettings(gain_min=1.0, gain_max=6.0, points=21))
     assert not design.conditions[0].feasible
     paths = plots.root_locus(case, design, 0, tmp_path / "rl")
-    paths += plots.loop_response_plot(case, design, 0, tmp_path / "bode")
+    paths += loop_plot.loop_response_plot(case, design, 0, tmp_path / "bode")
     paths += plots.gain_sweep_plot(case, design, 0, tmp_path / "sweep")
     assert len(paths) == 6 and all(os.path.getsize(p) > 5000 for p in paths)
     text = "".join(ET.parse(str(tmp_path / "sweep.svg")).getroot().itertext())
     assert "closest miss" in text
+    assert "slack -inf" not in text and "-inf" not in text  # issue 19: said in words
 
 
 def test_safe_names():

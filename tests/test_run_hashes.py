@@ -27,7 +27,8 @@ import pytest
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 STORE = os.path.join(ROOT, "tests", "data", "demo_run_hashes.json")
-DEMOS = ("utility_single_aft_cg", "utility_single_uncertain", "survey_uav_altitude", "regional_twinjet_envelope")
+DEMOS = ("utility_single_aft_cg", "utility_single_uncertain", "survey_uav_altitude", "regional_twinjet_envelope",
+         "survey_uav_loiter_longitudinal")
 #: What a document's ``provenance`` keeps: the rest (the command line with --out, the input's
 #: path, the versions of python and its libraries) differs between two honest runs.
 KEPT_PROVENANCE = ("tool", "tool_version", "input_sha256", "seed")

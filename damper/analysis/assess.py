@@ -9,8 +9,16 @@ import numpy as np
 from ..case.model import Case
 from ..measures.handling import control_anticipation, equivalent_system, load_factor_per_alpha, pitch_bandwidth
 from ..measures.margins import Margins, loop_margins
-from ..measures.modes import ClosedLoopModes, SecondOrderMode, bare_short_period, closed_loop_modes
-from ..model import airframe as af
+from ..measures.modes import (
+    ClosedLoopModes,
+    SecondOrderMode,
+    approximation_differs,
+    bare_phugoid,
+    bare_short_period,
+    closed_loop_modes,
+    two_state_short_period,
+)
+from ..model import airframes
 from ..model.batch import batch_shape, map_arrays
 from ..model.loop import Loop, StateLayout, closed_loop_matrix
 from ..requirements.criteria import CriteriaResult, evaluate
@@ -45,6 +53,21 @@ class Assessment:
         Requirements evaluated, when requirements were given.
     levels : dict or None
         Best level met per criterion and overall (when a preset category is known).
+    bare_phugoid : SecondOrderMode or None
+        Bare-airframe phugoid of a longitudinal airframe (None for the short-period model).
+    two_state : SecondOrderMode or None
+        Closed-loop short period of the two-state approximation at the same gain and
+        hardware (:func:`damper.measures.modes.two_state_short_period`), longitudinal only.
+    two_state_differs : ndarray of bool or None
+        It differs from the four-state short period beyond the tolerances of
+        :func:`damper.measures.modes.approximation_differs`, longitudinal only.
+    equivalent_plain : EquivalentFit or None
+        Longitudinal only: the short-period form fitted to the full response, phugoid
+        included (its mismatch shows the phugoid in the band); `equivalent` is then the fit
+        with the closed-loop phugoid's known factor taken out
+        (:func:`damper.measures.handling.equivalent_system` with ``phugoid``).
+
+    The closed-loop phugoid is ``modes.phugoid`` (NaN for the short-period model).
     """
 
     gains: np.ndarray
@@ -59,6 +82,10 @@ class Assessment:
     pade_order: int | None
     criteria: CriteriaResult | None = None
     levels: dict | None = None
+    bare_phugoid: SecondOrderMode | None = None
+    two_state: SecondOrderMode | None = None
+    two_state_differs: np.ndarray | None = None
+    equivalent_plain: object = None
 
     def damping_ratio(self, measure="equivalent"):
         """Short-period damping ratio by `measure` ('equivalent' or 'modal')."""
@@ -100,10 +127,13 @@ def assess_loop(loop: Loop, w=None, requirements: Requirements | None = None, wi
     A, _, layout = closed_loop_matrix(loop)
     shape = batch_shape(loop)
     A = np.broadcast_to(A, shape + A.shape[-2:])
-    modes = closed_loop_modes(A, layout.alpha, layout.q)
+    modes = closed_loop_modes(A, layout.alpha, layout.q, layout.u, layout.theta)
     margins = loop_margins(loop, stable=modes.stable, w=w)
     free_zero = bool(requirements.free_zero) if requirements is not None else False
-    equivalent = equivalent_system(loop, free_zero=free_zero)
+    # a longitudinal loop: the closed-loop phugoid's known factor is taken out before the
+    # short-period form is fitted (docs/theory.md section 8); the plain form's fit is kept too
+    phugoid = modes.phugoid if airframes.is_longitudinal(loop.airframe) else None
+    equivalent = equivalent_system(loop, free_zero=free_zero, phugoid=phugoid)
     need_bw = with_bandwidth or (requirements is not None and requirements.needs_bandwidth)
     bandwidth = pitch_bandwidth(loop) if need_bw else None
     delay = loop.hardware.delay
@@ -115,9 +145,10 @@ def assess_loop(loop: Loop, w=None, requirements: Requirements | None = None, wi
         equivalent=equivalent,
         bandwidth=bandwidth,
         n_alpha=np.broadcast_to(load_factor_per_alpha(loop.airframe), shape),
-        inv_t_theta2=np.broadcast_to(af.inverse_t_theta2(loop.airframe), shape),
+        inv_t_theta2=np.broadcast_to(airframes.inverse_t_theta2(loop.airframe), shape),
         layout=layout,
         pade_order=None if delay is None else int(delay.pade_order),
+        **_longitudinal_measures(loop, modes, free_zero),
     )
     if requirements is None:
         return result
@@ -126,6 +157,20 @@ def assess_loop(loop: Loop, w=None, requirements: Requirements | None = None, wi
     from dataclasses import replace
 
     return replace(result, criteria=crit, levels=lv)
+
+
+def _longitudinal_measures(loop: Loop, modes: ClosedLoopModes, free_zero: bool) -> dict:
+    """Bare phugoid, the two-state approximation and the plain-form equivalent fit of a
+    longitudinal loop (empty for a short-period one)."""
+    if not airframes.is_longitudinal(loop.airframe):
+        return {}
+    two = two_state_short_period(loop)
+    return {
+        "bare_phugoid": bare_phugoid(loop.airframe),
+        "two_state": two,
+        "two_state_differs": approximation_differs(modes.short_period, two),
+        "equivalent_plain": equivalent_system(loop, free_zero=free_zero),
+    }
 
 
 def assess(case: Case, gains, with_bandwidth=True) -> Assessment:

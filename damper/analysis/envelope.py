@@ -20,7 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..atmosphere import RHO0, standard_atmosphere
-from ..model.airframe import Derivatives, from_coefficients
+from ..model.airframe import from_coefficients
 
 VARIABLE_UNITS = {
     "dynamic_pressure": "Pa",
@@ -31,16 +31,20 @@ VARIABLE_UNITS = {
 }
 
 _COEFS = ("CL_alpha", "CD", "CL_delta", "Cm_alpha", "Cm_alpha_dot", "Cm_q", "Cm_delta", "CL_q")
+#: Speed-derivative tables of the longitudinal model (absent tables of a short-period case are left out).
+_SPEED_COEFS = ("CL_u", "CD_u", "Cm_u", "CT_u", "CD_alpha")
 
 
 @dataclass(frozen=True)
 class Configuration:
-    """A mass / CG configuration: name, mass (kg), pitch_inertia (kg m^2), cg (fraction of chord)."""
+    """A mass / CG configuration: name, mass (kg), pitch_inertia (kg m^2), cg (fraction of chord),
+    trim flight-path angle (rad, positive climbing; longitudinal model only)."""
 
     name: str
     mass: float
     pitch_inertia: float
     cg: float
+    flight_path_angle: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -119,7 +123,8 @@ def envelope_from_case(case):
         {"name": "nominal", "mass": case.aircraft.mass, "pitch_inertia": case.aircraft.pitch_inertia, "cg": None}
     ]
     configurations = tuple(
-        Configuration(c["name"], c["mass"], c["pitch_inertia"], ref if c["cg"] is None else c["cg"]) for c in confs
+        Configuration(c["name"], c["mass"], c["pitch_inertia"], ref if c["cg"] is None else c["cg"],
+                      float(c.get("flight_path_angle") or 0.0)) for c in confs
     )
     alt = e["altitude"] or {"min": 0.0, "max": 0.0}
     env = Envelope(
@@ -139,6 +144,9 @@ def envelope_from_case(case):
     for key in _COEFS:
         values = a.get(key)
         tables[key] = np.zeros_like(mach) if values is None else np.asarray(values, dtype=float)
+    for key in _SPEED_COEFS:
+        if a.get(key) is not None:
+            tables[key] = np.asarray(a[key], dtype=float)
     return env, Aerodynamics(ref, mach, tables)
 
 
@@ -244,8 +252,14 @@ def points_at(env: Envelope, altitude, airspeed) -> Points:
     return _with_configurations(env, np.asarray(altitude, float), np.asarray(airspeed, float))
 
 
-def derivatives_at(case, env: Envelope, aero: Aerodynamics, pts: Points) -> Derivatives:
-    """Dimensional derivatives at envelope points (batched, 1-D)."""
+def derivatives_at(case, env: Envelope, aero: Aerodynamics, pts: Points):
+    """Dimensional derivatives at envelope points (batched, 1-D).
+
+    A :class:`~damper.model.airframe.Derivatives` for a short-period case; for a longitudinal
+    case a :class:`~damper.model.longitudinal.LongitudinalDerivatives` from the speed tables
+    too, with each configuration's flight-path angle
+    (:func:`damper.model.longitudinal.from_coefficients`).
+    """
     air = standard_atmosphere(pts.altitude)
     v = np.asarray(pts.airspeed, dtype=float)
     mach = v / air.speed_of_sound
@@ -256,12 +270,11 @@ def derivatives_at(case, env: Envelope, aero: Aerodynamics, pts: Points) -> Deri
     inertia = np.array([c.pitch_inertia for c in env.configurations])[conf]
     cg = np.array([c.cg for c in env.configurations])[conf]
     coef["Cm_alpha"] = coef["Cm_alpha"] + coef["CL_alpha"] * (cg - aero.reference_cg)
-    return from_coefficients(
-        dynamic_pressure=qbar,
-        airspeed=v,
-        mass=mass,
-        pitch_inertia=inertia,
-        wing_area=case.aircraft.wing_area,
-        mean_chord=case.aircraft.mean_chord,
-        **coef,
-    )
+    flight = dict(dynamic_pressure=qbar, airspeed=v, mass=mass, pitch_inertia=inertia,
+                  wing_area=case.aircraft.wing_area, mean_chord=case.aircraft.mean_chord)
+    if getattr(case, "model", "short_period") == "longitudinal":
+        from ..model.longitudinal import from_coefficients as lon_from_coefficients
+
+        gamma = np.array([c.flight_path_angle for c in env.configurations])[conf]
+        return lon_from_coefficients(flight_path_angle=gamma, **flight, **coef)
+    return from_coefficients(**flight, **coef)

@@ -175,11 +175,19 @@ def default_half_period(d):
     return np.clip(hp, 0.1, 5.0)
 
 
+def _default_duration(case) -> float:
+    """Default simulated time, s: 10 for the short-period model, 60 for the longitudinal one."""
+    from ..case.speed_terms import default_duration
+
+    return default_duration(getattr(case, "model", "short_period"))
+
+
 def response_spec(case) -> ResponseSpec:
     """The case's response settings; the default is one pull-first doublet of 2 deg.
 
     The default doublet starts at 0.5 s with a half-period of half the bare
-    short-period period at each condition (:func:`default_half_period`); 10 s at 1 ms.
+    short-period period at each condition (:func:`default_half_period`); 10 s (60 s for the
+    longitudinal model) at 1 ms.
 
     Raises
     ------
@@ -193,8 +201,8 @@ def response_spec(case) -> ResponseSpec:
     if raw is None:
         inp = Input("doublet", amplitude=DEFAULT_DOUBLET_AMPLITUDE, start=DEFAULT_START,
                     half_period=default_half_period(d), name="doublet")
-        return ResponseSpec(DEFAULT_DURATION, DEFAULT_STEP, DEFAULT_OUTPUT_STEP, (inp,), default=True)
-    duration, step = raw["duration"], raw["step"]
+        return ResponseSpec(_default_duration(case), DEFAULT_STEP, DEFAULT_OUTPUT_STEP, (inp,), default=True)
+    duration, step = raw["duration"] or _default_duration(case), raw["step"]
     out_step = raw["output_step"] if raw.get("output_step") is not None else max(step, DEFAULT_OUTPUT_STEP)
     if step > duration / 10:
         raise CaseError("must be at most a tenth of responses.duration", "responses.step", step, file=case.file)

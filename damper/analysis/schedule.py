@@ -330,8 +330,9 @@ def _pointset_from_env(case, env, aero, altitude, airspeed, kind, variables):
 def _concat(sets):
     from ..model.batch import map_arrays
 
-    fields = Derivatives.__dataclass_fields__
-    d = Derivatives(**{f: np.concatenate([np.broadcast_to(getattr(s.derivatives, f), s.altitude.shape) for s in sets]) for f in fields})
+    kind = type(sets[0].derivatives)  # either airframe model
+    fields = kind.__dataclass_fields__
+    d = kind(**{f: np.concatenate([np.broadcast_to(getattr(s.derivatives, f), s.altitude.shape) for s in sets]) for f in fields})
     del map_arrays
     return PointSet(
         d,
@@ -669,7 +670,7 @@ def _conditions_points(case, var):
     base = PointSet(d, x[None, :], alt, spd, conf_idx, tuple(c.name for c in conds), np.full(len(conds), "condition"),
                     mass, inertia)
     sets = [base]
-    fields = list(Derivatives.__dataclass_fields__)
+    fields = list(type(d).__dataclass_fields__)  # either airframe model
     for ci, cname in enumerate(confs):
         members = np.nonzero(conf_idx == ci)[0]
         members = members[np.argsort(x[members])]
@@ -678,7 +679,7 @@ def _conditions_points(case, var):
                 continue
             t = np.array([0.25, 0.5, 0.75])
             vals = {f: getattr(d, f)[a] + t * (getattr(d, f)[b] - getattr(d, f)[a]) for f in fields}
-            dd = Derivatives(**vals)
+            dd = type(d)(**vals)
             xs = x[a] + t * (x[b] - x[a])
             labels = tuple(f"{conds[a].name}~{conds[b].name} {int(tt * 100)}%" for tt in t)
             sets.append(PointSet(dd, xs[None, :], alt[a] + t * (alt[b] - alt[a]), spd[a] + t * (spd[b] - spd[a]),

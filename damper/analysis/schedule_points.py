@@ -19,7 +19,6 @@ import numpy as np
 
 from ..atmosphere import standard_atmosphere
 from ..case.model import Condition
-from ..model.airframe import Derivatives
 
 
 @dataclass(frozen=True)
@@ -119,14 +118,15 @@ def points_as_conditions(pts, idx, configurations, source, note):
     tuple of damper.case.model.Condition
     """
     air = standard_atmosphere(pts.altitude[idx])
-    fields = Derivatives.__dataclass_fields__
+    kind = type(pts.derivatives)  # either airframe model
+    fields = kind.__dataclass_fields__
     names = tuple(configurations)
     conditions = []
     for k, i in enumerate(idx):
         v = float(pts.airspeed[i])
         rho = float(np.asarray(air.density)[k])
         a_sound = float(np.asarray(air.speed_of_sound)[k])
-        d = Derivatives(**{f: np.asarray(float(np.broadcast_to(getattr(pts.derivatives, f), pts.altitude.shape)[i]))
+        d = kind(**{f: np.asarray(float(np.broadcast_to(getattr(pts.derivatives, f), pts.altitude.shape)[i]))
                            for f in fields})
         ci = int(pts.configuration[i])
         conditions.append(Condition(
@@ -144,6 +144,7 @@ def points_as_conditions(pts, idx, configurations, source, note):
             source=source,
             note=note.format(kind=pts.kind[i]),
             configuration=names[ci] if ci < len(names) and names[ci] != "all" else None,
+            flight_path_angle=float(getattr(d, "flight_path_angle", 0.0)),
         ))
     return tuple(conditions)
 

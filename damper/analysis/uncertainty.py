@@ -22,7 +22,6 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import CaseError
-from ..model.airframe import Derivatives
 from ..model.elements import Delay, Lag, SecondOrderLag
 from ..model.loop import Loop
 
@@ -30,7 +29,9 @@ from ..model.loop import Loop
 SHARD_SAMPLES = 4096
 
 #: Derivative axes (fields of :class:`~damper.model.airframe.Derivatives`).
-DERIVATIVE_AXES = ("M_alpha", "M_q", "M_alpha_dot", "M_delta", "Z_alpha", "Z_delta", "Z_q")
+DERIVATIVE_AXES = ("M_alpha", "M_q", "M_alpha_dot", "M_delta", "Z_alpha", "Z_delta", "Z_q", "X_u", "X_alpha", "Z_u", "M_u")
+#: Axes of the longitudinal model's speed derivatives (a short-period case has none).
+SPEED_AXES = ("X_u", "X_alpha", "Z_u", "M_u")
 #: Units of each axis, for outputs.
 AXIS_UNITS = {
     "M_alpha": "1/s^2",
@@ -40,6 +41,10 @@ AXIS_UNITS = {
     "Z_alpha": "m/s^2",
     "Z_delta": "m/s^2",
     "Z_q": "m/s",
+    "X_u": "1/s",
+    "X_alpha": "m/s^2",
+    "Z_u": "1/s",
+    "M_u": "1/(m s)",
     "mass": "kg",
     "pitch_inertia": "kg m^2",
     "actuator_bandwidth": "rad/s",
@@ -251,6 +256,9 @@ def _nominal_of(case, name, gains, path):
     loop = case.loop
     d = case.derivatives()
     n = len(case.conditions)
+    if name in SPEED_AXES and not hasattr(d, name):
+        raise CaseError("is a speed derivative of the longitudinal model; this case's model is short_period",
+                        path + ".name", name)
     if name in DERIVATIVE_AXES:
         return np.asarray(getattr(d, name), dtype=float)
     if name == "mass":
@@ -447,7 +455,8 @@ def sampled_loop(case, axes: Axes, gains, cidx, u) -> Loop:
     d0 = case.derivatives()
     cidx = np.asarray(cidx)
     u = None if u is None else np.asarray(u, dtype=float)
-    fields = {f: np.asarray(getattr(d0, f), dtype=float)[cidx] for f in Derivatives.__dataclass_fields__}
+    kind = type(d0)  # either airframe model: the longitudinal fields survive the sampling
+    fields = {f: np.asarray(getattr(d0, f), dtype=float)[cidx] for f in kind.__dataclass_fields__}
     gain = np.asarray(gains, dtype=float)[cidx]
     hw = case.loop.hardware()
     changes = {}
@@ -482,14 +491,16 @@ def sampled_loop(case, axes: Axes, gains, cidx, u) -> Loop:
         elif name == "delay":
             changes["delay"] = Delay(value(k), hw.delay.pade_order)
     if scale_z is not None:
-        for f in ("Z_alpha", "Z_q", "Z_delta"):
-            fields[f] = fields[f] * scale_z
+        for f in ("Z_alpha", "Z_q", "Z_delta", "X_u", "X_alpha", "Z_u", "X_delta"):
+            if f in fields:
+                fields[f] = fields[f] * scale_z
     if scale_m is not None:
-        for f in ("M_alpha", "M_alpha_dot", "M_q", "M_delta"):
-            fields[f] = fields[f] * scale_m
+        for f in ("M_alpha", "M_alpha_dot", "M_q", "M_delta", "M_u"):
+            if f in fields:
+                fields[f] = fields[f] * scale_m
     if changes:
         hw = dataclasses.replace(hw, **changes)
-    return Loop(Derivatives(**fields), hw, gain)
+    return Loop(kind(**fields), hw, gain)
 
 
 __all__ = [

@@ -25,6 +25,9 @@ CONFIGURATION = Section(
         "pitch_inertia": Quantity(("inertia",), "Pitch inertia, kg m^2.", **_POS, plausible="inertia"),
         "cg": Number("Centre of gravity, fraction of the mean chord aft of its leading edge (default: aerodynamics.reference_cg).",
                      default=None, low=-1.0, high=2.0),
+        "flight_path_angle": Quantity(("dimensionless",), "Trim flight-path angle gamma, rad (e.g. '-3 deg'), "
+                                      "positive climbing. model: longitudinal only (absent: 0).", default=None,
+                                      low=-1.0, high=1.0),
     },
     "One mass / CG configuration.",
 )
@@ -58,6 +61,9 @@ ENVELOPE = Section(
 )
 
 _TABLE = Items(Quantity(("dimensionless",), "value"), "A value at every Mach breakpoint.", default=None, max_items=200)
+_SPEED_TABLE = Items(Quantity(("dimensionless",), "value"),
+                     "Speed-derivative coefficient (as in conditions[].coefficients) at every Mach breakpoint; "
+                     "model: longitudinal only, required there.", default=None, max_items=200)
 
 AERODYNAMICS = Section(
     {
@@ -71,6 +77,11 @@ AERODYNAMICS = Section(
         "Cm_q": Items(Quantity(("dimensionless",), "value"), "Cm_q per rad at each Mach.", max_items=200),
         "Cm_delta": Items(Quantity(("dimensionless",), "value"), "Cm_delta per rad at each Mach.", max_items=200),
         "CL_q": _TABLE,
+        "CL_u": _SPEED_TABLE,
+        "CD_u": _SPEED_TABLE,
+        "Cm_u": _SPEED_TABLE,
+        "CT_u": _SPEED_TABLE,
+        "CD_alpha": _SPEED_TABLE,
     },
     "Non-dimensional coefficients tabulated against Mach (linear interpolation, clamped at the "
     "ends), used with the standard atmosphere at every envelope point. A CG away from "

@@ -14,6 +14,15 @@ from ..requirements.spec import build_requirements
 from . import schema
 from .model import Aircraft, Case, Condition, ElementSpec, LoopSpec, Settings
 from .ranges import MAX_MACH, MIN_CONTROL_POWER_RATIO, RANGES
+from .speed_terms import (
+    LONGITUDINAL,
+    default_duration,
+    SPEED_COEFFICIENTS,
+    check_model_keys,
+    per_unit,
+    speed_terms_from_coefficients,
+    speed_terms_from_derivatives,
+)
 from .yamlio import read_yaml
 
 
@@ -185,20 +194,34 @@ def _build_loop(values, doc) -> LoopSpec:
 
 
 def _resolve_derivatives(raw, mass, inertia, airspeed):
-    """Turn validated ``(value, dimension)`` pairs into per-unit-mass/inertia values."""
+    """Turn validated ``(value, dimension)`` pairs into per-unit-mass/inertia values (short-period keys)."""
     out = {}
     for key, item in raw.items():
+        if key not in Derivatives.__dataclass_fields__:
+            continue  # the speed terms: speed_terms.speed_terms_from_derivatives
         value, dim = item if isinstance(item, tuple) else (item, None)
-        if dim in ("force", "force_time"):
-            value = value / mass
-        elif dim in ("moment", "moment_time"):
-            value = value / inertia
-        out[key] = value
+        out[key] = per_unit(key, value, dim, mass, inertia)
     return Derivatives(airspeed=np.asarray(airspeed), **{k: np.asarray(v) for k, v in out.items()})
+
+
+def _airframe(c, aircraft, qbar, v, mass, inertia, gamma, longitudinal):
+    """The bare-airframe model of one validated condition `c` (either model; SI arguments:
+    dynamic pressure Pa, true airspeed m/s, mass kg, pitch inertia kg m^2, flight-path angle rad)."""
+    if c["coefficients"] is not None:
+        flight = dict(dynamic_pressure=qbar, airspeed=v, mass=mass, pitch_inertia=inertia,
+                      wing_area=aircraft.wing_area, mean_chord=aircraft.mean_chord)
+        if longitudinal:
+            return speed_terms_from_coefficients(c["coefficients"], gamma, **flight)
+        short = {key: x for key, x in c["coefficients"].items() if key not in SPEED_COEFFICIENTS}
+        return from_coefficients(**flight, **short)
+    d = _resolve_derivatives(c["derivatives"], mass, inertia, v)
+    return speed_terms_from_derivatives(d, c["derivatives"], mass, inertia, gamma) if longitudinal else d
 
 
 def _build(values, file, sha, doc) -> Case:
     _check_counts(values, doc)
+    check_model_keys(values, lambda *k: _raw(doc, *k), lambda *k: _line(doc, *k))
+    longitudinal = values["model"] == LONGITUDINAL
     a = values["aircraft"]
     aircraft = Aircraft(a["name"], a["mass"], a["pitch_inertia"], a["wing_area"], a["mean_chord"])
     altitude_kind = values["atmosphere"]["altitude_kind"]
@@ -237,6 +260,7 @@ def _build(values, file, sha, doc) -> Case:
         v = float(v)
         _check_mach(v, a_sound, c, doc, i, line)
         qbar = 0.5 * rho * v * v
+        gamma = float(c["flight_path_angle"] or 0.0)
         mass = c["mass"] if c["mass"] is not None else aircraft.mass
         inertia = c["pitch_inertia"] if c["pitch_inertia"] is not None else aircraft.pitch_inertia
         if c["coefficients"] is not None:
@@ -247,22 +271,10 @@ def _build(values, file, sha, doc) -> Case:
                     f"{path}.coefficients",
                     line=_line(doc, "conditions", i, "coefficients"),
                 )
-            with np.errstate(over="ignore", invalid="ignore"):  # overflow: refused just below, with a message
-                d = from_coefficients(
-                    dynamic_pressure=qbar,
-                    airspeed=v,
-                    mass=mass,
-                    pitch_inertia=inertia,
-                    wing_area=aircraft.wing_area,
-                    mean_chord=aircraft.mean_chord,
-                    **c["coefficients"],
-                )
-            source = "coefficients"
-        else:
-            with np.errstate(over="ignore", invalid="ignore"):
-                d = _resolve_derivatives(c["derivatives"], mass, inertia, v)
-            source = "derivatives"
-        d = Derivatives(**{k: np.asarray(float(getattr(d, k))) for k in Derivatives.__dataclass_fields__})
+        with np.errstate(over="ignore", invalid="ignore"):  # overflow: refused just below, with a message
+            d = _airframe(c, aircraft, qbar, v, mass, inertia, gamma, longitudinal)
+        source = "coefficients" if c["coefficients"] is not None else "derivatives"
+        d = type(d)(**{k: np.asarray(float(getattr(d, k))) for k in type(d).__dataclass_fields__})
         _check_finite_model(d, path, name, line)
         _check_control_power(d, c, doc, i, line)
         warnings.extend(_physics_warnings(d, f"{path} ({name})"))
@@ -284,6 +296,7 @@ def _build(values, file, sha, doc) -> Case:
                 source=source,
                 note=c["note"],
                 configuration=c.get("configuration"),
+                flight_path_angle=gamma,
             )
         )
     if not conditions and values["envelope"] is None:
@@ -320,9 +333,10 @@ def _build(values, file, sha, doc) -> Case:
             line=_line(doc, "analysis", "frequency_high"),
         )
     settings = Settings(s["frequency_low"], s["frequency_high"], s["points_per_decade"])
-    requirements = build_requirements(values["requirements"])
+    requirements = build_requirements(values["requirements"], model=values["model"])
     return Case(
         title=values["title"],
+        model=values["model"],
         file=file,
         sha256=sha,
         aircraft=aircraft,
@@ -395,20 +409,20 @@ def _check_hardware_range(values, doc):
         )
 
 
-def _check_finite_model(d: Derivatives, path, name, line):
+def _check_finite_model(d, path, name, line):
     """Refuse a condition whose numbers overflow or are far outside physics (every input finite)."""
-    from ..model.airframe import state_matrices
+    from ..model.airframes import is_longitudinal, state_matrices
 
     with np.errstate(all="ignore"):
         A, B = state_matrices(d)
-        values = [float(getattr(d, k)) for k in Derivatives.__dataclass_fields__]
+        values = [float(getattr(d, k)) for k in type(d).__dataclass_fields__]
         entries = np.abs(np.concatenate([np.ravel(A), np.ravel(B)]))
         finite = bool(np.all(np.isfinite(entries))) and all(np.isfinite(values))
         largest = float(np.max(entries)) if finite else np.inf
     if not finite or largest > MAX_MODEL_ENTRY:
         size = "is not finite (its numbers overflow)" if not finite else f"has an entry of {largest:.3g}"
         raise CaseError(
-            f"the short-period model of this condition {size}; damper computes with entries up to "
+            f"the {'longitudinal' if is_longitudinal(d) else 'short-period'} model of this condition {size}; damper computes with entries up to "
             f"{MAX_MODEL_ENTRY:g}: check the units and magnitudes of airspeed, mass, inertia and derivatives",
             path,
             line=line,
@@ -442,8 +456,9 @@ def _check_counts(values, doc):
             raise CaseError(f"the verification grid would have {n} points (altitudes x speeds x configurations); "
                             f"at most {MAX_ENVELOPE_POINTS}", "envelope.grid", line=_line(doc, "envelope", "grid"))
     resp = values.get("responses")
-    if resp is not None and resp["duration"] / resp["step"] > MAX_RESPONSE_STEPS:
-        raise CaseError(f"gives {resp['duration'] / resp['step']:.3g} steps (duration / step); at most "
+    duration = None if resp is None else resp["duration"] or default_duration(values["model"])
+    if resp is not None and duration / resp["step"] > MAX_RESPONSE_STEPS:
+        raise CaseError(f"gives {duration / resp['step']:.3g} steps (duration / step); at most "
                         f"{MAX_RESPONSE_STEPS:g}: use a larger step or a shorter duration", "responses.step",
                         _raw(doc, "responses", "step"), line=_line(doc, "responses", "step"))
 
@@ -556,7 +571,7 @@ def _physics_warnings(d: Derivatives, where: str):
     return out
 
 
-_TABLE_KEYS = ("CL_alpha", "CD", "CL_delta", "Cm_alpha", "Cm_alpha_dot", "Cm_q", "Cm_delta", "CL_q")
+_TABLE_KEYS = ("CL_alpha", "CD", "CL_delta", "Cm_alpha", "Cm_alpha_dot", "Cm_q", "Cm_delta", "CL_q") + SPEED_COEFFICIENTS
 
 
 def _check_aero_tables(aero, doc):

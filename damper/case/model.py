@@ -66,6 +66,11 @@ class Condition:
     note : str or None
     configuration : str or None
         Mass / CG configuration label (schedules interpolate within one configuration).
+    flight_path_angle : float
+        Trim flight-path angle, rad, positive climbing (0 for the short-period model).
+
+    `derivatives` is a :class:`~damper.model.airframe.Derivatives` for a short-period case and a
+    :class:`~damper.model.longitudinal.LongitudinalDerivatives` for a longitudinal one.
     """
 
     name: str
@@ -82,6 +87,7 @@ class Condition:
     source: str
     note: str | None = None
     configuration: str | None = None
+    flight_path_angle: float = 0.0
 
     @property
     def equivalent_airspeed(self) -> float:
@@ -235,6 +241,8 @@ class Case:
         Suspicious physics (analysed anyway).
     raw : dict
         The validated SI values of every section (for later layers' sections).
+    model : str
+        ``"short_period"`` or ``"longitudinal"`` (the bare-airframe model of every condition).
     """
 
     title: str
@@ -248,13 +256,20 @@ class Case:
     requirements: object = None
     warnings: tuple = ()
     raw: dict = field(default_factory=dict, compare=False, repr=False)
+    model: str = "short_period"
 
     @property
     def names(self) -> tuple:
         return tuple(c.name for c in self.conditions)
 
-    def derivatives(self) -> Derivatives:
-        """All conditions' derivatives as one batch of shape (n_conditions,)."""
+    @property
+    def longitudinal(self) -> bool:
+        """The case uses the four-state longitudinal model."""
+        return self.model == "longitudinal"
+
+    def derivatives(self):
+        """All conditions' derivatives as one batch of shape (n_conditions,) (the model's type)."""
         ds = [c.derivatives for c in self.conditions]
-        fields = Derivatives.__dataclass_fields__
-        return Derivatives(**{f: np.array([float(getattr(d, f)) for d in ds]) for f in fields})
+        kind = type(ds[0]) if ds else Derivatives
+        fields = kind.__dataclass_fields__
+        return kind(**{f: np.array([float(getattr(d, f)) for d in ds]) for f in fields})

@@ -37,7 +37,9 @@ REQUIREMENTS = Section(
                     AIRCRAFT_CLASSES, "Aircraft class (only for the category C minimum frequency).", default=None
                 ),
             },
-            "Short-period damping, CAP, minimum frequency and equivalent time delay from a standard.",
+            "Short-period damping, CAP, minimum frequency and equivalent time delay from a standard; with "
+            "model: longitudinal also the phugoid stability requirement of MIL-F-8785C at the same level "
+            "(damping at least 0.04, 0, or time to double at least 55 s, from memory).",
             default=None,
         ),
         "margins_preset": Section(
@@ -52,8 +54,10 @@ REQUIREMENTS = Section(
         "damping_measure": Choice(
             ("equivalent", "modal"),
             "Which short-period damping and frequency the bands apply to: the fitted "
-            "low-order equivalent system (default) or the closed-loop eigenvalue pair. Both are always reported.",
-            default="equivalent",
+            "low-order equivalent system or the closed-loop eigenvalue pair. Both are always reported. Absent: "
+            "equivalent for model short_period, modal (the short-period pair of the four-state closed loop) for "
+            "model longitudinal.",
+            default=None,
         ),
         "free_zero": Choice(("no", "yes"), "Fit 1/T_theta2 in the equivalent system instead of holding it at the bare-airframe value.", default="no"),
         "damping_ratio": _band("short-period damping ratio", _number),
@@ -80,6 +84,9 @@ REQUIREMENTS = Section(
         "bandwidth": _band("pitch-attitude bandwidth, rad/s", _rate),
         "phase_delay": _band("pitch-attitude phase delay, s", _time),
         "equivalent_mismatch": _band("equivalent-system fit mismatch J, dimensionless", _number),
+        "phugoid_damping_ratio": _band("closed-loop phugoid damping ratio (model: longitudinal only)", _number),
+        "phugoid_time_to_double": _band("closed-loop phugoid time to double amplitude, s; a stable phugoid meets "
+                                        "any minimum (model: longitudinal only)", _time),
     },
     "What the damper must achieve at every condition. Without this section: damping ratio "
     "0.35-1.30 (common practice), gain margin 6 dB and phase margin 45 deg (MIL-F-9490D), stable.",

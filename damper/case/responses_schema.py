@@ -86,7 +86,9 @@ INPUT = InputSection(
 
 RESPONSES = Section(
     {
-        "duration": Quantity(("time",), "Simulated time, s.", default=10.0, positive=True, high=600.0),
+        "duration": Quantity(("time",), "Simulated time, s (absent: 10 s for model short_period, 60 s for "
+                             "model longitudinal, long enough to see the phugoid).", default=None, positive=True,
+                             high=600.0),
         "step": Quantity(
             ("time",), "Fixed integration step (RK4), s; the record has this step.",
             default=1e-3, positive=True, high=0.05,

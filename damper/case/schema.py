@@ -69,6 +69,16 @@ DERIVATIVES = Section(
         ),
         "M_q": Quantity(("frequency", "moment_time"), "M_q: 1/s, or N m s per rad (divided by pitch inertia)."),
         "M_delta": Quantity(("frequency2", "moment"), "M_delta: 1/s^2, or N m per rad (divided by pitch inertia).", nonzero=True),
+        "X_u": Quantity(("frequency", "force_per_speed"), "X_u: 1/s (m/s^2 per m/s), or N s/m (divided by mass). "
+                        "model: longitudinal only, required there.", default=None),
+        "X_alpha": Quantity(("acceleration", "force"), "X_alpha: m/s^2 per rad, or N per rad (divided by mass). "
+                            "model: longitudinal only, required there.", default=None),
+        "Z_u": Quantity(("frequency", "force_per_speed"), "Z_u: 1/s (m/s^2 per m/s), or N s/m (divided by mass). "
+                        "model: longitudinal only, required there.", default=None),
+        "M_u": Quantity(("per_length_time", "force_time"), "M_u: 1/(m s) (rad/s^2 per m/s), or N m per m/s = N s "
+                        "(divided by pitch inertia). model: longitudinal only, required there.", default=None),
+        "X_delta": Quantity(("acceleration", "force"), "X_delta: m/s^2 per rad, or N per rad (divided by mass). "
+                            "model: longitudinal only (absent: 0).", default=None),
     },
     "Dimensional stability derivatives, stability axes, per radian.",
 )
@@ -84,6 +94,15 @@ COEFFICIENTS = Section(
         "Cm_q": Quantity(_COEF, "Per rad, with q made non-dimensional by c/(2V)."),
         "Cm_delta": Quantity(_COEF, "Pitching moment per elevator, per rad.", nonzero=True),
         "CL_q": Quantity(_COEF, "Lift per non-dimensional pitch rate, per rad.", default=0.0),
+        "CL_u": Quantity(_COEF, "Speed derivative V dCL/du (dimensionless). model: longitudinal only, required there.",
+                         default=None),
+        "CD_u": Quantity(_COEF, "Speed derivative V dCD/du (dimensionless). model: longitudinal only, required there.",
+                         default=None),
+        "Cm_u": Quantity(_COEF, "Speed derivative V dCm/du (dimensionless). model: longitudinal only, required there.",
+                         default=None),
+        "CT_u": Quantity(_COEF, "Thrust derivative (1/(q S)) dT/d(u/V) (dimensionless; 0 for constant thrust, -CD "
+                         "for constant power in level flight). model: longitudinal only, required there.", default=None),
+        "CD_alpha": Quantity(_COEF, "Drag-curve slope, per rad. model: longitudinal only, required there.", default=None),
     },
     "Non-dimensional coefficients (stability axes); need wing_area and mean_chord.",
 )
@@ -104,6 +123,9 @@ CONDITION = Section(
             ("inertia",), "Pitch inertia at this condition, kg m^2 (default: aircraft.pitch_inertia).", default=None, **_POS,
             plausible="inertia",
         ),
+        "flight_path_angle": Quantity(("dimensionless",), "Trim flight-path angle gamma, rad (e.g. '-3 deg'), "
+                                      "positive climbing. model: longitudinal only (absent: 0).", default=None,
+                                      low=-1.0, high=1.0),
         "note": Text("Free text shown in reports (e.g. the CG position).", default=None),
         "configuration": Text("Mass / CG configuration this condition belongs to (a schedule interpolates "
                               "derivatives only between conditions of the same configuration; two conditions "
@@ -219,6 +241,10 @@ from .turbulence_schema import TURBULENCE  # noqa: E402
 CASE = Section(
     {
         "title": Text("Title of the study, shown in every output."),
+        "model": Choice(("short_period", "longitudinal"),
+                        "Bare-airframe model: the two-state short period (alpha, q) or the four-state longitudinal "
+                        "model (u, alpha, q, theta) with the phugoid, which needs the speed derivatives "
+                        "(docs/theory.md section 8).", default="short_period"),
         "aircraft": AIRCRAFT,
         "atmosphere": ATMOSPHERE,
         "conditions": Items(CONDITION, "Flight conditions (optional when an envelope is given).", max_items=MAX_CONDITIONS,

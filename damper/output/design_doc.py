@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 
 from .jsonout import CAUTION, condition_result, num, provenance
+from .longitudinal_out import longitudinal_table, speed_derivatives_summary
 from .text import fmt, table
 
 
@@ -56,6 +57,7 @@ def case_summary(case) -> dict:
                     "M_alpha_dot_1_s": num(d.M_alpha_dot),
                     "M_q_1_s": num(d.M_q),
                     "M_delta_1_s2": num(d.M_delta),
+                    **speed_derivatives_summary(d),
                 },
             }
         )
@@ -192,6 +194,8 @@ def design_table(doc) -> str:
             ]
         )
     out = table(headers, rows, aligns=["<", "<", ">", "<", "<", ">", ">", ">", ">", ">", ">"])
+    lon = longitudinal_table(entry(i)["measures"] for i in order)
+    out = out + ("\n\n" + lon + "\n" if lon else "")
     notes = [
         f"Damping band applies to the {doc['damping_measure']} damping ratio. Slack is normalised: "
         "negative means missed by that fraction of the limit.",

@@ -96,11 +96,7 @@ def condition_result(case, result, index) -> dict:
     bi = (i,) + (0,) * (np.ndim(bare.damping_ratio) - 1) if np.ndim(bare.damping_ratio) else ()
     sp = modes.short_period
     eig = modes.eigenvalues[index]
-    gx = mg.gain_crossings_rad_s[index]
-    gpm = mg.phase_margins_deg[index]
-    px = mg.phase_crossings_rad_s[index]
-    pgm = mg.gain_margins_db[index]
-    return {
+    entry = {
         "name": cond.name,
         "gain_s": num(result.gains[index]),
         "flight": {
@@ -139,32 +135,75 @@ def condition_result(case, result, index) -> dict:
             "equivalent": _equivalent(result, index),
             "handling": _handling(result, index),
         },
-        "margins": {
-            "gain_margin_db": num(mg.gain_margin_db[index]),
-            "gain_margin_low_db": num(mg.gain_margin_low_db[index]),
-            "phase_margin_deg": num(mg.phase_margin_deg[index]),
-            "phase_margin_signed_deg": num(mg.phase_margin_signed_deg[index]),
-            "gain_crossover_rad_s": num(mg.gain_crossover_rad_s[index]),
-            "phase_crossover_rad_s": num(mg.phase_crossover_rad_s[index]),
-            "delay_margin_s": num(mg.delay_margin_s[index]),
-            "disk_margin": num(mg.disk_margin[index]),
-            "disk_gain_margin_db": num(mg.disk_gain_margin_db[index]),
-            "disk_phase_margin_deg": num(mg.disk_phase_margin_deg[index]),
-            "gain_crossings": [
-                {"frequency_rad_s": num(w), "phase_margin_deg": num(p)}
-                for w, p in zip(gx, gpm)
-                if math.isfinite(w)
-            ],
-            "phase_crossings": [
-                {"frequency_rad_s": num(w), "gain_margin_db": num(g)}
-                for w, g in zip(px, pgm)
-                if math.isfinite(w)
-            ],
-            "delay_model": "exact",
-        },
+        "margins": margins_object(mg, index),
         "criteria": _criteria(result, index),
         "level": _level(result, index),
     }
+    from .longitudinal_out import with_longitudinal
+
+    return with_longitudinal(entry, cond, result, index, bi)
+
+
+def margins_object(mg, index, stable=None) -> dict:
+    """The ``margins`` object of one batch point of a :class:`~damper.measures.margins.Margins`.
+
+    Every margin value is ``null`` where the library found none (no such crossing, or the
+    closed loop unstable); the crossings are listed either way.
+
+    Parameters
+    ----------
+    mg : Margins
+    index : tuple
+        Batch index.
+    stable : bool, optional
+        Closed-loop stability at this point; False makes every margin value ``null`` here as
+        well (a crossing's value of an unstable loop is not a margin).
+    """
+    gx = mg.gain_crossings_rad_s[index]
+    gpm = mg.phase_margins_deg[index]
+    px = mg.phase_crossings_rad_s[index]
+    pgm = mg.gain_margins_db[index]
+    out = {
+        "gain_margin_db": num(mg.gain_margin_db[index]),
+        "gain_margin_low_db": num(mg.gain_margin_low_db[index]),
+        "phase_margin_deg": num(mg.phase_margin_deg[index]),
+        "phase_margin_signed_deg": num(mg.phase_margin_signed_deg[index]),
+        "gain_crossover_rad_s": num(mg.gain_crossover_rad_s[index]),
+        "phase_crossover_rad_s": num(mg.phase_crossover_rad_s[index]),
+        "delay_margin_s": num(mg.delay_margin_s[index]),
+        "disk_margin": num(mg.disk_margin[index]),
+        "disk_gain_margin_db": num(mg.disk_gain_margin_db[index]),
+        "disk_phase_margin_deg": num(mg.disk_phase_margin_deg[index]),
+        "gain_crossings": [
+            {"frequency_rad_s": num(w), "phase_margin_deg": num(p)}
+            for w, p in zip(gx, gpm)
+            if math.isfinite(w)
+        ],
+        "phase_crossings": [
+            {"frequency_rad_s": num(w), "gain_margin_db": num(g)}
+            for w, g in zip(px, pgm)
+            if math.isfinite(w)
+        ],
+        "delay_model": "exact",
+    }
+    if stable is False:
+        out.update({key: None for key in MARGIN_VALUE_KEYS})
+    return out
+
+
+#: The keys of :func:`margins_object` that hold margin values (``null`` on an unstable loop).
+MARGIN_VALUE_KEYS = (
+    "gain_margin_db",
+    "gain_margin_low_db",
+    "phase_margin_deg",
+    "phase_margin_signed_deg",
+    "gain_crossover_rad_s",
+    "phase_crossover_rad_s",
+    "delay_margin_s",
+    "disk_margin",
+    "disk_gain_margin_db",
+    "disk_phase_margin_deg",
+)
 
 
 def _equivalent(result, index):

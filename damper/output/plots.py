@@ -1,795 +1,48 @@
-"""Design plots per condition: root locus, loop response (Bode) and gain sweep.
+"""Design plots per condition: root locus, loop response and gain sweep, and their jobs.
 
-Every function takes the case, the :class:`~damper.analysis.search.DesignResult` of
-:func:`damper.analysis.search.search`, a condition index and an output path stem; it
-writes ``<stem>.png`` and ``<stem>.svg`` atomically and returns the written paths.
+The root locus is drawn by :mod:`damper.output.root_locus_plot`, the loop response by
+:mod:`damper.output.loop_plot`, the gain sweep here; the shared look is
+:mod:`damper.output.plot_style` (its names are re-exported here). Every plot function takes
+the case, the :class:`~damper.analysis.search.DesignResult` of
+:func:`damper.analysis.search.search`, a condition index and an output path stem; it writes
+``<stem>.png`` and ``<stem>.svg`` atomically and returns the written paths.
 
-Nothing here computes a measure: the plots show what the search and the assessment
-found. Two values come from library functions at drawing time: the loop frequency
-response ``L(jw)`` of the Bode plot (:func:`damper.model.loop.loop_response`, exact
-delay, the same phase convention as the margin search) and the open-loop (K = 0)
-poles of the root locus (:func:`damper.measures.modes.closed_loop_modes` on the
-library's closed-loop matrix with zero gain; Pade delay like every eigenvalue view).
-
-matplotlib is imported inside the functions (Agg canvas, no pyplot state), so
-importing this module is cheap.
+Nothing here computes a measure: the plots show what the search and the assessment found.
+matplotlib is imported inside the functions (Agg canvas, no pyplot state), so importing this
+module is cheap.
 """
 
 from __future__ import annotations
 
-from .figures import new_figure, save_figure  # noqa: E402
-from .names import plot_slugs, safe_name  # noqa: F401 - other modules import safe_name from here
-
 import os
-from dataclasses import dataclass
 
 import numpy as np
 
+from .loop_plot import loop_response_plot
+from .names import plot_slugs, safe_name  # noqa: F401 - other modules import safe_name from here
+from .plot_style import (  # noqa: F401 - re-exported: schedule_plots and tests use them from here
+    COLORMAP,
+    DPI,
+    LINES,
+    PALETTE,
+    _RC,
+    _criteria,
+    _figure,
+    _fmt_band,
+    _fmt_runs,
+    _log_x,
+    _render,
+    _runs,
+    _short_log_labels,
+    _span_edges,
+)
+from .root_locus_plot import open_loop_poles, root_locus
 
-# ---------------------------------------------------------------------------------
-# Visual identity: one palette, every series also told apart by line style and marker
-# (readable in greyscale and with the common colour-vision deficiencies).
-# ---------------------------------------------------------------------------------
-PALETTE = {
-    "ink": "#222222",  # text, axes, open-loop poles
-    "primary": "#1f4e79",  # deep blue: main series (equivalent damping, gain)
-    "secondary": "#c4651a",  # burnt orange: second series (modal damping, phase)
-    "tertiary": "#4b7f52",  # moss green: third series (downward gain margin)
-    "limit": "#9b2226",  # brick red: requirement limits
-    "chosen": "#111111",  # the chosen gain
-    "band": "#bcd4e6",  # pale blue: required damping band
-    "feasible": "#d9ead3",  # pale green: feasible gain intervals
-    "unstable": "#9e9e9e",  # grey hatch: closed loop unstable
-    "grid": "#d0d0d0",
-    "critical": "#555555",  # 0 dB / -180 deg / imaginary axis
-}
-COLORMAP = "cividis"  # gain colour scale: monotone in lightness
-DPI = 120
-LINES = {
-    "primary": {"color": PALETTE["primary"], "linestyle": "-", "marker": "o", "markersize": 3.0, "linewidth": 1.6},
-    "secondary": {
-        "color": PALETTE["secondary"],
-        "linestyle": "--",
-        "marker": "s",
-        "markersize": 3.0,
-        "linewidth": 1.4,
-    },
-    "tertiary": {"color": PALETTE["tertiary"], "linestyle": "-.", "marker": "^", "markersize": 3.0, "linewidth": 1.4},
-    "limit": {"color": PALETTE["limit"], "linestyle": (0, (6, 3)), "linewidth": 1.3},
-    "chosen": {"color": PALETTE["chosen"], "linestyle": (0, (5, 2, 1, 2)), "linewidth": 1.6},
-    "critical": {"color": PALETTE["critical"], "linestyle": "-", "linewidth": 0.9},
-}
-_RC = {
-    "font.family": "sans-serif",
-    "font.sans-serif": ["DejaVu Sans"],
-    "font.size": 9.0,
-    "axes.titlesize": 10.0,
-    "axes.labelsize": 9.0,
-    "axes.edgecolor": PALETTE["ink"],
-    "axes.labelcolor": PALETTE["ink"],
-    "axes.grid": True,
-    "axes.axisbelow": True,
-    "grid.color": PALETTE["grid"],
-    "grid.linewidth": 0.6,
-    "grid.alpha": 0.8,
-    "xtick.color": PALETTE["ink"],
-    "ytick.color": PALETTE["ink"],
-    "legend.fontsize": 8.0,
-    "legend.framealpha": 0.92,
-    "legend.edgecolor": PALETTE["grid"],
-    "svg.fonttype": "none",
-    "svg.hashsalt": "damper",
-    "hatch.color": PALETTE["unstable"],
-    "hatch.linewidth": 0.6,
-}
 _MARK_EVERY = 8  # markers on every 8th sweep point (the line carries the data)
-
-
-# ---------------------------------------------------------------------------------
-# helpers
-# ---------------------------------------------------------------------------------
-def _figure(width, height):
-    return new_figure(width, height)
-
-
-def _save(fig, stem):
-    return save_figure(fig, stem, DPI)
-
-
-def _render(draw, stem, *args):
-    import matplotlib
-
-    with matplotlib.rc_context(_RC):
-        fig = draw(*args)
-        return _save(fig, stem)
-
-
-def _plain_log_label(v, _pos=None):
-    """A log-axis tick label as a plain number (0.01, 1, 100): readable, and no mathtext to lay out."""
-    return f"{v:g}"
-
-
-def _log_x(ax):
-    """Log frequency/gain axis with a light minor grid at 2 and 5 (fewer ticks: faster)."""
-    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
-
-    ax.set_xscale("log")
-    ax.xaxis.set_major_formatter(FuncFormatter(_plain_log_label))
-    ax.xaxis.set_minor_locator(LogLocator(base=10.0, subs=(2.0, 5.0)))
-    ax.xaxis.set_minor_formatter(NullFormatter())
-    ax.grid(True, which="major")
-    ax.grid(True, which="minor", alpha=0.35)
-
-
-def _short_log_labels(axis, lo, hi):
-    """Plain-number labels: on major and minor ticks of a log axis spanning under two decades, else on major ticks."""
-    from matplotlib.ticker import FuncFormatter
-
-    if hi / lo < 100.0:
-        fmt = FuncFormatter(lambda v, _pos: f"{v:.3g}")
-        axis.set_major_formatter(fmt)
-        axis.set_minor_formatter(fmt)
-    else:
-        axis.set_major_formatter(FuncFormatter(_plain_log_label))
-
-
-def _criteria(case, name):
-    return [c for c in case.requirements.criteria if c.name == name]
-
-
-def _runs(mask, x):
-    """Contiguous True runs of `mask` as (x_first, x_last) pairs."""
-    mask = np.asarray(mask, bool)
-    out = []
-    k = 0
-    n = mask.size
-    while k < n:
-        if mask[k]:
-            j = k
-            while j + 1 < n and mask[j + 1]:
-                j += 1
-            out.append((float(x[k]), float(x[j])))
-            k = j + 1
-        else:
-            k += 1
-    return out
-
-
-def _span_edges(mask, x):
-    """Runs of `mask` widened to half-way (in log) to the neighbouring grid points."""
-    lx = np.log10(x)
-    spans = []
-    for a, b in _runs(mask, np.arange(x.size)):
-        a, b = int(a), int(b)
-        lo = lx[a] - (0.5 * (lx[a] - lx[a - 1]) if a > 0 else 0.0)
-        hi = lx[b] + (0.5 * (lx[b + 1] - lx[b]) if b + 1 < x.size else 0.0)
-        spans.append((10.0**lo, 10.0**hi))
-    return spans
-
-
-def _fmt_runs(runs, unit="s"):
-    parts = []
-    for a, b in runs:
-        parts.append(f"{a:.3g} {unit}" if np.isclose(a, b) else f"{a:.3g}-{b:.3g} {unit}")
-    return ", ".join(parts)
-
-
-def _fmt_band(lower, upper, unit=""):
-    u = f" {unit}" if unit else ""
-    if np.isfinite(lower) and np.isfinite(upper):
-        return f"{lower:.3g}-{upper:.3g}{u}"
-    if np.isfinite(lower):
-        return f">= {lower:.3g}{u}"
-    return f"<= {upper:.3g}{u}"
-
-
-def _delay_text(case):
-    delay = case.loop.hardware().delay
-    if delay is None:
-        return None, "no delay in the loop"
-    t = float(np.asarray(delay.time))
-    return t, f"{t * 1e3:.3g} ms"
-
+SUBTITLE_WIDTH = 145  # characters of a gain-sweep subtitle line (8.5 pt across a 10.5 in figure)
 
 # ---------------------------------------------------------------------------------
-# 1. root locus
-# ---------------------------------------------------------------------------------
-def open_loop_poles(case) -> np.ndarray:
-    """Open-loop (K = 0) poles of every condition, 1/s, shape (n_conditions, n_states).
-
-    The library's closed-loop matrix with zero gain, eigenvalues by
-    :func:`damper.measures.modes.closed_loop_modes` (delay as its Pade approximant).
-    """
-    from ..analysis.assess import build_loop
-    from ..measures.modes import closed_loop_modes
-    from ..model.loop import closed_loop_matrix
-
-    loop = build_loop(case, np.zeros(len(case.conditions)))
-    A, _, layout = closed_loop_matrix(loop)
-    A = np.broadcast_to(A, (len(case.conditions),) + A.shape[-2:])
-    return closed_loop_modes(A, layout.alpha, layout.q).eigenvalues
-
-
-def _damping_sector(ax, lower, upper, radius):
-    """Shade the region between the rays zeta = lower and zeta = upper (left half-plane)."""
-    from matplotlib.patches import Polygon
-
-    z_hi = 1.0 if not np.isfinite(upper) else min(float(upper), 1.0)
-    z_lo = max(float(lower), 0.0) if np.isfinite(lower) else 0.0
-    t_lo = np.arccos(z_lo)  # angle from the negative real axis
-    t_hi = np.arccos(z_hi)
-    handles = []
-    for sgn in (1.0, -1.0):
-        t = np.linspace(t_hi, t_lo, 40)
-        pts = np.column_stack([-radius * np.cos(t), sgn * radius * np.sin(t)])
-        poly = Polygon(
-            np.vstack([[0.0, 0.0], pts]), closed=True, facecolor=PALETTE["band"], edgecolor="none", alpha=0.55, zorder=0
-        )
-        ax.add_patch(poly)
-        handles.append(poly)
-    rays = []
-    for z, style in ((lower, (0, (6, 3))), (upper, (0, (2, 2)))):
-        if not np.isfinite(z) or z >= 1.0 or z < 0.0:
-            continue
-        x, y = -radius * z, radius * np.sqrt(1.0 - z * z)
-        (ln,) = ax.plot([0, x], [0, y], color=PALETTE["limit"], linestyle=style, linewidth=1.1, zorder=1)
-        ax.plot([0, x], [0, -y], color=PALETTE["limit"], linestyle=style, linewidth=1.1, zorder=1)
-        rays.append((z, ln))
-    return handles[0], rays
-
-
-def _zoom_limits(sp_roots, extra):
-    pts = np.concatenate([np.ravel(sp_roots), np.ravel(extra)])
-    pts = pts[np.isfinite(pts)]
-    if pts.size == 0:
-        return (-2.0, 0.5), (-2.0, 2.0)
-    re_lo = min(float(np.min(pts.real)), 0.0)
-    re_hi = max(float(np.max(pts.real)), 0.0)
-    im_hi = max(float(np.max(np.abs(pts.imag))), 0.5)
-    span = max(re_hi - re_lo, 0.5)
-    return (re_lo - 0.12 * span, re_hi + 0.12 * span), (-1.12 * im_hi, 1.12 * im_hi)
-
-
-def root_locus(case, design, i, stem, open_loop=None):
-    """Closed-loop poles of condition `i` over the swept gains; writes PNG and SVG.
-
-    Parameters
-    ----------
-    case : Case
-    design : DesignResult
-    i : int
-        Condition index.
-    stem : str or path
-        Output path without extension.
-    open_loop : ndarray, optional
-        Open-loop poles of every condition (:func:`open_loop_poles`); computed when omitted.
-
-    Returns
-    -------
-    list of str
-        The PNG and SVG paths.
-    """
-    if open_loop is None:
-        open_loop = open_loop_poles(case)
-    return _render(_draw_root_locus, stem, case, design, i, open_loop)
-
-
-def _draw_root_locus(case, design, i, open_loop):
-    from matplotlib.colors import LogNorm
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch, Rectangle
-
-    cond = design.conditions[i]
-    gains = design.sweep_gains[i]
-    ev = design.sweep.modes.eigenvalues[i]  # (points, n)
-    sp = design.sweep.modes.short_period.roots[i]  # (points, 2)
-    chosen_ev = design.chosen.modes.eigenvalues[i]
-    chosen_sp = design.chosen.modes.short_period.roots[i]
-    bare_sp = np.broadcast_to(design.sweep.bare.roots, design.sweep_gains.shape + (2,))[i, 0]
-    ol = np.asarray(open_loop)[i]
-    kk = np.repeat(gains[:, None], ev.shape[1], 1)
-    norm = LogNorm(vmin=float(gains.min()), vmax=float(gains.max()))
-
-    fig = _figure(11.5, 6.6)
-    gs = fig.add_gridspec(
-        2, 2, width_ratios=[1.5, 1.0], left=0.065, right=0.865, top=0.865, bottom=0.2, wspace=0.26, hspace=0.42
-    )
-    ax_d = fig.add_subplot(gs[:, 0])
-    ax_n = fig.add_subplot(gs[0, 1])
-    ax_a = fig.add_subplot(gs[1, 1])
-    cax = fig.add_axes((0.89, 0.2, 0.016, 0.665))
-
-    # detail: the short-period pair up to 1.5 x the top of the feasible gains (or the chosen gain)
-    k_top = max([cond.chosen_gain] + [hi for _, hi in cond.intervals])
-    near = gains <= 1.5 * k_top
-    d_lim = _zoom_limits(sp[near], np.concatenate([chosen_sp, bare_sp]))
-    n_lim = _zoom_limits(sp, np.concatenate([chosen_sp, bare_sp]))
-    all_pts = np.concatenate([ev.ravel(), ol, chosen_ev])
-    all_pts = all_pts[np.isfinite(all_pts)]
-    re_lo = min(float(np.min(all_pts.real)), n_lim[0][0])
-    re_hi = max(float(np.max(all_pts.real)), n_lim[0][1], 0.0)
-    im_hi = max(float(np.max(np.abs(all_pts.imag))), n_lim[1][1])
-    pad = 0.08 * max(re_hi - re_lo, 2 * im_hi)
-    a_lim = ((re_lo - pad, re_hi + pad), (-im_hi - pad, im_hi + pad))
-    reach = 4.0 * max(abs(re_lo), abs(re_hi), im_hi) + 1.0
-
-    dz = _criteria(case, "damping_ratio")
-    rays = []
-    for ax, (xl, yl), size in ((ax_d, d_lim, 14), (ax_n, n_lim, 7), (ax_a, a_lim, 7)):
-        ax.axvline(0.0, **LINES["critical"], zorder=1)
-        ax.axhline(0.0, color=PALETTE["grid"], linewidth=0.8, zorder=1)
-        if dz:
-            _, rays = _damping_sector(ax, dz[0].lower, dz[0].upper, reach)
-        sc = ax.scatter(
-            ev.real.ravel(),
-            ev.imag.ravel(),
-            c=kk.ravel(),
-            norm=norm,
-            cmap=COLORMAP,
-            s=size,
-            marker="o",
-            linewidths=0,
-            zorder=2,
-            rasterized=ax is not ax_d,  # overview clouds as an image inside the SVG (small, fast)
-        )
-        ax.scatter(ol.real, ol.imag, marker="x", s=4 * size + 10, linewidths=1.5, color=PALETTE["ink"], zorder=4)
-        ax.scatter(
-            chosen_ev.real,
-            chosen_ev.imag,
-            marker="D",
-            s=4 * size + 14,
-            facecolors="none",
-            edgecolors=PALETTE["secondary"],
-            linewidths=1.5,
-            zorder=5,
-        )
-        ax.set_xlim(*xl)
-        ax.set_ylim(*yl)
-        ax.set_xlabel("real part (1/s)")
-        ax.set_ylabel("imaginary part (rad/s)")
-    for ax, lim in ((ax_n, d_lim), (ax_a, n_lim)):
-        (x0, x1), (y0, y1) = lim
-        ax.add_patch(
-            Rectangle(
-                (x0, y0), x1 - x0, y1 - y0, fill=False, edgecolor=PALETTE["ink"], linestyle=":", linewidth=1.0, zorder=6
-            )
-        )
-    ax_d.set_title(
-        f"short-period region: K up to {min(1.5 * k_top, gains[-1]):.3g} s "
-        f"(1.5 x the {'top feasible' if cond.intervals else 'chosen'} gain)",
-        fontsize=9.5,
-    )
-    ax_n.set_title("near the origin, whole sweep (box: left panel)", fontsize=9)
-    ax_a.set_title("all poles (box: panel above)", fontsize=9)
-
-    # annotate the chosen short-period pair
-    zeta_eq = float(design.chosen.damping_ratio("equivalent")[i])
-    zeta_mod = float(design.chosen.damping_ratio("modal")[i])
-    if np.all(np.isfinite(chosen_sp)):
-        top = chosen_sp[np.argmax(chosen_sp.imag)]
-        ax_d.annotate(
-            f"chosen K: short period\n{top.real:.3g} {'+' if top.imag >= 0 else '-'} {abs(top.imag):.3g}j 1/s\n"
-            f"modal zeta {zeta_mod:.3f}, equivalent {zeta_eq:.3f}",
-            xy=(top.real, top.imag),
-            xytext=(0.03, 0.97),
-            textcoords="axes fraction",
-            ha="left",
-            va="top",
-            fontsize=8,
-            color=PALETTE["ink"],
-            bbox={"boxstyle": "round,pad=0.3", "fc": "white", "ec": PALETTE["grid"], "alpha": 0.92},
-            arrowprops={"arrowstyle": "-", "color": PALETTE["ink"], "linewidth": 0.8, "shrinkB": 6},
-            zorder=7,
-        )
-
-    cb = fig.colorbar(sc, cax=cax)
-    cb.set_label("gain K (s)")
-    _short_log_labels(cax.yaxis, float(gains.min()), float(gains.max()))
-    for lo, hi in cond.intervals:
-        cax.axhspan(
-            lo, hi, xmin=0.0, xmax=0.4, facecolor=PALETTE["feasible"], edgecolor=PALETTE["tertiary"], linewidth=0.8
-        )
-    cax.axhline(cond.chosen_gain, color=PALETTE["secondary"], linewidth=2.2)
-
-    # legend below the panels
-    handles = [
-        Line2D(
-            [],
-            [],
-            linestyle="none",
-            marker="o",
-            markersize=5,
-            color=matplotlib_mid_colour(),
-            label="closed-loop poles over the sweep (colour: K)",
-        ),
-        Line2D(
-            [],
-            [],
-            linestyle="none",
-            marker="x",
-            markersize=7,
-            markeredgewidth=1.5,
-            color=PALETTE["ink"],
-            label="open-loop poles (K = 0)",
-        ),
-        Line2D(
-            [],
-            [],
-            linestyle="none",
-            marker="D",
-            markersize=7,
-            markerfacecolor="none",
-            markeredgewidth=1.5,
-            color=PALETTE["secondary"],
-            label=f"poles at the chosen K = {cond.chosen_gain:.4g} s",
-        ),
-    ]
-    if dz:
-        c = dz[0]
-        handles.append(
-            Patch(
-                facecolor=PALETTE["band"],
-                alpha=0.55,
-                label=f"required damping ratio {_fmt_band(c.lower, c.upper)} (judged on {c.measure or 'modal'})",
-            )
-        )
-        for z, ln in rays:
-            handles.append(
-                Line2D([], [], color=PALETTE["limit"], linestyle=ln.get_linestyle(), label=f"ray zeta = {z:.3g}")
-            )
-        if np.isfinite(c.upper) and c.upper >= 1.0:
-            handles.append(
-                Patch(facecolor="none", edgecolor="none", label=f"upper {c.upper:.3g} >= 1: real roots, no ray")
-            )
-    handles.append(
-        Patch(facecolor=PALETTE["feasible"], edgecolor=PALETTE["tertiary"], label="feasible K (on the colour bar)")
-    )
-    handles.append(Line2D([], [], color=PALETTE["secondary"], linewidth=2.2, label="chosen K (on the colour bar)"))
-    fig.legend(handles=handles, loc="lower center", ncol=3, frameon=False, bbox_to_anchor=(0.5, 0.0), columnspacing=1.5)
-
-    pade = design.sweep.pade_order
-    _, dtext = _delay_text(case)
-    view = (
-        f"eigenvalues with the {dtext} delay as a ({pade}, {pade}) Pade approximant"
-        if pade
-        else "eigenvalues (no delay in the loop)"
-    )
-    fig.suptitle(f"{cond.name}: root locus of the pitch-rate damper", fontsize=12, x=0.065, ha="left", y=0.975)
-    fig.text(
-        0.065,
-        0.925,
-        f"{case.title}  |  sweep K {cond.sweep_range[0]:.3g}-{cond.sweep_range[1]:.3g} s  |  {view}",
-        fontsize=8.5,
-        color=PALETTE["ink"],
-    )
-    return fig
-
-
-def matplotlib_mid_colour():
-    """The middle colour of the gain colour scale (for legend swatches)."""
-    import matplotlib
-
-    return matplotlib.colormaps[COLORMAP](0.5)
-
-
-# ---------------------------------------------------------------------------------
-# 2. loop response (Bode)
-# ---------------------------------------------------------------------------------
-@dataclass(frozen=True)
-class BodeData:
-    """What the Bode plot draws and annotates for one condition.
-
-    Attributes
-    ----------
-    gain : float
-        K, s.
-    frequency_rad_s, gain_db, phase_deg : ndarray
-        L(jw) on the grid (exact delay); phase unwrapped from the grid's low end like the
-        margin search (rational part unwrapped, minus ``w T`` of the delay).
-    gain_crossings : tuple of (float, float)
-        (frequency rad/s, phase margin deg) of every gain crossing, from the assessment.
-    phase_crossings : tuple of (float, float)
-        (frequency rad/s, gain margin dB) of every phase crossing, from the assessment.
-    gain_margin_db, gain_margin_low_db, phase_margin_deg, delay_margin_s, disk_margin : float
-        The headline margins of the assessment (NaN: undefined / unbounded).
-    delay_s : float
-        The loop's pure delay, s (0 without one).
-    stable : bool
-        Closed-loop stability at this gain.
-    per_unit_gain : bool
-        The chosen gain is 0 (the loop is open): the curve is L per unit gain (K = 1 s).
-    """
-
-    gain: float
-    frequency_rad_s: np.ndarray
-    gain_db: np.ndarray
-    phase_deg: np.ndarray
-    gain_crossings: tuple
-    phase_crossings: tuple
-    gain_margin_db: float
-    gain_margin_low_db: float
-    phase_margin_deg: float
-    phase_margin_signed_deg: float
-    delay_margin_s: float
-    disk_margin: float
-    delay_s: float
-    stable: bool
-    per_unit_gain: bool = False
-
-
-def bode_data(case, assessment, i, w=None) -> BodeData:
-    """The Bode data of condition `i` at the gain of `assessment` (batch (n_conditions,)).
-
-    Parameters
-    ----------
-    case : Case
-    assessment : Assessment
-        E.g. ``design.chosen``, or :func:`damper.analysis.assess.assess` at other gains.
-    i : int
-    w : ndarray, optional
-        rad/s, ascending; default the case's margin grid (so the phase branch matches).
-    """
-    from ..model.batch import map_arrays
-    from ..model.loop import Loop, loop_response
-
-    w = case.settings.grid() if w is None else np.asarray(w, dtype=float)
-    gain = float(np.asarray(assessment.gains)[i])
-    d = map_arrays(case.derivatives(), lambda a: a[[i]] if np.ndim(a) else a)
-    hw = case.loop.hardware()
-    per_unit = gain == 0.0
-    loop = Loop(d, hw, np.array([1.0 if per_unit else gain]))
-    L = loop_response(loop, w[None, :])[0]
-    T = 0.0 if hw.delay is None else float(np.asarray(hw.delay.time))
-    rational = L * np.exp(1j * w * T)
-    phase = np.rad2deg(np.unwrap(np.angle(rational)) - w * T)
-    with np.errstate(divide="ignore"):
-        gain_db = 20.0 * np.log10(np.abs(L))
-    m = assessment.margins
-
-    def pairs(x, y):
-        x = np.asarray(x)[i]
-        y = np.asarray(y)[i]
-        ok = np.isfinite(x) & np.isfinite(y)
-        return tuple((float(a), float(b)) for a, b in zip(x[ok], y[ok]))
-
-    return BodeData(
-        gain=gain,
-        frequency_rad_s=w,
-        gain_db=gain_db,
-        phase_deg=phase,
-        gain_crossings=pairs(m.gain_crossings_rad_s, m.phase_margins_deg),
-        phase_crossings=pairs(m.phase_crossings_rad_s, m.gain_margins_db),
-        gain_margin_db=float(np.asarray(m.gain_margin_db)[i]),
-        gain_margin_low_db=float(np.asarray(m.gain_margin_low_db)[i]),
-        phase_margin_deg=float(np.asarray(m.phase_margin_deg)[i]),
-        phase_margin_signed_deg=float(np.asarray(m.phase_margin_signed_deg)[i]),
-        delay_margin_s=float(np.asarray(m.delay_margin_s)[i]),
-        disk_margin=float(np.asarray(m.disk_margin)[i]),
-        delay_s=T,
-        stable=bool(np.asarray(assessment.modes.stable)[i]),
-        per_unit_gain=per_unit,
-    )
-
-
-def _interp_log(w, y, wq):
-    return np.interp(np.log10(wq), np.log10(w), y)
-
-
-def loop_response_plot(case, design, i, stem):
-    """Bode plot of L(jw) of condition `i` at the chosen gain (exact delay); PNG and SVG.
-
-    Returns
-    -------
-    list of str
-    """
-    data = bode_data(case, design.chosen, i)
-    return _render(_draw_bode, stem, case, design, i, data)
-
-
-def _fmt(v, fmt, unit, none):
-    return f"{v:{fmt}} {unit}" if np.isfinite(v) else none
-
-
-def _draw_bode(case, design, i, b: BodeData):
-    from matplotlib.lines import Line2D
-    from matplotlib.ticker import MultipleLocator
-
-    cond = design.conditions[i]
-    w = b.frequency_rad_s
-    fig = _figure(10.5, 7.0)
-    gs = fig.add_gridspec(2, 1, left=0.085, right=0.70, top=0.875, bottom=0.085, hspace=0.12)
-    ax_g = fig.add_subplot(gs[0])
-    ax_p = fig.add_subplot(gs[1], sharex=ax_g)
-    ax_g.plot(w, b.gain_db, color=PALETTE["primary"], linestyle="-", linewidth=1.6, label="|L| (dB)")
-    ax_p.plot(w, b.phase_deg, color=PALETTE["secondary"], linestyle="--", linewidth=1.6, label="phase of L (deg)")
-    ax_g.axhline(0.0, **LINES["critical"])
-    # -180 deg and its 360 deg repeats within the drawn phase range
-    pmin, pmax = float(np.nanmin(b.phase_deg)), float(np.nanmax(b.phase_deg))
-    # the -180 deg (mod 360) level each phase margin is measured from must be in view
-    for wc, pm in b.gain_crossings:
-        ref = float(_interp_log(w, b.phase_deg, wc)) - pm
-        pmin, pmax = min(pmin, ref), max(pmax, ref)
-    pmin, pmax = min(pmin, -180.0), max(pmax, -180.0)
-    lo_k = int(np.floor((pmin + 180.0) / 360.0))
-    hi_k = int(np.ceil((pmax + 180.0) / 360.0))
-    for k in range(lo_k, hi_k + 1):
-        level = -180.0 + 360.0 * k
-        if pmin - 1.0 <= level <= pmax + 1.0:
-            ax_p.axhline(level, **LINES["critical"], alpha=1.0 if k == 0 else 0.55)
-    ax_p.axhline(-180.0, **LINES["critical"])
-
-    box = {"boxstyle": "round,pad=0.25", "fc": "white", "ec": PALETTE["grid"], "alpha": 0.92}
-    # gain crossings: phase margin
-    for n, (wc, pm) in enumerate(b.gain_crossings):
-        ph = _interp_log(w, b.phase_deg, wc)
-        ref = ph - pm  # the -180 deg (mod 360) level the margin is measured from
-        ax_g.plot(
-            [wc],
-            [0.0],
-            marker="o",
-            markersize=6,
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["primary"],
-            markeredgewidth=1.5,
-            linestyle="none",
-            zorder=5,
-        )
-        ax_p.plot([wc, wc], [ref, ph], color=PALETTE["primary"], linewidth=1.4, zorder=4)
-        ax_p.plot(
-            [wc],
-            [ph],
-            marker="o",
-            markersize=6,
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["primary"],
-            markeredgewidth=1.5,
-            linestyle="none",
-            zorder=5,
-        )
-        ax_g.axvline(wc, color=PALETTE["primary"], linestyle=":", linewidth=0.8)
-        head = np.isclose(pm, b.phase_margin_signed_deg)
-        ax_p.annotate(
-            f"PM {pm:.1f} deg at {wc:.3g} rad/s",
-            xy=(wc, 0.5 * (ref + ph)),
-            xytext=(-9, 10 - 22 * (n % 2)),
-            textcoords="offset points",
-            ha="right",
-            va="center",
-            fontsize=8,
-            fontweight="bold" if head else "normal",
-            bbox=box,
-            zorder=6,
-        )
-    # phase crossings: gain margin
-    for n, (wp, gm) in enumerate(b.phase_crossings):
-        gdb = _interp_log(w, b.gain_db, wp) if wp > w[0] else b.gain_db[0]
-        ph = _interp_log(w, b.phase_deg, wp)
-        ax_g.plot([wp, wp], [gdb, 0.0], color=PALETTE["secondary"], linewidth=1.4, zorder=4)
-        ax_g.plot(
-            [wp],
-            [gdb],
-            marker="s",
-            markersize=6,
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["secondary"],
-            markeredgewidth=1.5,
-            linestyle="none",
-            zorder=5,
-        )
-        ax_p.plot(
-            [wp],
-            [ph],
-            marker="s",
-            markersize=6,
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["secondary"],
-            markeredgewidth=1.5,
-            linestyle="none",
-            zorder=5,
-        )
-        ax_p.axvline(wp, color=PALETTE["secondary"], linestyle=":", linewidth=0.8)
-        head = np.isclose(gm, b.gain_margin_db) or np.isclose(gm, b.gain_margin_low_db)
-        ax_g.annotate(
-            f"GM {gm:.1f} dB at {wp:.3g} rad/s",
-            xy=(wp, gdb),
-            xytext=(-9, -2),
-            textcoords="offset points",
-            ha="right",
-            va="top",
-            fontsize=8,
-            fontweight="bold" if head else "normal",
-            bbox=box,
-            zorder=6,
-        )
-
-    finite_g = b.gain_db[np.isfinite(b.gain_db)]
-    g_lo = max(float(finite_g.min()), -200.0) if finite_g.size else -60.0
-    g_hi = max(float(finite_g.max()), 0.0)
-    ax_g.set_ylim(g_lo - 5.0, g_hi + 10.0)
-    span = pmax - pmin
-    ax_p.yaxis.set_major_locator(MultipleLocator(180.0 if span > 720 else 90.0))
-    ax_p.set_ylim(pmin - 25.0, pmax + 45.0)
-    ax_g.set_xlim(w[0], w[-1])
-    ax_g.set_ylabel("gain |L| (dB)")
-    ax_p.set_ylabel("phase of L (deg)")
-    ax_p.set_xlabel("frequency (rad/s)")
-    ax_g.tick_params(which="both", labelbottom=False)
-    for ax in (ax_g, ax_p):
-        _log_x(ax)
-
-    # summary box on the right
-    dm = b.delay_margin_s
-    lines = [
-        f"gain K = {b.gain:.4g} s (chosen)",
-        "loop broken at the actuator input",
-        f"exact delay {b.delay_s * 1e3:.3g} ms (no Pade)" if b.delay_s > 0 else "no delay in the loop",
-        f"closed loop {'stable' if b.stable else 'UNSTABLE'}",
-        "",
-        "gain margin: " + _fmt(b.gain_margin_db, ".1f", "dB", "none (unbounded)"),
-        "downward gain margin: " + _fmt(b.gain_margin_low_db, ".1f", "dB", "none"),
-        "phase margin: " + _fmt(b.phase_margin_deg, ".1f", "deg", "none"),
-        "delay margin: " + _fmt(dm, ".3g", "s", "none"),
-        "disk margin alpha: " + _fmt(b.disk_margin, ".3f", "", "none").strip(),
-    ]
-    if b.per_unit_gain:
-        lines += ["", "K = 0: there is no loop, so no", "margins; the curve is L at", "K = 1 s, for its shape only"]
-    elif not b.gain_crossings:
-        lines += ["", "|L| < 1 at every frequency:", "no gain crossing, so phase and", "delay margins are unbounded"]
-    req = []
-    for name, unit in (("gain_margin", "dB"), ("phase_margin", "deg"), ("delay_margin", "s")):
-        for c in _criteria(case, name):
-            req.append(f"{name.replace('_', ' ')} {_fmt_band(c.lower, c.upper, unit)}")
-    if req:
-        lines += ["", "required:"] + [f"  {r}" for r in req]
-    fig.text(
-        0.725,
-        0.875,
-        "\n".join(lines),
-        va="top",
-        ha="left",
-        fontsize=8.5,
-        family="DejaVu Sans",
-        linespacing=1.35,
-        bbox={"boxstyle": "round,pad=0.5", "fc": "#f7f7f7", "ec": PALETTE["grid"]},
-    )
-    handles = [
-        Line2D([], [], color=PALETTE["primary"], linestyle="-", linewidth=1.6, label="gain |L|"),
-        Line2D([], [], color=PALETTE["secondary"], linestyle="--", linewidth=1.6, label="phase of L"),
-        Line2D(
-            [],
-            [],
-            linestyle="none",
-            marker="o",
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["primary"],
-            markeredgewidth=1.5,
-            label="gain crossing (PM)",
-        ),
-        Line2D(
-            [],
-            [],
-            linestyle="none",
-            marker="s",
-            markerfacecolor="white",
-            markeredgecolor=PALETTE["secondary"],
-            markeredgewidth=1.5,
-            label="phase crossing (GM)",
-        ),
-        Line2D([], [], **LINES["critical"], label="0 dB, -180 deg (mod 360)"),
-    ]
-    fig.legend(handles=handles, loc="lower left", bbox_to_anchor=(0.72, 0.085), frameon=True, fontsize=8)
-    title = f"{cond.name}: loop response L(jw) at the chosen gain"
-    if b.per_unit_gain:
-        title = f"{cond.name}: chosen gain K = 0 (loop open); drawn: L(jw) per unit gain, K = 1 s"
-    fig.suptitle(title, fontsize=12, x=0.085, ha="left", y=0.975)
-    fig.text(
-        0.085, 0.915, f"{case.title}  |  exact delay in every frequency response", fontsize=8.5, color=PALETTE["ink"]
-    )
-    return fig
-
-
-# ---------------------------------------------------------------------------------
-# 3. gain sweep
+# gain sweep
 # ---------------------------------------------------------------------------------
 def _label(name):
     return name.replace("_", " ")
@@ -803,6 +56,15 @@ def gain_sweep_plot(case, design, i, stem):
     list of str
     """
     return _render(_draw_sweep, stem, case, design, i)
+
+
+def _slack_text(v):
+    """A normalised slack in words where it is not a number (never 'slack -inf')."""
+    if v == -np.inf:
+        return "not met, no value at that gain (closed loop unstable there, or the measure undefined)"
+    if v == np.inf:
+        return "met, unbounded"
+    return f"{v:+.2f}"
 
 
 def _sweep_notes(cond, k, stable, pm, gm_up, conv):
@@ -830,13 +92,19 @@ def _sweep_notes(cond, k, stable, pm, gm_up, conv):
             f"Equivalent-system fit not converged at K {_fmt_runs(_runs(~conv, k))}: "
             "equivalent damping not drawn there."
         )
-    if cond.chosen_gain <= k[0] * 1.01:
+    if cond.chosen_gain < k[0]:
+        notes.append(
+            f"The chosen K is {cond.chosen_gain:.3g} s, below the swept range (K = 0 has no place on a log axis; "
+            "it is marked at the left edge): the bare airframe already meets every requirement with the most "
+            f"slack, so the {cond.policy} policy needs no damper gain here."
+        )
+    elif cond.chosen_gain <= k[0] * 1.01:
         notes.append(
             "The chosen K is at the lower end of the sweep: every requirement is already met at the smallest swept "
             f"gain and the {cond.policy} policy found its best point there (the damper adds almost nothing)."
         )
     if not cond.feasible:
-        miss = ", ".join(f"{_label(n)} {v:+.2f}" for n, v in cond.binding)
+        miss = ", ".join(f"{_label(n)} {_slack_text(v)}" for n, v in cond.binding)
         notes.append(f"No gain meets every requirement; the chosen K is the closest miss (slack: {miss}).")
     notes.append(
         "Damping from the closed-loop eigenvalues (Pade delay) and the equivalent-system fit; "
@@ -869,8 +137,9 @@ def _draw_sweep(case, design, i):
 
     wrapped = "\n".join(textwrap.fill(n, 118) for n in _sweep_notes(cond, k, stable, pm, gm_up, conv))
     n_lines = wrapped.count("\n") + 1
-    # fixed panel height; the figure grows with the notes (inches)
-    bottom_in, panels_in, top_in = 0.75 + 0.15 * n_lines, 6.2, 1.15
+    subtitle = textwrap.fill(f"{case.title}  |  {len(k)} sweep points  |  {cond.reason}", SUBTITLE_WIDTH)
+    # fixed panel height; the figure grows with the notes and the subtitle's lines (inches)
+    bottom_in, panels_in, top_in = 0.75 + 0.15 * n_lines, 6.2, 1.15 + 0.16 * subtitle.count("\n")
     height = bottom_in + panels_in + top_in
     fig = _figure(10.5, height)
     gs = fig.add_gridspec(
@@ -887,7 +156,7 @@ def _draw_sweep(case, design, i):
             ax.axvspan(lo, hi, facecolor=PALETTE["feasible"], edgecolor="none", zorder=0)
         for lo, hi in _span_edges(~stable, k):
             ax.axvspan(lo, hi, facecolor="none", edgecolor=PALETTE["unstable"], hatch="///", linewidth=0, zorder=0)
-        ax.axvline(cond.chosen_gain, **LINES["chosen"], zorder=4)
+        ax.axvline(max(cond.chosen_gain, k[0]), **LINES["chosen"], zorder=4)
         for pair in cond.edges:
             for e in pair:
                 ax.axvline(e.gain, color=PALETTE["tertiary"], linestyle=":", linewidth=1.0, zorder=1)
@@ -979,10 +248,11 @@ def _draw_sweep(case, design, i):
             linespacing=1.1,
         )
     ax_z.text(
-        cond.chosen_gain,
+        max(cond.chosen_gain, k[0]),
         0.97,
         f" chosen K = {cond.chosen_gain:.4g} s"
-        + (" (at the sweep's lower end)" if cond.chosen_gain <= k[0] * 1.01 else ""),
+        + (" (below the swept range: drawn at its left edge)" if cond.chosen_gain < k[0]
+           else " (at the sweep's lower end)" if cond.chosen_gain <= k[0] * 1.01 else ""),
         transform=tr,
         ha="left",
         va="top",
@@ -1044,8 +314,9 @@ def _draw_sweep(case, design, i):
     )
     fig.text(
         0.085,
-        1.0 - 0.42 / height,
-        f"{case.title}  |  {len(k)} sweep points  |  {cond.reason}",
+        1.0 - 0.34 / height,
+        subtitle,
+        va="top",
         fontsize=8.5,
         color=PALETTE["ink"],
     )
@@ -1053,7 +324,7 @@ def _draw_sweep(case, design, i):
 
 
 # ---------------------------------------------------------------------------------
-# 4. all of them
+# all of them
 # ---------------------------------------------------------------------------------
 def design_plot_jobs(case, design, out_dir, slugs=None):
     """The figures of :func:`design_plots` as separate jobs ``(fn, args)``, in file order.
@@ -1099,8 +370,6 @@ def design_plots(case, design, out_dir):
 __all__ = [
     "design_plot_jobs",
     "PALETTE",
-    "BodeData",
-    "bode_data",
     "design_plots",
     "gain_sweep_plot",
     "loop_response_plot",

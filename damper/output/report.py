@@ -33,6 +33,7 @@ import os
 import re
 
 from ..errors import DamperError
+from .longitudinal_out import longitudinal_rows
 from .names import plot_slugs
 from .runfiles import MAX_SVG_BYTES  # noqa: F401 - part of this module's interface
 from .runfiles import image_uri as _image
@@ -303,7 +304,8 @@ def _condition_view(i, c, slug, files, summary_cond):
         if key in hq:
             handling.append((label, unit, f(hq.get(key))))
 
-    unb = "none (unbounded)"
+    # a null margin: no such crossing (unbounded) on a stable loop, no margin at all on an unstable one
+    unb = "none (unbounded)" if cl.get("stable", True) else "none: closed loop unstable"
     margins = [
         ("gain margin, gain may rise by", "dB", f(mg.get("gain_margin_db"), 3, unb), f(mg.get("phase_crossover_rad_s"), 4, DASH)),
         ("gain margin, gain may fall by", "dB", f(mg.get("gain_margin_low_db"), 3, unb), DASH),
@@ -314,10 +316,11 @@ def _condition_view(i, c, slug, files, summary_cond):
         ("disk phase margin", "\u00b1deg", f(mg.get("disk_phase_margin_deg"), 3, unb), DASH),
     ]
     crossings = [
-        {"kind": "gain crossing |L| = 1", "w": f(x.get("frequency_rad_s")), "value": f(x.get("phase_margin_deg"), 4), "unit": "deg phase margin"}
+        # a crossing's offset is a margin only where it sets the reported one (table above)
+        {"kind": "gain crossing |L| = 1", "w": f(x.get("frequency_rad_s")), "value": f(x.get("phase_margin_deg"), 4), "unit": "deg from \u2212180 deg"}
         for x in mg.get("gain_crossings") or []
     ] + [
-        {"kind": "phase crossing \u2220L = \u2212180 deg", "w": f(x.get("frequency_rad_s")), "value": f(x.get("gain_margin_db"), 4), "unit": "dB gain margin"}
+        {"kind": "phase crossing \u2220L = \u2212180 deg", "w": f(x.get("frequency_rad_s")), "value": f(x.get("gain_margin_db"), 4), "unit": "dB below 0 dB"}
         for x in mg.get("phase_crossings") or []
     ]
 
@@ -380,6 +383,7 @@ def _condition_view(i, c, slug, files, summary_cond):
         "equivalent": equivalent,
         "equivalent_large_mismatch": bool(eq and eq.get("large_mismatch")),
         "handling": handling,
+        "longitudinal": longitudinal_rows(m, f),
         "margins": margins,
         "crossings": crossings,
         "criteria": criteria,

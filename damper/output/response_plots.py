@@ -23,6 +23,34 @@ INPUT_COLOUR = "#5b5b8f"
 
 R2D = 180.0 / math.pi
 
+#: Excursions beyond which a small-perturbation (linear) model is commonly taken as no longer
+#: valid (common practice, round values): (history field, display scale, limit, unit, name).
+SMALL_PERTURBATION_LIMITS = (
+    ("theta", R2D, 10.0, "deg", "pitch attitude"),
+    ("alpha", R2D, 10.0, "deg", "angle of attack"),
+    ("load_factor", 1.0, 1.0, "g", "load factor increment"),
+)
+
+
+def linear_range_note(bare, augmented):
+    """The plot's note when a drawn history leaves the small-perturbation range, else "".
+
+    Compares the largest drawn excursions (bare and augmented) with
+    :data:`SMALL_PERTURBATION_LIMITS`; returns the text and the exceeded fields.
+    """
+    over, fields = [], []
+    for name, scale, limit, unit, label in SMALL_PERTURBATION_LIMITS:
+        peak = max(float(np.nanmax(np.abs(np.asarray(getattr(h, name))))) * scale for h in (bare, augmented))
+        if peak > limit:
+            over.append(f"{label} reaches {peak:.3g} {unit} (beyond about {limit:g} {unit})")
+            fields.append(name)
+    if not over:
+        return "", ()
+    text = ("Outside the small-perturbation range: " + "; ".join(over) + ". The linear model (common practice: "
+            "attitude and angle of attack within about 10 deg, load factor within about 1 g of trim) shows the trend, "
+            "not reliable values; scale the input down or check with a nonlinear simulation.")
+    return text, tuple(fields)
+
 
 def safe_name(text: str) -> str:
     """A file-name fragment from a label (letters, digits, '.', '_', '-')."""
@@ -79,10 +107,12 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
         ("surface_rate", R2D, "surface rate\ndeg/s"),
     ]
     style = {"font.size": 8.5, "axes.spines.top": False, "axes.spines.right": False, "svg.hashsalt": "damper"}
+    note, exceeded = linear_range_note(bare, augmented)
     with matplotlib.rc_context(style):
         fig = new_figure(7.5, 10.0)
         # fixed margins (inches converted to fractions) instead of a layout pass: one draw per file
-        fig.subplots_adjust(left=0.95 / 7.5, right=1.0 - 0.15 / 7.5, bottom=0.5 / 10.0, top=1.0 - 0.7 / 10.0,
+        top_in = 1.1 if note else 0.7
+        fig.subplots_adjust(left=0.95 / 7.5, right=1.0 - 0.15 / 7.5, bottom=0.5 / 10.0, top=1.0 - top_in / 10.0,
                             hspace=0.12)
         axes = fig.subplots(len(panels), 1, sharex=True)
         for ax, (name, scale, label) in zip(axes, panels):
@@ -118,6 +148,15 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
         fig.suptitle(title, fontsize=10, x=0.02, y=0.985, ha="left")
         if subtitle:
             fig.text(0.02, 0.955, subtitle, fontsize=8, ha="left", color="#444444")
+        if note:
+            import textwrap
+
+            fig.text(0.02, 0.945, textwrap.fill(note, 125), fontsize=7.5, ha="left", va="top", color=LIMIT_COLOUR)
+            for ax, (name, scale, label) in zip(axes, panels):
+                for field, _, limit, _, _ in SMALL_PERTURBATION_LIMITS:
+                    if field == name and field in exceeded:
+                        for sign in (1, -1):
+                            ax.axhline(sign * limit, color=LIMIT_COLOUR, lw=0.7, ls=":", alpha=0.8)
         written = save_figure(fig, stem, dpi=110)
     return written
 

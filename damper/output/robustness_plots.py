@@ -6,12 +6,14 @@ plotting functions (Agg canvas, no pyplot state).
 
 * ``scatter-<condition>``: damping ratio against the smallest gain margin for every
   sample of the subsample, pass and fail told apart by colour *and* marker, the
-  requirement box drawn, the nominal point and the worst cases marked; unbounded gain
+  requirement box drawn (a sample that meets both axes' requirements but misses another,
+  e.g. CAP, has its own marker and legend entry, so it never passes for a pass inside the box), the nominal point and the worst cases marked; unbounded gain
   margins sit on the top edge with their own marker.
 * ``sensitivity-<condition>``: Spearman rank correlation of each uncertain parameter with
   the worst slack; bars hatched by sign (greyscale-safe).
 * ``pass-fraction``: per-condition fraction meeting every requirement (and the damping
-  band) with its Clopper-Pearson interval.
+  band) with its Clopper-Pearson interval, on the whole 0-100 % scale (never zoomed) with
+  the counts written beside each row.
 """
 
 from __future__ import annotations
@@ -154,19 +156,20 @@ def _draw_scatter(case, result, i):
     )
     yplot = np.where(np.isfinite(gm), gm, top)
     unb = ~np.isfinite(gm)
+    off, off_names = _fails_off_axes(result, i)
     common = dict(s=9, linewidths=0.6, rasterized=True, zorder=2)
     for mask, colour, marker, label in (
         (ok & ~unb, STYLE["pass"], "o", "sample meets every requirement"),
-        (~ok & ~unb, STYLE["fail"], "x", "sample misses a requirement"),
+        (~ok & ~off & ~unb, STYLE["fail"], "x", "sample misses damping or gain margin"),
+        (off & ~unb, STYLE["worst"], "s", f"fails a requirement not shown on these axes ({off_names})"),
         (ok & unb, STYLE["pass"], "^", "meets all; gain margin unbounded (top edge)"),
         (~ok & unb, STYLE["fail"], "v", "misses one; gain margin unbounded (top edge)"),
     ):
         if np.any(mask):
-            face = colour if marker in ("o", "^") else None
             kw = dict(common, marker=marker, label=f"{label} ({int(mask.sum())})")
-            if marker in ("x", "v"):
+            if marker in ("x", "v", "s"):
                 kw.update(s=22, linewidths=1.1, zorder=3)  # failures stand out
-            if face is None:
+            if marker == "x":
                 ax.scatter(z[mask], yplot[mask], c=colour, **kw)
             else:
                 ax.scatter(z[mask], yplot[mask], facecolors="none", edgecolors=colour, **kw)
@@ -211,6 +214,19 @@ def _draw_scatter(case, result, i):
     )
     _footer(fig, case, result)
     return fig
+
+
+def _fails_off_axes(result, i):
+    """Samples of condition `i` that meet damping and gain margin (the axes) but miss another
+    requirement, and the names of the requirements they miss (from the study's slacks)."""
+    names = [cr.name for cr in result.criteria]
+    sl = result.slacks[:, i, :]
+    on = [j for j, n in enumerate(names) if n in ("damping_ratio", "gain_margin")]
+    rest = [j for j in range(len(names)) if j not in on]
+    on_ok = np.all(sl[on] >= 0, 0) if on else np.ones(sl.shape[1], bool)
+    off = on_ok & (np.any(sl[rest] < 0, 0) if rest else np.zeros(sl.shape[1], bool))
+    missed = [names[j].replace("_", " ") for j in rest if np.any(off & (sl[j] < 0))]
+    return off, ", ".join(missed)
 
 
 def _worst(c, name):
@@ -303,16 +319,16 @@ def _draw_pass(case, result, total=None):
     ax.set_yticks(y)
     ax.set_yticklabels([f"{c.name}{'' if c.nominal_met else ' (nominal fails)'}" for c in conds])
     _fit_left_labels(fig, ax)
-    lows = [c.lower_all for c in conds]
-    if "damping_ratio" in names:
-        lows += [c.lower[names.index("damping_ratio")] for c in conds]
-    low = 100.0 * min(lows + [1.0])
-    left = max([v for v in (0.0, 50.0, 80.0, 90.0, 95.0, 98.0, 99.0, 99.5) if v <= low - 0.05] or [0.0])
-    span = 100.0 - left
-    ax.set_xlim(left - 0.03 * span, 100.0 + 0.03 * span)
+    # the whole 0-100 % scale, never zoomed: 1999/2000 must not look like a collapse; the counts
+    # beside each row tell the rows apart where the points overlap at the right edge
+    ax.set_xlim(0.0, 100.0 + 0.03 * 100.0)
+    ax.set_xticks([0, 20, 40, 60, 80, 100])
+    ax.axvline(100.0, color=STYLE["grid"], linewidth=1.0, zorder=0)
     for yy, c in zip(y, conds):  # counts beside each row
-        ax.text(left + 0.01 * span, yy + 0.12, f"{c.passed_all}/{c.samples} meet all", fontsize=7, va="bottom", ha="left",
-                color=STYLE["ink"])
+        ax.text(1.0, yy, f"{c.passed_all}/{c.samples} meet all ({_pct(c.fraction_all, 'down')} %; interval "
+                f"{_pct(c.lower_all, 'down')}-{_pct(c.upper_all, 'up')} %)", fontsize=7,
+                va="center", ha="left", color=STYLE["ink"],
+                bbox=dict(boxstyle="round,pad=0.15", facecolor="white", edgecolor="none", alpha=0.85))
     ax.set_xlabel(f"samples meeting the requirements (%), bars: {100 * result.spec.confidence:.0f} % Clopper-Pearson interval")
     which = "" if total is None else f"; the {len(conds)} of {total} conditions with the lowest"
     _title(fig, f"Pass fraction per condition ({result.spec.samples} samples, seed {result.spec.seed}{which})")

@@ -78,6 +78,10 @@ def assess_table(doc) -> str:
             ]
         )
     out = table(headers, rows) + "\n\n" + handling_table(doc)
+    from .longitudinal_out import longitudinal_table
+
+    lon = longitudinal_table(doc["conditions"])
+    out = out + ("\n\n" + lon if lon else "")
     legend = [
         "zeta: damping ratio; wn: natural frequency. Loop modes use a Pade delay; margins use the exact delay.",
         "GM/PM 'none': no such crossing (unbounded in that direction). Loop broken at the actuator input.",

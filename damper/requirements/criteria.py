@@ -64,6 +64,9 @@ KINDS = {
         CriterionKind("bandwidth", "pitch-attitude bandwidth", "rad/s", 0.5, False),
         CriterionKind("phase_delay", "pitch-attitude phase delay", "s", 0.02, False),
         CriterionKind("equivalent_mismatch", "equivalent-system mismatch", "-", 1.0, False),
+        CriterionKind("phugoid_damping_ratio", "phugoid damping ratio (closed loop)", "-", 0.05, False),
+        CriterionKind("phugoid_time_to_double", "phugoid time to double amplitude (closed loop; none when stable)",
+                      "s", 10.0, True),
     )
 }
 
@@ -144,6 +147,10 @@ def measure_values(criterion: Criterion, m) -> np.ndarray:
         return m.bandwidth.bandwidth
     if name == "phase_delay":
         return m.bandwidth.phase_delay
+    if name == "phugoid_damping_ratio":
+        return m.modes.phugoid.damping_ratio
+    if name == "phugoid_time_to_double":
+        return m.modes.phugoid.time_to_double
     raise KeyError(name)
 
 

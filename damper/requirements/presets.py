@@ -18,6 +18,7 @@ MIL_8785C = "MIL-F-8785C (1980) para 3.2.2.1; same numbers kept in MIL-STD-1797A
 MIL_8785C_CAP = "MIL-F-8785C (1980) para 3.2.2.1.1 (CAP boundaries); MIL-STD-1797A"
 MIL_1797A_DELAY = "MIL-STD-1797A equivalent time delay limits (LOES method)"
 MIL_9490D = "MIL-F-9490D (1975) para 3.1.3.6.1, stability margins"
+MIL_8785C_PHUGOID = "MIL-F-8785C (1980) para 3.2.1.2, phugoid stability"
 
 
 @dataclass(frozen=True)
@@ -83,6 +84,10 @@ MIN_FREQUENCY = {
     (1, "C", "III"): 0.7,
 }
 
+# Phugoid stability (MIL-F-8785C 3.2.1.2, from memory): level -> (criterion, minimum)
+# Level 1: damping ratio at least 0.04; level 2: at least 0; level 3: time to double at least 55 s.
+PHUGOID = {1: ("phugoid_damping_ratio", 0.04), 2: ("phugoid_damping_ratio", 0.0), 3: ("phugoid_time_to_double", 55.0)}
+
 # Stability margins (MIL-F-9490D): speed range -> (gain margin dB, phase margin deg)
 MARGINS = {
     "operational": (6.0, 45.0),
@@ -134,3 +139,16 @@ def margin_preset(speed_range: str = "operational") -> list:
         PresetValue("gain_margin", gm, INF, f"{MIL_9490D}, {speed_range} speeds"),
         PresetValue("phase_margin", pm, INF, f"{MIL_9490D}, {speed_range} speeds"),
     ]
+
+
+def phugoid_preset(level: int) -> list:
+    """The phugoid stability requirement of one level (MIL-F-8785C 3.2.1.2, from memory).
+
+    Returns
+    -------
+    list of PresetValue
+        Level 1 and 2: a minimum phugoid damping ratio (0.04, 0); level 3: a minimum time
+        to double amplitude, s (55).
+    """
+    name, low = PHUGOID[level]
+    return [PresetValue(name, low, INF, f"{MIL_8785C_PHUGOID}, level {level}")]

@@ -24,7 +24,11 @@ BAND_KEYS = (
     "bandwidth",
     "phase_delay",
     "equivalent_mismatch",
+    "phugoid_damping_ratio",
+    "phugoid_time_to_double",
 )
+#: Criteria of the phugoid: a longitudinal case only.
+PHUGOID_KEYS = ("phugoid_damping_ratio", "phugoid_time_to_double")
 
 DEFAULT_SOURCE_DAMPING = "common practice (short-period damping 0.35-1.30)"
 
@@ -65,19 +69,40 @@ def _measure_for(name, damping_measure):
     return ""
 
 
-def build_requirements(raw) -> Requirements:
-    """Requirements from the validated ``requirements`` section (None: the defaults)."""
+def default_damping_measure(model="short_period") -> str:
+    """The short-period damping the bands apply to when the case does not say.
+
+    ``"equivalent"`` (the fitted low-order equivalent system) for the short-period model;
+    ``"modal"`` (the short-period pair of the four-state closed loop) for the longitudinal
+    model, whose phugoid inside the 0.1-10 rad/s fit band leaves the short-period form's
+    fit a large mismatch (docs/theory.md section 8).
+    """
+    return "modal" if model == "longitudinal" else "equivalent"
+
+
+def build_requirements(raw, model="short_period") -> Requirements:
+    """Requirements from the validated ``requirements`` section (None: the defaults).
+
+    `model` (``"short_period"`` or ``"longitudinal"``) sets the default damping measure and
+    admits the phugoid criteria (a short-period case naming one is a :class:`CaseError`).
+    """
     stability = Criterion("stability", -INF, 0.0, "closed loop must be stable (common practice)")
     if raw is None:
+        dm = default_damping_measure(model)
         return Requirements(
             (
                 stability,
-                Criterion("damping_ratio", 0.35, 1.30, DEFAULT_SOURCE_DAMPING, "equivalent"),
+                Criterion("damping_ratio", 0.35, 1.30, DEFAULT_SOURCE_DAMPING, dm),
                 Criterion("gain_margin", 6.0, INF, f"{presets.MIL_9490D}, operational speeds (from memory)"),
                 Criterion("phase_margin", 45.0, INF, f"{presets.MIL_9490D}, operational speeds (from memory)"),
-            )
+            ),
+            damping_measure=dm,
         )
-    dm = raw["damping_measure"]
+    for key in PHUGOID_KEYS:
+        if model != "longitudinal" and raw.get(key) is not None:
+            raise CaseError("a phugoid requirement needs the longitudinal model (this case's model is short_period: "
+                            "add 'model: longitudinal' and the speed derivatives)", f"requirements.{key}")
+    dm = raw["damping_measure"] or default_damping_measure(model)
     chosen = {}
     category = aircraft_class = None
     if raw["preset"] is not None:
@@ -86,6 +111,9 @@ def build_requirements(raw) -> Requirements:
         aircraft_class = p["aircraft_class"]
         for v in presets.handling_preset(p["level"], category, aircraft_class):
             chosen[v.criterion] = Criterion(v.criterion, v.lower, v.upper, f"{p['standard']}: {v.citation}", _measure_for(v.criterion, dm))
+        if model == "longitudinal":
+            for v in presets.phugoid_preset(p["level"]):
+                chosen[v.criterion] = Criterion(v.criterion, v.lower, v.upper, v.citation)
     if raw["margins_preset"] is not None:
         for v in presets.margin_preset(raw["margins_preset"]["speed_range"]):
             chosen[v.criterion] = Criterion(v.criterion, v.lower, v.upper, v.citation)

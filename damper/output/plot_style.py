@@ -1,0 +1,175 @@
+"""The design plots' look: one palette, line styles, rc settings and small axis helpers.
+
+Shared by :mod:`damper.output.plots`, :mod:`damper.output.root_locus_plot`,
+:mod:`damper.output.loop_plot` and :mod:`damper.output.schedule_plots`. matplotlib is
+imported inside the functions, so importing this module is cheap.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .figures import new_figure, save_figure
+
+# ---------------------------------------------------------------------------------
+# Visual identity: one palette, every series also told apart by line style and marker
+# (readable in greyscale and with the common colour-vision deficiencies).
+# ---------------------------------------------------------------------------------
+PALETTE = {
+    "ink": "#222222",  # text, axes, open-loop poles
+    "primary": "#1f4e79",  # deep blue: main series (equivalent damping, gain)
+    "secondary": "#c4651a",  # burnt orange: second series (modal damping, phase)
+    "tertiary": "#4b7f52",  # moss green: third series (downward gain margin)
+    "limit": "#9b2226",  # brick red: requirement limits
+    "chosen": "#111111",  # the chosen gain
+    "band": "#bcd4e6",  # pale blue: required damping band
+    "feasible": "#d9ead3",  # pale green: feasible gain intervals
+    "unstable": "#9e9e9e",  # grey hatch: closed loop unstable
+    "grid": "#d0d0d0",
+    "critical": "#555555",  # 0 dB / -180 deg / imaginary axis
+}
+COLORMAP = "cividis"  # gain colour scale: monotone in lightness
+DPI = 120
+LINES = {
+    "primary": {"color": PALETTE["primary"], "linestyle": "-", "marker": "o", "markersize": 3.0, "linewidth": 1.6},
+    "secondary": {
+        "color": PALETTE["secondary"],
+        "linestyle": "--",
+        "marker": "s",
+        "markersize": 3.0,
+        "linewidth": 1.4,
+    },
+    "tertiary": {"color": PALETTE["tertiary"], "linestyle": "-.", "marker": "^", "markersize": 3.0, "linewidth": 1.4},
+    "limit": {"color": PALETTE["limit"], "linestyle": (0, (6, 3)), "linewidth": 1.3},
+    "chosen": {"color": PALETTE["chosen"], "linestyle": (0, (5, 2, 1, 2)), "linewidth": 1.6},
+    "critical": {"color": PALETTE["critical"], "linestyle": "-", "linewidth": 0.9},
+}
+_RC = {
+    "font.family": "sans-serif",
+    "font.sans-serif": ["DejaVu Sans"],
+    "font.size": 9.0,
+    "axes.titlesize": 10.0,
+    "axes.labelsize": 9.0,
+    "axes.edgecolor": PALETTE["ink"],
+    "axes.labelcolor": PALETTE["ink"],
+    "axes.grid": True,
+    "axes.axisbelow": True,
+    "grid.color": PALETTE["grid"],
+    "grid.linewidth": 0.6,
+    "grid.alpha": 0.8,
+    "xtick.color": PALETTE["ink"],
+    "ytick.color": PALETTE["ink"],
+    "legend.fontsize": 8.0,
+    "legend.framealpha": 0.92,
+    "legend.edgecolor": PALETTE["grid"],
+    "svg.fonttype": "none",
+    "svg.hashsalt": "damper",
+    "hatch.color": PALETTE["unstable"],
+    "hatch.linewidth": 0.6,
+}
+
+
+# ---------------------------------------------------------------------------------
+# helpers
+# ---------------------------------------------------------------------------------
+def _figure(width, height):
+    return new_figure(width, height)
+
+
+def _save(fig, stem):
+    return save_figure(fig, stem, DPI)
+
+
+def _render(draw, stem, *args):
+    import matplotlib
+
+    with matplotlib.rc_context(_RC):
+        fig = draw(*args)
+        return _save(fig, stem)
+
+
+def _plain_log_label(v, _pos=None):
+    """A log-axis tick label as a plain number (0.01, 1, 100): readable, and no mathtext to lay out."""
+    return f"{v:g}"
+
+
+def _log_x(ax):
+    """Log frequency/gain axis with a light minor grid at 2 and 5 (fewer ticks: faster)."""
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+
+    ax.set_xscale("log")
+    ax.xaxis.set_major_formatter(FuncFormatter(_plain_log_label))
+    ax.xaxis.set_minor_locator(LogLocator(base=10.0, subs=(2.0, 5.0)))
+    ax.xaxis.set_minor_formatter(NullFormatter())
+    ax.grid(True, which="major")
+    ax.grid(True, which="minor", alpha=0.35)
+
+
+def _short_log_labels(axis, lo, hi):
+    """Plain-number labels: on major and minor ticks of a log axis spanning under two decades, else on major ticks."""
+    from matplotlib.ticker import FuncFormatter
+
+    if hi / lo < 100.0:
+        fmt = FuncFormatter(lambda v, _pos: f"{v:.3g}")
+        axis.set_major_formatter(fmt)
+        axis.set_minor_formatter(fmt)
+    else:
+        axis.set_major_formatter(FuncFormatter(_plain_log_label))
+
+
+def _criteria(case, name):
+    return [c for c in case.requirements.criteria if c.name == name]
+
+
+def _runs(mask, x):
+    """Contiguous True runs of `mask` as (x_first, x_last) pairs."""
+    mask = np.asarray(mask, bool)
+    out = []
+    k = 0
+    n = mask.size
+    while k < n:
+        if mask[k]:
+            j = k
+            while j + 1 < n and mask[j + 1]:
+                j += 1
+            out.append((float(x[k]), float(x[j])))
+            k = j + 1
+        else:
+            k += 1
+    return out
+
+
+def _span_edges(mask, x):
+    """Runs of `mask` widened to half-way (in log) to the neighbouring grid points."""
+    lx = np.log10(x)
+    spans = []
+    for a, b in _runs(mask, np.arange(x.size)):
+        a, b = int(a), int(b)
+        lo = lx[a] - (0.5 * (lx[a] - lx[a - 1]) if a > 0 else 0.0)
+        hi = lx[b] + (0.5 * (lx[b + 1] - lx[b]) if b + 1 < x.size else 0.0)
+        spans.append((10.0**lo, 10.0**hi))
+    return spans
+
+
+def _fmt_runs(runs, unit="s"):
+    parts = []
+    for a, b in runs:
+        parts.append(f"{a:.3g} {unit}" if np.isclose(a, b) else f"{a:.3g}-{b:.3g} {unit}")
+    return ", ".join(parts)
+
+
+def _fmt_band(lower, upper, unit=""):
+    u = f" {unit}" if unit else ""
+    if np.isfinite(lower) and np.isfinite(upper):
+        return f"{lower:.3g}-{upper:.3g}{u}"
+    if np.isfinite(lower):
+        return f">= {lower:.3g}{u}"
+    return f"<= {upper:.3g}{u}"
+
+
+def _delay_text(case):
+    delay = case.loop.hardware().delay
+    if delay is None:
+        return None, "no delay in the loop"
+    t = float(np.asarray(delay.time))
+    return t, f"{t * 1e3:.3g} ms"
