@@ -2,7 +2,7 @@
 against the gain for both runs, and both schedules over the compared points.
 
 Run A is drawn in the primary style (solid, circles), run B in the secondary style
-(dashed, squares) of :mod:`damper.output.plots`; the values come computed from the caller.
+(dashed, squares) of :mod:`damper.output.plot_style`; the values come computed from the caller.
 """
 
 from __future__ import annotations
@@ -10,12 +10,7 @@ from __future__ import annotations
 import numpy as np
 
 from .figures import new_figure, save_figure
-from .plots import _RC, DPI, LINES, PALETTE  # the house style (re-exported by plots.py)
-
-
-def _plain_log_label(v, _pos=None):
-    """A log-axis tick label as a plain number (0.01, 1, 100)."""
-    return f"{v:g}"
+from .plot_style import _RC, DPI, LINES, PALETTE, _plain_log_label  # the house style
 
 
 def _render(draw, stem, *args):
