@@ -126,6 +126,11 @@ def test_sweep_marks_the_designed_gain(design_run, tmp_path):
     assert "designed" in text
     gains = [float(r["gain_s"]) for r in rows]
     assert gains == sorted(gains)
+    code, out, err = run("sweep", PER_CONDITION, "--condition", entry["name"], "--points", "7", "--design",
+                         design_run, "--json")
+    doc = json.loads(out)
+    assert doc["marked"]["gain_s"] == entry["chosen_gain_s"] and doc["marked"]["label"] == "designed"
+    assert [r["marked"] for r in doc["rows"]].count("designed") == 1
     # without --design/--schedule the CSV has no 'marked' column (unchanged output)
     code, _, _ = run("sweep", PER_CONDITION, "--condition", entry["name"], "--points", "7", "--csv", csv, "--force")
     assert "marked" not in csv.read_text().splitlines()[0]

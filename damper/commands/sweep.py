@@ -78,7 +78,10 @@ def run(args, argv) -> int:
     if args.csv:
         write_atomic(args.csv, sweep_csv(rows))
     if args.json:
-        sys.stdout.write(dumps(sweep_document(case, args.condition, rows, command=" ".join(["damper", *argv]))))
+        doc = sweep_document(case, args.condition, rows, command=" ".join(["damper", *argv]))
+        if source is not None:  # which row is the designed or scheduled gain, and where it came from
+            doc["marked"] = {"gain_s": float(source.values[i]), "label": source.label, "source": source.text}
+        sys.stdout.write(dumps(doc))
         return 0
     print(f"{case.title}: gain sweep at {args.condition}")
     print(sweep_table(rows))
