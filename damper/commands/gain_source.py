@@ -65,11 +65,6 @@ class Gains:
     label: str = "K"
     notes: tuple = ()
 
-    @property
-    def uniform(self):
-        """True when one gain is used at every condition (``--gain``)."""
-        return self.kind == "gain"
-
 
 def check_gain(value, option="--gain"):
     """Refuse a gain that is not a finite number."""
@@ -94,8 +89,8 @@ def resolve_gains(case, args):
     n = len(case.conditions)
     if getattr(args, "design", None) is not None:
         run = read_design_run(args.design, case, option="--design")
-        return Gains(design_gains(case, run.design, f"--design {args.design}"), "design", f"the chosen gains of {args.design}",
-                     "designed")
+        gains = design_gains(case, run.design, f"--design {args.design}")
+        return Gains(gains, "design", f"the chosen gains of {args.design}", "designed")
     if getattr(args, "schedule", None) is not None:
         schedule, doc, file = read_schedule(args.schedule)
         notes = ()
