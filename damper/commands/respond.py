@@ -18,10 +18,15 @@ def register(sub) -> str:
     a.add_argument("--force", action="store_true",
                    help="replace the responses of an earlier damper run in DIR (its other files are kept)")
     a.add_argument("--no-plots", action="store_true", help="with --out: skip the plots")
+    a.add_argument("--figures", default="png,svg", metavar="FORMATS",
+                   help="figure formats, comma-separated: png, svg or both (default png,svg; the report embeds SVG when there is one; one format draws the figures in about half the time)")
     return NAME
 
 
 def run(args, argv) -> int:
+    from ..output.figures import use_option
+
+    use_option(args.figures)  # before anything is drawn (the plot worker inherits it)
     import sys
 
     from ..cli import CAUTION_SHORT, warn_case
@@ -147,7 +152,9 @@ def _write_batch(out, sub, start, result, spec, plots, gain_text, jobs, plot_onl
                     paths += draw(stem, bare, aug)
                 else:  # copies: a view would keep the whole batch's histories alive while the job waits
                     jobs.submit(draw, stem, _owned(bare), _owned(aug))
-                    paths += [stem + ".png", stem + ".svg"]  # the names save_figure writes
+                    from ..output.figures import formats
+
+                    paths += [f"{stem}.{fmt}" for fmt in formats()]  # the names save_figure writes
             files[(i, j)] = [os.path.basename(p) for p in paths]
     return files
 

@@ -58,12 +58,17 @@ def _die_with_parent(parent_pid: int) -> None:
     threading.Thread(target=watch, name="damper-parent-watch", daemon=True).start()
 
 
-def _worker_start(parent_pid, run):
-    """Initializer of the plot worker: ignore Ctrl-C, die with the parent, journal into `run`."""
+def _worker_start(parent_pid, run, formats=None):
+    """Initializer of the plot worker: ignore Ctrl-C, die with the parent, journal into `run`,
+    write the parent's figure formats."""
     import signal
 
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     _die_with_parent(parent_pid)
+    if formats is not None:
+        from .figures import set_formats
+
+        set_formats(formats)
     if run is not None:
         from .journal import activate
 
@@ -110,12 +115,13 @@ class PlotJobs:
                 import multiprocessing
                 from concurrent.futures import ProcessPoolExecutor
 
+                from .figures import formats
                 from .journal import active
 
                 run = active()
                 self._pool = ProcessPoolExecutor(
                     max_workers=n, mp_context=multiprocessing.get_context("spawn"), initializer=_worker_start,
-                    initargs=(os.getpid(), None if run is None else run[:2]),
+                    initargs=(os.getpid(), None if run is None else run[:2], formats()),
                 )
             except (OSError, ImportError, NotImplementedError, ValueError):
                 self._pool = None

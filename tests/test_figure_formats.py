@@ -1,0 +1,44 @@
+"""``--figures``: the chosen formats are written, no other; the report embeds them; a bad value is
+a one-line error (exit 2). Common practice: one rendering per format, so one format is cheaper."""
+
+from __future__ import annotations
+
+import io
+import os
+from contextlib import redirect_stderr, redirect_stdout
+
+import pytest
+
+from damper.cli import main
+
+from .conftest import ROOT
+
+DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
+
+
+def run(*argv):
+    out, err = io.StringIO(), io.StringIO()
+    with redirect_stdout(out), redirect_stderr(err):
+        code = main([str(a) for a in argv])
+    return code, out.getvalue(), err.getvalue()
+
+
+@pytest.mark.parametrize("formats,expected", [("svg", {".svg"}), ("png", {".png"}), ("svg,png", {".svg", ".png"})])
+def test_only_the_chosen_formats_are_written(tmp_path, formats, expected):
+    out = tmp_path / "run"
+    code, _, err = run("design", DEMO, "--out", out, "--no-robustness", "--figures", formats)
+    assert code == 0, err
+    written = {os.path.splitext(n)[1] for n in os.listdir(out / "plots")}
+    assert written == expected
+    html = (out / "report.html").read_text(encoding="utf-8")
+    kind = "svg+xml" if ".svg" in expected else "png"
+    assert html.count(f"data:image/{kind};base64") >= 3 * 7  # three design figures per condition
+    images = {os.path.splitext(n)[1] for _, _, names in os.walk(out) for n in names
+              if n.endswith((".png", ".svg", ".jpg", ".pdf"))}
+    assert images == expected  # the response figures too
+
+
+def test_a_bad_format_is_one_line(tmp_path):
+    code, _, err = run("design", DEMO, "--out", tmp_path / "r", "--figures", "jpg")
+    assert code == 2 and err.count("\n") == 1 and "--figures 'jpg'" in err
+    assert not (tmp_path / "r").exists()
