@@ -125,7 +125,9 @@ def run(args, argv) -> int:
     from ..verdict import EXIT_NOT_MET
 
     from ..errors import DamperError
+    from ..output.figures import use_option
 
+    use_option("png,svg")  # the report embeds the PNGs; the SVGs are for documents
     if any(os.path.realpath(args.out) == os.path.realpath(r) for r in (args.run_a, args.run_b)):
         raise DamperError(f"--out {args.out}: is one of the compared runs; give the comparison its own directory")
     sides = [_read_run(args.run_a, "A"), _read_run(args.run_b, "B")]
