@@ -25,6 +25,7 @@ COMMAND_MODULES = (
     "damper.commands.respond",
     "damper.commands.robust",
     "damper.commands.report",
+    "damper.commands.compare",
 )
 
 

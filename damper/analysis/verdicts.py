@@ -93,7 +93,7 @@ def design_misses(names, design) -> list:
     return [i for i in criteria_items("design", names, a.criteria, a.modes.stable) if i.condition in bad]
 
 
-def design_verdict(names, feasible, misses) -> Verdict:
+def design_verdict(names, feasible, misses, extra=()) -> Verdict:
     """The ``design`` part: every condition must have a gain meeting every requirement.
 
     Parameters
@@ -103,22 +103,36 @@ def design_verdict(names, feasible, misses) -> Verdict:
         Whether each condition has a feasible gain.
     misses : list of Item
         From :func:`design_misses`, batch by batch.
+    extra : sequence of Item
+        Requirements judged at the chosen gains but not steering the search (continuous
+        turbulence); a miss among them makes the part not met, with its own items.
     """
     feasible = [bool(f) for f in feasible]
     n, k = len(feasible), sum(feasible)
     bad = [nm for nm, f in zip(names, feasible) if not f]
+    extra = [i for i in extra if not i.met]
     text = (f"every condition ({n}) has a gain meeting every requirement" if not bad
             else f"{len(bad)} of {n} conditions have no gain meeting every requirement: {', '.join(bad[:8])}"
             + (" ..." if len(bad) > 8 else ""))
-    summary = Item("design", None, "all", not bad, Detail(value=k, lower=n, upper=None, slack=k - n, unit="conditions"), text)
-    return Verdict((summary, *misses))
+    if extra:
+        at = sorted({i.condition for i in extra if i.condition})
+        text += f"; at the chosen gains, {len(extra)} requirement(s) checked after the search not met ({', '.join(at[:8])})"
+    summary = Item("design", None, "all", not bad and not extra,
+                   Detail(value=k, lower=n, upper=None, slack=k - n, unit="conditions"), text)
+    return Verdict((summary, *misses, *extra))
 
 
-def assess_verdict(names, assessment, gain_text: str) -> Verdict:
-    """``damper assess``: every requirement at every condition, at the given gains (part ``design``)."""
-    if assessment.criteria is None:
+def assess_verdict(names, assessment, gain_text: str, extra=()) -> Verdict:
+    """``damper assess``: every requirement at every condition, at the given gains (part ``design``).
+
+    `extra` : items of further requirements judged at the same gains (e.g. continuous turbulence),
+    counted in the summary like the rest.
+    """
+    if assessment.criteria is None and not extra:
         return Verdict()
-    items = criteria_items("design", names, assessment.criteria, assessment.modes.stable)
+    items = [] if assessment.criteria is None else criteria_items("design", names, assessment.criteria,
+                                                                  assessment.modes.stable)
+    items += [i for i in extra if not i.met]
     bad = sorted({i.condition for i in items}, key=list(names).index)
     n = len(names)
     text = (f"every condition ({n}) meets every requirement at {gain_text}" if not bad

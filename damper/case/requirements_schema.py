@@ -64,6 +64,18 @@ REQUIREMENTS = Section(
         "damping_ratio": _band("short-period damping ratio", _number),
         "natural_frequency": _band("short-period natural frequency, rad/s", _rate),
         "cap": _band(f"control anticipation parameter, {KINDS['cap'].unit}", _number),
+        "turbulence_load_factor_rms": Section(
+            {"max": Number("Largest rms incremental load factor, g.", low=0.0)},
+            "In the case's continuous turbulence (needs a turbulence: section), with the damper at the chosen or "
+            "given gain: the rms incremental load factor at most max (docs/turbulence.md).",
+            default=None,
+        ),
+        "rate_limit_exceedances": Section(
+            {"max": Number("Largest expected number per second, 1/s.", low=0.0)},
+            "In the case's continuous turbulence (needs a turbulence: section and loop.actuator.rate_limit): the "
+            "expected surface-rate excursions beyond the rate limit per second, either sign (Rice), at most max.",
+            default=None,
+        ),
         "equivalent_time_delay": _band("equivalent time delay, s", _time),
         "gain_margin": _band("gain margin, dB (applies up and down)", _number),
         "phase_margin": _band("phase margin, deg", _number),

@@ -268,6 +268,7 @@ def _requirements_spec():
 
 
 from .responses_schema import RESPONSES  # noqa: E402 (needs the spec classes above)
+from .turbulence_schema import TURBULENCE  # noqa: E402
 
 CASE = Section(
     {
@@ -286,6 +287,7 @@ CASE = Section(
         "loop": LOOP,
         "requirements": _requirements_spec(),
         "responses": RESPONSES,
+        "turbulence": TURBULENCE,
         "analysis": ANALYSIS,
         "uncertainty": _uncertainty_spec(),
         "failures": _failures_spec(),

@@ -1,4 +1,4 @@
-"""``damper assess CASE --gain K``: measure the loop with a given gain at every condition."""
+"""``damper assess CASE (--gain K | --design RUN_DIR | --schedule FILE)``: measure the loop at given gains."""
 
 from __future__ import annotations
 
@@ -10,40 +10,55 @@ NAME = "assess"
 
 
 def register(sub) -> str:
-    a = sub.add_parser(NAME, help="measure the loop with a given gain at every condition")
+    from .gain_source import add_gain_options
+
+    a = sub.add_parser(NAME, help="measure the loop at every condition with a given gain, a design's chosen gains "
+                       "or a schedule's gains")
     a.add_argument("case", help="case file (YAML)")
-    a.add_argument("--gain", required=True, type=float, metavar="K", help="pitch-rate gain K in seconds (deg per deg/s)")
+    add_gain_options(a)
     a.add_argument("--json", action="store_true", help="print the results as JSON on standard output")
     add_quiet_option(a)
     return NAME
 
 
 def run(args, argv) -> int:
-    import math
-
     from ..analysis.assess import assess
     from ..analysis.schedule_points import design_points_case
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
-    from ..errors import DamperError
     from ..analysis.verdicts import assess_verdict
     from ..output.jsonout import assess_document, dumps, with_verdict
     from ..output.text import assess_table
+    from .gain_source import check_gain, resolve_gains
 
-    if not math.isfinite(args.gain):
-        raise DamperError(f"--gain = {args.gain}: must be a finite number of seconds")
+    check_gain(args.gain)
     case = load_case(args.case)
     warn_case(case)
     envelope = not case.conditions
     case = design_points_case(case)
+    gains = resolve_gains(case, args)
     with configure(args.quiet).stage("assess", len(case.conditions), "conditions"):
-        result = assess(case, args.gain)
-    verdict = assess_verdict(case.names, result, f"K = {args.gain:g} s")
-    doc = with_verdict(assess_document(case, result, command=" ".join(["damper", *argv])), verdict)
+        result = assess(case, gains.values)
+    doc = assess_document(case, result, command=" ".join(["damper", *argv]))
+    doc["gain_source"] = {"kind": gains.kind, "text": gains.text}
+    from ..analysis.turbulence_case import case_turbulence, check_turbulence, turbulence_items
+
+    study = case_turbulence(case, gains.values)
+    extra = ()
+    if study is not None:
+        from ..output.turbulence_out import add_turbulence
+
+        checks = check_turbulence(case, study.closed_loop)
+        add_turbulence(doc, study, checks)
+        extra = tuple(turbulence_items(case, checks))
+    verdict = assess_verdict(case.names, result, gains.text, extra=extra)
+    doc = with_verdict(doc, verdict)
+    for note in gains.notes:
+        print(f"damper: note: {note}", file=sys.stderr)
     if args.json:
         sys.stdout.write(dumps(doc))
     else:
-        print(f"{case.title}: loop with K = {args.gain:g} s")
+        print(f"{case.title}: loop with {gains.text}")
         if envelope:
             print(f"(no conditions in the case: evaluated at the {len(case.conditions)} envelope design points "
                   "that damper design starts its schedule from)")
@@ -51,6 +66,13 @@ def run(args, argv) -> int:
 
         print(echo_for(case))
         print(with_level_legend(assess_table(doc), case))
+        if study is not None:
+            from ..output.turbulence_out import turbulence_table
+
+            print(f"continuous turbulence (Dryden, vertical; covariance analysis, delay as "
+                  f"{study.closed_loop.delay_model}); rates: expected excursions per second beyond the limit, "
+                  "either sign (Rice)")
+            print(turbulence_table(doc))
         print("\n".join(verdict.lines()))
         print(CAUTION_SHORT)
     return verdict.exit_status()

@@ -174,12 +174,14 @@ def _design(args, case, out, command, jobs):
     n = len(case.conditions)
     slugs = plot_slugs(case.names)
     draw_all = n <= args.max_figures
-    entries, conds, worst, job_ids, misses = [], [], [], [], []
+    entries, conds, worst, job_ids, misses, turbulence_misses = [], [], [], [], [], []
     stage = current().stage("search", n, "conditions")
     for a, b in condition_batches(n):  # memory: one batch's sweep at a time (damper/analysis/batches.py)
         sub = sub_case(case, range(a, b))
         d = search(sub, settings)
-        entries += [dump_part(e) for e in condition_entries(sub, d)]  # text: about 8 kB per condition
+        batch = condition_entries(sub, d)
+        turbulence_misses += _add_turbulence(sub, d, batch)
+        entries += [dump_part(e) for e in batch]  # text: about 8 kB per condition
         conds += d.conditions
         misses += design_misses(sub.names, d)
         worst.append(np.asarray(d.chosen.criteria.worst_slack, dtype=float).reshape(-1))
@@ -199,7 +201,7 @@ def _design(args, case, out, command, jobs):
         "rule": f"per-condition figures for at most {args.max_figures} conditions: the infeasible ones first, then "
         "those with the least slack at the chosen gain (--max-figures)",
     }
-    verdict = design_verdict(case.names, [c.feasible for c in conds], misses)
+    verdict = design_verdict(case.names, [c.feasible for c in conds], misses, turbulence_misses)
     doc = with_verdict(design_document(case, None, command=command, entries=entries, figures=drawn), verdict)
     with part("design"):
         write_atomic(os.path.join(out, "design.json"), dumps(doc))
@@ -224,6 +226,23 @@ def _figure_conditions(conds, worst, limit) -> tuple:
         return (conds[i].feasible, -math.inf if w != w else w, i)
 
     return tuple(sorted(sorted(range(len(conds)), key=key)[:limit]))
+
+
+def _add_turbulence(case, design, entries):
+    """With a ``turbulence:`` section: the responses at the chosen gains into the design.json entries;
+    returns the turbulence requirements not met (verdict items of part ``design``)."""
+    import numpy as np
+
+    from ..analysis.turbulence_case import case_turbulence, check_turbulence, turbulence_items
+
+    study = case_turbulence(case, np.array([c.chosen_gain for c in design.conditions]))
+    if study is None:
+        return []
+    from ..output.turbulence_out import add_turbulence
+
+    checks = check_turbulence(case, study.closed_loop)
+    add_turbulence({"conditions": entries}, study, checks)
+    return list(turbulence_items(case, checks))
 
 
 def _analyses(args, case, design, out, command, jobs, written):

@@ -7,8 +7,6 @@ import sys
 from ..output.progress import add_quiet_option, configure, current
 
 NAME = "robust"
-#: Largest design.json / gain-schedule.json read (a 2,000-condition design.json is about 20 MB).
-MAX_JSON_BYTES = 200_000_000
 
 
 def register(sub) -> str:
@@ -54,41 +52,6 @@ def _check_args(args):
         raise DamperError(f"--workers = {args.workers}: must be between 1 and 64")
 
 
-def _read_design(path):
-    import json
-    import os
-
-    from ..errors import DamperError
-
-    from ..readfile import read_regular_file
-
-    file = os.path.join(path, "design.json") if os.path.isdir(path) else path
-    try:
-        return json.loads(read_regular_file(file, MAX_JSON_BYTES).decode("utf-8")), file
-    except FileNotFoundError:
-        raise DamperError(f"--design {path}: no design.json there (run `damper design CASE --out {path}` first)") from None
-    except (OSError, ValueError) as exc:  # NotARegularFile (a FIFO ...) is an OSError
-        raise DamperError(f"--design {path}: cannot read {file} ({exc})") from None
-
-
-def _read_schedule(path):
-    import json
-    import os
-
-    from ..errors import DamperError
-    from ..output.schedule_out import schedule_from_table
-
-    from ..readfile import read_regular_file
-
-    file = os.path.join(path, "gain-schedule.json") if os.path.isdir(path) else path
-    try:
-        doc = json.loads(read_regular_file(file, MAX_JSON_BYTES).decode("utf-8"))
-    except FileNotFoundError:
-        raise DamperError(f"--schedule {path}: no such file (a design run of a case with a schedule writes "
-                          "gain-schedule.json)") from None
-    except (OSError, ValueError) as exc:
-        raise DamperError(f"--schedule {path}: cannot read {file} ({exc})") from None
-    return schedule_from_table(doc, file)
 
 
 def run(args, argv) -> int:
@@ -100,7 +63,7 @@ def run(args, argv) -> int:
     import re
     import time
 
-    from ..analysis.robustness import gains_from_design, robustness, uncertainty_spec
+    from ..analysis.robustness import robustness, uncertainty_spec
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
     from ..output.files import write_atomic
@@ -110,6 +73,7 @@ def run(args, argv) -> int:
     from ..output.rundir import RunDirectory
     from ..output.report import refresh_report
     from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
+    from .gain_source import design_gains, read_design_run, read_schedule
 
     case = load_case(args.case)
     spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
@@ -118,15 +82,14 @@ def run(args, argv) -> int:
         from ..analysis.schedule import verification_points, verify
         from ..analysis.schedule_points import CheckedSchedule, schedule_study_case, study_description
 
-        sched = _read_schedule(args.schedule)
+        sched, _, _ = read_schedule(args.schedule)
         pts, _, confs = verification_points(case, sched)
         checked = CheckedSchedule(verify(case, sched, pts), confs)
         case, gains, _ = schedule_study_case(case, checked, spec.schedule_points)
         source = f"the schedule {args.schedule} at its {len(gains)} tightest verification points"
         where = study_description(len(gains), args.schedule)
     elif args.design is not None:
-        doc, _ = _read_design(args.design)
-        gains = gains_from_design(case, doc)
+        gains = design_gains(case, read_design_run(args.design, case).design, f"--design {args.design}")
         source = f"chosen gains of {args.design}"
     else:
         from ..analysis.schedule_points import design_points_case

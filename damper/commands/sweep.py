@@ -1,4 +1,5 @@
-"""``damper sweep CASE --condition NAME``: damping, frequency and margins against gain at one condition.
+"""``damper sweep CASE --condition NAME [--design RUN_DIR | --schedule FILE]``: damping, frequency and margins
+against gain at one condition (the designed or scheduled gain marked).
 
 Table on the terminal, ``--csv FILE``, ``--json`` (damper/output/sweep_out.py builds all
 three from one set of rows; no margin values where the closed loop is unstable)."""
@@ -24,6 +25,9 @@ def register(sub) -> str:
     p.add_argument("--force", action="store_true", help="replace an existing CSV file")
     p.add_argument("--json", action="store_true", help="print the sweep as JSON on standard output")
     add_quiet_option(p)
+    from .gain_source import add_gain_options
+
+    add_gain_options(p, required=False, gain=False)  # --design / --schedule: mark that condition's gain
     return NAME
 
 
@@ -64,15 +68,31 @@ def run(args, argv) -> int:
     if not lo < hi:
         raise DamperError(f"--gain-min ({lo:g}) must be below --gain-max ({hi:g})")
     gains = np.logspace(np.log10(lo), np.log10(hi), args.points)
+    source = None
+    if args.design is not None or args.schedule is not None:
+        from .gain_source import resolve_gains
+
+        source = resolve_gains(case, args)
+        gains = np.unique(np.append(gains, source.values[i]))  # the marked gain is a row of its own
     with configure(args.quiet).stage("sweep", len(gains), "gains"):
         rows = sweep_rows(evaluate_points(case, np.full(len(gains), i), gains))
+    if source is not None:
+        for r, k in zip(rows, gains):
+            r["marked"] = source.label if k == source.values[i] else ""
     if args.csv:
         write_atomic(args.csv, sweep_csv(rows))
     if args.json:
-        sys.stdout.write(dumps(sweep_document(case, args.condition, rows, command=" ".join(["damper", *argv]))))
+        doc = sweep_document(case, args.condition, rows, command=" ".join(["damper", *argv]))
+        if source is not None:  # which row is the designed or scheduled gain, and where it came from
+            doc["marked"] = {"gain_s": float(source.values[i]), "label": source.label, "source": source.text}
+        sys.stdout.write(dumps(doc))
         return 0
     print(f"{case.title}: gain sweep at {args.condition}")
     print(sweep_table(rows))
+    if source is not None:
+        print(f"gain of: the row at K = {source.values[i]:.4g} s is {source.label}, from {source.text}")
+        for note in source.notes:
+            print(f"note: {note}")
     if args.csv:
         print(f"wrote {args.csv}")
     print(CAUTION_SHORT)

@@ -112,6 +112,10 @@ def sweep_table(rows) -> str:
              fmt(m["phase_margin_deg"], ".1f", unbounded), fmt(m["delay_margin_s"], ".3f", unbounded),
              fmt(m["disk_margin"], ".2f"), "yes" if r["all_met"] else "no"]
         )
+    if rows and "marked" in rows[0]:  # damper sweep --design / --schedule
+        headers.append("gain\nof")
+        for line, r in zip(body, rows):
+            line.append(r["marked"])
     notes = ["* modal pick ambiguous. 'none': no such crossing (unbounded)."]
     if any(not r["stable"] for r in rows):
         notes.append(f"'-' in the margin columns of a row with stable NO: {NOTE_UNSTABLE}.")
@@ -120,10 +124,11 @@ def sweep_table(rows) -> str:
 
 def sweep_csv(rows) -> str:
     """The CSV text (empty cells: undefined, or no margin because the closed loop is unstable)."""
-    lines = [",".join(CSV_COLUMNS)]
+    columns = CSV_COLUMNS + (("marked",) if rows and "marked" in rows[0] else ())  # the designed/scheduled row
+    lines = [",".join(columns)]
     for r in rows:
         cells = []
-        for c in CSV_COLUMNS:
+        for c in columns:
             v = _cell(r, c)
             cells.append("" if v is None or (isinstance(v, float) and not math.isfinite(v)) else str(v))
         lines.append(",".join(cells))
