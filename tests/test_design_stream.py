@@ -36,10 +36,22 @@ def test_batches_cover_every_condition_once():
 
 
 def test_outputs_do_not_depend_on_the_batch_size(tmp_path, monkeypatch, capsys):
+    seen = []
+    real = batches.condition_batches
+
+    def spy(n, size=None):  # the batches the run really used (the size is read at call time)
+        out = real(n, size)
+        seen.append(len(out))
+        return out
+
+    monkeypatch.setattr(batches, "condition_batches", spy)
     monkeypatch.setattr(batches, "BATCH_CONDITIONS", 3)  # 7 conditions: batches of 3, 3 and 1
     assert main(["design", DEMO, "--out", str(tmp_path / "small"), "--no-plots", "--no-report"]) == 0
+    assert 3 in seen, seen
+    seen.clear()
     monkeypatch.setattr(batches, "BATCH_CONDITIONS", 1000)  # one batch
     assert main(["design", DEMO, "--out", str(tmp_path / "whole"), "--no-plots", "--no-report"]) == 0
+    assert seen and set(seen) == {1}, seen
     small, whole = _outputs(tmp_path / "small"), _outputs(tmp_path / "whole")
     assert len(small) == 9 and small.keys() == whole.keys()  # design.json, responses.json, 7 CSV files
     for name in small:

@@ -15,9 +15,10 @@ import dataclasses
 BATCH_CONDITIONS = 16
 
 
-def condition_batches(n: int, size: int = BATCH_CONDITIONS):
-    """``(start, stop)`` of consecutive batches of at most `size` of `n` conditions."""
-    size = max(1, int(size))
+def condition_batches(n: int, size: int | None = None):
+    """``(start, stop)`` of consecutive batches of at most `size` (default :data:`BATCH_CONDITIONS`,
+    read at call time) of `n` conditions."""
+    size = max(1, int(BATCH_CONDITIONS if size is None else size))
     return [(a, min(n, a + size)) for a in range(0, n, size)]
 
 
