@@ -268,7 +268,7 @@ def _nz_response(d, w):
 
 
 def test_oscillatory_frequency_and_saturation_through_design(tmp_path):
-    design, doc, text, _ = _design(tmp_path, CASE_B, "b")
+    design, doc, text, out = _design(tmp_path, CASE_B, "b")
     d = _derivs(CASE_B, 0)
     c = doc["conditions"][0]
     o = c["failures"]["oscillatory"]
@@ -290,6 +290,11 @@ def test_oscillatory_frequency_and_saturation_through_design(tmp_path):
     assert want > 0.05  # it does saturate (the check can fail)
     assert sat["time_at_authority_limit_s"] == pytest.approx(want, abs=5e-3)
     assert sat["time_at_authority_rate_limit_s"] == 0.0  # no rate limit of its own, no actuator
+    # responses.json reports the same response's time at the authority (issue: "responses report
+    # time_at_authority_limit_s"), against the same oracle
+    aug = json.loads((out / "responses.json").read_text())["conditions"][0]["responses"][0]["augmented"]
+    assert aug["time_at_authority_limit_s"] == pytest.approx(want, abs=5e-3)
+    assert aug["peak_damper_demand_rad"] == pytest.approx(gain * float(np.max(np.abs(q))), rel=2e-2)
     # the lower edge is then simulated without an authority: above the authority [derived]
     assert c["failures"]["authority_window_rad"][0] > 0.5 * DEG
     assert "failures (recognition time 20 s" in text and "saturates" in text

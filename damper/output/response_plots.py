@@ -221,6 +221,24 @@ def _measures(m, i) -> dict:
     }
 
 
+def _authority_measures(res, i) -> dict:
+    """The damper's authority in one augmented response (only when the case sets an authority, so the
+    documents of cases without one are unchanged): time at the authority and at its rate limit, s,
+    and the largest damper demand before its limits, rad."""
+    if res.authority is None:
+        return {}
+    m = res.augmented_measures
+
+    def at(x):
+        return None if x is None else num(np.asarray(x, dtype=float).reshape(-1)[i])
+
+    return {
+        "time_at_authority_limit_s": at(m.time_at_authority_limit),
+        "time_at_authority_rate_limit_s": at(m.time_at_authority_rate_limit),
+        "peak_damper_demand_rad": at(m.peak_damper_demand),
+    }
+
+
 def _input_json(inp, i) -> dict:
     def at(x):
         a = np.asarray(x, dtype=float).reshape(-1)
@@ -262,7 +280,7 @@ def response_document(case, result, command=None, files=None) -> dict:
                 {
                     "input": _input_json(res.input, i),
                     "bare": _measures(res.bare_measures, i),
-                    "augmented": _measures(res.augmented_measures, i),
+                    "augmented": _measures(res.augmented_measures, i) | _authority_measures(res, i),
                     "files": list((files or {}).get((i, j), [])),
                 }
             )
