@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import os
-import sys
 from dataclasses import dataclass
 
 from ..output.progress import add_quiet_option, configure, current
@@ -276,7 +275,7 @@ def _analyses(args, case, design, out, command, jobs, written):
     if design is not None and not args.no_responses:
         import numpy as np
 
-        from .respond import write_responses
+        from ..stages.responses import write_responses
 
         gains = np.array([c.chosen_gain for c in design.conditions])
         with part("responses"):
