@@ -189,6 +189,9 @@ def test_exit_status_terminal_json_and_report_agree(case, tmp_path):
     expected = {p: total.summary(p).met for p in total.parts}
     assert t_parts == expected and r_parts == expected
     assert judged.items() <= expected.items()
+    report = (out_dir / "report.html").read_text(encoding="utf-8")
+    empty = [m.start() for m in re.finditer(r"<tbody>\s*</tbody>", report)]
+    assert not empty, [report[max(0, k - 300):k] for k in empty]  # no table without a row (envelope cases too)
     _look_at_report(out_dir / "report.html", tmp_path, total.met)
 
 
