@@ -14,8 +14,9 @@ it). Angles are dimensionless, as in pint (radian = 1).
 from __future__ import annotations
 
 import math
-import re
 from fractions import Fraction
+
+from .unit_grammar import UnitSyntaxError, _tokens
 
 #: Base dimensions of the table, in the order of the exponent tuples.
 BASE = ("[length]", "[mass]", "[time]")
@@ -66,24 +67,8 @@ _ENTRIES = {
 #: name -> (factor, dims, angle, canonical)
 UNITS = {name: value for names, value in _ENTRIES.items() for name in names}
 
-_TOKEN = re.compile(r"\s*(?:(\*\*|\^|\*|/|\(|\))|([A-Za-z_][A-Za-z0-9_]*|%)|(\d+(?:\.\d+)?)|([+-]))")
-
-
 class NotInTable(Exception):
     """The expression uses a name (or a form) the table does not cover: ask pint."""
-
-
-def _tokens(text):
-    out, pos = [], 0
-    text = text.rstrip()
-    while pos < len(text):
-        m = _TOKEN.match(text, pos)
-        if m is None or m.end() == pos:
-            raise NotInTable(text)
-        op, name, number, sign = m.groups()
-        out.append(("op", op) if op else ("name", name) if name else ("num", number) if number else ("sign", sign))
-        pos = m.end()
-    return out
 
 
 class _Eval:
@@ -188,7 +173,10 @@ def evaluate(unit_part: str):
     NotInTable
         A name or form outside the table (the caller asks pint).
     """
-    tokens = _tokens(unit_part)
+    try:  # the grammar's own tokens (the expression was checked against it before)
+        tokens = _tokens(unit_part)
+    except UnitSyntaxError:
+        raise NotInTable(unit_part) from None
     if not tokens:
         return 1.0, (Fraction(0),) * len(BASE), ()
     ev = _Eval(tokens)
