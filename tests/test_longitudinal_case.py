@@ -326,7 +326,7 @@ def test_one_line_errors(tmp_path, what, edit, words):
 def test_perturbed_and_interpolated_airframes_stay_longitudinal(tmp_path):
     # the known bug: Derivatives(**fields) dropped the speed terms in the robustness sampling
     # and the schedule's interpolation; the airframe's type must survive both
-    from damper.analysis import schedule
+    from damper.analysis import schedule_conditions
     from damper.analysis.uncertainty import resolve_axes, sampled_loop, uncertainty_spec
     from damper.case.load import load_case
     from damper.model.longitudinal import LongitudinalDerivatives
@@ -352,7 +352,7 @@ def test_perturbed_and_interpolated_airframes_stay_longitudinal(tmp_path):
     assert float(loop.airframe.Z_u[0]) == pytest.approx(BASE["Z_u"] * mass_scale, rel=1e-12)
     two = write_case(tmp_path, BASE, name="two.yaml", extra="")
     case2 = load_case(two)
-    pts, *_ = schedule._conditions_points(case2, "dynamic_pressure")
+    pts, *_ = schedule_conditions._conditions_points(case2, "dynamic_pressure")
     assert isinstance(pts.derivatives, LongitudinalDerivatives)
 
 
