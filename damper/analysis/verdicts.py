@@ -42,7 +42,7 @@ def _miss_text(criterion, detail: Detail, stable: bool) -> str:
     if criterion.kind.needs_stability and not stable:
         return "closed loop unstable: no margin"
     if detail.value is None:
-        return "undefined"
+        return "undefined at this gain (no such mode, crossing or fit)"
     u = f" {detail.unit}" if detail.unit else ""
     if detail.lower is not None and detail.value < detail.lower:
         return f"{detail.value:.4g}{u} below {detail.lower:.4g}{u}"
@@ -68,11 +68,10 @@ def criteria_items(part: str, names, criteria_result, stable) -> list:
     met = np.asarray(criteria_result.met, bool).reshape(values.shape)
     stable = np.broadcast_to(np.asarray(stable, bool).reshape(-1), values.shape[1:])
     out = []
-    for i, name in enumerate(names):
-        for k, c in enumerate(criteria_result.criteria):
-            if not met[k, i]:
-                d = criterion_detail(c, values[k, i])
-                out.append(Item(part, name, c.name, False, d, _miss_text(c, d, bool(stable[i]))))
+    for k, i in sorted(np.argwhere(~met).tolist(), key=lambda ki: (ki[1], ki[0])):  # by condition, then criterion
+        c = criteria_result.criteria[k]
+        d = criterion_detail(c, values[k, i])
+        out.append(Item(part, names[i], c.name, False, d, _miss_text(c, d, bool(stable[i]))))
     return out
 
 
