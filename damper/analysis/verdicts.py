@@ -174,12 +174,12 @@ def robustness_verdict(result, required_fraction=None) -> Verdict:
         clean = c.passed_all == c.samples and c.corners_passed_all == c.corners and not misses
         if clean:
             continue
-        corner = f"; corners {c.corners_passed_all} of {c.corners}" if c.corners else ""
+        corner = f" and {c.corners_passed_all} of {c.corners} corners" if c.corners else ""
         items.append(Item("robustness", c.name, "all", False,
                           Detail(value=_finite(c.fraction_all), lower=1.0, upper=None,
                                  slack=_finite(c.fraction_all - 1.0), unit="fraction of samples"),
-                          f"{c.passed_all} of {c.samples} samples meet every requirement "
-                          f"({fraction_text(c.passed_all, c.samples)}){corner}"))
+                          f"{c.passed_all} of {c.samples} samples ({fraction_text(c.passed_all, c.samples)}){corner} "
+                          "meet every requirement"))
         for w in misses:
             crit = next(k for k in result.criteria if k.name == w.criterion)
             d = criterion_detail(crit, w.value)
