@@ -6,11 +6,11 @@ in :mod:`damper.analysis.uncertainty`, the statistics in :mod:`damper.analysis.s
 * **Monte Carlo**: ``samples`` vectors ``u`` generated shard by shard from the seed and the
   sample index alone, evaluated in blocks of shape (conditions, samples-in-block) with one
   :func:`damper.analysis.assess.assess_loop` call per block (about ``chunk`` loops each),
-  optionally on a thread pool (numpy releases the GIL in its linear algebra), a bounded
-  number of blocks in flight. Each block is reduced at once (pass counts, worst and
+  on a runner (:mod:`damper.analysis.runners`: this thread, threads, local processes or
+  the workers of a Dask cluster), a bounded number of blocks in flight. Each block is reduced at once (pass counts, worst and
   lowest-slack samples, histograms, the first samples for the plots) and the reductions
   are merged in sample order, so memory does not grow with the sample count and results
-  do not depend on the number of workers or on the block size.
+  do not depend on the runner, the number of workers or the block size.
 * **Corners**: all ``2^p`` corners of the active axes when ``p <= 12``, else a seeded random
   subset of distinct corners (4096).
 * **Worst-case refinement**: for the damping-ratio criterion and each margin criterion at
@@ -38,16 +38,14 @@ started are cancelled and only the few running ones finish (well under a second 
 
 from __future__ import annotations
 
-import collections
 import dataclasses
 import os
-from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass
 
 import numpy as np
 
 from ..requirements.criteria import Criterion, measure_values
 from .assess import assess_loop
+from .runners import Study, in_order, runner
 from .robustness_result import ConditionRobustness, RobustnessResult, WorstCase
 from .sample_stats import SLACK_EDGES, SampleSummary, average_ranks, clopper_pearson, spearman
 from .uncertainty import (
@@ -76,8 +74,9 @@ EXTRA_KEPT = 8
 #: the rank correlations, and never more than :data:`MAX_SHOWN` samples.
 SHOWN_PAIRS = 240_000
 MAX_SHOWN = 20_000
-#: Blocks in flight per worker thread.
-BLOCKS_PER_WORKER = 2
+#: Loops (conditions x (samples + corners)) from which several local workers are processes,
+#: not threads: below, starting the processes (about a second each) does not pay.
+PROCESS_MIN_LOOPS = 60_000
 
 
 def shown_limit(n_conditions: int) -> int:
@@ -109,15 +108,16 @@ def evaluate_points(case, axes: Axes, gains, cidx, u) -> dict:
     }
 
 
-def _evaluate_flat(case, axes, gains, cidx, u, chunk, pool=None):
-    """Evaluate flat points (cidx (M,), u (M, p)) in chunks; concatenate."""
+def _points_task(study, cidx, u):
+    """Task: :func:`evaluate_points` of flat points of `study`."""
+    return evaluate_points(study.case, study.axes, study.gains, cidx, u)
+
+
+def _evaluate_flat(run, cidx, u, chunk):
+    """Evaluate flat points (cidx (M,), u (M, p)) in chunks on `run`; concatenate."""
     m = len(cidx)
-    starts = list(range(0, m, chunk)) or [0]
-
-    def one(s):
-        return evaluate_points(case, axes, gains, cidx[s : s + chunk], u[s : s + chunk])
-
-    parts = list(pool.map(one, starts)) if pool is not None else [one(s) for s in starts]
+    items = [(cidx[s : s + chunk], u[s : s + chunk]) for s in (range(0, m, chunk) or [0])]
+    parts = list(in_order(run, _points_task, items))
     return {k: np.concatenate([p[k] for p in parts], axis=-1) for k in parts[0]}
 
 
@@ -130,45 +130,33 @@ def _blocks(n_conditions, total, chunk):
             yield s, min(per, end - s)
 
 
-def _in_order(fn, items, pool, window):
-    """``fn(*item)`` for every item, results in order; at most `window` submitted but not consumed."""
-    if pool is None:
-        for item in items:
-            yield fn(*item)
-        return
-    pending = collections.deque()
-    try:
-        for item in items:
-            pending.append(pool.submit(fn, *item))
-            if len(pending) >= window:
-                yield pending.popleft().result()
-        while pending:
-            yield pending.popleft().result()
-    finally:  # an interrupt or an error: what has not started never will
-        for f in pending:
-            f.cancel()
+def _block_task(study, start, count, offset, limit, keep, rows=None):
+    """Task: the :class:`SampleSummary` of one block of `study` at every condition.
 
-
-def _summarise(case, axes, gains, spec, points, total, *, offset=0, limit=0, pool=None, window=1,
-               progress=None, stage="samples") -> SampleSummary:
-    """Evaluate `total` points at every condition, block by block, each block reduced at once.
-
-    ``points(start, count)`` gives the block's normalised points (count, p); `offset` is
-    added to the indices (corners come after the samples); the first `limit` points are
-    kept as the subsample.
+    `rows` (count, p) are the block's normalised points; None: samples ``start ...
+    start + count - 1``, regenerated from the seed. `offset` is added to the indices
+    (corners come after the samples); the first `limit` points are the subsample.
     """
-    n = len(case.conditions)
-    cidx = np.arange(n)[:, None]
+    n = len(study.case.conditions)
+    u = sample_rows(study.axes, study.spec.seed, start, count) if rows is None else rows
+    res = evaluate_points(study.case, study.axes, study.gains, np.arange(n)[:, None], u[None, :, :])
+    return SampleSummary.of_block(offset + start, res, offset + limit, keep)
+
+
+def _summarise(run, total, *, rows=None, offset=0, limit=0, progress=None, stage="samples") -> SampleSummary:
+    """Evaluate `total` points at every condition on `run`, block by block, each block reduced at once.
+
+    `rows` (total, p): the points (corners); None: the Monte Carlo samples. Blocks are
+    merged in order, so the result does not depend on the runner.
+    """
+    spec = run.study.spec
     keep = spec.refine_starts + EXTRA_KEPT
-
-    def one(start, count):
-        res = evaluate_points(case, axes, gains, cidx, points(start, count)[None, :, :])
-        return SampleSummary.of_block(offset + start, res, offset + limit, keep)
-
+    items = ((s, k, offset, limit, keep, None if rows is None else rows[s : s + k])
+             for s, k in _blocks(len(run.study.case.conditions), total, spec.chunk))
     summary, done = None, 0
     if progress:
         progress(0, total, stage)
-    for part in _in_order(one, _blocks(n, total, spec.chunk), pool, window):
+    for part in in_order(run, _block_task, items):
         summary = part if summary is None else summary.merge(part)
         done += part.count
         if progress:
@@ -215,13 +203,14 @@ def _tracks(axes, spec, extremes, corners_u, targets):
     return tracks
 
 
-def _refine(case, axes, gains, spec, tracks, chunk, pool, progress):
+def _refine(run, tracks, progress):
     """Compass search for the worst slack of each (condition, target criterion) from `tracks`.
 
     Returns dict (i, c) -> (u, slack, value, start_slack, evaluations), only where a
     search ran.
     """
-    active = axes.active
+    spec = run.study.spec
+    active = run.study.axes.active
     out = {}
     if not tracks or len(active) == 0:
         return out
@@ -252,7 +241,7 @@ def _refine(case, axes, gains, spec, tracks, chunk, pool, progress):
             break
         track = idx[tt]
         pts = cand[tt, jj]
-        res = _evaluate_flat(case, axes, gains, t_i[track], pts, chunk, pool)
+        res = _evaluate_flat(run, t_i[track], pts, spec.chunk)
         np.add.at(evals, track, 1)
         s_all = res["slacks"][t_c[track], np.arange(track.size)]
         v_all = res["values"][t_c[track], np.arange(track.size)]
@@ -295,7 +284,17 @@ def _workers(workers):
     return max(1, int(workers))
 
 
-def robustness(case, gains, spec: UncertaintySpec | None = None, *, progress=None, workers=None, refine=True) -> RobustnessResult:
+def _runner(study, workers, processes, cluster):
+    """Dask with `cluster`; else processes when `processes` (None: when the study has at least
+    :data:`PROCESS_MIN_LOOPS` loops), threads otherwise, or this thread for one worker."""
+    spec, n = study.spec, len(study.case.conditions)
+    if processes is None:
+        processes = n * (spec.samples + len(corner_points(study.axes, spec)[0])) >= PROCESS_MIN_LOOPS
+    return runner(study, _workers(workers), processes=processes, cluster=cluster)
+
+
+def robustness(case, gains, spec: UncertaintySpec | None = None, *, progress=None, workers=None, refine=True,
+               processes=None, cluster=None) -> RobustnessResult:
     """Monte Carlo, corners and worst-case search of `case` with `gains`.
 
     Parameters
@@ -309,9 +308,15 @@ def robustness(case, gains, spec: UncertaintySpec | None = None, *, progress=Non
         ``progress(done, total, stage)`` after each block (stage: ``"samples"``,
         ``"corners"``, ``"worst-case search"``).
     workers : int, optional
-        Threads evaluating blocks (default: up to 2). Results do not depend on it.
+        Local workers evaluating blocks (default: up to 2). Results do not depend on it.
     refine : bool
         Run the worst-case search.
+    processes : bool, optional
+        Several workers are processes (True) or threads (False); default: processes when the
+        study has at least :data:`PROCESS_MIN_LOOPS` loops (below, starting them does not pay).
+    cluster : str or distributed.Client, optional
+        Evaluate the blocks on the workers of this Dask scheduler instead (`workers` and
+        `processes` are then ignored). The result is the same (docs/cluster.md).
     """
     spec = spec or uncertainty_spec(case)
     n = len(case.conditions)
@@ -319,33 +324,28 @@ def robustness(case, gains, spec: UncertaintySpec | None = None, *, progress=Non
     g = np.full(n, float(g)) if g.ndim == 0 else g.reshape(n)
     axes = resolve_axes(case, spec, g)
     crit = tuple(case.requirements.criteria)
-    n_workers = _workers(workers)
-    pool = ThreadPoolExecutor(n_workers) if n_workers > 1 else None
-    common = dict(pool=pool, window=BLOCKS_PER_WORKER * n_workers, progress=progress)
+    nominal = evaluate_points(case, axes, g, np.arange(n), None)
+    run = _runner(Study(case, axes, g, spec), workers, processes, cluster)
     finished = False
     try:
-        nominal = evaluate_points(case, axes, g, np.arange(n), None)
-        samples = _summarise(case, axes, g, spec, lambda s, k: sample_rows(axes, spec.seed, s, k), spec.samples,
-                             limit=min(spec.samples, shown_limit(n)), stage="samples", **common)
+        samples = _summarise(run, spec.samples, limit=min(spec.samples, shown_limit(n)), stage="samples",
+                             progress=progress)
         corners_u, complete = corner_points(axes, spec)
         corners = None
         if len(corners_u):
-            corners = _summarise(case, axes, g, spec, lambda s, k: corners_u[s : s + k], len(corners_u),
-                                 offset=spec.samples, limit=min(len(corners_u), shown_limit(n)), stage="corners",
-                                 **common)
+            corners = _summarise(run, len(corners_u), rows=corners_u, offset=spec.samples,
+                                 limit=min(len(corners_u), shown_limit(n)), stage="corners", progress=progress)
         extremes = samples.extremes if corners is None else samples.extremes.merge(corners.extremes)
         evaluations = n * (1 + spec.samples + len(corners_u))
         refined = {}
         if refine and len(axes.names):
             targets = [k for k, c in enumerate(crit) if c.name in REFINED_CRITERIA]
-            tracks = _tracks(axes, spec, extremes, corners_u, targets)
-            refined = _refine(case, axes, g, spec, tracks, spec.chunk, pool, progress)
+            refined = _refine(run, _tracks(axes, spec, extremes, corners_u, targets), progress)
             evaluations += sum(r[4] for r in refined.values())
-        worst = _worst_cases(case, axes, g, spec, crit, nominal, extremes, corners_u, refined)
         finished = True
-    finally:
-        if pool is not None:  # after an interrupt: cancel what is queued, do not wait
-            pool.shutdown(wait=finished, cancel_futures=not finished)
+    finally:  # after an error or an interrupt: cancel what is queued, do not wait
+        run.close(finished)
+    worst = _worst_cases(case, axes, g, spec, crit, nominal, extremes, corners_u, refined)
     u_shown = sample_rows(axes, spec.seed, 0, samples.shown)
     conditions = tuple(_condition(case, axes, g, spec, crit, i, nominal, samples, corners, worst[i], u_shown)
                        for i in range(n))
