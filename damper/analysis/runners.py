@@ -179,15 +179,45 @@ def connect(address: str):
                           "pip install 'damper[cluster]'") from None
     try:
         return Client(address, set_as_default=False)
-    except (OSError, TimeoutError, ValueError) as exc:
-        raise DamperError(f"--cluster {address}: cannot reach a Dask scheduler there "
-                          f"({type(exc).__name__}: {str(exc).splitlines()[0] if str(exc) else 'no answer'})") from None
+    except Exception as exc:  # noqa: BLE001 - unreachable, refused, or something else answers there
+        why = f"{type(exc).__name__}: {str(exc).splitlines()[0] if str(exc) else 'no answer'}"
+    _forget_failed_client()
+    raise DamperError(f"--cluster {address}: cannot reach a Dask scheduler there ({why})")
+
+
+def _forget_failed_client() -> None:
+    """Collect the half-made client of a failed connection now, quietly (its ``__del__`` would
+    otherwise print a traceback when the interpreter exits)."""
+    import gc
+    import sys
+
+    hook = sys.unraisablehook
+    sys.unraisablehook = lambda unraisable: None
+    try:
+        gc.collect()
+    finally:
+        sys.unraisablehook = hook
 
 
 def check_cluster(address) -> None:
     """Fail early (DamperError) when `address` is given and no scheduler answers there."""
     if address is not None:
         connect(address).close()
+
+
+class cluster_client:
+    """``with cluster_client(address) as client``: a connected client (None without an address), closed at the end."""
+
+    def __init__(self, address):
+        self.client = None if address is None else connect(address)
+
+    def __enter__(self):
+        return self.client
+
+    def __exit__(self, *exc):
+        if self.client is not None:
+            self.client.close()
+        return False
 
 
 class Dask(Inline):
@@ -251,5 +281,5 @@ def in_order(run, fn, items):
             f.cancel()
 
 
-__all__ = ["Dask", "Inline", "Processes", "Study", "TASKS_PER_WORKER", "Threads", "check_cluster", "connect",
+__all__ = ["Dask", "Inline", "Processes", "Study", "TASKS_PER_WORKER", "Threads", "check_cluster", "cluster_client", "connect",
            "in_order", "runner"]

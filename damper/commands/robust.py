@@ -26,7 +26,12 @@ def register(sub) -> str:
                    "tightest verification points (uncertainty.schedule_points) at the scheduled gain")
     p.add_argument("--samples", type=int, metavar="N", help="Monte Carlo samples (default: the case's, else 2000)")
     p.add_argument("--seed", type=int, metavar="S", help="random seed (default: the case's, else 1)")
-    p.add_argument("--workers", type=int, metavar="W", help="threads evaluating chunks (default: up to 2)")
+    p.add_argument("--workers", type=int, metavar="W",
+                   help="local processes evaluating the blocks of samples (default: up to 2, as processes when the "
+                   "study is large enough that starting them pays, else threads); the result does not depend on it")
+    p.add_argument("--cluster", metavar="ADDRESS",
+                   help="run the study on the workers of a Dask scheduler at ADDRESS (e.g. tcp://10.0.0.5:8786; "
+                   "needs pip install 'damper[cluster]'); same result as the local run (docs/cluster.md)")
     p.add_argument("--out", metavar="DIR", help="run directory to create (default: robust-<case name>)")
     p.add_argument("--force", action="store_true",
                    help="replace the robustness files of an earlier damper run in DIR (its other files are kept)")
@@ -50,6 +55,8 @@ def _check_args(args):
         raise DamperError(f"--seed = {args.seed}: must not be negative")
     if args.workers is not None and not 1 <= args.workers <= 64:
         raise DamperError(f"--workers = {args.workers}: must be between 1 and 64")
+    if args.cluster is not None and args.workers is not None:
+        raise DamperError("--workers and --cluster: give one (the cluster's workers are set where they are started)")
 
 
 
@@ -61,23 +68,42 @@ def run(args, argv) -> int:
     use_option(args.figures)  # before anything is drawn (the plot worker inherits it)
     import os
     import re
-    import time
 
-    from ..analysis.robustness import robustness, uncertainty_spec
+    from ..analysis.robustness import uncertainty_spec
+    from ..analysis.runners import cluster_client
     from ..case import load_case
-    from ..cli import CAUTION_SHORT, warn_case
-    from ..output.files import write_atomic
-    from ..output.journal import part
-    from ..analysis.verdicts import robustness_verdict
-    from ..output.jsonout import dumps, with_verdict
-    from ..output.rundir import RunDirectory
-    from ..output.report import refresh_report
-    from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
-    from .gain_source import design_gains, read_design_run, read_schedule
+    from ..cli import CAUTION_SHORT
+    from ..output.robustness_out import robustness_table
 
     case = load_case(args.case)
     spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
-    where = None
+    case, gains, source, where = _study(args, case, spec)
+    stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
+    command = " ".join(["damper", *argv])
+    with cluster_client(args.cluster) as cluster:  # before the run directory: an unreachable cluster writes nothing
+        result, elapsed, doc, verdict, note = _write_run(args, case, gains, spec, command, where,
+                                                         args.out or f"robust-{stem}", cluster)
+    print(f"{case.title}: robustness with {source}")
+    print(
+        f"{spec.samples} samples (seed {spec.seed}), {len(result.corners_u)} corners"
+        f"{'' if result.corners_complete else ' (random subset)'}, worst-case search; "
+        f"{result.evaluations} loops in {elapsed:.1f} s"
+    )
+    print(robustness_table(doc))
+    bad = [(c["name"], c["diagnostics"]["equivalent_fits_not_converged"]) for c in doc["conditions"]
+           if c["diagnostics"]["equivalent_fits_not_converged"]]
+    if bad:
+        print("note: equivalent-system fit did not converge for " + ", ".join(f"{n} ({k} samples)" for n, k in bad))
+    print(note)
+    print("\n".join(verdict.lines()))
+    print(CAUTION_SHORT)
+    return verdict.exit_status()
+
+
+def _study(args, case, spec):
+    """The studied case and gains from --gain, --design or --schedule: (case, gains, source text, where or None)."""
+    from .gain_source import design_gains, read_design_run, read_schedule
+
     if args.schedule is not None:
         from ..analysis.schedule import verification_points, verify
         from ..analysis.schedule_points import CheckedSchedule, schedule_study_case, study_description
@@ -87,29 +113,46 @@ def run(args, argv) -> int:
         checked = CheckedSchedule(verify(case, sched, pts), confs)
         case, gains, _ = schedule_study_case(case, checked, spec.schedule_points)
         source = f"the schedule {args.schedule} at its {len(gains)} tightest verification points"
-        where = study_description(len(gains), args.schedule)
-    elif args.design is not None:
+        return case, gains, source, study_description(len(gains), args.schedule)
+    if args.design is not None:
         gains = design_gains(case, read_design_run(args.design, case).design, f"--design {args.design}")
-        source = f"chosen gains of {args.design}"
-    else:
-        from ..analysis.schedule_points import design_points_case
+        return case, gains, f"chosen gains of {args.design}", None
+    from ..analysis.schedule_points import design_points_case
 
-        gains = args.gain
-        source = f"K = {args.gain:g} s at every condition"
-        if not case.conditions:  # an envelope case: its design points (as damper assess)
-            case = design_points_case(case)
-            source = f"K = {args.gain:g} s at the {len(case.conditions)} envelope design points"
-    stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
-    command = " ".join(["damper", *argv])
-    with RunDirectory(args.out or f"robust-{stem}", command, case.sha256, mode="add", parts=("robustness",),
-                      force=args.force) as run:
+    source = f"K = {args.gain:g} s at every condition"
+    if not case.conditions:  # an envelope case: its design points (as damper assess)
+        case = design_points_case(case)
+        source = f"K = {args.gain:g} s at the {len(case.conditions)} envelope design points"
+    return case, args.gain, source, None
+
+
+def _write_run(args, case, gains, spec, command, where, out, cluster):
+    """Run the study and write robustness.json (and its plots) in the run directory `out`.
+
+    Returns (result, elapsed wall time in s, the document, the verdict, the line saying what was written).
+    """
+    import os
+    import time
+
+    from ..analysis.robustness import robustness
+    from ..analysis.verdicts import robustness_verdict
+    from ..cli import warn_case
+    from ..output.files import write_atomic
+    from ..output.journal import part
+    from ..output.jsonout import dumps, with_verdict
+    from ..output.report import refresh_report
+    from ..output.robustness_out import robustness_document, robustness_plots
+    from ..output.rundir import RunDirectory
+
+    with RunDirectory(out, command, case.sha256, mode="add", parts=("robustness",), force=args.force) as run:
         out = run.root
         warn_case(case)
         if not spec.parameters and spec.cg_shift is None:
             print("damper: warning: the case has no uncertainty: section (or it is empty); every sample is the nominal",
                   file=sys.stderr)
         start = time.perf_counter()
-        result = robustness(case, gains, spec, progress=configure(args.quiet), workers=args.workers)
+        result = robustness(case, gains, spec, progress=configure(args.quiet), workers=args.workers,
+                            processes=True if args.workers else None, cluster=cluster)
         elapsed = time.perf_counter() - start
         files = ["robustness.json"]
         with part("robustness"):
@@ -123,19 +166,5 @@ def run(args, argv) -> int:
             write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
         rebuilt = refresh_report(run)
         run.finish()
-    print(f"{case.title}: robustness with {source}")
-    print(
-        f"{spec.samples} samples (seed {spec.seed}), {len(result.corners_u)} corners"
-        f"{'' if result.corners_complete else ' (random subset)'}, worst-case search; "
-        f"{result.evaluations} loops in {elapsed:.1f} s"
-    )
-    print(robustness_table(doc))
-    bad = [(c["name"], c["diagnostics"]["equivalent_fits_not_converged"]) for c in doc["conditions"]
-           if c["diagnostics"]["equivalent_fits_not_converged"]]
-    if bad:
-        print("note: equivalent-system fit did not converge for " + ", ".join(f"{n} ({k} samples)" for n, k in bad))
     written = "robustness.json" + (f" and {len(plot_paths)} plot files in plots/" if plot_paths else "")
-    print(f"wrote {written} to {out}" + ("; rebuilt report.html" if rebuilt else ""))
-    print("\n".join(verdict.lines()))
-    print(CAUTION_SHORT)
-    return verdict.exit_status()
+    return result, elapsed, doc, verdict, f"wrote {written} to {out}" + ("; rebuilt report.html" if rebuilt else "")
