@@ -36,6 +36,9 @@ def register(sub) -> str:
                    "when the case has no more, else the infeasible ones and those with the least slack")
     p.add_argument("--no-responses", action="store_true", help="skip the time responses at the chosen gains")
     p.add_argument("--no-robustness", action="store_true", help="skip the robustness study of the case's uncertainty section")
+    p.add_argument("--cluster", metavar="ADDRESS",
+                   help="run the robustness study on the workers of a Dask scheduler at ADDRESS (needs "
+                   "pip install 'damper[cluster]'); same result as the local run (docs/cluster.md)")
     p.add_argument("--no-failures", action="store_true", help="skip the failure study of the case's failures section")
     p.add_argument("--no-report", action="store_true", help="skip the HTML report (rebuild it later with 'damper report DIR')")
     add_quiet_option(p)
@@ -76,6 +79,9 @@ def run(args, argv) -> int:
     from ..output.rundir import RunDirectory
 
     case = load_case(args.case)
+    from ..analysis.runners import check_cluster
+
+    check_cluster(args.cluster)  # an unreachable cluster is an error before any output
     configure(args.quiet)
     command = " ".join(["damper", *argv])
     with RunDirectory(args.out, command, case.sha256, mode="new", force=args.force) as run:
@@ -298,7 +304,7 @@ def _analyses(args, case, design, out, command, jobs, written):
             where = study_description(len(gains))
         else:
             gains = np.array([c.chosen_gain for c in design.conditions])
-        rob = robustness(case, gains, spec, progress=current())
+        rob = robustness(case, gains, spec, progress=current(), cluster=args.cluster)
         if not args.no_plots:
             from ..output.robustness_out import robustness_plot_jobs
 
