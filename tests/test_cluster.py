@@ -146,3 +146,20 @@ def test_workers_and_cluster_together_are_refused(small, tmp_path):
     code, _, err = _robust([small[0], "--gain", "0.25", "--workers", "2", "--cluster", "tcp://127.0.0.1:1",
                             "--out", str(tmp_path / "r")])
     assert code == 2 and err.startswith("damper: error: --workers and --cluster")
+
+
+def test_a_dead_worker_process_is_one_line_not_a_traceback():
+    from concurrent.futures import Future
+    from concurrent.futures.process import BrokenProcessPool
+
+    from damper.analysis.runners import _process_failure, _Translated
+    from damper.errors import DamperError
+
+    broken = Future()
+    broken.set_exception(BrokenProcessPool("A process in the process pool was terminated abruptly"))
+    with pytest.raises(DamperError, match="ended abruptly"):
+        _Translated(broken, _process_failure).result()
+    failed = Future()
+    failed.set_exception(ZeroDivisionError("a bug"))  # a bug in a task stays a bug (exit 1 with its name)
+    with pytest.raises(ZeroDivisionError):
+        _Translated(failed, _process_failure).result()

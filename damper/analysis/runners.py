@@ -48,6 +48,44 @@ class Study:
     spec: object
 
 
+class _Translated:
+    """A future whose failures of the machinery (not of the analysis) become one-line errors."""
+
+    def __init__(self, future, translate):
+        self._future = future
+        self._translate = translate
+
+    def result(self):
+        try:
+            return self._future.result()
+        except Exception as exc:  # noqa: BLE001 - translated, or raised as it is
+            message = self._translate(exc)
+            if message is None:
+                raise
+        from ..errors import DamperError
+
+        raise DamperError(message)
+
+    def cancel(self):
+        return self._future.cancel()
+
+
+def _process_failure(exc):
+    from concurrent.futures.process import BrokenProcessPool
+
+    if isinstance(exc, BrokenProcessPool):
+        return ("a worker process of the robustness study ended abruptly (killed, or out of memory?); "
+                "rerun with fewer --workers or --workers 1")
+    return None
+
+
+def _dask_failure(exc):
+    if isinstance(exc, ImportError):
+        return (f"a Dask worker cannot run damper ({type(exc).__name__}: {exc}); install the same damper "
+                "version on every worker machine (docs/cluster.md)")
+    return None
+
+
 class _Done:
     """A finished result with the interface of a future."""
 
@@ -138,7 +176,7 @@ class Processes(Inline):
                                          initializer=_process_start, initargs=(os.getpid(), study))
 
     def submit(self, fn, *args):
-        return self._pool.submit(_in_process, fn, *args)
+        return _Translated(self._pool.submit(_in_process, fn, *args), _process_failure)
 
     def close(self, finished: bool) -> None:
         """Wait for the workers to exit when `finished`; else end them at once (an error or an interrupt)."""
@@ -239,7 +277,7 @@ class Dask(Inline):
         self._futures.append(future)
         while self._futures and self._futures[0].done():
             self._futures.popleft()
-        return future
+        return _Translated(future, _dask_failure)
 
     def close(self, finished: bool) -> None:
         """Cancel what has not finished (after an error or an interrupt), release the study, disconnect."""
