@@ -75,7 +75,8 @@ def _process_failure(exc):
 
     if isinstance(exc, BrokenProcessPool):
         return ("a worker process of the robustness study ended abruptly (killed, or out of memory?); "
-                "rerun with fewer --workers or --workers 1")
+                "rerun with fewer --workers or --workers 1 (a script calling damper keeps its own work under "
+                "if __name__ == '__main__')")
     return None
 
 
