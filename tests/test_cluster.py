@@ -88,6 +88,20 @@ def test_cluster_run_is_byte_identical_to_the_local_run(small, cluster):
     assert "--cluster" in doc["provenance"]["command"]  # the only difference is where it ran
 
 
+def test_design_runs_its_robustness_stage_on_the_cluster(small, cluster):
+    case, tmp, _ = small
+    docs = []
+    for name, extra in ((f"design-local-{len(cluster.workers)}", []),
+                        (f"design-dask-{len(cluster.workers)}", ["--cluster", cluster.scheduler_address])):
+        out = tmp / name
+        with redirect_stdout(io.StringIO()), redirect_stderr(io.StringIO()):
+            code = main(["design", case, "--no-plots", "--no-report", "--no-responses", "--quiet", "--out", str(out),
+                         *extra])
+        assert code in (0, 3)
+        docs.append(_without_command(out / "robustness.json"))
+    assert docs[0] == docs[1]
+
+
 def test_two_local_processes_give_the_one_process_result(small):
     case, tmp, reference = small
     out = tmp / "processes-2"
