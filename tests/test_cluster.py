@@ -86,6 +86,7 @@ def test_cluster_run_is_byte_identical_to_the_local_run(small, cluster):
     assert _without_command(out / "robustness.json") == reference
     doc = json.loads((out / "robustness.json").read_text(encoding="utf-8"))
     assert "--cluster" in doc["provenance"]["command"]  # the only difference is where it ran
+    assert f"on the Dask cluster at {cluster.scheduler_address}" in stdout
 
 
 def test_design_runs_its_robustness_stage_on_the_cluster(small, cluster):

@@ -87,7 +87,7 @@ def run(args, argv) -> int:
     print(
         f"{spec.samples} samples (seed {spec.seed}), {len(result.corners_u)} corners"
         f"{'' if result.corners_complete else ' (random subset)'}, worst-case search; "
-        f"{result.evaluations} loops in {elapsed:.1f} s"
+        f"{result.evaluations} loops in {elapsed:.1f} s" + (f" on the Dask cluster at {args.cluster}" if args.cluster else "")
     )
     print(robustness_table(doc))
     bad = [(c["name"], c["diagnostics"]["equivalent_fits_not_converged"]) for c in doc["conditions"]
