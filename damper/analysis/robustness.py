@@ -7,8 +7,9 @@ in :mod:`damper.analysis.uncertainty`, the statistics in :mod:`damper.analysis.s
   sample index alone, evaluated in blocks of shape (conditions, samples-in-block) with one
   :func:`damper.analysis.assess.assess_loop` call per block (about ``chunk`` loops each),
   on a runner (:mod:`damper.analysis.runners`: this thread, threads, local processes or
-  the workers of a Dask cluster), a bounded number of blocks in flight. Each block is reduced at once (pass counts, worst and
-  lowest-slack samples, histograms, the first samples for the plots) and the reductions
+  the workers of a Dask cluster; docs/cluster.md), a bounded number of blocks in flight.
+  Each block is reduced at once (pass counts, worst and lowest-slack samples,
+  histograms, the first samples for the plots) and the reductions
   are merged in sample order, so memory does not grow with the sample count and results
   do not depend on the runner, the number of workers or the block size.
 * **Corners**: all ``2^p`` corners of the active axes when ``p <= 12``, else a seeded random
@@ -33,7 +34,8 @@ Zero uncertainty gives exactly the nominal answer: every transformation is the i
 at ``u = 0`` bit for bit (``nominal + 0``, ratios ``x / x = 1``).
 
 An interrupt (Ctrl-C, SIGTERM) reaches the waiting main thread at once: the blocks not yet
-started are cancelled and only the few running ones finish (well under a second each).
+started are cancelled, worker threads finish their running block (well under a second)
+and worker processes are ended at once.
 """
 
 from __future__ import annotations
