@@ -108,6 +108,59 @@ def _final_point(log_lo, log_hi, f_lo, f_hi, level):
     return np.exp(log_lo + t * (log_hi - log_lo))
 
 
+#: Points evaluated per system and call during refinement (up to): a bisection tree of depth d
+#: costs one call of ``2**d - 1`` frequencies instead of d calls of one, and walks to the very
+#: midpoints the one-at-a-time bisection would have chosen.
+TREE_POINTS = 256
+
+
+def _tree_depth(n_sys: int) -> int:
+    """Bisection steps taken per call of the response: deep for few systems, 1 for many."""
+    per_system = max(1, TREE_POINTS // max(1, n_sys))
+    return int(np.clip(np.floor(np.log2(per_system + 1)), 1, 8))
+
+
+def _tree_midpoints(a, b, depth):
+    """Every midpoint a ``depth``-step bisection of ``[a, b]`` can visit, heap order, (N, 2**depth - 1)."""
+    lo, hi = a[:, None], b[:, None]
+    levels = []
+    for _ in range(depth):
+        mid = 0.5 * (lo + hi)
+        levels.append(mid)
+        lo = np.stack([lo, mid], axis=-1).reshape(lo.shape[0], -1)
+        hi = np.stack([mid, hi], axis=-1).reshape(hi.shape[0], -1)
+    return np.concatenate(levels, axis=1)
+
+
+def _bisect(call, valid, safe_w, bracket, level, value):
+    """``BISECTION_ITERATIONS`` bisection steps in log-frequency, several per response call.
+
+    ``bracket = (a, b, fa, fb)``: log-frequency ends (ln rad/s) and the measure at them, shape
+    (N,). ``value(h, fa, fb, level)`` turns the response ``h`` at a midpoint into the measure
+    there and whether the crossing lies above the midpoint. The midpoints, and so the result,
+    are those of one step at a time: each is ``0.5 * (a + b)`` of the bracket it halves, and
+    the response of a system does not depend on the other frequencies in the call.
+    """
+    a, b, fa, fb = bracket
+    rows = np.arange(a.shape[0])
+    depth = _tree_depth(a.shape[0])
+    done = 0
+    while done < BISECTION_ITERATIONS:
+        d = min(depth, BISECTION_ITERATIONS - done)
+        mids = _tree_midpoints(a, b, d)
+        h = call(np.where(valid[:, None], np.exp(mids), safe_w[:, None]))
+        pos = np.zeros(a.shape[0], dtype=int)
+        for step in range(d):
+            node = (1 << step) - 1 + pos
+            m = mids[rows, node]
+            fm, right = value(h[rows, node], fa, fb, level)
+            a, fa = np.where(right, m, a), np.where(right, fm, fa)
+            b, fb = np.where(right, b, m), np.where(right, fb, fm)
+            pos = 2 * pos + right
+        done += d
+    return a, b, fa, fb
+
+
 def attitude_bandwidth(
     response: Callable[[np.ndarray], np.ndarray], w_grid
 ) -> AttitudeBandwidth:
@@ -167,17 +220,19 @@ def attitude_bandwidth(
     rows = np.arange(n_sys)
     safe_w = w_rows[:, 0]  # harmless frequency for rows with nothing to refine
 
+    def phase_value(h, fa, fb, level):
+        pm = _nearest_branch(np.angle(h), 0.5 * (fa + fb))
+        return pm, pm > level
+
+    def gain_value(h, fa, fb, level):
+        gm = 20.0 * np.log10(np.abs(h))
+        return gm, gm >= level
+
     def refine_phase(level):
         valid, lo = _first_down_crossing(phase, level)
         a, b = log_w[rows, lo].copy(), log_w[rows, lo + 1].copy()
         pa, pb = phase[rows, lo].copy(), phase[rows, lo + 1].copy()
-        for _ in range(BISECTION_ITERATIONS):
-            m = 0.5 * (a + b)
-            raw = np.angle(call(np.where(valid, np.exp(m), safe_w)[:, None]))[:, 0]
-            pm = _nearest_branch(raw, 0.5 * (pa + pb))
-            above = pm > level
-            a, pa = np.where(above, m, a), np.where(above, pm, pa)
-            b, pb = np.where(above, b, m), np.where(above, pb, pm)
+        a, b, pa, pb = _bisect(call, valid, safe_w, (a, b, pa, pb), level, phase_value)
         return np.where(valid, _final_point(a, b, pa, pb, level), np.nan)
 
     w180 = refine_phase(PHASE_CROSSOVER)
@@ -196,12 +251,7 @@ def attitude_bandwidth(
     b = np.minimum(log_w[rows, hi_idx], np.log(w180_safe))
     ga = gain_db[rows, lo].copy()
     gb = np.where(log_w[rows, hi_idx] < np.log(w180_safe), gain_db[rows, hi_idx], g180)
-    for _ in range(BISECTION_ITERATIONS):
-        m = 0.5 * (a + b)
-        gm = 20.0 * np.log10(np.abs(call(np.where(any_cand, np.exp(m), safe_w)[:, None])[:, 0]))
-        up = gm >= level_g
-        a, ga = np.where(up, m, a), np.where(up, gm, ga)
-        b, gb = np.where(up, b, m), np.where(up, gb, gm)
+    a, b, ga, gb = _bisect(call, any_cand, safe_w, (a, b, ga, gb), level_g, gain_value)
     w_bw_gain = np.where(any_cand, _final_point(a, b, ga, gb, level_g), np.nan)
 
     # Phase at 2 w180 continued from w180 along a short sub-grid.
