@@ -161,6 +161,69 @@ def _bisect(call, valid, safe_w, bracket, level, value):
     return a, b, fa, fb
 
 
+@dataclass(frozen=True)
+class _Grid:
+    """The response on the grid, shape (N, nw): frequencies (rad/s) and their logs, unwrapped phase
+    (rad), gain (dB); and ``safe_w`` (N,), rad/s, a harmless frequency for rows with nothing to refine."""
+
+    w: np.ndarray
+    log_w: np.ndarray
+    phase: np.ndarray
+    gain_db: np.ndarray
+    safe_w: np.ndarray
+
+
+def _phase_value(h, fa, fb, level):
+    """Phase at a midpoint (rad) on the branch of its bracket, and whether the crossing lies above."""
+    pm = _nearest_branch(np.angle(h), 0.5 * (fa + fb))
+    return pm, pm > level
+
+
+def _gain_value(h, fa, fb, level):
+    """Gain at a midpoint (dB), and whether the crossing lies above it."""
+    gm = 20.0 * np.log10(np.abs(h))
+    return gm, gm >= level
+
+
+def _phase_crossing(call, grid: _Grid, level):
+    """Lowest frequency (rad/s) where the unwrapped phase reaches ``level`` (rad); nan if none."""
+    rows = np.arange(grid.phase.shape[0])
+    valid, lo = _first_down_crossing(grid.phase, level)
+    a, b = grid.log_w[rows, lo].copy(), grid.log_w[rows, lo + 1].copy()
+    pa, pb = grid.phase[rows, lo].copy(), grid.phase[rows, lo + 1].copy()
+    a, b, pa, pb = _bisect(call, valid, grid.safe_w, (a, b, pa, pb), level, _phase_value)
+    return np.where(valid, _final_point(a, b, pa, pb, level), np.nan)
+
+
+def _gain_bandwidth(call, grid: _Grid, w180):
+    """Frequency (rad/s) of gain G(omega_180) + 6 dB, the crossing nearest below omega_180."""
+    n_sys, nw = grid.gain_db.shape
+    rows = np.arange(n_sys)
+    has180 = np.isfinite(w180)
+    w180_safe = np.where(has180, w180, grid.safe_w)
+    g180 = 20.0 * np.log10(np.abs(call(w180_safe[:, None])[:, 0]))
+    level_g = g180 + GAIN_MARGIN_DB
+    candidate = (grid.w < w180_safe[:, None]) & (grid.gain_db >= level_g[:, None])
+    any_cand = candidate.any(axis=1) & has180
+    lo = np.where(any_cand, nw - 1 - np.argmax(candidate[:, ::-1], axis=1), 0)
+    hi_idx = np.minimum(lo + 1, nw - 1)
+    a = grid.log_w[rows, lo].copy()
+    b = np.minimum(grid.log_w[rows, hi_idx], np.log(w180_safe))
+    ga = grid.gain_db[rows, lo].copy()
+    gb = np.where(grid.log_w[rows, hi_idx] < np.log(w180_safe), grid.gain_db[rows, hi_idx], g180)
+    a, b, ga, gb = _bisect(call, any_cand, grid.safe_w, (a, b, ga, gb), level_g, _gain_value)
+    return np.where(any_cand, _final_point(a, b, ga, gb, level_g), np.nan)
+
+
+def _phase_delay(call, w180, w180_safe):
+    """``tau_p`` (s) from the phase at 2 omega_180, continued from omega_180 along a short sub-grid."""
+    sub = w180_safe[:, None] * np.exp2(np.linspace(0.0, 1.0, 65))[None, :]
+    sub_phase = np.unwrap(np.angle(call(sub)), axis=1)
+    sub_phase = sub_phase + 2.0 * np.pi * np.round((PHASE_CROSSOVER - sub_phase[:, :1]) / (2.0 * np.pi))
+    phi2 = sub_phase[:, -1]
+    return np.where(np.isfinite(w180), -(phi2 + np.pi) / (2.0 * w180_safe), np.nan)
+
+
 def attitude_bandwidth(
     response: Callable[[np.ndarray], np.ndarray], w_grid
 ) -> AttitudeBandwidth:
@@ -205,63 +268,24 @@ def attitude_bandwidth(
     nw = w_grid.shape[-1]
     if h_grid.ndim != 2 or h_grid.shape[1] != nw:
         raise ValueError(f"response returned shape {h_grid.shape}, expected (N, {nw})")
-    n_sys = h_grid.shape[0]
-    w_rows = np.broadcast_to(w_grid, (n_sys, nw))
+    w_rows = np.broadcast_to(w_grid, (h_grid.shape[0], nw))
 
     def call(w):
         out = np.asarray(response(w))
-        if out.shape != w.shape:
-            out = np.broadcast_to(out, w.shape)
-        return out
+        return out if out.shape == w.shape else np.broadcast_to(out, w.shape)
 
-    log_w = np.log(w_rows)
-    phase = np.unwrap(np.angle(h_grid), axis=1)  # rad
-    gain_db = 20.0 * np.log10(np.abs(h_grid))
-    rows = np.arange(n_sys)
-    safe_w = w_rows[:, 0]  # harmless frequency for rows with nothing to refine
-
-    def phase_value(h, fa, fb, level):
-        pm = _nearest_branch(np.angle(h), 0.5 * (fa + fb))
-        return pm, pm > level
-
-    def gain_value(h, fa, fb, level):
-        gm = 20.0 * np.log10(np.abs(h))
-        return gm, gm >= level
-
-    def refine_phase(level):
-        valid, lo = _first_down_crossing(phase, level)
-        a, b = log_w[rows, lo].copy(), log_w[rows, lo + 1].copy()
-        pa, pb = phase[rows, lo].copy(), phase[rows, lo + 1].copy()
-        a, b, pa, pb = _bisect(call, valid, safe_w, (a, b, pa, pb), level, phase_value)
-        return np.where(valid, _final_point(a, b, pa, pb, level), np.nan)
-
-    w180 = refine_phase(PHASE_CROSSOVER)
-    w_bw_phase = refine_phase(PHASE_BANDWIDTH)
-    has180 = np.isfinite(w180)
-    w180_safe = np.where(has180, w180, safe_w)
-
-    # Gain bandwidth: G = G(w180) + 6 dB, crossing nearest below w180.
-    g180 = 20.0 * np.log10(np.abs(call(w180_safe[:, None])[:, 0]))
-    level_g = g180 + GAIN_MARGIN_DB
-    candidate = (w_rows < w180_safe[:, None]) & (gain_db >= level_g[:, None])
-    any_cand = candidate.any(axis=1) & has180
-    lo = np.where(any_cand, nw - 1 - np.argmax(candidate[:, ::-1], axis=1), 0)
-    hi_idx = np.minimum(lo + 1, nw - 1)
-    a = log_w[rows, lo].copy()
-    b = np.minimum(log_w[rows, hi_idx], np.log(w180_safe))
-    ga = gain_db[rows, lo].copy()
-    gb = np.where(log_w[rows, hi_idx] < np.log(w180_safe), gain_db[rows, hi_idx], g180)
-    a, b, ga, gb = _bisect(call, any_cand, safe_w, (a, b, ga, gb), level_g, gain_value)
-    w_bw_gain = np.where(any_cand, _final_point(a, b, ga, gb, level_g), np.nan)
-
-    # Phase at 2 w180 continued from w180 along a short sub-grid.
-    sub = w180_safe[:, None] * np.exp2(np.linspace(0.0, 1.0, 65))[None, :]
-    sub_phase = np.unwrap(np.angle(call(sub)), axis=1)
-    sub_phase = sub_phase + 2.0 * np.pi * np.round(
-        (PHASE_CROSSOVER - sub_phase[:, :1]) / (2.0 * np.pi)
+    grid = _Grid(
+        w=w_rows,
+        log_w=np.log(w_rows),
+        phase=np.unwrap(np.angle(h_grid), axis=1),
+        gain_db=20.0 * np.log10(np.abs(h_grid)),
+        safe_w=w_rows[:, 0],
     )
-    phi2 = sub_phase[:, -1]
-    tau_p = np.where(has180, -(phi2 + np.pi) / (2.0 * w180_safe), np.nan)
+    w180 = _phase_crossing(call, grid, PHASE_CROSSOVER)
+    w_bw_phase = _phase_crossing(call, grid, PHASE_BANDWIDTH)
+    w180_safe = np.where(np.isfinite(w180), w180, grid.safe_w)
+    w_bw_gain = _gain_bandwidth(call, grid, w180)
+    tau_p = _phase_delay(call, w180, w180_safe)
 
     with np.errstate(invalid="ignore"):
         bandwidth = np.fmin(w_bw_phase, w_bw_gain)
