@@ -183,14 +183,15 @@ def failures_stage(case, gains, progress=QUIET) -> FailuresStage | None:
     return None if run is None else FailuresStage(run, failure_verdict(run))
 
 
-def robustness_stage(case, gains=None, schedule=None, progress=QUIET, spec=None, workers=None) -> RobustnessStage:
+def robustness_stage(case, gains=None, schedule=None, progress=QUIET, spec=None, **study) -> RobustnessStage:
     """The robustness study of the case's ``uncertainty:`` section.
 
     With a `schedule` (:class:`damper.analysis.schedule_types.ScheduleResult` or
     :class:`damper.analysis.schedule_points.CheckedSchedule`) the study runs at its tightest
     verification points at the scheduled gain (the schedule is what flies); else at the
     conditions of `case` with `gains` (K, s, one per condition). `spec` defaults to the case's
-    :func:`damper.analysis.uncertainty.uncertainty_spec`.
+    :func:`damper.analysis.uncertainty.uncertainty_spec`; `study` goes on to
+    :func:`damper.analysis.robustness.robustness` (``workers=...``).
     """
     from .robustness import robustness, uncertainty_spec
     from .verdicts import robustness_verdict
@@ -202,7 +203,7 @@ def robustness_stage(case, gains=None, schedule=None, progress=QUIET, spec=None,
 
         case, gains, _ = schedule_study_case(case, schedule, spec.schedule_points)
         where = study_description(len(gains))
-    result = robustness(case, gains, spec, progress=progress, workers=workers)
+    result = robustness(case, gains, spec, progress=progress, **study)
     verdict = robustness_verdict(result, spec.required_fraction)
     return RobustnessStage(case, np.asarray(gains, dtype=float), spec, result, where, verdict)
 
