@@ -183,12 +183,14 @@ def failures_stage(case, gains, progress=QUIET) -> FailuresStage | None:
     return None if run is None else FailuresStage(run, failure_verdict(run))
 
 
-def robustness_stage(case, gains=None, schedule=None, progress=QUIET, spec=None, **study) -> RobustnessStage:
+def robustness_stage(case, gains=None, schedule=None, progress=QUIET, spec=None, schedule_name="the schedule",
+                     **study) -> RobustnessStage:
     """The robustness study of the case's ``uncertainty:`` section.
 
     With a `schedule` (:class:`damper.analysis.schedule_types.ScheduleResult` or
     :class:`damper.analysis.schedule_points.CheckedSchedule`) the study runs at its tightest
-    verification points at the scheduled gain (the schedule is what flies); else at the
+    verification points at the scheduled gain (the schedule is what flies; `schedule_name` names
+    it in :attr:`RobustnessStage.where`); else at the
     conditions of `case` with `gains` (K, s, one per condition). `spec` defaults to the case's
     :func:`damper.analysis.uncertainty.uncertainty_spec`; `study` goes on to
     :func:`damper.analysis.robustness.robustness` (``workers=...``).
@@ -202,7 +204,7 @@ def robustness_stage(case, gains=None, schedule=None, progress=QUIET, spec=None,
         from .schedule_points import schedule_study_case, study_description
 
         case, gains, _ = schedule_study_case(case, schedule, spec.schedule_points)
-        where = study_description(len(gains))
+        where = study_description(len(gains), schedule_name)
     result = robustness(case, gains, spec, progress=progress, **study)
     verdict = robustness_verdict(result, spec.required_fraction)
     return RobustnessStage(case, np.asarray(gains, dtype=float), spec, result, where, verdict)

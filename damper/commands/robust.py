@@ -63,12 +63,12 @@ def run(args, argv) -> int:
     import re
     import time
 
-    from ..analysis.robustness import robustness, uncertainty_spec
+    from ..analysis.pipeline import robustness_stage
+    from ..analysis.robustness import uncertainty_spec
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
     from ..output.files import write_atomic
     from ..output.journal import part
-    from ..analysis.verdicts import robustness_verdict
     from ..output.jsonout import dumps, with_verdict
     from ..output.rundir import RunDirectory
     from ..output.report import refresh_report
@@ -77,17 +77,15 @@ def run(args, argv) -> int:
 
     case = load_case(args.case)
     spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
-    where = None
-    if args.schedule is not None:
+    checked = gains = None
+    if args.schedule is not None:  # the study runs at the schedule's tightest verification points
         from ..analysis.schedule import verification_points, verify
-        from ..analysis.schedule_points import CheckedSchedule, schedule_study_case, study_description
+        from ..analysis.schedule_points import CheckedSchedule
 
         sched, _, _ = read_schedule(args.schedule)
         pts, _, confs = verification_points(case, sched)
         checked = CheckedSchedule(verify(case, sched, pts), confs)
-        case, gains, _ = schedule_study_case(case, checked, spec.schedule_points)
-        source = f"the schedule {args.schedule} at its {len(gains)} tightest verification points"
-        where = study_description(len(gains), args.schedule)
+        source = None  # the count of points is known once the study has chosen them
     elif args.design is not None:
         gains = design_gains(case, read_design_run(args.design, case).design, f"--design {args.design}")
         source = f"chosen gains of {args.design}"
@@ -109,8 +107,11 @@ def run(args, argv) -> int:
             print("damper: warning: the case has no uncertainty: section (or it is empty); every sample is the nominal",
                   file=sys.stderr)
         start = time.perf_counter()
-        result = robustness(case, gains, spec, progress=configure(args.quiet), workers=args.workers)
+        stage = robustness_stage(case, gains, schedule=checked, progress=configure(args.quiet), spec=spec,
+                                 schedule_name=args.schedule, workers=args.workers)
         elapsed = time.perf_counter() - start
+        case, result, verdict = stage.case, stage.result, stage.verdict
+        source = source or f"the schedule {args.schedule} at its {len(stage.gains)} tightest verification points"
         files = ["robustness.json"]
         with part("robustness"):
             plot_paths = []
@@ -118,8 +119,8 @@ def run(args, argv) -> int:
                 with current().stage("figures"):
                     plot_paths = robustness_plots(case, result, out)
                 files += sorted(os.path.relpath(p, out) for p in plot_paths)
-            verdict = robustness_verdict(result, spec.required_fraction)
-            doc = with_verdict(robustness_document(case, result, command=command, files=files, where=where), verdict)
+            doc = with_verdict(robustness_document(case, result, command=command, files=files, where=stage.where),
+                               verdict)
             write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
         rebuilt = refresh_report(run)
         run.finish()
