@@ -73,30 +73,10 @@ def run(args, argv) -> int:
     from ..output.rundir import RunDirectory
     from ..output.report import refresh_report
     from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
-    from .gain_source import design_gains, read_design_run, read_schedule
 
     case = load_case(args.case)
     spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
-    checked = gains = None
-    if args.schedule is not None:  # the study runs at the schedule's tightest verification points
-        from ..analysis.schedule import verification_points, verify
-        from ..analysis.schedule_points import CheckedSchedule
-
-        sched, _, _ = read_schedule(args.schedule)
-        pts, _, confs = verification_points(case, sched)
-        checked = CheckedSchedule(verify(case, sched, pts), confs)
-        source = None  # the count of points is known once the study has chosen them
-    elif args.design is not None:
-        gains = design_gains(case, read_design_run(args.design, case).design, f"--design {args.design}")
-        source = f"chosen gains of {args.design}"
-    else:
-        from ..analysis.schedule_points import design_points_case
-
-        gains = args.gain
-        source = f"K = {args.gain:g} s at every condition"
-        if not case.conditions:  # an envelope case: its design points (as damper assess)
-            case = design_points_case(case)
-            source = f"K = {args.gain:g} s at the {len(case.conditions)} envelope design points"
+    case, gains, checked, source = _study(args, case)
     stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
     command = " ".join(["damper", *argv])
     with RunDirectory(args.out or f"robust-{stem}", command, case.sha256, mode="add", parts=("robustness",),
@@ -140,3 +120,34 @@ def run(args, argv) -> int:
     print("\n".join(verdict.lines()))
     print(CAUTION_SHORT)
     return verdict.exit_status()
+
+
+def _study(args, case):
+    """What the study runs on: (case, gains K in s or None, checked schedule or None, source text or None).
+
+    With ``--schedule`` the robustness stage picks the schedule's tightest verification points
+    (their count, for `source`, is known once it has).
+    """
+    from .gain_source import design_gains, read_design_run, read_schedule
+
+    checked = gains = None
+    if args.schedule is not None:  # the study runs at the schedule's tightest verification points
+        from ..analysis.schedule import verification_points, verify
+        from ..analysis.schedule_points import CheckedSchedule
+
+        sched, _, _ = read_schedule(args.schedule)
+        pts, _, confs = verification_points(case, sched)
+        checked = CheckedSchedule(verify(case, sched, pts), confs)
+        source = None  # the count of points is known once the study has chosen them
+    elif args.design is not None:
+        gains = design_gains(case, read_design_run(args.design, case).design, f"--design {args.design}")
+        source = f"chosen gains of {args.design}"
+    else:
+        from ..analysis.schedule_points import design_points_case
+
+        gains = args.gain
+        source = f"K = {args.gain:g} s at every condition"
+        if not case.conditions:  # an envelope case: its design points (as damper assess)
+            case = design_points_case(case)
+            source = f"K = {args.gain:g} s at the {len(case.conditions)} envelope design points"
+    return case, gains, checked, source
