@@ -64,7 +64,7 @@ def turbulence_stage(case, gains) -> TurbulenceBatch | None:
     study = case_turbulence(case, gains)
     if study is None:
         return None
-    checks = check_turbulence(case, study.closed_loop)
+    checks = tuple(check_turbulence(case, study.closed_loop))
     return TurbulenceBatch(study, checks, tuple(turbulence_items(case, checks)))
 
 

@@ -9,10 +9,21 @@ pitch rate). A stage that did not run is None in :class:`PipelineResult` and has
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..verdict import Verdict
+
+if TYPE_CHECKING:  # the types of the fields, for readers and checkers (not imported at run time)
+    from ..case.model import Case
+    from .failure_run import FailureRun
+    from .response import CaseResponses, ResponseSpec
+    from .robustness_result import RobustnessResult
+    from .schedule_types import ScheduleResult
+    from .search import DesignResult, SearchSettings
+    from .turbulence import TurbulenceStudy
+    from .uncertainty import UncertaintySpec
 
 #: The stages of a design run, in the order they run.
 STAGES = ("design", "schedule", "responses", "failures", "robustness")
@@ -89,14 +100,15 @@ class TurbulenceBatch:
     ----------
     study : damper.analysis.turbulence.TurbulenceStudy
         Bare and augmented responses, arrays of shape (n_batch,).
-    checks : list
-        The turbulence requirements checked (:func:`damper.analysis.turbulence_case.check_turbulence`).
+    checks : tuple
+        Per condition, the turbulence requirements checked
+        (:func:`damper.analysis.turbulence_case.check_turbulence`).
     misses : tuple of damper.verdict.Item
         The requirements not met (verdict items of part ``design``).
     """
 
-    study: object
-    checks: list
+    study: TurbulenceStudy
+    checks: tuple
     misses: tuple
 
 
@@ -117,7 +129,7 @@ class DesignStage:
         Part ``design`` (the search's misses and the turbulence requirements).
     """
 
-    settings: object
+    settings: SearchSettings
     conditions: tuple
     worst_slack: np.ndarray
     figures: tuple | None
@@ -140,7 +152,7 @@ class ScheduleStage:
         Part ``schedule``.
     """
 
-    result: object
+    result: ScheduleResult
     verdict: Verdict
 
 
@@ -171,7 +183,7 @@ class FailuresStage:
         Part ``failures``.
     """
 
-    run: object
+    run: FailureRun
     verdict: Verdict
 
 
@@ -194,10 +206,10 @@ class RobustnessStage:
         Part ``robustness``.
     """
 
-    case: object
+    case: Case
     gains: np.ndarray
-    spec: object
-    result: object
+    spec: UncertaintySpec
+    result: RobustnessResult
     where: str | None
     verdict: Verdict
 
@@ -219,7 +231,7 @@ class PipelineResult:
         The stages that did not run and why, in :data:`STAGES` order.
     """
 
-    case: object
+    case: Case
     options: PipelineOptions
     design: DesignStage | None = None
     schedule: ScheduleStage | None = None
@@ -265,8 +277,8 @@ class SearchBatch:
     """
 
     start: int
-    case: object
-    design: object
+    case: Case
+    design: DesignResult
     turbulence: TurbulenceBatch | None
     figures: bool
 
@@ -285,8 +297,8 @@ class FigureBatch:
     """
 
     indices: tuple
-    case: object
-    design: object
+    case: Case
+    design: DesignResult
 
 
 @dataclass(frozen=True)
@@ -304,9 +316,9 @@ class ResponseBatch:
     """
 
     start: int
-    case: object
-    result: object
-    spec: object
+    case: Case
+    result: CaseResponses
+    spec: ResponseSpec
 
 
 @dataclass(frozen=True)
@@ -317,13 +329,13 @@ class StageDone:
     ----------
     stage : str
         One of :data:`STAGES`.
-    result : object
+    result : DesignStage or ScheduleStage or ResponsesStage or FailuresStage or RobustnessStage or None
         The stage's result (:class:`DesignStage`, ...) or None.
     skipped : Skipped or None
     """
 
     stage: str
-    result: object = None
+    result: DesignStage | ScheduleStage | ResponsesStage | FailuresStage | RobustnessStage | None = None
     skipped: Skipped | None = None
 
 
