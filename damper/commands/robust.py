@@ -63,42 +63,20 @@ def run(args, argv) -> int:
     import re
     import time
 
-    from ..analysis.robustness import robustness, uncertainty_spec
+    from ..analysis.pipeline import robustness_stage
+    from ..analysis.robustness import uncertainty_spec
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
     from ..output.files import write_atomic
     from ..output.journal import part
-    from ..analysis.verdicts import robustness_verdict
     from ..output.jsonout import dumps, with_verdict
     from ..output.rundir import RunDirectory
     from ..output.report import refresh_report
     from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
-    from .gain_source import design_gains, read_design_run, read_schedule
 
     case = load_case(args.case)
     spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
-    where = None
-    if args.schedule is not None:
-        from ..analysis.schedule import verification_points, verify
-        from ..analysis.schedule_points import CheckedSchedule, schedule_study_case, study_description
-
-        sched, _, _ = read_schedule(args.schedule)
-        pts, _, confs = verification_points(case, sched)
-        checked = CheckedSchedule(verify(case, sched, pts), confs)
-        case, gains, _ = schedule_study_case(case, checked, spec.schedule_points)
-        source = f"the schedule {args.schedule} at its {len(gains)} tightest verification points"
-        where = study_description(len(gains), args.schedule)
-    elif args.design is not None:
-        gains = design_gains(case, read_design_run(args.design, case).design, f"--design {args.design}")
-        source = f"chosen gains of {args.design}"
-    else:
-        from ..analysis.schedule_points import design_points_case
-
-        gains = args.gain
-        source = f"K = {args.gain:g} s at every condition"
-        if not case.conditions:  # an envelope case: its design points (as damper assess)
-            case = design_points_case(case)
-            source = f"K = {args.gain:g} s at the {len(case.conditions)} envelope design points"
+    case, gains, checked, source = _study(args, case)
     stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
     command = " ".join(["damper", *argv])
     with RunDirectory(args.out or f"robust-{stem}", command, case.sha256, mode="add", parts=("robustness",),
@@ -109,8 +87,11 @@ def run(args, argv) -> int:
             print("damper: warning: the case has no uncertainty: section (or it is empty); every sample is the nominal",
                   file=sys.stderr)
         start = time.perf_counter()
-        result = robustness(case, gains, spec, progress=configure(args.quiet), workers=args.workers)
+        stage = robustness_stage(case, gains, schedule=checked, progress=configure(args.quiet), spec=spec,
+                                 schedule_name=args.schedule, workers=args.workers)
         elapsed = time.perf_counter() - start
+        case, result, verdict = stage.case, stage.result, stage.verdict
+        source = source or f"the schedule {args.schedule} at its {len(stage.gains)} tightest verification points"
         files = ["robustness.json"]
         with part("robustness"):
             plot_paths = []
@@ -118,8 +99,8 @@ def run(args, argv) -> int:
                 with current().stage("figures"):
                     plot_paths = robustness_plots(case, result, out)
                 files += sorted(os.path.relpath(p, out) for p in plot_paths)
-            verdict = robustness_verdict(result, spec.required_fraction)
-            doc = with_verdict(robustness_document(case, result, command=command, files=files, where=where), verdict)
+            doc = with_verdict(robustness_document(case, result, command=command, files=files, where=stage.where),
+                               verdict)
             write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
         rebuilt = refresh_report(run)
         run.finish()
@@ -139,3 +120,34 @@ def run(args, argv) -> int:
     print("\n".join(verdict.lines()))
     print(CAUTION_SHORT)
     return verdict.exit_status()
+
+
+def _study(args, case):
+    """What the study runs on: (case, gains K in s or None, checked schedule or None, source text or None).
+
+    With ``--schedule`` the robustness stage picks the schedule's tightest verification points
+    (their count, for `source`, is known once it has).
+    """
+    from .gain_source import design_gains, read_design_run, read_schedule
+
+    checked = gains = None
+    if args.schedule is not None:  # the study runs at the schedule's tightest verification points
+        from ..analysis.schedule import verification_points, verify
+        from ..analysis.schedule_points import CheckedSchedule
+
+        sched, _, _ = read_schedule(args.schedule)
+        pts, _, confs = verification_points(case, sched)
+        checked = CheckedSchedule(verify(case, sched, pts), confs)
+        source = None  # the count of points is known once the study has chosen them
+    elif args.design is not None:
+        gains = design_gains(case, read_design_run(args.design, case).design, f"--design {args.design}")
+        source = f"chosen gains of {args.design}"
+    else:
+        from ..analysis.schedule_points import design_points_case
+
+        gains = args.gain
+        source = f"K = {args.gain:g} s at every condition"
+        if not case.conditions:  # an envelope case: its design points (as damper assess)
+            case = design_points_case(case)
+            source = f"K = {args.gain:g} s at the {len(case.conditions)} envelope design points"
+    return case, gains, checked, source
