@@ -83,7 +83,7 @@ def run(args, argv) -> int:
         warn_case(case)
         written = ["design.json"]
         # figures are drawn by a worker process while the analysis goes on (see PlotJobs)
-        rob_planned = case.raw.get("uncertainty") is not None and not args.no_robustness
+        rob_planned = case.uncertainty is not None and not args.no_robustness
         with PlotJobs(enabled=(bool(case.conditions) or rob_planned) and not args.no_plots) as jobs:
             design = _design(args, case, out, command, jobs)
             robustness_text, spec, schedule, verdict, failures_text = _analyses(args, case, design, out, command, jobs,
@@ -258,7 +258,7 @@ def _analyses(args, case, design, out, command, jobs, written):
 
     schedule = None
     verdict = Verdict()
-    if case.raw.get("schedule") is not None:
+    if case.schedule is not None:
         from ..analysis.schedule import design_schedule
         from ..analysis.verdicts import schedule_verdict
         from ..output.schedule_out import write_schedule
@@ -285,7 +285,7 @@ def _analyses(args, case, design, out, command, jobs, written):
     failures = _failures(args, case, design, out, command, jobs, written)
     robustness_text = spec = rob = rob_jobs = where = None
     studied = design is not None or schedule is not None
-    if studied and case.raw.get("uncertainty") is not None and not args.no_robustness:
+    if studied and case.uncertainty is not None and not args.no_robustness:
         import numpy as np
 
         from ..analysis.robustness import robustness, uncertainty_spec
@@ -336,7 +336,7 @@ def _failures(args, case, design, out, command, jobs, written):
     :class:`damper.verdict.Verdict` of part ``failures``, empty when not run)."""
     from ..verdict import Verdict
 
-    if args.no_failures or case.raw.get("failures") is None:
+    if args.no_failures or case.failures is None:
         return None, Verdict()
     if design is None:
         return ("failures: not studied: the case has no conditions of its own (its gains come from the schedule; "
