@@ -2,9 +2,10 @@
 
 Imported lazily by :mod:`damper.case.schema` (after its spec classes are defined).
 The validated SI values are turned into a frozen
-:class:`damper.analysis.robustness.UncertaintySpec` by
-:func:`damper.analysis.robustness.uncertainty_spec`; the method is described in
-docs/robustness.md.
+:class:`damper.case.uncertainty.UncertaintySpec` (``Case.uncertainty``) by
+:func:`damper.case.uncertainty.uncertainty_from_values`;
+:func:`damper.analysis.uncertainty.uncertainty_spec` adds the command line's overrides. The
+method is described in docs/robustness.md.
 
 Every uncertain parameter has a *nominal* value (the case's value at each condition)
 and a *spread*: ``relative`` (a fraction of ``|nominal|``, so 0.2 is +/-20 %) or
