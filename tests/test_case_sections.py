@@ -38,6 +38,7 @@ conditions:
     derivatives: {Z_alpha: -300, M_alpha: -8, M_q: -1.5, M_delta: -12}
 loop:
   authority: 2 deg
+  delay: 10 ms
   actuator: {bandwidth: 20 rad/s, travel: 10 deg}
 """
 

@@ -90,6 +90,9 @@ VALUE_FILES = {
     "schedule_inverse_q_wrong_variable.yaml",
     "response_step_over_tenth.yaml",
     "response_output_step_below_step.yaml",
+    "uncertainty_delay_without_delay.yaml",
+    "uncertainty_speed_derivative_short_period.yaml",
+    "uncertainty_sensor_not_first_order.yaml",
 }
 
 #: A sample run as real processes, to prove there is no traceback outside Python's own handler.

@@ -39,7 +39,7 @@ from .speed_terms import (
     speed_terms_from_coefficients,
     speed_terms_from_derivatives,
 )
-from .uncertainty import uncertainty_from_values
+from .uncertainty import check_uncertainty, uncertainty_from_values
 from .written import as_written, plain_number_warnings
 from .yamlio import read_yaml
 
@@ -362,6 +362,7 @@ def _build(values, file, sha, doc, text="") -> Case:
     loop = _build_loop(values["loop"], doc)
     warnings.extend(_loop_warnings(loop))
     _check_failures(values, loop, doc)
+    check_uncertainty(values, loop, aircraft, doc)
     settings = _settings(values, doc)
     envelope, aerodynamics = envelope_sections(values, aircraft)
     return Case(

@@ -12,6 +12,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..errors import CaseError
+from .checks import _line, _raw
+
+#: Parameters that are speed derivatives of the longitudinal model (a short-period case has none).
+SPEED_PARAMETERS = ("X_u", "X_alpha", "Z_u", "M_u")
 
 @dataclass(frozen=True)
 class UncertainParameter:
@@ -154,4 +159,56 @@ def uncertainty_from_values(section) -> UncertaintySpec | None:
     )
 
 
-__all__ = ["CgShift", "UncertainParameter", "UncertaintySpec", "uncertainty_from_values"]
+def check_uncertainty(values, loop, aircraft, doc) -> None:
+    """Refuse uncertain parameters the case's model or loop does not have, and a CG shift without its geometry.
+
+    Parameters
+    ----------
+    values : dict
+        The validated case (SI).
+    loop : damper.case.model.LoopSpec
+    aircraft : damper.case.model.Aircraft
+    doc : dict
+        The parsed document (lines and values as written).
+
+    The spreads are checked against each condition's nominal value where the study's
+    conditions are known (:func:`damper.analysis.uncertainty.resolve_axes`).
+    """
+    section = values.get("uncertainty")
+    if section is None:
+        return
+    for k, p in enumerate(section.get("parameters") or ()):
+        problem = _missing_parameter(p["name"], values["model"], loop)
+        if problem:
+            raise CaseError(problem, f"uncertainty.parameters[{k}].name", p["name"],
+                            line=_line(doc, "uncertainty", "parameters", k, "name")
+                            or _line(doc, "uncertainty", "parameters", k))
+    cg = section.get("cg_shift")
+    if cg is None:
+        return
+    line = _line(doc, "uncertainty", "cg_shift")
+    if aircraft.mean_chord is None:
+        raise CaseError("a CG shift needs aircraft.mean_chord", "uncertainty.cg_shift", line=line)
+    if cg.get("lift_curve_slope") is not None and aircraft.wing_area is None:
+        raise CaseError("a CG shift with lift_curve_slope needs aircraft.wing_area", "uncertainty.cg_shift.lift_curve_slope",
+                        _raw(doc, "uncertainty", "cg_shift", "lift_curve_slope"), line=line)
+
+
+def _missing_parameter(name, model, loop) -> str:
+    """Why the case has no `name` to make uncertain ('' when it has)."""
+    if name in SPEED_PARAMETERS and model != "longitudinal":
+        return "is a speed derivative of the longitudinal model; this case's model is short_period"
+    actuator, sensor = loop.actuator, loop.sensor
+    if name == "actuator_bandwidth" and actuator is None:
+        return "the loop's actuator is ideal; give loop.actuator to make its bandwidth uncertain"
+    if name == "actuator_time_constant" and (actuator is None or actuator.kind != "lag"):
+        return ("needs a first-order actuator (loop.actuator.bandwidth or time_constant); use actuator_bandwidth for "
+                "a second-order one")
+    if name == "sensor_time_constant" and (sensor is None or sensor.kind != "lag"):
+        return "needs a first-order rate sensor (loop.rate_sensor.time_constant)"
+    if name == "delay" and not loop.total_delay > 0:
+        return "the loop has no delay; give loop.delay or loop.sample_rate to make it uncertain"
+    return ""
+
+
+__all__ = ["SPEED_PARAMETERS", "check_uncertainty", "CgShift", "UncertainParameter", "UncertaintySpec", "uncertainty_from_values"]
