@@ -152,3 +152,18 @@ def test_coefficients_keep_their_lift_curve_slope_for_the_cg_effect():
     # without CL_alpha: the normal-force slope CN_alpha = -Z_alpha m / (qbar S), times qbar S c / Iy
     assert effect[1] == pytest.approx(300.0 * 5000.0 * 2.0 / 20000.0)
     assert source == ("coefficients.CL_alpha", "normal-force slope from Z_alpha")
+
+
+def test_every_quantity_keeps_its_text_beside_its_si_value():
+    case = load_case_text(BASE + SECTIONS)
+    assert case.written_text("loop.actuator.bandwidth") == "20 rad/s"
+    assert case.written_text("responses.inputs[1].gust_length") == "100 ft"
+    assert case.written_text("turbulence.ground_elevation") == "1000 ft"
+    assert case.written_text("uncertainty.parameters[0].absolute") == "2 ms"  # a spread in its parameter's unit
+    assert case.written_text("conditions[1].airspeed") == "120"  # a plain number, as YAML read it
+    assert case.written_text("schedule.breakpoints") is None  # a count, not a quantity
+    plain = {w.key: w.plain for w in case.written}
+    assert plain["conditions[1].airspeed"] and not plain["aircraft.mass"]
+    # each text beside its SI value: 1750 ft is 533.4 m (Source: international foot, exact)
+    assert case.written_text("turbulence.scale_length") == "1750 ft"
+    assert case.turbulence.spec.scale_length == pytest.approx(1750 * FT)

@@ -40,7 +40,7 @@ from .speed_terms import (
     speed_terms_from_derivatives,
 )
 from .uncertainty import check_uncertainty, uncertainty_from_values
-from .written import as_written, plain_number_warnings
+from .written import as_written, plain_number_warnings, written_quantities
 from .yamlio import read_yaml
 
 
@@ -371,6 +371,7 @@ def _build(values, file, sha, doc, text="") -> Case:
         file=file,
         sha256=sha,
         text=text,
+        written=written_quantities(doc),
         aircraft=aircraft,
         altitude_kind=altitude_kind,
         conditions=conditions,

@@ -267,6 +267,9 @@ class Case:
         ``"short_period"`` or ``"longitudinal"`` (the bare-airframe model of every condition).
     text : str
         The case file's text as read (provenance; `sha256` is of its bytes).
+    written : tuple of damper.case.written.Written
+        Every quantity as the file wrote it, by full key path (its SI value is in the
+        section's field; see :meth:`written_text`).
     requirements_given : damper.case.sections.RequirementsGiven
         The requirements section's preset, own keys and turbulence limits.
     envelope : damper.case.envelope.Envelope or None
@@ -294,6 +297,7 @@ class Case:
     warnings: tuple = ()
     model: str = "short_period"
     text: str = field(default="", compare=False, repr=False)
+    written: tuple = field(default=(), compare=False, repr=False)
     requirements_given: RequirementsGiven = field(default_factory=RequirementsGiven)
     envelope: Envelope | None = None
     aerodynamics: Aerodynamics | None = field(default=None, compare=False)
@@ -302,6 +306,10 @@ class Case:
     turbulence: TurbulenceSettings | None = None
     uncertainty: UncertaintySpec | None = None
     failures: FailureSpec | None = None
+
+    def written_text(self, path: str) -> str | None:
+        """The quantity at key path `path` (``loop.actuator.bandwidth``) as the file wrote it (None: not written)."""
+        return next((w.text for w in self.written if w.key == path), None)
 
     @property
     def names(self) -> tuple:

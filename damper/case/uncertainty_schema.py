@@ -54,6 +54,7 @@ class _AbsoluteSpread:
         "pitch_inertia kg m^2, bandwidth rad/s, time constants, delay and loop_gain s), e.g. '2 ms'."
     )
     default = None
+    quantity_in_own_unit = True  # a quantity (damper.case.written.written_quantities keeps its text)
 
     def check(self, value, path):  # replaced per name before use
         raise CaseError("needs a parameter name", path, value)
