@@ -9,13 +9,14 @@ validated section into ``Case.failures``.
 from __future__ import annotations
 
 from ..errors import CaseError
+from .failure_spec import KINDS as FAILURE_KINDS
+from .failures import PRESETS
 from .spec_types import Choice, Integer, Items, Number, Quantity, Section
 
-#: Failure kinds (the same words as :data:`damper.case.failure_spec.KINDS`; a test checks).
-KINDS = ("hardover", "oscillatory", "passive")
-#: Presets of the transient limits (values and sources in
-#: :data:`damper.case.failures.PRESETS`; a test checks the names agree).
-LIMIT_PRESETS = ("MIL-F-9490D", "FAA-flight-guidance")
+#: Failure kinds (the words of :data:`damper.case.failure_spec.KINDS`).
+KINDS = FAILURE_KINDS
+#: Presets of the transient limits (values and sources in :data:`damper.case.failures.PRESETS`).
+LIMIT_PRESETS = tuple(PRESETS)
 
 
 class BandSection(Section):
