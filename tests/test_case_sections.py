@@ -167,3 +167,20 @@ def test_every_quantity_keeps_its_text_beside_its_si_value():
     # each text beside its SI value: 1750 ft is 533.4 m (Source: international foot, exact)
     assert case.written_text("turbulence.scale_length") == "1750 ft"
     assert case.turbulence.spec.scale_length == pytest.approx(1750 * FT)
+
+
+#: Where the Case keeps each top-level section of the case file (a new section needs a typed home).
+SECTION_HOMES = {
+    "title": "title", "model": "model", "aircraft": "aircraft", "atmosphere": "altitude_kind",
+    "conditions": "conditions", "envelope": "envelope", "aerodynamics": "aerodynamics", "schedule": "schedule",
+    "loop": "loop", "requirements": "requirements", "responses": "responses", "turbulence": "turbulence",
+    "analysis": "settings", "uncertainty": "uncertainty", "failures": "failures",
+}
+
+
+def test_every_section_of_the_schema_has_a_typed_home_on_the_case():
+    from damper.case.schema import CASE
+
+    fields = {f.name for f in dataclasses.fields(Case)}
+    assert set(CASE.fields) == set(SECTION_HOMES), "a new section: give it a field of Case (DEVELOPERS.md)"
+    assert {home for home in SECTION_HOMES.values()} <= fields
