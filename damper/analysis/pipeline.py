@@ -32,7 +32,7 @@ def _failures(case, options, design, progress):
     """(FailuresStage or None, Skipped or None) of the failure study at the chosen gains."""
     if not options.failures:
         return None, Skipped("failures", NOT_ASKED)
-    if case.raw.get("failures") is None:
+    if case.failures is None:
         return None, Skipped("failures", "the case has no failures: section")
     if design is None:
         return None, Skipped("failures", "the case has no conditions of its own (its gains come from the schedule; "
@@ -45,7 +45,7 @@ def _robustness(case, options, design, schedule, progress):
     """(RobustnessStage or None, Skipped or None) at the scheduled gains, else at the chosen gains."""
     if not options.robustness:
         return None, Skipped("robustness", NOT_ASKED)
-    if case.raw.get("uncertainty") is None:
+    if case.uncertainty is None:
         return None, Skipped("robustness", "the case has no uncertainty: section")
     if design is None and schedule is None:
         return None, Skipped("robustness", "no gains to study (neither conditions nor a schedule)", wanted=True)

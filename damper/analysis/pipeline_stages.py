@@ -127,7 +127,7 @@ def design_stage(case, options, progress=QUIET, emit=_ignore) -> DesignStage | N
 
 def schedule_stage(case, progress=QUIET) -> ScheduleStage | None:
     """Design and verify the case's gain schedule; None without a ``schedule:`` section."""
-    if case.raw.get("schedule") is None:
+    if case.schedule is None:
         return None
     from .schedule import design_schedule
     from .verdicts import schedule_verdict

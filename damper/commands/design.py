@@ -95,7 +95,7 @@ def run(args, argv) -> int:
         out = run.root
         warn_case(case)
         # figures are drawn by a worker process while the analysis goes on (see PlotJobs)
-        rob_planned = case.raw.get("uncertainty") is not None and not args.no_robustness
+        rob_planned = case.uncertainty is not None and not args.no_robustness
         with PlotJobs(enabled=(bool(case.conditions) or rob_planned) and not args.no_plots) as jobs:
             writer = DesignRunWriter(out, case, command, jobs, plots=not args.no_plots, max_figures=args.max_figures)
             result = run_pipeline(case, options(args), on_event=writer, progress=current())
