@@ -8,6 +8,7 @@ consumer reads it).
 """
 
 import glob
+import importlib
 import os
 import pickle
 
@@ -134,3 +135,35 @@ def test_every_measure_evaluates_on_an_assessment():
         np.testing.assert_array_equal(np.broadcast_to(v, res.values[k].shape), res.values[k])
     # K = 0 is the bare airframe: the closed loop is stable in this demo, and its largest real part is negative
     assert np.all(res.values[0, :, 0] < 0)
+
+
+def _recipe(title):
+    with open(os.path.join(ROOT, "DEVELOPERS.md"), encoding="utf-8") as fh:
+        text = fh.read()
+    start = text.index(f"## {title}")
+    end = text.find("\n## ", start + 3)
+    return text[start:end if end > 0 else None]
+
+
+def recipe_paths_exist(title):
+    """Every file or folder the recipe names (`damper/...`, `tests/...`, `docs/...`) exists."""
+    import re
+
+    paths = re.findall(r"`((?:damper|tests|docs)/[\w/.]+?)`", _recipe(title))
+    assert paths, title
+    missing = [p for p in paths if not os.path.exists(os.path.join(ROOT, p))]
+    assert missing == [], missing
+
+
+def test_the_developers_recipe_names_what_exists():
+    from damper.requirements import kind, kinds, registry
+
+    recipe_paths_exist("How to add a criterion")
+    text = _recipe("How to add a criterion")
+    for family in ("short_period", "margins", "bandwidth", "phugoid"):
+        module = importlib.import_module(f"{kinds.__name__}.{family}")
+        assert f"`{family}`" in text and any(k.measure.__module__ == module.__name__ for k in CRITERIA)
+    for name in ("CRITERIA", "NO_PRESET", "CriterionKind"):
+        assert f"`{name}`" in text and (hasattr(registry, name) or hasattr(kind, name))
+    for field in ("needs_stability", "which", "level", "longitudinal_only"):
+        assert f"`{field}`" in text and field in kind.CriterionKind.__dataclass_fields__

@@ -131,3 +131,17 @@ def test_a_case_filter_builds_the_registered_element():
     element = notch.build()
     assert isinstance(element, ELEMENTS["notch"]) and notch.params == tuple(
         (k, ORACLES["notch"][0][k]) for k in parameter_names("notch"))
+
+
+def test_the_developers_recipe_names_what_exists():
+    from damper.model import elements
+
+    from .test_criteria_registry import _recipe, recipe_paths_exist
+
+    recipe_paths_exist("How to add a hardware element")
+    text = _recipe("How to add a hardware element")
+    for name in ("ELEMENTS", "ORACLES", "Parameter"):
+        assert f"`{name}`" in text
+    assert hasattr(elements, "ELEMENTS") and hasattr(elements, "Parameter") and ORACLES
+    for attr in ("kind", "label", "formula", "parameters", "in_filters", "n_states"):
+        assert f"`{attr}`" in text and all(hasattr(cls, attr) for cls in ELEMENTS.values())
