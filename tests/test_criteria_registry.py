@@ -167,3 +167,20 @@ def test_the_developers_recipe_names_what_exists():
         assert f"`{name}`" in text and (hasattr(registry, name) or hasattr(kind, name))
     for field in ("needs_stability", "which", "level", "longitudinal_only"):
         assert f"`{field}`" in text and field in kind.CriterionKind.__dataclass_fields__
+
+
+@pytest.mark.parametrize("kind", [k for k in CRITERIA if k.band_kind], ids=lambda k: k.name)
+def test_a_case_naming_only_this_band_gets_every_measure_it_needs(kind):
+    # assess_loop computes the bandwidth only when a criterion says it needs it: a criterion
+    # whose measure reads the bandwidth and does not say so would fail here
+    from damper.analysis.assess import assess_loop, build_loop
+    from damper.case import load_case
+    from damper.case.requirements_schema import REQUIREMENTS
+    from damper.requirements.spec import build_requirements
+
+    case = load_case(os.path.join(ROOT, "cases", "survey_uav_loiter_longitudinal.yaml"))
+    req = build_requirements(REQUIREMENTS.check({kind.name: {"min": 0.001}}, "requirements"), model="longitudinal")
+    a = assess_loop(build_loop(case, 0.1), requirements=req, with_bandwidth=False)
+    assert (a.bandwidth is not None) == kind.needs_bandwidth
+    assert [c.name for c in a.criteria.criteria] == ["stability", kind.name]
+    assert a.criteria.values.shape == (2, len(case.conditions))

@@ -58,6 +58,8 @@ class CriterionKind:
         Position among the criteria that judge handling-qualities levels (1 first), 0: none.
     longitudinal_only : bool
         Needs the four-state longitudinal model (the phugoid).
+    needs_bandwidth : bool
+        Its measure is the pitch-attitude bandwidth's (computed only when a criterion needs it).
     """
 
     name: str
@@ -73,6 +75,7 @@ class CriterionKind:
     which: str = ""
     level: int = 0
     longitudinal_only: bool = False
+    needs_bandwidth: bool = False
 
     def measure_for(self, damping_measure: str) -> str:
         """The measure variant of this criterion when the case's damping measure is `damping_measure`."""

@@ -43,7 +43,7 @@ class Requirements:
 
     @property
     def needs_bandwidth(self) -> bool:
-        return any(c.name in ("bandwidth", "phase_delay") for c in self.criteria)
+        return any(c.kind.needs_bandwidth for c in self.criteria)
 
 
 def _measure_for(name, damping_measure):
