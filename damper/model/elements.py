@@ -62,7 +62,7 @@ class Parameter:
     high: float | None = None
 
 
-_T = Parameter("time_constant", "s", "time", "time constant", positive=True)
+_T = Parameter("time_constant", "s", "time", "time constant T", positive=True)
 
 
 def _e(p):
