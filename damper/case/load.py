@@ -10,6 +10,7 @@ import numpy as np
 from ..atmosphere import RHO0, geopotential_from_geometric, standard_atmosphere
 from ..errors import CaseError
 from ..model.airframe import Derivatives, from_coefficients
+from ..model.elements import FILTER_KINDS, parameter_names
 from ..requirements.spec import build_requirements
 from . import schema
 from .checks import (  # noqa: F401 - the checks live in their own module
@@ -122,12 +123,7 @@ def _element(kind_hint, values):
     return None
 
 
-_FILTER_KEYS = {
-    "lag": ("time_constant",),
-    "lead_lag": ("lead_time_constant", "lag_time_constant"),
-    "notch": ("frequency", "depth_damping", "width_damping"),
-    "second_order": ("natural_frequency", "damping_ratio"),
-}
+_FILTER_KEYS = {kind: parameter_names(kind) for kind in FILTER_KINDS}  # the element registry
 
 
 def _build_loop(values, doc) -> LoopSpec:

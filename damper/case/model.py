@@ -7,7 +7,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..model.airframe import Derivatives
-from ..model.elements import Delay, Lag, LeadLag, Notch, SecondOrderLag, Washout
+from ..model import elements
+from ..model.elements import Delay
 from ..model.loop import Hardware
 from .envelope import Aerodynamics, Envelope
 from .failure_spec import FailureSpec
@@ -116,7 +117,8 @@ class ElementSpec:
     Attributes
     ----------
     kind : str
-        ``lag``, ``second_order``, ``lead_lag``, ``notch`` or ``washout``.
+        A key of the element registry :data:`damper.model.elements.ELEMENTS` (``lag``,
+        ``second_order``, ``lead_lag``, ``notch``, ``washout``).
     params : tuple of (name, float)
         SI parameters.
     """
@@ -128,35 +130,12 @@ class ElementSpec:
         return dict(self.params).get(name, default)
 
     def build(self):
-        """The model element (see :mod:`damper.model.elements`)."""
-        p = dict(self.params)
-        if self.kind == "lag":
-            return Lag(p["time_constant"])
-        if self.kind == "second_order":
-            return SecondOrderLag(p["natural_frequency"], p["damping_ratio"])
-        if self.kind == "lead_lag":
-            return LeadLag(p["lead_time_constant"], p["lag_time_constant"])
-        if self.kind == "notch":
-            return Notch(p["frequency"], p["depth_damping"], p["width_damping"])
-        if self.kind == "washout":
-            return Washout(p["time_constant"])
-        raise ValueError(self.kind)
+        """The model element (the registry :data:`damper.model.elements.ELEMENTS`)."""
+        return elements.build(self.kind, dict(self.params))
 
     def describe(self) -> str:
-        p = dict(self.params)
-        if self.kind == "lag":
-            return f"first-order lag, time constant {p['time_constant']:.4g} s ({1 / p['time_constant']:.4g} rad/s)"
-        if self.kind == "second_order":
-            return f"second-order, {p['natural_frequency']:.4g} rad/s, damping {p['damping_ratio']:.3g}"
-        if self.kind == "lead_lag":
-            return f"lead-lag ({p['lead_time_constant']:.4g} s + 1)/({p['lag_time_constant']:.4g} s + 1)"
-        if self.kind == "notch":
-            return (
-                f"notch at {p['frequency']:.4g} rad/s, damping {p['depth_damping']:.3g}/{p['width_damping']:.3g}"
-            )
-        if self.kind == "washout":
-            return f"washout, time constant {p['time_constant']:.4g} s"
-        return self.kind
+        """The element in words (its class's ``describe``), or its kind when not registered."""
+        return self.build().describe() if self.kind in elements.ELEMENTS else self.kind
 
 
 @dataclass(frozen=True)
