@@ -123,7 +123,9 @@ def test_responses_stream_per_batch_and_keep_each_note_once(monkeypatch):
 
 def test_an_envelope_case_skips_the_search_and_says_why_failures_cannot_run(monkeypatch):
     case = load_case(DEMO)
-    case = dataclasses.replace(case, conditions=(), raw=dict(case.raw, failures={}))
+    from damper.case.failures import failures_from_values
+
+    case = dataclasses.replace(case, conditions=(), failures=failures_from_values({}))
     result, events = _run(case, PipelineOptions(figures=False), monkeypatch)
     assert result.design is None and result.skip_of("design") is not None
     skip = result.skip_of("failures")
