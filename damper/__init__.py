@@ -35,6 +35,8 @@ API = {
     "respond_case": "damper.analysis.response",
     "turbulence_for_spec": "damper.analysis.turbulence",
     "to_control": "damper.model.loop",
+    "run_pipeline": "damper.analysis.pipeline",
+    "PipelineOptions": "damper.analysis.pipeline",
 }
 
 __all__ = ["__version__", *API]

@@ -194,49 +194,70 @@ def parse_quantity(value, allowed, path="", cycles=False) -> tuple[float, str]:
         dimension = allowed[0]
     elif isinstance(value, str):
         text = value.strip()
-        if not text:
-            raise CaseError("empty value; expected a number or a string with units", path, value)
-        if len(text) > MAX_QUANTITY_TEXT:
-            raise CaseError(f"is too long for a number with units (more than {MAX_QUANTITY_TEXT} characters)", path, value)
-        try:  # YAML 1.1 reads '1e4' (no dot) as text: accept it as a plain number
-            plain = float(text)
-        except ValueError:
-            plain = None
+        plain = _plain_text_number(text, path, value)
         if plain is not None:
-            if not math.isfinite(plain):  # '1e400', 'inf', 'nan': name the text as written
-                raise CaseError("must be a finite number", path, value)
             return parse_quantity(plain, allowed, path, cycles)
-        if not _SAFE_UNIT_TEXT.match(text) or "__" in text:
-            raise CaseError("not a number with units (unexpected characters)", path, value)
-        _check_unit_text(text, path, value)
-        try:
-            magnitude, dimensionality, unit_names = _parse(text)
-        except Exception as exc:  # pint raises many types; all mean "cannot parse"
-            raise CaseError(f"cannot read this as a number with units ({_short(exc)})", path, value) from None
-        dimension = None
-        for name in allowed:
-            if dimensionality == _dimensionality(name):
-                dimension = name
-                break
-        if dimension is None:
-            wanted = " or ".join(SI_UNIT_TEXT[a] for a in allowed)
-            got = _dimension_word(dimensionality)
-            raise CaseError(f"wrong kind of unit ({got}); expected {wanted}", path, value)
-        if dimension == "frequency" and math.isfinite(magnitude):
-            hertz = any(n.endswith("hertz") for n in unit_names)
-            if hertz and not cycles:
-                raise CaseError(
-                    f"Hz is ambiguous for an angular frequency; write rad/s ({magnitude:.6g} Hz = "
-                    f"{2 * math.pi * magnitude:.6g} rad/s)",
-                    path,
-                    value,
-                )
-            if cycles and _has_angle(unit_names):
-                raise CaseError("is a rate of samples: give it in Hz (or 1/s), not as an angle per time", path, value)
+        magnitude, dimension = _quantity_text(text, allowed, path, value, cycles)
     else:
         from .errors import kind
 
         raise CaseError(f"expected a number or a string with units, got {kind(value)}", path, value)
+    _check_magnitude(magnitude, path, value)
+    return magnitude, dimension
+
+
+def _plain_text_number(text, path, value):
+    """The number a text without a unit holds (YAML 1.1 reads '1e4', no dot, as text), else None.
+
+    Raises
+    ------
+    CaseError
+        An empty or too long text, or a plain number that is not finite ('1e400', 'inf', 'nan').
+    """
+    if not text:
+        raise CaseError("empty value; expected a number or a string with units", path, value)
+    if len(text) > MAX_QUANTITY_TEXT:
+        raise CaseError(f"is too long for a number with units (more than {MAX_QUANTITY_TEXT} characters)", path, value)
+    try:
+        plain = float(text)
+    except ValueError:
+        return None
+    if not math.isfinite(plain):  # name the text as written
+        raise CaseError("must be a finite number", path, value)
+    return plain
+
+
+def _quantity_text(text, allowed, path, value, cycles):
+    """``(magnitude in SI, dimension)`` of a number with units, its dimension among `allowed`
+    (frequencies: Hz only for a cycle rate, angles only for an angular frequency)."""
+    if not _SAFE_UNIT_TEXT.match(text) or "__" in text:
+        raise CaseError("not a number with units (unexpected characters)", path, value)
+    _check_unit_text(text, path, value)
+    try:
+        magnitude, dimensionality, unit_names = _parse(text)
+    except Exception as exc:  # pint raises many types; all mean "cannot parse"
+        raise CaseError(f"cannot read this as a number with units ({_short(exc)})", path, value) from None
+    dimension = next((name for name in allowed if dimensionality == _dimensionality(name)), None)
+    if dimension is None:
+        wanted = " or ".join(SI_UNIT_TEXT[a] for a in allowed)
+        got = _dimension_word(dimensionality)
+        raise CaseError(f"wrong kind of unit ({got}); expected {wanted}", path, value)
+    if dimension == "frequency" and math.isfinite(magnitude):
+        hertz = any(n.endswith("hertz") for n in unit_names)
+        if hertz and not cycles:
+            raise CaseError(
+                f"Hz is ambiguous for an angular frequency; write rad/s ({magnitude:.6g} Hz = "
+                f"{2 * math.pi * magnitude:.6g} rad/s)",
+                path,
+                value,
+            )
+        if cycles and _has_angle(unit_names):
+            raise CaseError("is a rate of samples: give it in Hz (or 1/s), not as an angle per time", path, value)
+    return magnitude, dimension
+
+
+def _check_magnitude(magnitude, path, value) -> None:
+    """Refuse a non-finite or subnormal SI value."""
     if not math.isfinite(magnitude):
         raise CaseError("must be a finite number", path, value)
     if magnitude != 0.0 and abs(magnitude) < SMALLEST_NORMAL:
@@ -246,7 +267,6 @@ def parse_quantity(value, allowed, path="", cycles=False) -> tuple[float, str]:
             path,
             value,
         )
-    return magnitude, dimension
 
 
 def _check_unit_text(text, path, value) -> None:

@@ -86,6 +86,13 @@ VALUE_FILES = {
     "travel_beyond_half_turn.yaml",
     "response_steps_too_many.yaml",
     "envelope_speed_above_mach_limit.yaml",
+    # issue 18
+    "schedule_inverse_q_wrong_variable.yaml",
+    "response_step_over_tenth.yaml",
+    "response_output_step_below_step.yaml",
+    "uncertainty_delay_without_delay.yaml",
+    "uncertainty_speed_derivative_short_period.yaml",
+    "uncertainty_sensor_not_first_order.yaml",
 }
 
 #: A sample run as real processes, to prove there is no traceback outside Python's own handler.

@@ -28,6 +28,7 @@ from damper.analysis.robustness import (
     uncertainty_spec,
 )
 from damper.case import load_case, load_case_text
+from damper.case.uncertainty import UncertainParameter, UncertaintySpec
 from damper.cli import main
 from damper.errors import CaseError
 from damper.output.jsonout import dumps
@@ -381,9 +382,12 @@ def test_builder_refuses_physically_impossible_spreads():
     case = _small("uncertainty: {parameters: [{name: actuator_bandwidth, relative: 1.2}]}")
     with pytest.raises(CaseError, match=r"uncertainty.parameters\[0\].relative.*must stay positive"):
         robustness(case, 0.1)
-    case = _ideal("uncertainty: {parameters: [{name: delay, relative: 0.2}]}")
+    with pytest.raises(CaseError, match="no delay"):  # refused where the case is read (issue 18)
+        _ideal("uncertainty: {parameters: [{name: delay, relative: 0.2}]}")
+    case = _ideal("")  # and by the study, for a spec made in code
+    spec = UncertaintySpec(parameters=(UncertainParameter("delay", relative=0.2, path="p"),))
     with pytest.raises(CaseError, match="no delay"):
-        robustness(case, 0.1)
+        robustness(case, 0.1, spec)
     case = _ideal("uncertainty: {parameters: [{name: M_delta, relative: 1.0}]}")
     with pytest.raises(CaseError, match="M_delta reach zero"):
         robustness(case, 0.1)

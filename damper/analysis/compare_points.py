@@ -101,9 +101,7 @@ def union_grid_points(case, schedule, schedules):
     conditions = points_as_conditions(pts, idx, configurations, "schedule verification point",
                                       "{kind} point of the schedule verification")
     conditions = tuple(dataclasses.replace(c, name=n) for c, n in zip(conditions, names))
-    raw = dict(case.raw or {})
-    raw["conditions"] = []
-    study = dataclasses.replace(case, conditions=conditions, raw=raw)
+    study = dataclasses.replace(case, conditions=conditions)
     values = np.asarray(pts.values, dtype=float)[:, idx]
     gains = np.asarray(schedule.gain_at(tuple(values)), dtype=float).reshape(-1)
     result = assess(study, gains, with_bandwidth=False)  # as the schedule's verification evaluates it

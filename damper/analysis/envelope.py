@@ -20,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..atmosphere import RHO0, standard_atmosphere
+from ..case.envelope import Aerodynamics, Configuration, Envelope  # the case's types (old import paths kept)
 from ..model.airframe import from_coefficients
 
 VARIABLE_UNITS = {
@@ -29,62 +30,6 @@ VARIABLE_UNITS = {
     "altitude": "m",
     "airspeed": "m/s",
 }
-
-_COEFS = ("CL_alpha", "CD", "CL_delta", "Cm_alpha", "Cm_alpha_dot", "Cm_q", "Cm_delta", "CL_q")
-#: Speed-derivative tables of the longitudinal model (absent tables of a short-period case are left out).
-_SPEED_COEFS = ("CL_u", "CD_u", "Cm_u", "CT_u", "CD_alpha")
-
-
-@dataclass(frozen=True)
-class Configuration:
-    """A mass / CG configuration: name, mass (kg), pitch_inertia (kg m^2), cg (fraction of chord),
-    trim flight-path angle (rad, positive climbing; longitudinal model only)."""
-
-    name: str
-    mass: float
-    pitch_inertia: float
-    cg: float
-    flight_path_angle: float = 0.0
-
-
-@dataclass(frozen=True)
-class Envelope:
-    """The envelope as the case gives it (SI).
-
-    Attributes
-    ----------
-    altitude : (float, float)
-        m (geopotential).
-    speed_kind : str
-        ``airspeed``, ``equivalent_airspeed`` or ``mach``: how the speed range is given.
-    speed : (float, float)
-        In the speed kind's unit (m/s, or Mach).
-    max_dynamic_pressure, max_mach, min_equivalent_airspeed, max_equivalent_airspeed : float or None
-    configurations : tuple of Configuration
-    grid_altitudes, grid_speeds : int
-        Verification grid density.
-    """
-
-    altitude: tuple
-    speed_kind: str
-    speed: tuple
-    max_dynamic_pressure: float | None
-    max_mach: float | None
-    min_equivalent_airspeed: float | None
-    max_equivalent_airspeed: float | None
-    configurations: tuple
-    grid_altitudes: int
-    grid_speeds: int
-
-
-@dataclass(frozen=True)
-class Aerodynamics:
-    """Coefficient tables against Mach (arrays), with the CG at which Cm_alpha is given."""
-
-    reference_cg: float
-    mach: np.ndarray
-    tables: dict
-
 
 @dataclass(frozen=True)
 class Points:
@@ -112,42 +57,8 @@ class Points:
 
 
 def envelope_from_case(case):
-    """(Envelope, Aerodynamics) from the case's validated sections, or (None, None)."""
-    e = case.raw.get("envelope")
-    if e is None:
-        return None, None
-    a = case.raw["aerodynamics"]
-    kind = next(k for k in ("airspeed", "equivalent_airspeed", "mach") if e[k] is not None)
-    ref = a["reference_cg"]
-    confs = e["configurations"] or [
-        {"name": "nominal", "mass": case.aircraft.mass, "pitch_inertia": case.aircraft.pitch_inertia, "cg": None}
-    ]
-    configurations = tuple(
-        Configuration(c["name"], c["mass"], c["pitch_inertia"], ref if c["cg"] is None else c["cg"],
-                      float(c.get("flight_path_angle") or 0.0)) for c in confs
-    )
-    alt = e["altitude"] or {"min": 0.0, "max": 0.0}
-    env = Envelope(
-        altitude=(alt["min"], alt["max"]),
-        speed_kind=kind,
-        speed=(e[kind]["min"], e[kind]["max"]),
-        max_dynamic_pressure=e["max_dynamic_pressure"],
-        max_mach=e["max_mach"],
-        min_equivalent_airspeed=e["min_equivalent_airspeed"],
-        max_equivalent_airspeed=e["max_equivalent_airspeed"],
-        configurations=configurations,
-        grid_altitudes=e["grid"]["altitudes"],
-        grid_speeds=e["grid"]["speeds"],
-    )
-    mach = np.asarray(a["mach"], dtype=float)
-    tables = {}
-    for key in _COEFS:
-        values = a.get(key)
-        tables[key] = np.zeros_like(mach) if values is None else np.asarray(values, dtype=float)
-    for key in _SPEED_COEFS:
-        if a.get(key) is not None:
-            tables[key] = np.asarray(a[key], dtype=float)
-    return env, Aerodynamics(ref, mach, tables)
+    """(Envelope, Aerodynamics) of the case (:mod:`damper.case.envelope`), or (None, None)."""
+    return case.envelope, case.aerodynamics
 
 
 def variable_value(name, altitude, airspeed):
@@ -278,3 +189,20 @@ def derivatives_at(case, env: Envelope, aero: Aerodynamics, pts: Points):
         gamma = np.array([c.flight_path_angle for c in env.configurations])[conf]
         return lon_from_coefficients(flight_path_angle=gamma, **flight, **coef)
     return from_coefficients(**flight, **coef)
+
+
+__all__ = [
+    "Aerodynamics",
+    "Configuration",
+    "Envelope",
+    "Points",
+    "VARIABLE_UNITS",
+    "airspeed_for",
+    "derivatives_at",
+    "envelope_from_case",
+    "grid_points",
+    "inside",
+    "points_at",
+    "speed_limits",
+    "variable_value",
+]

@@ -23,6 +23,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from ..case.sections import DEFAULT_OUTPUT_STEP as _OUTPUT_STEP
 from ..model.batch import batch_shape, map_arrays
 from ..model.loop import Loop
 from .response_inputs import (  # noqa: F401 (re-exported)
@@ -158,7 +159,7 @@ class ResponseSpec:
 
 DEFAULT_DURATION = 10.0
 DEFAULT_STEP = 1e-3
-DEFAULT_OUTPUT_STEP = 0.01
+DEFAULT_OUTPUT_STEP = _OUTPUT_STEP  # the case layer's default (one value)
 DEFAULT_START = 0.5
 DEFAULT_DOUBLET_AMPLITUDE = np.deg2rad(2.0)  # nose-up: a pull first
 
@@ -189,47 +190,36 @@ def response_spec(case) -> ResponseSpec:
     short-period period at each condition (:func:`default_half_period`); 10 s (60 s for the
     longitudinal model) at 1 ms.
 
+    The section's times and their checks are the case layer's
+    (:class:`damper.case.sections.ResponseSettings`); the default half-period depends on
+    each condition's airframe and is resolved here.
+
     Raises
     ------
     CaseError
         An input that does not end before the simulated time does.
     """
+    from ..case.sections import InputSettings
     from ..errors import CaseError
 
     d = case.derivatives()
-    raw = (case.raw or {}).get("responses")
-    if raw is None:
+    given = case.responses
+    if given is None:
         inp = Input("doublet", amplitude=DEFAULT_DOUBLET_AMPLITUDE, start=DEFAULT_START,
                     half_period=default_half_period(d), name="doublet")
         return ResponseSpec(_default_duration(case), DEFAULT_STEP, DEFAULT_OUTPUT_STEP, (inp,), default=True)
-    duration, step = raw["duration"] or _default_duration(case), raw["step"]
-    out_step = raw["output_step"] if raw.get("output_step") is not None else max(step, DEFAULT_OUTPUT_STEP)
-    if step > duration / 10:
-        raise CaseError("must be at most a tenth of responses.duration", "responses.step", step, file=case.file)
-    if duration / step > 2e6:
-        raise CaseError("gives more than 2 million steps; use a larger step or a shorter duration",
-                        "responses.step", step, file=case.file)
-    if out_step < step:
-        raise CaseError("must not be smaller than responses.step", "responses.output_step", out_step, file=case.file)
-    items = raw.get("inputs")
-    if not items:
-        items = [{"kind": "doublet"}]
+    duration, step, out_step = given.duration_s, given.step_s, given.output_step_s
     inputs = []
-    for i, it in enumerate(items):
-        kind = it["kind"]
-        hp = it.get("half_period")
-        start = it.get("start")
-        start = DEFAULT_START if start is None else start
-        amp = it.get("amplitude")
+    for i, it in enumerate(given.inputs or (InputSettings("doublet"),)):
         inp = Input(
-            kind,
-            amplitude=(DEFAULT_DOUBLET_AMPLITUDE if amp is None else amp),
-            start=start,
-            half_period=default_half_period(d) if hp is None else hp,
-            duration=it.get("duration") or 0.0,
-            gust_velocity=it.get("gust_velocity") or 0.0,
-            gust_length=it.get("gust_length") or 0.0,
-            name=it.get("name") or f"{kind}",
+            it.kind,
+            amplitude=(DEFAULT_DOUBLET_AMPLITUDE if it.amplitude_rad is None else it.amplitude_rad),
+            start=DEFAULT_START if it.start_s is None else it.start_s,
+            half_period=default_half_period(d) if it.half_period_s is None else it.half_period_s,
+            duration=it.duration_s or 0.0,
+            gust_velocity=it.gust_velocity_m_s or 0.0,
+            gust_length=it.gust_length_m or 0.0,
+            name=it.name or f"{it.kind}",
         )
         end = np.max(input_end(inp, d.airspeed))
         if not end < duration:

@@ -3,8 +3,13 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
+
+if TYPE_CHECKING:  # annotations only
+    from ..case.uncertainty import UncertaintySpec
+    from .uncertainty import Axes
 
 
 @dataclass(frozen=True)

@@ -30,6 +30,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..case.sections import ScheduleSettings
 from ..errors import DamperError
 from ..model.airframe import Derivatives
 from ..model.loop import Loop
@@ -320,9 +321,9 @@ def design_points(case):
     env, aero = env_mod.envelope_from_case(case)
     if env is None:
         raise DamperError(f"{case.file}: the case has no envelope")
-    s = case.raw.get("schedule") or {}
-    variables = tuple(s.get("variables") or ("dynamic_pressure",))
-    bps = _initial_breakpoints(env, variables, s.get("breakpoints") or 5)
+    s = case.schedule or ScheduleSettings()
+    variables = tuple(s.variables)
+    bps = _initial_breakpoints(env, variables, s.breakpoints)
     H, V, _ = _points_on(env, variables, bps, _DESIGN_ALTITUDES, _DESIGN_ALTITUDES)
     H, V, _ = _distinct_points([(H, V, "design")])
     pts = _pointset_from_env(case, env, aero, H, V, np.full(H.size, "design"), variables)
@@ -433,22 +434,18 @@ def design_schedule(case, progress=None) -> ScheduleResult:
 
 
 def _design_schedule(case, report) -> ScheduleResult:
-    s = case.raw.get("schedule")
+    s = case.schedule  # its form and variables are checked by the case layer (damper.case.sections)
     if s is None:
         raise DamperError(f"{case.file}: the case has no schedule section")
-    variables = tuple(s["variables"])
-    form = s["form"]
-    if form == "inverse_dynamic_pressure" and variables != ("dynamic_pressure",):
-        raise DamperError(f"{case.file}: schedule.form inverse_dynamic_pressure needs variables [dynamic_pressure]")
-    if len(variables) == 2 and ("altitude" not in variables or variables[0] == variables[1]):
-        raise DamperError(f"{case.file}: a 2-D schedule needs altitude and one speed variable, e.g. [altitude, mach]")
+    variables = tuple(s.variables)
+    form = s.form
     env, aero = env_mod.envelope_from_case(case)
     if env is None:
         from .schedule_conditions import _conditions_schedule
 
         return _conditions_schedule(case, variables, form, s)
-    bps = _initial_breakpoints(env, variables, s["breakpoints"])
-    max_bp = max(s["max_breakpoints"], max(len(b) for b in bps))
+    bps = _initial_breakpoints(env, variables, s.breakpoints)
+    max_bp = max(s.max_breakpoints, max(len(b) for b in bps))
     history = []
     rounds = 0
     stalled = False
@@ -459,7 +456,7 @@ def _design_schedule(case, report) -> ScheduleResult:
         report(rounds, None, "schedule")
         nfail = int(np.sum(~ver.passed))
         history.append((int(np.prod([len(b) for b in bps])), nfail))
-        if nfail == 0 or form != "table" or s["max_breakpoints"] == 0 or rounds >= 12:
+        if nfail == 0 or form != "table" or s.max_breakpoints == 0 or rounds >= 12:
             break
         # Breakpoints with no gain meeting everything cannot be mended by more breakpoints;
         # once a round with such breakpoints fails at no smaller fraction of its points, stop.
@@ -515,7 +512,7 @@ def _message(passed, ver, bd, form, s, rounds):
         why = "; some breakpoints have no gain meeting every requirement at all their design points"
     elif form != "table":
         why = "; the inverse-dynamic-pressure law has one parameter and is not refined"
-    elif s["max_breakpoints"] == 0:
+    elif s.max_breakpoints == 0:
         why = "; automatic breakpoints are off (schedule.max_breakpoints: 0)"
     return (
         f"{nfail} of {ver.passed.size} verification points fail; worst at {ver.points.labels[worst]} "

@@ -101,9 +101,7 @@ def schedule_study_case(case, result, count):
     idx = tightest_points(ver.worst_slack, pts.configuration, count, pts.labels)
     conditions = points_as_conditions(pts, idx, result.configurations, "schedule verification point",
                                       "{kind} point of the schedule verification")
-    raw = dict(case.raw or {})
-    raw["conditions"] = []
-    study = dataclasses.replace(case, conditions=conditions, raw=raw)
+    study = dataclasses.replace(case, conditions=conditions)
     return study, np.asarray(ver.gains, dtype=float)[idx], idx
 
 
@@ -164,9 +162,7 @@ def design_points_case(case):
     pts, configurations = design_points(case)
     conditions = points_as_conditions(pts, np.arange(len(pts.labels)), configurations, "envelope design point",
                                       "{kind} point of the envelope (the schedule's first design points)")
-    raw = dict(case.raw or {})
-    raw["conditions"] = []
-    return dataclasses.replace(case, conditions=conditions, raw=raw)
+    return dataclasses.replace(case, conditions=conditions)
 
 
 def study_description(count, schedule="the schedule"):

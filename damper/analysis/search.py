@@ -176,38 +176,13 @@ def search(case: Case, settings: SearchSettings | None = None) -> DesignResult:
     """Feasible intervals and chosen gain at every condition of `case`."""
     settings = settings or SearchSettings()
     n = len(case.conditions)
-    lo_default, hi_default = default_range(case)
-    lo = np.full(n, settings.gain_min) if settings.gain_min else lo_default
-    hi = np.full(n, settings.gain_max) if settings.gain_max else hi_default
-    u = np.linspace(0.0, 1.0, settings.points)
-    gains = 10.0 ** (np.log10(lo)[:, None] + u[None, :] * (np.log10(hi) - np.log10(lo))[:, None])
+    gains = _sweep_gains(case, settings)  # (n, points), s
     rows = np.repeat(np.arange(n)[:, None], settings.points, 1)
     sweep = evaluate_points(case, rows, gains)
     ok = sweep.criteria.all_met  # (n, points)
     worst = sweep.criteria.worst_slack
     names = _names(case)
-
-    # --- edges: bracket every change of feasibility, refine all at once -----------------
-    r, j = np.nonzero(ok[:, :-1] != ok[:, 1:])
-    a = np.log10(gains[r, j])
-    b = np.log10(gains[r, j + 1])
-    ok_a = ok[r, j]
-    for _ in range(_REFINE_STEPS):
-        if r.size == 0:
-            break
-        mid = 0.5 * (a + b)
-        res = evaluate_points(case, r, 10.0**mid)
-        m_ok = res.criteria.all_met
-        same = m_ok == ok_a
-        a = np.where(same, mid, a)
-        b = np.where(same, b, mid)
-        if np.all((b - a) < np.log10(1.0 + EDGE_TOLERANCE) / 8):
-            break
-    edge_gain = np.where(ok_a, 10.0**a, 10.0**b)  # the feasible side of each bracket
-    outside = np.where(ok_a, 10.0**b, 10.0**a)
-    binding_idx = (
-        evaluate_points(case, r, outside).criteria.binding() if r.size else np.zeros(0, int)
-    )
+    r, j, ok_a, edge_gain, binding_idx = _edges(case, ok, gains)
 
     # --- the bare airframe (K = 0): does the first feasible interval reach down to it? ------
     bare = evaluate_points(case, np.arange(n), np.zeros(n))
@@ -233,27 +208,75 @@ def search(case: Case, settings: SearchSettings | None = None) -> DesignResult:
             chosen_gain[i] = 0.0
             reasons[i] = "the bare airframe meets every requirement: least gain is K = 0"
     chosen = evaluate_points(case, np.arange(n), chosen_gain)
-    out = []
-    for i in range(n):
-        intervals, edges = designs[i]
-        binding = ()
-        if not feasible[i]:
-            sl = chosen.criteria.slacks[:, i]
-            binding = tuple((names[k], float(sl[k])) for k in np.argsort(sl) if sl[k] < 0)
-        out.append(
-            ConditionDesign(
-                name=case.conditions[i].name,
-                intervals=tuple(intervals),
-                edges=tuple(edges),
-                chosen_gain=float(chosen_gain[i]),
-                feasible=bool(feasible[i]),
-                policy=settings.policy,
-                reason=reasons[i],
-                binding=binding,
-                sweep_range=(float(gains[i, 0]), float(gains[i, -1])),
-            )
-        )
+    out = [_condition_design(case, settings, i, designs[i], chosen_gain[i], feasible[i], reasons[i],
+                             chosen.criteria.slacks[:, i], names, gains[i]) for i in range(n)]
     return DesignResult(tuple(out), gains, sweep, chosen)
+
+
+def _sweep_gains(case, settings):
+    """The sweep's gains, s, shape (n_conditions, points): log-spaced over the settings' or the default range."""
+    n = len(case.conditions)
+    lo_default, hi_default = default_range(case)
+    lo = np.full(n, settings.gain_min) if settings.gain_min else lo_default
+    hi = np.full(n, settings.gain_max) if settings.gain_max else hi_default
+    u = np.linspace(0.0, 1.0, settings.points)
+    return 10.0 ** (np.log10(lo)[:, None] + u[None, :] * (np.log10(hi) - np.log10(lo))[:, None])
+
+
+def _edges(case, ok, gains):
+    """Every change of feasibility along the sweep, bracketed and refined all at once (bisection in log K).
+
+    Returns
+    -------
+    r, j : ndarray of int
+        Condition row and sweep index of each bracket (between points j and j + 1).
+    ok_a : ndarray of bool
+        Feasibility at the bracket's lower end.
+    edge_gain : ndarray
+        The feasible side of each refined bracket, s.
+    binding_idx : ndarray of int
+        The criterion with the least slack just outside each edge.
+    """
+    r, j = np.nonzero(ok[:, :-1] != ok[:, 1:])
+    a = np.log10(gains[r, j])
+    b = np.log10(gains[r, j + 1])
+    ok_a = ok[r, j]
+    for _ in range(_REFINE_STEPS):
+        if r.size == 0:
+            break
+        mid = 0.5 * (a + b)
+        res = evaluate_points(case, r, 10.0**mid)
+        m_ok = res.criteria.all_met
+        same = m_ok == ok_a
+        a = np.where(same, mid, a)
+        b = np.where(same, b, mid)
+        if np.all((b - a) < np.log10(1.0 + EDGE_TOLERANCE) / 8):
+            break
+    edge_gain = np.where(ok_a, 10.0**a, 10.0**b)  # the feasible side of each bracket
+    outside = np.where(ok_a, 10.0**b, 10.0**a)
+    binding_idx = (
+        evaluate_points(case, r, outside).criteria.binding() if r.size else np.zeros(0, int)
+    )
+    return r, j, ok_a, edge_gain, binding_idx
+
+
+def _condition_design(case, settings, i, design, chosen_gain, feasible, reason, slacks, names, gains_i):
+    """The :class:`ConditionDesign` of condition `i` from its intervals and its chosen gain's slacks."""
+    intervals, edges = design
+    binding = ()
+    if not feasible:
+        binding = tuple((names[k], float(slacks[k])) for k in np.argsort(slacks) if slacks[k] < 0)
+    return ConditionDesign(
+        name=case.conditions[i].name,
+        intervals=tuple(intervals),
+        edges=tuple(edges),
+        chosen_gain=float(chosen_gain),
+        feasible=bool(feasible),
+        policy=settings.policy,
+        reason=reason,
+        binding=binding,
+        sweep_range=(float(gains_i[0]), float(gains_i[-1])),
+    )
 
 
 def _intervals(i, ok_i, gains_i, r, j, edge_gain, ok_a, binding_idx, names):

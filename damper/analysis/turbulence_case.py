@@ -1,6 +1,6 @@
 """A case's ``turbulence:`` section applied to its conditions (docs/turbulence.md, section 6).
 
-Turns the validated section into a :class:`damper.model.dryden.TurbulenceSpec`, finds each
+Reads the case's :class:`damper.model.dryden.TurbulenceSpec` (``Case.turbulence``), finds each
 condition's height above ground (altitude minus ``turbulence.ground_elevation``; at least
 10 ft, below which the standard's low-altitude model is not defined: from memory of
 MIL-F-8785C), and runs :func:`damper.analysis.turbulence.turbulence_for_spec` on the case's
@@ -11,8 +11,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..case.sections import TURBULENCE_REQUIREMENTS
 from ..errors import DamperError
-from ..model import dryden
 
 #: Lowest height above ground the standard's values are read at, m (10 ft; from memory).
 MIN_HEIGHT_M = 10.0 * 0.3048
@@ -20,20 +20,14 @@ MIN_HEIGHT_M = 10.0 * 0.3048
 
 def turbulence_spec(case):
     """The case's :class:`~damper.model.dryden.TurbulenceSpec`, or None without a ``turbulence:`` section."""
-    raw = (case.raw or {}).get("turbulence")
-    if not raw:
-        return None
-    if raw.get("severity"):
-        return dryden.TurbulenceSpec.from_severity(raw["severity"])
-    keys = ("gust_rms", "scale_length", "wind_speed_20ft", "exceedance_probability")
-    return dryden.TurbulenceSpec(**{k: raw.get(k) for k in keys})
+    return None if case.turbulence is None else case.turbulence.spec
 
 
 def heights_above_ground(case):
     """Each condition's height above ground, m (altitude - ground elevation, at least :data:`MIN_HEIGHT_M`)."""
-    raw = (case.raw or {}).get("turbulence") or {}
+    ground = 0.0 if case.turbulence is None else case.turbulence.ground_elevation_m
     alt = np.array([c.altitude for c in case.conditions], dtype=float)
-    return np.maximum(alt - float(raw.get("ground_elevation") or 0.0), MIN_HEIGHT_M)
+    return np.maximum(alt - ground, MIN_HEIGHT_M)
 
 
 def case_turbulence(case, gains):
@@ -54,11 +48,7 @@ def case_turbulence(case, gains):
     from .turbulence import turbulence_for_spec
 
     spec = turbulence_spec(case)
-    if spec is None:
-        given = sorted(turbulence_requirements(case))
-        if given:
-            raise DamperError(f"{case.file}: requirements.{given[0]} needs a turbulence: section (the turbulence "
-                              "the requirement applies in)")
+    if spec is None:  # a turbulence requirement without the section is refused by the case layer
         return None
     height = heights_above_ground(case)
     try:
@@ -80,8 +70,9 @@ REQUIREMENTS = {
 
 def turbulence_requirements(case) -> dict:
     """``{requirement: max}`` of the case's turbulence requirements (empty when none is given)."""
-    raw = (case.raw or {}).get("requirements") or {}
-    return {k: float(raw[k]["max"]) for k in REQUIREMENTS if raw.get(k)}
+    given = case.requirements_given
+    out = {k: getattr(given, TURBULENCE_REQUIREMENTS[k]) for k in REQUIREMENTS}
+    return {k: v for k, v in out.items() if v is not None}
 
 
 def check_turbulence(case, result) -> list:

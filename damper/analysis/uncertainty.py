@@ -21,6 +21,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..case.uncertainty import CgShift, UncertainParameter, UncertaintySpec  # the case's types
 from ..errors import CaseError
 from ..model.elements import Delay, Lag, SecondOrderLag
 from ..model.loop import Loop
@@ -60,148 +61,14 @@ _POSITIVE = ("mass", "pitch_inertia", "actuator_bandwidth", "actuator_time_const
 # ---------------------------------------------------------------------------------
 # The specification
 # ---------------------------------------------------------------------------------
-@dataclass(frozen=True)
-class UncertainParameter:
-    """One uncertain parameter as the case gives it (SI).
-
-    Attributes
-    ----------
-    name : str
-        A key of :data:`damper.case.uncertainty_schema.PARAMETERS`.
-    distribution : str
-        ``"uniform"`` or ``"normal"``.
-    relative : float or None
-        Spread as a fraction of ``|nominal|``.
-    absolute : float or None
-        Spread in the parameter's SI unit.
-    sigma : float or None
-        Normal: standard deviation as a fraction of the spread (None: ``1 / truncate``).
-    truncate : float
-        Normal: truncation in standard deviations.
-    path : str
-        Case-file key path, for messages.
-    """
-
-    name: str
-    distribution: str = "uniform"
-    relative: float | None = None
-    absolute: float | None = None
-    sigma: float | None = None
-    truncate: float = 3.0
-    path: str = ""
-
-    @property
-    def half_width_factor(self) -> float:
-        """Half-width of the sampled range per unit spread (1 for uniform)."""
-        if self.distribution == "uniform":
-            return 1.0
-        sigma = self.sigma if self.sigma is not None else 1.0 / self.truncate
-        return self.truncate * sigma
-
-    def spread(self, nominal) -> np.ndarray:
-        """The spread at each condition, in the parameter's unit."""
-        nominal = np.asarray(nominal, dtype=float)
-        if self.relative is not None:
-            return self.relative * np.abs(nominal)
-        return np.full(nominal.shape, float(self.absolute))
-
-
-@dataclass(frozen=True)
-class CgShift:
-    """Centre-of-gravity shift, uniform on [low, high] fractions of the mean chord (aft positive).
-
-    Attributes
-    ----------
-    low, high : float
-        dx/c.
-    lift_curve_slope : float or None
-        CL_alpha per rad (None: the condition's coefficients, else ``-Z_alpha m / (qbar S)``).
-    """
-
-    low: float
-    high: float
-    lift_curve_slope: float | None = None
-
-
-@dataclass(frozen=True)
-class UncertaintySpec:
-    """What is uncertain and how it is explored.
-
-    Attributes
-    ----------
-    samples : int
-        Monte Carlo samples (each applied at every condition).
-    seed : int
-    confidence : float
-        Of the Clopper-Pearson intervals.
-    parameters : tuple of UncertainParameter
-    cg_shift : CgShift or None
-    max_corner_axes : int
-        All corners when the active axes are at most this many, else a random subset.
-    corner_subset : int
-        Corners drawn when there are more axes.
-    refine_starts : int
-        Worst evaluated points each local search starts from.
-    refine_iterations : int
-        Iterations of each compass search (each moves or halves the step).
-    refine_min_step : float
-        Smallest step of the compass search, in normalised coordinates.
-    chunk : int
-        Loops per :func:`assess_loop` call.
-    schedule_points : int
-        With a schedule: the verification points studied (see
-        :mod:`damper.analysis.schedule_points`).
-    required_fraction : float or None
-        The fraction of samples that must meet every requirement at every condition, judged on
-        the lower bound of its interval at `confidence`; None: every sample, corner and
-        worst-case point must (:func:`damper.analysis.verdicts.robustness_verdict`).
-    """
-
-    samples: int = 2000
-    seed: int = 1
-    confidence: float = 0.95
-    parameters: tuple = ()
-    cg_shift: CgShift | None = None
-    max_corner_axes: int = 12
-    corner_subset: int = 4096
-    refine_starts: int = 3
-    refine_iterations: int = 24
-    refine_min_step: float = 1.0 / 64.0
-    chunk: int = 2048
-    schedule_points: int = 12
-    required_fraction: float | None = None
-
-
 def uncertainty_spec(case, samples=None, seed=None, **overrides) -> UncertaintySpec:
     """The case's ``uncertainty:`` section as an :class:`UncertaintySpec` (defaults if absent).
 
     `samples` and `seed` override the case's values (e.g. from the command line).
     """
-    raw = (case.raw or {}).get("uncertainty") or {}
-    params = tuple(
-        UncertainParameter(
-            name=p["name"],
-            distribution=p.get("distribution", "uniform"),
-            relative=p.get("relative"),
-            absolute=p.get("absolute"),
-            sigma=p.get("sigma"),
-            truncate=p.get("truncate", 3.0),
-            path=f"uncertainty.parameters[{k}]",
-        )
-        for k, p in enumerate(raw.get("parameters") or ())
-    )
-    cg = raw.get("cg_shift")
-    cg = CgShift(float(cg["range"][0]), float(cg["range"][1]), cg.get("lift_curve_slope")) if cg else None
-    spec = UncertaintySpec(
-        samples=int(samples if samples is not None else raw.get("samples", 2000)),
-        seed=int(seed if seed is not None else raw.get("seed", 1)),
-        confidence=float(raw.get("confidence", 0.95)),
-        parameters=params,
-        cg_shift=cg,
-        schedule_points=int(raw.get("schedule_points", 12)),
-        required_fraction=None if raw.get("required_fraction") is None else float(raw["required_fraction"]),
-    )
-    return dataclasses.replace(spec, **overrides) if overrides else spec
+    spec = case.uncertainty or UncertaintySpec()
+    given = {k: int(v) for k, v in (("samples", samples), ("seed", seed)) if v is not None}
+    return dataclasses.replace(spec, **given, **overrides) if given or overrides else spec
 
 
 # ---------------------------------------------------------------------------------
@@ -298,15 +165,14 @@ def _cg_effect(case, cg: CgShift):
     a = case.aircraft
     if a.mean_chord is None:
         raise CaseError("a CG shift needs aircraft.mean_chord", "uncertainty.cg_shift")
-    raw_conditions = {c.get("name"): c for c in (case.raw or {}).get("conditions") or ()}
     d = case.derivatives()
     effect, source = [], []
     for i, c in enumerate(case.conditions):
-        coefs = (raw_conditions.get(c.name) or {}).get("coefficients")
-        if cg.lift_curve_slope is not None or coefs is not None:
+        given = c.lift_curve_slope_per_rad  # the condition's coefficients.CL_alpha (None: not given)
+        if cg.lift_curve_slope is not None or given is not None:
             if a.wing_area is None:
                 raise CaseError("a CG shift with lift_curve_slope needs aircraft.wing_area", "uncertainty.cg_shift")
-            cla = float(cg.lift_curve_slope) if cg.lift_curve_slope is not None else float(coefs["CL_alpha"])
+            cla = float(cg.lift_curve_slope) if cg.lift_curve_slope is not None else float(given)
             src = "uncertainty.cg_shift.lift_curve_slope" if cg.lift_curve_slope is not None else "coefficients.CL_alpha"
             effect.append(cla * c.dynamic_pressure * a.wing_area * a.mean_chord / c.pitch_inertia)
         else:

@@ -2,20 +2,21 @@
 
 Imported by :mod:`damper.case.schema`; the study itself is :mod:`damper.analysis.failure_study`
 and the keys are explained in docs/failures.md. The defaults' sources are in
-:mod:`damper.analysis.failure_spec` (which reads this section through
-:func:`damper.analysis.failure_case.failure_spec`).
+:mod:`damper.case.failure_spec`; :func:`damper.case.failures.failures_from_values` turns the
+validated section into ``Case.failures``.
 """
 
 from __future__ import annotations
 
 from ..errors import CaseError
+from .failure_spec import KINDS as FAILURE_KINDS
+from .failures import PRESETS
 from .spec_types import Choice, Integer, Items, Number, Quantity, Section
 
-#: Failure kinds (the same words as :data:`damper.analysis.failure_spec.KINDS`; a test checks).
-KINDS = ("hardover", "oscillatory", "passive")
-#: Presets of the transient limits (values and sources in
-#: :data:`damper.analysis.failure_case.PRESETS`; a test checks the names agree).
-LIMIT_PRESETS = ("MIL-F-9490D", "FAA-flight-guidance")
+#: Failure kinds (the words of :data:`damper.case.failure_spec.KINDS`).
+KINDS = FAILURE_KINDS
+#: Presets of the transient limits (values and sources in :data:`damper.case.failures.PRESETS`).
+LIMIT_PRESETS = tuple(PRESETS)
 
 
 class BandSection(Section):

@@ -10,6 +10,7 @@ import numpy as np
 from ..atmosphere import RHO0, geopotential_from_geometric, standard_atmosphere
 from ..errors import CaseError
 from ..model.airframe import Derivatives, from_coefficients
+from ..model.elements import FILTER_KINDS, parameter_names
 from ..requirements.spec import build_requirements
 from . import schema
 from .checks import (  # noqa: F401 - the checks live in their own module
@@ -27,8 +28,10 @@ from .checks import (  # noqa: F401 - the checks live in their own module
     _raw,
     MAX_FAILURE_SAMPLES,
 )
+from .envelope import envelope_sections
+from .failures import failures_from_values
 from .model import Aircraft, Case, Condition, ElementSpec, LoopSpec, Settings
-from .written import as_written, plain_number_warnings
+from .sections import requirements_given, response_settings, schedule_settings, turbulence_settings
 from .speed_terms import (
     LONGITUDINAL,
     SPEED_COEFFICIENTS,
@@ -37,6 +40,8 @@ from .speed_terms import (
     speed_terms_from_coefficients,
     speed_terms_from_derivatives,
 )
+from .uncertainty import check_uncertainty, uncertainty_from_values
+from .written import as_written, plain_number_warnings, written_quantities
 from .yamlio import read_yaml
 
 
@@ -98,7 +103,7 @@ def load_case_text(data, file="<case>") -> Case:
         if doc is None:
             raise CaseError("the file is empty (a case needs at least title, aircraft and conditions)")
         values = schema.check(doc)
-        return _build(values, file, sha, doc)
+        return _build(values, file, sha, doc, text)
     except CaseError as exc:
         raise exc.with_location(file=file) from None
 
@@ -118,12 +123,7 @@ def _element(kind_hint, values):
     return None
 
 
-_FILTER_KEYS = {
-    "lag": ("time_constant",),
-    "lead_lag": ("lead_time_constant", "lag_time_constant"),
-    "notch": ("frequency", "depth_damping", "width_damping"),
-    "second_order": ("natural_frequency", "damping_ratio"),
-}
+_FILTER_KEYS = {kind: parameter_names(kind) for kind in FILTER_KINDS}  # the element registry
 
 
 def _build_loop(values, doc) -> LoopSpec:
@@ -210,114 +210,122 @@ def _airframe(c, aircraft, qbar, v, mass, inertia, gamma, longitudinal):
     return speed_terms_from_derivatives(d, c["derivatives"], mass, inertia, gamma) if longitudinal else d
 
 
-def _build(values, file, sha, doc) -> Case:
-    _check_counts(values, doc)
-    check_model_keys(values, lambda *k: _raw(doc, *k), lambda *k: _line(doc, *k))
+def _condition(c, i, aircraft, altitude_kind, longitudinal, doc):
+    """One validated condition `c` (``conditions[i]``) resolved: atmosphere, speed, airframe model.
+
+    Returns
+    -------
+    condition : Condition
+    warnings : list of str
+    """
+    path = f"conditions[{i}]"
+    line = _line(doc, "conditions", i)
+    name = c["name"]
+    h = c["altitude"]
+    if altitude_kind == "geometric":
+        h = float(geopotential_from_geometric(h))
+    try:
+        air = standard_atmosphere(h)
+    except ValueError as exc:
+        raise CaseError(
+            f"is {float(h):.6g} m geopotential: {exc}",
+            f"{path}.altitude",
+            _raw(doc, "conditions", i, "altitude"),
+            line=_line(doc, "conditions", i, "altitude") or line,
+        ) from None
+    rho = float(air.density)
+    a_sound = float(air.speed_of_sound)
+    if c["airspeed"] is not None:
+        v = c["airspeed"]
+    elif c["equivalent_airspeed"] is not None:
+        v = c["equivalent_airspeed"] * np.sqrt(RHO0 / rho)
+    else:
+        v = c["mach"] * a_sound
+    v = float(v)
+    _check_mach(v, a_sound, c, doc, i, line)
+    qbar = 0.5 * rho * v * v
+    gamma = float(c["flight_path_angle"] or 0.0)
+    mass = c["mass"] if c["mass"] is not None else aircraft.mass
+    inertia = c["pitch_inertia"] if c["pitch_inertia"] is not None else aircraft.pitch_inertia
+    coefficients = c["coefficients"]
+    if coefficients is not None:
+        absent = [f"aircraft.{k}" for k in ("wing_area", "mean_chord") if getattr(aircraft, k) is None]
+        if absent:
+            raise CaseError(
+                f"coefficients need {' and '.join(absent)}, which {'is' if len(absent) == 1 else 'are'} not given",
+                f"{path}.coefficients",
+                line=_line(doc, "conditions", i, "coefficients"),
+            )
+    with np.errstate(over="ignore", invalid="ignore"):  # overflow: refused just below, with a message
+        d = _airframe(c, aircraft, qbar, v, mass, inertia, gamma, longitudinal)
+    d = type(d)(**{k: np.asarray(float(getattr(d, k))) for k in type(d).__dataclass_fields__})
+    _check_finite_model(d, path, name, line)
+    _check_control_power(d, c, doc, i, line)
+    warnings = list(_physics_warnings(d, f"{path} ({name})"))
+    if coefficients is not None:
+        warnings.extend(_coefficient_warnings(coefficients, f"{path} ({name})"))
+    condition = Condition(
+        name=name, airspeed=v, altitude=float(h), altitude_input=float(c["altitude"]), density=rho,
+        speed_of_sound=a_sound, mach=v / a_sound, dynamic_pressure=qbar, mass=float(mass),
+        pitch_inertia=float(inertia), derivatives=d,
+        source="coefficients" if coefficients is not None else "derivatives",
+        note=c["note"], configuration=c.get("configuration"), written=as_written(_raw(doc, "conditions", i)),
+        flight_path_angle=gamma,
+        lift_curve_slope_per_rad=None if coefficients is None else float(coefficients["CL_alpha"]),
+    )
+    return condition, warnings
+
+
+def _conditions(values, aircraft, doc):
+    """Every condition resolved (names unique); ``(conditions, warnings)``."""
     longitudinal = values["model"] == LONGITUDINAL
-    a = values["aircraft"]
-    aircraft = Aircraft(a["name"], a["mass"], a["pitch_inertia"], a["wing_area"], a["mean_chord"])
-    altitude_kind = values["atmosphere"]["altitude_kind"]
-    conditions = []
-    seen = {}
-    warnings = []
+    conditions, warnings, seen = [], [], {}
     for i, c in enumerate(values["conditions"]):
-        path = f"conditions[{i}]"
-        line = _line(doc, "conditions", i)
-        name = c["name"]
-        if name in seen:
-            raise CaseError(
-                f"duplicate condition name (also conditions[{seen[name]}])", f"{path}.name", name, line=line
-            )
-        seen[name] = i
-        h = c["altitude"]
-        if altitude_kind == "geometric":
-            h = float(geopotential_from_geometric(h))
-        try:
-            air = standard_atmosphere(h)
-        except ValueError as exc:
-            raise CaseError(
-                f"is {float(h):.6g} m geopotential: {exc}",
-                f"{path}.altitude",
-                _raw(doc, "conditions", i, "altitude"),
-                line=_line(doc, "conditions", i, "altitude") or line,
-            ) from None
-        rho = float(air.density)
-        a_sound = float(air.speed_of_sound)
-        if c["airspeed"] is not None:
-            v = c["airspeed"]
-        elif c["equivalent_airspeed"] is not None:
-            v = c["equivalent_airspeed"] * np.sqrt(RHO0 / rho)
-        else:
-            v = c["mach"] * a_sound
-        v = float(v)
-        _check_mach(v, a_sound, c, doc, i, line)
-        qbar = 0.5 * rho * v * v
-        gamma = float(c["flight_path_angle"] or 0.0)
-        mass = c["mass"] if c["mass"] is not None else aircraft.mass
-        inertia = c["pitch_inertia"] if c["pitch_inertia"] is not None else aircraft.pitch_inertia
-        if c["coefficients"] is not None:
-            absent = [f"aircraft.{k}" for k in ("wing_area", "mean_chord") if getattr(aircraft, k) is None]
-            if absent:
-                raise CaseError(
-                    f"coefficients need {' and '.join(absent)}, which {'is' if len(absent) == 1 else 'are'} not given",
-                    f"{path}.coefficients",
-                    line=_line(doc, "conditions", i, "coefficients"),
-                )
-        with np.errstate(over="ignore", invalid="ignore"):  # overflow: refused just below, with a message
-            d = _airframe(c, aircraft, qbar, v, mass, inertia, gamma, longitudinal)
-        source = "coefficients" if c["coefficients"] is not None else "derivatives"
-        d = type(d)(**{k: np.asarray(float(getattr(d, k))) for k in type(d).__dataclass_fields__})
-        _check_finite_model(d, path, name, line)
-        _check_control_power(d, c, doc, i, line)
-        warnings.extend(_physics_warnings(d, f"{path} ({name})"))
-        if c["coefficients"] is not None:
-            warnings.extend(_coefficient_warnings(c["coefficients"], f"{path} ({name})"))
-        conditions.append(
-            Condition(
-                name=name,
-                airspeed=v,
-                altitude=float(h),
-                altitude_input=float(c["altitude"]),
-                density=rho,
-                speed_of_sound=a_sound,
-                mach=v / a_sound,
-                dynamic_pressure=qbar,
-                mass=float(mass),
-                pitch_inertia=float(inertia),
-                derivatives=d,
-                source=source,
-                note=c["note"],
-                configuration=c.get("configuration"),
-                written=as_written(_raw(doc, "conditions", i)),
-                flight_path_angle=gamma,
-            )
-        )
-    if not conditions and values["envelope"] is None:
+        if c["name"] in seen:
+            raise CaseError(f"duplicate condition name (also conditions[{seen[c['name']]}])", f"conditions[{i}].name",
+                            c["name"], line=_line(doc, "conditions", i))
+        seen[c["name"]] = i
+        condition, said = _condition(c, i, aircraft, values["atmosphere"]["altitude_kind"], longitudinal, doc)
+        conditions.append(condition)
+        warnings.extend(said)
+    return tuple(conditions), warnings
+
+
+def _check_envelope(values, aircraft, doc, has_conditions):
+    """An envelope needs the reference geometry and the aerodynamic tables; a case needs conditions or one."""
+    if not has_conditions and values["envelope"] is None:
         raise CaseError("give a list of conditions, or an envelope with aerodynamics", "conditions", line=_line(doc, "title"))
-    if values["envelope"] is not None:
-        for key in ("wing_area", "mean_chord"):
-            if getattr(aircraft, key) is None:
-                raise CaseError(f"an envelope needs aircraft.{key} (its derivatives come from coefficients)", "envelope",
-                                line=_line(doc, "envelope"))
-        if values["aerodynamics"] is None:
-            raise CaseError("an envelope needs an aerodynamics section (coefficient tables against Mach)", "envelope",
+    if values["envelope"] is None:
+        return
+    for key in ("wing_area", "mean_chord"):
+        if getattr(aircraft, key) is None:
+            raise CaseError(f"an envelope needs aircraft.{key} (its derivatives come from coefficients)", "envelope",
                             line=_line(doc, "envelope"))
-        _check_aero_tables(values["aerodynamics"], doc)
-        _check_envelope_mach(values, doc)
-    warnings.extend(plain_number_warnings(conditions, values["envelope"], altitude_kind))
-    loop = _build_loop(values["loop"], doc)
-    warnings.extend(_loop_warnings(loop))
-    if values.get("failures") is not None and loop.authority is None and loop.travel is None:
+    if values["aerodynamics"] is None:
+        raise CaseError("an envelope needs an aerodynamics section (coefficient tables against Mach)", "envelope",
+                        line=_line(doc, "envelope"))
+    _check_aero_tables(values["aerodynamics"], doc)
+    _check_envelope_mach(values, doc)
+
+
+def _check_failures(values, loop, doc):
+    """A failure study needs an authority to run to, and a bounded oscillatory search."""
+    fs = values.get("failures")
+    if fs is None:
+        return
+    if loop.authority is None and loop.travel is None:
         raise CaseError("a failure study needs loop.authority (or loop.actuator.travel for a full-authority damper)",
                         "failures", line=_line(doc, "failures"))
-    fs = values.get("failures")
-    if fs is not None and (fs["recognition_time"] or 3.0) / fs["step"] * fs["frequency_points"] > MAX_FAILURE_SAMPLES:
+    if (fs["recognition_time"] or 3.0) / fs["step"] * fs["frequency_points"] > MAX_FAILURE_SAMPLES:
         raise CaseError(f"recognition_time / step x frequency_points must be at most {MAX_FAILURE_SAMPLES:.0e} "
                         "samples (memory of one condition's frequency search): use a larger step", "failures.step",
                         _raw(doc, "failures", "step"), line=_line(doc, "failures", "step") or _line(doc, "failures"))
+
+
+def _settings(values, doc) -> Settings:
+    """The ``analysis`` section; the frequency range must be ordered (blaming the key the user wrote)."""
     s = values["analysis"]
     if not s["frequency_low"] < s["frequency_high"]:
-        # blame the key the user wrote (both: frequency_low)
         low_given = _raw(doc, "analysis", "frequency_low") is not None
         high_given = _raw(doc, "analysis", "frequency_high") is not None
         if low_given or not high_given:
@@ -334,19 +342,45 @@ def _build(values, file, sha, doc) -> Case:
             _raw(doc, "analysis", "frequency_high"),
             line=_line(doc, "analysis", "frequency_high"),
         )
-    settings = Settings(s["frequency_low"], s["frequency_high"], s["points_per_decade"])
-    requirements = build_requirements(values["requirements"], model=values["model"])
+    return Settings(s["frequency_low"], s["frequency_high"], s["points_per_decade"])
+
+
+def _build(values, file, sha, doc, text="") -> Case:
+    """The :class:`Case` of validated values `values` (SI) read from the parsed document `doc`."""
+    _check_counts(values, doc)
+    check_model_keys(values, lambda *k: _raw(doc, *k), lambda *k: _line(doc, *k))
+    a = values["aircraft"]
+    aircraft = Aircraft(a["name"], a["mass"], a["pitch_inertia"], a["wing_area"], a["mean_chord"])
+    altitude_kind = values["atmosphere"]["altitude_kind"]
+    conditions, warnings = _conditions(values, aircraft, doc)
+    _check_envelope(values, aircraft, doc, bool(conditions))
+    warnings.extend(plain_number_warnings(conditions, values["envelope"], altitude_kind))
+    loop = _build_loop(values["loop"], doc)
+    warnings.extend(_loop_warnings(loop))
+    _check_failures(values, loop, doc)
+    check_uncertainty(values, loop, aircraft, doc)
+    settings = _settings(values, doc)
+    envelope, aerodynamics = envelope_sections(values, aircraft)
     return Case(
         title=values["title"],
         model=values["model"],
         file=file,
         sha256=sha,
+        text=text,
+        written=written_quantities(doc),
         aircraft=aircraft,
         altitude_kind=altitude_kind,
-        conditions=tuple(conditions),
+        conditions=conditions,
         loop=loop,
         settings=settings,
-        requirements=requirements,
+        requirements=build_requirements(values["requirements"], model=values["model"]),
+        requirements_given=requirements_given(values, doc),
         warnings=tuple(warnings),
-        raw=values,
+        envelope=envelope,
+        aerodynamics=aerodynamics,
+        schedule=schedule_settings(values, doc),
+        responses=response_settings(values, doc),
+        turbulence=turbulence_settings(values, doc),
+        uncertainty=uncertainty_from_values(values.get("uncertainty")),
+        failures=failures_from_values(values.get("failures")),
     )

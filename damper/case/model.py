@@ -7,8 +7,13 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..model.airframe import Derivatives
-from ..model.elements import Delay, Lag, LeadLag, Notch, SecondOrderLag, Washout
+from ..model import elements
+from ..model.elements import Delay
 from ..model.loop import Hardware
+from .envelope import Aerodynamics, Envelope
+from .failure_spec import FailureSpec
+from .sections import RequirementsGiven, ResponseSettings, ScheduleSettings, TurbulenceSettings
+from .uncertainty import UncertaintySpec
 
 
 @dataclass(frozen=True)
@@ -71,6 +76,9 @@ class Condition:
     written : tuple of damper.case.written.Written
         The speed key and the altitude as the case file wrote them (empty for conditions
         damper made, e.g. envelope points).
+    lift_curve_slope_per_rad : float or None
+        CL_alpha, per rad, when the condition is given by coefficients (None otherwise, and
+        for conditions damper made); the CG-shift effect of a robustness study uses it.
 
     `derivatives` is a :class:`~damper.model.airframe.Derivatives` for a short-period case and a
     :class:`~damper.model.longitudinal.LongitudinalDerivatives` for a longitudinal one.
@@ -92,6 +100,7 @@ class Condition:
     configuration: str | None = None
     flight_path_angle: float = 0.0
     written: tuple = field(default=(), compare=False)
+    lift_curve_slope_per_rad: float | None = None
 
     @property
     def equivalent_airspeed(self) -> float:
@@ -108,7 +117,8 @@ class ElementSpec:
     Attributes
     ----------
     kind : str
-        ``lag``, ``second_order``, ``lead_lag``, ``notch`` or ``washout``.
+        A key of the element registry :data:`damper.model.elements.ELEMENTS` (``lag``,
+        ``second_order``, ``lead_lag``, ``notch``, ``washout``).
     params : tuple of (name, float)
         SI parameters.
     """
@@ -120,35 +130,12 @@ class ElementSpec:
         return dict(self.params).get(name, default)
 
     def build(self):
-        """The model element (see :mod:`damper.model.elements`)."""
-        p = dict(self.params)
-        if self.kind == "lag":
-            return Lag(p["time_constant"])
-        if self.kind == "second_order":
-            return SecondOrderLag(p["natural_frequency"], p["damping_ratio"])
-        if self.kind == "lead_lag":
-            return LeadLag(p["lead_time_constant"], p["lag_time_constant"])
-        if self.kind == "notch":
-            return Notch(p["frequency"], p["depth_damping"], p["width_damping"])
-        if self.kind == "washout":
-            return Washout(p["time_constant"])
-        raise ValueError(self.kind)
+        """The model element (the registry :data:`damper.model.elements.ELEMENTS`)."""
+        return elements.build(self.kind, dict(self.params))
 
     def describe(self) -> str:
-        p = dict(self.params)
-        if self.kind == "lag":
-            return f"first-order lag, time constant {p['time_constant']:.4g} s ({1 / p['time_constant']:.4g} rad/s)"
-        if self.kind == "second_order":
-            return f"second-order, {p['natural_frequency']:.4g} rad/s, damping {p['damping_ratio']:.3g}"
-        if self.kind == "lead_lag":
-            return f"lead-lag ({p['lead_time_constant']:.4g} s + 1)/({p['lag_time_constant']:.4g} s + 1)"
-        if self.kind == "notch":
-            return (
-                f"notch at {p['frequency']:.4g} rad/s, damping {p['depth_damping']:.3g}/{p['width_damping']:.3g}"
-            )
-        if self.kind == "washout":
-            return f"washout, time constant {p['time_constant']:.4g} s"
-        return self.kind
+        """The element in words (its class's ``describe``), or its kind when not registered."""
+        return self.build().describe() if self.kind in elements.ELEMENTS else self.kind
 
 
 @dataclass(frozen=True)
@@ -255,10 +242,26 @@ class Case:
     requirements : damper.requirements.spec.Requirements
     warnings : tuple of str
         Suspicious physics (analysed anyway).
-    raw : dict
-        The validated SI values of every section (for later layers' sections).
     model : str
         ``"short_period"`` or ``"longitudinal"`` (the bare-airframe model of every condition).
+    text : str
+        The case file's text as read (provenance; `sha256` is of its bytes).
+    written : tuple of damper.case.written.Written
+        Every quantity as the file wrote it, by full key path (its SI value is in the
+        section's field; see :meth:`written_text`).
+    requirements_given : damper.case.sections.RequirementsGiven
+        The requirements section's preset, own keys and turbulence limits.
+    envelope : damper.case.envelope.Envelope or None
+    aerodynamics : damper.case.envelope.Aerodynamics or None
+        Given with an envelope.
+    schedule : damper.case.sections.ScheduleSettings or None
+    responses : damper.case.sections.ResponseSettings or None
+        None: the default doublet.
+    turbulence : damper.case.sections.TurbulenceSettings or None
+    uncertainty : damper.case.uncertainty.UncertaintySpec or None
+    failures : damper.case.failure_spec.FailureSpec or None
+
+    Every section is parsed and checked here; no later layer reads the file's values.
     """
 
     title: str
@@ -271,8 +274,21 @@ class Case:
     settings: Settings = field(default_factory=Settings)
     requirements: object = None
     warnings: tuple = ()
-    raw: dict = field(default_factory=dict, compare=False, repr=False)
     model: str = "short_period"
+    text: str = field(default="", compare=False, repr=False)
+    written: tuple = field(default=(), compare=False, repr=False)
+    requirements_given: RequirementsGiven = field(default_factory=RequirementsGiven)
+    envelope: Envelope | None = None
+    aerodynamics: Aerodynamics | None = field(default=None, compare=False)
+    schedule: ScheduleSettings | None = None
+    responses: ResponseSettings | None = None
+    turbulence: TurbulenceSettings | None = None
+    uncertainty: UncertaintySpec | None = None
+    failures: FailureSpec | None = None
+
+    def written_text(self, path: str) -> str | None:
+        """The quantity at key path `path` (``loop.actuator.bandwidth``) as the file wrote it (None: not written)."""
+        return next((w.text for w in self.written if w.key == path), None)
 
     @property
     def names(self) -> tuple:

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ..requirements.criteria import KINDS
+from ..requirements.registry import CRITERIA
 from ..requirements.presets import AIRCRAFT_CLASSES, CATEGORIES, SPEED_RANGES, STANDARDS
 from .schema import Choice, Integer, Number, Quantity, Section
 
@@ -25,6 +25,14 @@ def _time(doc):
 
 def _rate(doc):
     return Quantity(("frequency",), doc, default=None, nonnegative=True)
+
+
+_BAND_SPECS = {"number": _number, "time": _time, "rate": _rate}
+
+
+def _bands():
+    """The band of each registered criterion (:mod:`damper.requirements.registry`), its docs text from there."""
+    return {k.name: _band(k.doc, _BAND_SPECS[k.band_kind]) for k in CRITERIA if k.band_kind}
 
 
 REQUIREMENTS = Section(
@@ -61,9 +69,7 @@ REQUIREMENTS = Section(
             default=None,
         ),
         "free_zero": Choice(("no", "yes"), "Fit 1/T_theta2 in the equivalent system instead of holding it at the bare-airframe value.", default="no"),
-        "damping_ratio": _band("short-period damping ratio", _number),
-        "natural_frequency": _band("short-period natural frequency, rad/s", _rate),
-        "cap": _band(f"control anticipation parameter, {KINDS['cap'].unit}", _number),
+        **_bands(),
         "turbulence_load_factor_rms": Section(
             {"max": Number("Largest rms incremental load factor, g.", low=0.0)},
             "In the case's continuous turbulence (needs a turbulence: section), with the damper at the chosen or "
@@ -76,18 +82,6 @@ REQUIREMENTS = Section(
             "expected surface-rate excursions beyond the rate limit per second, either sign (Rice), at most max.",
             default=None,
         ),
-        "equivalent_time_delay": _band("equivalent time delay, s", _time),
-        "gain_margin": _band("gain margin, dB (applies up and down)", _number),
-        "phase_margin": _band("phase margin, deg", _number),
-        "delay_margin": _band("delay margin, s", _time),
-        "disk_margin": _band("symmetric disk margin alpha", _number),
-        "other_mode_damping": _band("damping ratio of every other closed-loop mode", _number),
-        "bandwidth": _band("pitch-attitude bandwidth, rad/s", _rate),
-        "phase_delay": _band("pitch-attitude phase delay, s", _time),
-        "equivalent_mismatch": _band("equivalent-system fit mismatch J, dimensionless", _number),
-        "phugoid_damping_ratio": _band("closed-loop phugoid damping ratio (model: longitudinal only)", _number),
-        "phugoid_time_to_double": _band("closed-loop phugoid time to double amplitude, s; a stable phugoid meets "
-                                        "any minimum (model: longitudinal only)", _time),
     },
     "What the damper must achieve at every condition. Without this section: damping ratio "
     "0.35-1.30 (common practice), gain margin 6 dB and phase margin 45 deg (MIL-F-9490D), stable.",

@@ -9,6 +9,7 @@ is generated from this module (``python -m damper.case.docgen``).
 from __future__ import annotations
 
 from ..errors import CaseError
+from ..model.elements import Delay, Washout
 from .ranges import MAX_CONDITIONS, RANGES
 from .spec_types import (  # noqa: F401 - the kinds are imported from here by the other schema modules
     CYCLE_RATE_KEYS,
@@ -187,24 +188,12 @@ RATE_SENSOR = Section(
 )
 
 WASHOUT = Section(
-    {"time_constant": Quantity(("time",), "Washout time constant T of T s/(T s + 1), s.", **_POS)},
+    {"time_constant": Quantity(("time",), f"Washout time constant T of {Washout.formula}, s.", **_POS)},
     "Washout (high-pass) filter so the damper does not oppose steady pitch rates; absent = none.",
     default=None,
 )
 
-FILTER = Section(
-    {
-        "kind": Choice(("lag", "lead_lag", "notch", "second_order"), "Filter type."),
-        "time_constant": Quantity(("time",), "lag: time constant, s.", default=None, **_POS),
-        "lead_time_constant": Quantity(("time",), "lead_lag: numerator time constant, s.", default=None, nonnegative=True),
-        "lag_time_constant": Quantity(("time",), "lead_lag: denominator time constant, s.", default=None, **_POS),
-        "frequency": Quantity(("frequency",), "notch: centre frequency, rad/s.", default=None, **_POS),
-        "depth_damping": Number("notch: numerator damping (0 = infinitely deep).", default=None, low=0.0, high=10.0),
-        "width_damping": Number("notch: denominator damping (sets the width).", default=None, low=1e-3, high=10.0),
-        **_SECOND_ORDER,
-    },
-    "A filter in the feedback path (noise or structural filter).",
-)
+from .element_schema import FILTER  # noqa: E402 - loop.filters[], from the element registry
 
 LOOP = Section(
     {
@@ -212,7 +201,9 @@ LOOP = Section(
         "rate_sensor": RATE_SENSOR,
         "washout": WASHOUT,
         "filters": Items(FILTER, "Further filters in the feedback path, in signal order.", default=(), min_items=0, max_items=20),
-        "delay": Quantity(("time",), "Computation / transport delay, s.", default=0.0, nonnegative=True, high=1.0),
+        "delay": Quantity(("time",), f"Computation / transport delay T, s: {Delay.formula}, exact in frequency "
+                          "responses, a Pade approximant (pade_order) in eigenvalue work.", default=0.0,
+                          nonnegative=True, high=1.0),
         "sample_rate": Quantity(
             ("frequency",), "Digital sample rate, Hz (adds half a sample of delay for the zero-order hold).", default=None, **_POS,
             cycles=True,

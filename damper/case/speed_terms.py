@@ -83,7 +83,9 @@ def check_model_keys(values, raw, line):
                             line("conditions", i, "flight_path_angle"))
     _check_envelope_keys(values, model, raw, line)
     req = values.get("requirements") or {}
-    for key in ("phugoid_damping_ratio", "phugoid_time_to_double"):
+    from ..requirements.registry import LONGITUDINAL_KEYS
+
+    for key in LONGITUDINAL_KEYS:
         if model == SHORT_PERIOD and req.get(key) is not None:
             raise CaseError("a phugoid requirement needs the longitudinal model (this case's model is short_period: "
                             "add 'model: longitudinal' and the speed derivatives)", f"requirements.{key}",

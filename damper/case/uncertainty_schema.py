@@ -2,9 +2,10 @@
 
 Imported lazily by :mod:`damper.case.schema` (after its spec classes are defined).
 The validated SI values are turned into a frozen
-:class:`damper.analysis.robustness.UncertaintySpec` by
-:func:`damper.analysis.robustness.uncertainty_spec`; the method is described in
-docs/robustness.md.
+:class:`damper.case.uncertainty.UncertaintySpec` (``Case.uncertainty``) by
+:func:`damper.case.uncertainty.uncertainty_from_values`;
+:func:`damper.analysis.uncertainty.uncertainty_spec` adds the command line's overrides. The
+method is described in docs/robustness.md.
 
 Every uncertain parameter has a *nominal* value (the case's value at each condition)
 and a *spread*: ``relative`` (a fraction of ``|nominal|``, so 0.2 is +/-20 %) or
@@ -53,6 +54,7 @@ class _AbsoluteSpread:
         "pitch_inertia kg m^2, bandwidth rad/s, time constants, delay and loop_gain s), e.g. '2 ms'."
     )
     default = None
+    quantity_in_own_unit = True  # a quantity (damper.case.written.written_quantities keeps its text)
 
     def check(self, value, path):  # replaced per name before use
         raise CaseError("needs a parameter name", path, value)

@@ -32,7 +32,8 @@ class Written:
     Attributes
     ----------
     key : str
-        ``airspeed``, ``equivalent_airspeed``, ``mach`` or ``altitude``.
+        ``airspeed``, ``equivalent_airspeed``, ``mach`` or ``altitude`` (a condition's), or the
+        full key path (:func:`written_quantities`).
     text : str
         The value as written (a plain number as YAML read it).
     plain : bool
@@ -75,6 +76,49 @@ def as_written(raw_condition) -> tuple:
         if v is None or isinstance(v, (dict, list)):
             continue
         out.append(Written(key, str(v).strip(), is_plain(v)))
+    return tuple(out)
+
+
+def written_quantities(doc, spec=None, path="") -> tuple:
+    """Every quantity of a validated document as the case file wrote it, by key path.
+
+    Parameters
+    ----------
+    doc : dict
+        The parsed (and validated) YAML document.
+    spec : damper.case.spec_types.Section, optional
+        The schema of `doc` (default: the whole case, :data:`damper.case.schema.CASE`).
+    path : str
+        Key path of `doc`.
+
+    Returns
+    -------
+    tuple of Written
+        ``key`` is the full key path (``loop.actuator.bandwidth``, ``conditions[0].altitude``),
+        ``text`` the value as written; in the document's order. A quantity's SI value is
+        where the :class:`~damper.case.model.Case` keeps it.
+    """
+    from .spec_types import Items, Quantity, Section
+
+    if spec is None:
+        from .schema import CASE as spec
+    out = []
+
+    def walk(value, sp, where):
+        if value is None:
+            return
+        if isinstance(sp, Section) and isinstance(value, dict):
+            for key, item in value.items():
+                if key in sp.fields:
+                    walk(item, sp.fields[key], f"{where}.{key}" if where else str(key))
+        elif isinstance(sp, Items) and isinstance(value, list):
+            for i, item in enumerate(value):
+                walk(item, sp.item, f"{where}[{i}]")
+        elif (isinstance(sp, Quantity) or getattr(sp, "quantity_in_own_unit", False)) and not isinstance(
+                value, (dict, list, bool)):
+            out.append(Written(where, str(value).strip(), is_plain(value)))
+
+    walk(doc, spec, path)
     return tuple(out)
 
 
@@ -171,4 +215,4 @@ def plain_number_warnings(conditions, envelope=None, altitude_kind="geopotential
 
 
 __all__ = ["MAX_LISTED", "WRITTEN_KEYS", "Written", "as_written", "envelope_reach", "is_plain",
-           "plain_number_warnings"]
+           "plain_number_warnings", "written_quantities"]

@@ -41,16 +41,15 @@ def run(args, argv) -> int:
         result = assess(case, gains.values)
     doc = assess_document(case, result, command=" ".join(["damper", *argv]))
     doc["gain_source"] = {"kind": gains.kind, "text": gains.text}
-    from ..analysis.turbulence_case import case_turbulence, check_turbulence, turbulence_items
+    from ..analysis.pipeline import turbulence_stage
 
-    study = case_turbulence(case, gains.values)
+    turbulence = turbulence_stage(case, gains.values)
     extra = ()
-    if study is not None:
+    if turbulence is not None:
         from ..output.turbulence_out import add_turbulence
 
-        checks = check_turbulence(case, study.closed_loop)
-        add_turbulence(doc, study, checks)
-        extra = tuple(turbulence_items(case, checks))
+        add_turbulence(doc, turbulence.study, turbulence.checks)
+        extra = turbulence.misses
     verdict = assess_verdict(case.names, result, gains.text, extra=extra)
     doc = with_verdict(doc, verdict)
     for note in gains.notes:
@@ -66,11 +65,11 @@ def run(args, argv) -> int:
 
         print(echo_for(case))
         print(with_level_legend(assess_table(doc), case))
-        if study is not None:
+        if turbulence is not None:
             from ..output.turbulence_out import turbulence_table
 
             print(f"continuous turbulence (Dryden, vertical; covariance analysis, delay as "
-                  f"{study.closed_loop.delay_model}); rates: expected excursions per second beyond the limit, "
+                  f"{turbulence.study.closed_loop.delay_model}); rates: expected excursions per second beyond the limit, "
                   "either sign (Rice)")
             print(turbulence_table(doc))
         print("\n".join(verdict.lines()))

@@ -59,8 +59,6 @@ def _check_args(args):
         raise DamperError("--workers and --cluster: give one (the cluster's workers are set where they are started)")
 
 
-
-
 def run(args, argv) -> int:
     _check_args(args)
     from ..output.figures import use_option
@@ -77,12 +75,14 @@ def run(args, argv) -> int:
 
     case = load_case(args.case)
     spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
-    case, gains, source, where = _study(args, case, spec)
+    case, gains, checked, source = _study(args, case)
     stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
     command = " ".join(["damper", *argv])
     with cluster_client(args.cluster) as cluster:  # before the run directory: an unreachable cluster writes nothing
-        result, elapsed, doc, verdict, note = _write_run(args, case, gains, spec, command, where,
-                                                         args.out or f"robust-{stem}", cluster)
+        stage, elapsed, doc, note = _write_run(args, case, gains, checked, spec, command, args.out or f"robust-{stem}",
+                                               cluster)
+    case, result, verdict = stage.case, stage.result, stage.verdict
+    source = source or f"the schedule {args.schedule} at its {len(stage.gains)} tightest verification points"
     print(f"{case.title}: robustness with {source}")
     print(
         f"{spec.samples} samples (seed {spec.seed}), {len(result.corners_u)} corners"
@@ -100,42 +100,15 @@ def run(args, argv) -> int:
     return verdict.exit_status()
 
 
-def _study(args, case, spec):
-    """The studied case and gains from --gain, --design or --schedule: (case, gains, source text, where or None)."""
-    from .gain_source import design_gains, read_design_run, read_schedule
+def _write_run(args, case, gains, checked, spec, command, out, cluster):
+    """Run the robustness stage and write robustness.json (and its plots) in the run directory `out`.
 
-    if args.schedule is not None:
-        from ..analysis.schedule import verification_points, verify
-        from ..analysis.schedule_points import CheckedSchedule, schedule_study_case, study_description
-
-        sched, _, _ = read_schedule(args.schedule)
-        pts, _, confs = verification_points(case, sched)
-        checked = CheckedSchedule(verify(case, sched, pts), confs)
-        case, gains, _ = schedule_study_case(case, checked, spec.schedule_points)
-        source = f"the schedule {args.schedule} at its {len(gains)} tightest verification points"
-        return case, gains, source, study_description(len(gains), args.schedule)
-    if args.design is not None:
-        gains = design_gains(case, read_design_run(args.design, case).design, f"--design {args.design}")
-        return case, gains, f"chosen gains of {args.design}", None
-    from ..analysis.schedule_points import design_points_case
-
-    source = f"K = {args.gain:g} s at every condition"
-    if not case.conditions:  # an envelope case: its design points (as damper assess)
-        case = design_points_case(case)
-        source = f"K = {args.gain:g} s at the {len(case.conditions)} envelope design points"
-    return case, args.gain, source, None
-
-
-def _write_run(args, case, gains, spec, command, where, out, cluster):
-    """Run the study and write robustness.json (and its plots) in the run directory `out`.
-
-    Returns (result, elapsed wall time in s, the document, the verdict, the line saying what was written).
+    Returns (the stage, elapsed wall time in s, the document, the line saying what was written).
     """
     import os
     import time
 
-    from ..analysis.robustness import robustness
-    from ..analysis.verdicts import robustness_verdict
+    from ..analysis.pipeline import robustness_stage
     from ..cli import warn_case
     from ..output.files import write_atomic
     from ..output.journal import part
@@ -151,20 +124,52 @@ def _write_run(args, case, gains, spec, command, where, out, cluster):
             print("damper: warning: the case has no uncertainty: section (or it is empty); every sample is the nominal",
                   file=sys.stderr)
         start = time.perf_counter()
-        result = robustness(case, gains, spec, progress=configure(args.quiet), workers=args.workers,
-                            processes=True if args.workers else None, cluster=cluster)
+        stage = robustness_stage(case, gains, schedule=checked, progress=configure(args.quiet), spec=spec,
+                                 schedule_name=args.schedule, workers=args.workers,
+                                 processes=True if args.workers else None, cluster=cluster)
         elapsed = time.perf_counter() - start
         files = ["robustness.json"]
         with part("robustness"):
             plot_paths = []
             if not args.no_plots:
                 with current().stage("figures"):
-                    plot_paths = robustness_plots(case, result, out)
+                    plot_paths = robustness_plots(stage.case, stage.result, out)
                 files += sorted(os.path.relpath(p, out) for p in plot_paths)
-            verdict = robustness_verdict(result, spec.required_fraction)
-            doc = with_verdict(robustness_document(case, result, command=command, files=files, where=where), verdict)
+            doc = with_verdict(robustness_document(stage.case, stage.result, command=command, files=files,
+                                                   where=stage.where), stage.verdict)
             write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
         rebuilt = refresh_report(run)
         run.finish()
     written = "robustness.json" + (f" and {len(plot_paths)} plot files in plots/" if plot_paths else "")
-    return result, elapsed, doc, verdict, f"wrote {written} to {out}" + ("; rebuilt report.html" if rebuilt else "")
+    return stage, elapsed, doc, f"wrote {written} to {out}" + ("; rebuilt report.html" if rebuilt else "")
+
+
+def _study(args, case):
+    """What the study runs on: (case, gains K in s or None, checked schedule or None, source text or None).
+
+    With ``--schedule`` the robustness stage picks the schedule's tightest verification points
+    (their count, for `source`, is known once it has).
+    """
+    from .gain_source import design_gains, read_design_run, read_schedule
+
+    checked = gains = None
+    if args.schedule is not None:  # the study runs at the schedule's tightest verification points
+        from ..analysis.schedule import verification_points, verify
+        from ..analysis.schedule_points import CheckedSchedule
+
+        sched, _, _ = read_schedule(args.schedule)
+        pts, _, confs = verification_points(case, sched)
+        checked = CheckedSchedule(verify(case, sched, pts), confs)
+        source = None  # the count of points is known once the study has chosen them
+    elif args.design is not None:
+        gains = design_gains(case, read_design_run(args.design, case).design, f"--design {args.design}")
+        source = f"chosen gains of {args.design}"
+    else:
+        from ..analysis.schedule_points import design_points_case
+
+        gains = args.gain
+        source = f"K = {args.gain:g} s at every condition"
+        if not case.conditions:  # an envelope case: its design points (as damper assess)
+            case = design_points_case(case)
+            source = f"K = {args.gain:g} s at the {len(case.conditions)} envelope design points"
+    return case, gains, checked, source

@@ -108,6 +108,122 @@ def _final_point(log_lo, log_hi, f_lo, f_hi, level):
     return np.exp(log_lo + t * (log_hi - log_lo))
 
 
+#: Points evaluated per system and call during refinement (up to): a bisection tree of depth d
+#: costs one call of ``2**d - 1`` frequencies instead of d calls of one, and walks to the very
+#: midpoints the one-at-a-time bisection would have chosen.
+TREE_POINTS = 256
+
+
+def _tree_depth(n_sys: int) -> int:
+    """Bisection steps taken per call of the response: deep for few systems, 1 for many."""
+    per_system = max(1, TREE_POINTS // max(1, n_sys))
+    return int(np.clip(np.floor(np.log2(per_system + 1)), 1, 8))
+
+
+def _tree_midpoints(a, b, depth):
+    """Every midpoint a ``depth``-step bisection of ``[a, b]`` can visit, heap order, (N, 2**depth - 1)."""
+    lo, hi = a[:, None], b[:, None]
+    levels = []
+    for _ in range(depth):
+        mid = 0.5 * (lo + hi)
+        levels.append(mid)
+        lo = np.stack([lo, mid], axis=-1).reshape(lo.shape[0], -1)
+        hi = np.stack([mid, hi], axis=-1).reshape(hi.shape[0], -1)
+    return np.concatenate(levels, axis=1)
+
+
+def _bisect(call, valid, safe_w, bracket, level, value):
+    """``BISECTION_ITERATIONS`` bisection steps in log-frequency, several per response call.
+
+    ``bracket = (a, b, fa, fb)``: log-frequency ends (ln rad/s) and the measure at them, shape
+    (N,). ``value(h, fa, fb, level)`` turns the response ``h`` at a midpoint into the measure
+    there and whether the crossing lies above the midpoint. The midpoints, and so the result,
+    are those of one step at a time: each is ``0.5 * (a + b)`` of the bracket it halves, and
+    the response of a system does not depend on the other frequencies in the call.
+    """
+    a, b, fa, fb = bracket
+    rows = np.arange(a.shape[0])
+    depth = _tree_depth(a.shape[0])
+    done = 0
+    while done < BISECTION_ITERATIONS:
+        d = min(depth, BISECTION_ITERATIONS - done)
+        mids = _tree_midpoints(a, b, d)
+        h = call(np.where(valid[:, None], np.exp(mids), safe_w[:, None]))
+        pos = np.zeros(a.shape[0], dtype=int)
+        for step in range(d):
+            node = (1 << step) - 1 + pos
+            m = mids[rows, node]
+            fm, right = value(h[rows, node], fa, fb, level)
+            a, fa = np.where(right, m, a), np.where(right, fm, fa)
+            b, fb = np.where(right, b, m), np.where(right, fb, fm)
+            pos = 2 * pos + right
+        done += d
+    return a, b, fa, fb
+
+
+@dataclass(frozen=True)
+class _Grid:
+    """The response on the grid, shape (N, nw): frequencies (rad/s) and their logs, unwrapped phase
+    (rad), gain (dB); and ``safe_w`` (N,), rad/s, a harmless frequency for rows with nothing to refine."""
+
+    w: np.ndarray
+    log_w: np.ndarray
+    phase: np.ndarray
+    gain_db: np.ndarray
+    safe_w: np.ndarray
+
+
+def _phase_value(h, fa, fb, level):
+    """Phase at a midpoint (rad) on the branch of its bracket, and whether the crossing lies above."""
+    pm = _nearest_branch(np.angle(h), 0.5 * (fa + fb))
+    return pm, pm > level
+
+
+def _gain_value(h, fa, fb, level):
+    """Gain at a midpoint (dB), and whether the crossing lies above it."""
+    gm = 20.0 * np.log10(np.abs(h))
+    return gm, gm >= level
+
+
+def _phase_crossing(call, grid: _Grid, level):
+    """Lowest frequency (rad/s) where the unwrapped phase reaches ``level`` (rad); nan if none."""
+    rows = np.arange(grid.phase.shape[0])
+    valid, lo = _first_down_crossing(grid.phase, level)
+    a, b = grid.log_w[rows, lo].copy(), grid.log_w[rows, lo + 1].copy()
+    pa, pb = grid.phase[rows, lo].copy(), grid.phase[rows, lo + 1].copy()
+    a, b, pa, pb = _bisect(call, valid, grid.safe_w, (a, b, pa, pb), level, _phase_value)
+    return np.where(valid, _final_point(a, b, pa, pb, level), np.nan)
+
+
+def _gain_bandwidth(call, grid: _Grid, w180):
+    """Frequency (rad/s) of gain G(omega_180) + 6 dB, the crossing nearest below omega_180."""
+    n_sys, nw = grid.gain_db.shape
+    rows = np.arange(n_sys)
+    has180 = np.isfinite(w180)
+    w180_safe = np.where(has180, w180, grid.safe_w)
+    g180 = 20.0 * np.log10(np.abs(call(w180_safe[:, None])[:, 0]))
+    level_g = g180 + GAIN_MARGIN_DB
+    candidate = (grid.w < w180_safe[:, None]) & (grid.gain_db >= level_g[:, None])
+    any_cand = candidate.any(axis=1) & has180
+    lo = np.where(any_cand, nw - 1 - np.argmax(candidate[:, ::-1], axis=1), 0)
+    hi_idx = np.minimum(lo + 1, nw - 1)
+    a = grid.log_w[rows, lo].copy()
+    b = np.minimum(grid.log_w[rows, hi_idx], np.log(w180_safe))
+    ga = grid.gain_db[rows, lo].copy()
+    gb = np.where(grid.log_w[rows, hi_idx] < np.log(w180_safe), grid.gain_db[rows, hi_idx], g180)
+    a, b, ga, gb = _bisect(call, any_cand, grid.safe_w, (a, b, ga, gb), level_g, _gain_value)
+    return np.where(any_cand, _final_point(a, b, ga, gb, level_g), np.nan)
+
+
+def _phase_delay(call, w180, w180_safe):
+    """``tau_p`` (s) from the phase at 2 omega_180, continued from omega_180 along a short sub-grid."""
+    sub = w180_safe[:, None] * np.exp2(np.linspace(0.0, 1.0, 65))[None, :]
+    sub_phase = np.unwrap(np.angle(call(sub)), axis=1)
+    sub_phase = sub_phase + 2.0 * np.pi * np.round((PHASE_CROSSOVER - sub_phase[:, :1]) / (2.0 * np.pi))
+    phi2 = sub_phase[:, -1]
+    return np.where(np.isfinite(w180), -(phi2 + np.pi) / (2.0 * w180_safe), np.nan)
+
+
 def attitude_bandwidth(
     response: Callable[[np.ndarray], np.ndarray], w_grid
 ) -> AttitudeBandwidth:
@@ -152,66 +268,24 @@ def attitude_bandwidth(
     nw = w_grid.shape[-1]
     if h_grid.ndim != 2 or h_grid.shape[1] != nw:
         raise ValueError(f"response returned shape {h_grid.shape}, expected (N, {nw})")
-    n_sys = h_grid.shape[0]
-    w_rows = np.broadcast_to(w_grid, (n_sys, nw))
+    w_rows = np.broadcast_to(w_grid, (h_grid.shape[0], nw))
 
     def call(w):
         out = np.asarray(response(w))
-        if out.shape != w.shape:
-            out = np.broadcast_to(out, w.shape)
-        return out
+        return out if out.shape == w.shape else np.broadcast_to(out, w.shape)
 
-    log_w = np.log(w_rows)
-    phase = np.unwrap(np.angle(h_grid), axis=1)  # rad
-    gain_db = 20.0 * np.log10(np.abs(h_grid))
-    rows = np.arange(n_sys)
-    safe_w = w_rows[:, 0]  # harmless frequency for rows with nothing to refine
-
-    def refine_phase(level):
-        valid, lo = _first_down_crossing(phase, level)
-        a, b = log_w[rows, lo].copy(), log_w[rows, lo + 1].copy()
-        pa, pb = phase[rows, lo].copy(), phase[rows, lo + 1].copy()
-        for _ in range(BISECTION_ITERATIONS):
-            m = 0.5 * (a + b)
-            raw = np.angle(call(np.where(valid, np.exp(m), safe_w)[:, None]))[:, 0]
-            pm = _nearest_branch(raw, 0.5 * (pa + pb))
-            above = pm > level
-            a, pa = np.where(above, m, a), np.where(above, pm, pa)
-            b, pb = np.where(above, b, m), np.where(above, pb, pm)
-        return np.where(valid, _final_point(a, b, pa, pb, level), np.nan)
-
-    w180 = refine_phase(PHASE_CROSSOVER)
-    w_bw_phase = refine_phase(PHASE_BANDWIDTH)
-    has180 = np.isfinite(w180)
-    w180_safe = np.where(has180, w180, safe_w)
-
-    # Gain bandwidth: G = G(w180) + 6 dB, crossing nearest below w180.
-    g180 = 20.0 * np.log10(np.abs(call(w180_safe[:, None])[:, 0]))
-    level_g = g180 + GAIN_MARGIN_DB
-    candidate = (w_rows < w180_safe[:, None]) & (gain_db >= level_g[:, None])
-    any_cand = candidate.any(axis=1) & has180
-    lo = np.where(any_cand, nw - 1 - np.argmax(candidate[:, ::-1], axis=1), 0)
-    hi_idx = np.minimum(lo + 1, nw - 1)
-    a = log_w[rows, lo].copy()
-    b = np.minimum(log_w[rows, hi_idx], np.log(w180_safe))
-    ga = gain_db[rows, lo].copy()
-    gb = np.where(log_w[rows, hi_idx] < np.log(w180_safe), gain_db[rows, hi_idx], g180)
-    for _ in range(BISECTION_ITERATIONS):
-        m = 0.5 * (a + b)
-        gm = 20.0 * np.log10(np.abs(call(np.where(any_cand, np.exp(m), safe_w)[:, None])[:, 0]))
-        up = gm >= level_g
-        a, ga = np.where(up, m, a), np.where(up, gm, ga)
-        b, gb = np.where(up, b, m), np.where(up, gb, gm)
-    w_bw_gain = np.where(any_cand, _final_point(a, b, ga, gb, level_g), np.nan)
-
-    # Phase at 2 w180 continued from w180 along a short sub-grid.
-    sub = w180_safe[:, None] * np.exp2(np.linspace(0.0, 1.0, 65))[None, :]
-    sub_phase = np.unwrap(np.angle(call(sub)), axis=1)
-    sub_phase = sub_phase + 2.0 * np.pi * np.round(
-        (PHASE_CROSSOVER - sub_phase[:, :1]) / (2.0 * np.pi)
+    grid = _Grid(
+        w=w_rows,
+        log_w=np.log(w_rows),
+        phase=np.unwrap(np.angle(h_grid), axis=1),
+        gain_db=20.0 * np.log10(np.abs(h_grid)),
+        safe_w=w_rows[:, 0],
     )
-    phi2 = sub_phase[:, -1]
-    tau_p = np.where(has180, -(phi2 + np.pi) / (2.0 * w180_safe), np.nan)
+    w180 = _phase_crossing(call, grid, PHASE_CROSSOVER)
+    w_bw_phase = _phase_crossing(call, grid, PHASE_BANDWIDTH)
+    w180_safe = np.where(np.isfinite(w180), w180, grid.safe_w)
+    w_bw_gain = _gain_bandwidth(call, grid, w180)
+    tau_p = _phase_delay(call, w180, w180_safe)
 
     with np.errstate(invalid="ignore"):
         bandwidth = np.fmin(w_bw_phase, w_bw_gain)

@@ -294,49 +294,14 @@ def fit_equivalent_system(
     from several points in the same batch and the lowest ``J`` is kept; the
     result of a system does not depend on the other systems of the batch.
     """
-    w = np.asarray(w, dtype=float)
-    if w.ndim != 1 or w.size < 3:
-        raise ValueError("w must be 1-D with at least 3 frequencies (rad/s)")
-    if not np.all(np.isfinite(w)) or w[0] <= 0.0 or np.any(np.diff(w) <= 0.0):
-        raise ValueError("w must be finite, positive and strictly increasing (rad/s)")
-    h = np.asarray(response)
-    if h.shape[-1:] != w.shape:
-        raise ValueError(f"response last axis {h.shape[-1:]} does not match w {w.shape}")
-    h = h.astype(complex)
-    if not np.all(np.isfinite(h)) or (not log_response and np.any(h == 0)):
-        raise ValueError("response must be finite and non-zero")
+    w, h, zero_b, max_iterations = _checked_inputs(w, response, inv_t_theta2, free_zero, max_iterations,
+                                                   log_response)
     batch = h.shape[:-1]
-    zero_b = np.broadcast_to(np.asarray(inv_t_theta2, dtype=float), batch)
-    if not np.all(np.isfinite(zero_b)):
-        raise ValueError("inv_t_theta2 must be finite (1/s)")
-    if free_zero and np.any(zero_b <= 0.0):
-        raise ValueError("with free_zero=True, inv_t_theta2 (start) must be > 0 (1/s)")
-    max_iterations = int(max_iterations)
-    if max_iterations < 0:
-        raise ValueError("max_iterations must be >= 0")
-
     n_sys = int(np.prod(batch, dtype=int))
     nw = w.size
     log_h = h.reshape(n_sys, nw) if log_response else np.log(h.reshape(n_sys, nw))
     zero = zero_b.reshape(n_sys).astype(float)
-    args = (w, free_zero, max_iterations)
-    if starts == "all":
-        par_b, sign_b, conv_b, cost_b = _fit_from(log_h, zero, *args, _START_SPREAD)
-        fallback = np.ones(n_sys, bool)
-    else:
-        # the data-derived start alone; all starts only where it does not converge or
-        # leaves a large mismatch (each system decided on its own)
-        par_b, sign_b, conv_b, cost_b = _fit_from(log_h, zero, *args, _START_SPREAD[:1])
-        # a pair that drifted off along the first-order valley is not repeated: every start
-        # drifts the same way there (the fit is unusable whatever the start)
-        drifted = ~conv_b & (par_b[:, _Z] > _ASINH_DRIFT_ZETA)
-        fallback = (~conv_b & ~drifted) | ~(cost_b <= FALLBACK_MISMATCH)
-        if np.any(fallback):
-            k = np.nonzero(fallback)[0]
-            p2, s2, c2, j2 = _fit_from(log_h[k], zero[k], *args, _START_SPREAD)
-            better = j2 < cost_b[k]
-            kb = k[better]
-            par_b[kb], sign_b[kb], conv_b[kb], cost_b[kb] = p2[better], s2[better], c2[better], j2[better]
+    par_b, sign_b, conv_b, cost_b, fallback = _fit_starts(log_h, zero, (w, free_zero, max_iterations), starts)
 
     def shaped(x):
         return np.asarray(x).reshape(batch)
@@ -352,6 +317,55 @@ def fit_equivalent_system(
         converged=shaped(conv_b),
         fallback=shaped(fallback),
     )
+
+
+def _checked_inputs(w, response, inv_t_theta2, free_zero, max_iterations, log_response):
+    """The inputs of :func:`fit_equivalent_system`, checked: (w, complex response, 1/T_theta2 over the batch, iterations)."""
+    w = np.asarray(w, dtype=float)
+    if w.ndim != 1 or w.size < 3:
+        raise ValueError("w must be 1-D with at least 3 frequencies (rad/s)")
+    if not np.all(np.isfinite(w)) or w[0] <= 0.0 or np.any(np.diff(w) <= 0.0):
+        raise ValueError("w must be finite, positive and strictly increasing (rad/s)")
+    h = np.asarray(response)
+    if h.shape[-1:] != w.shape:
+        raise ValueError(f"response last axis {h.shape[-1:]} does not match w {w.shape}")
+    h = h.astype(complex)
+    if not np.all(np.isfinite(h)) or (not log_response and np.any(h == 0)):
+        raise ValueError("response must be finite and non-zero")
+    zero_b = np.broadcast_to(np.asarray(inv_t_theta2, dtype=float), h.shape[:-1])
+    if not np.all(np.isfinite(zero_b)):
+        raise ValueError("inv_t_theta2 must be finite (1/s)")
+    if free_zero and np.any(zero_b <= 0.0):
+        raise ValueError("with free_zero=True, inv_t_theta2 (start) must be > 0 (1/s)")
+    max_iterations = int(max_iterations)
+    if max_iterations < 0:
+        raise ValueError("max_iterations must be >= 0")
+    return w, h, zero_b, max_iterations
+
+
+def _fit_starts(log_h, zero, args, starts):
+    """Best fit per system over the starts `starts` asks for: (params, gain sign, converged, cost, fallback).
+
+    ``args`` is ``(w, free_zero, max_iterations)`` of :func:`_fit_from`.
+    """
+    n_sys = log_h.shape[0]
+    if starts == "all":
+        par_b, sign_b, conv_b, cost_b = _fit_from(log_h, zero, *args, _START_SPREAD)
+        return par_b, sign_b, conv_b, cost_b, np.ones(n_sys, bool)
+    # the data-derived start alone; all starts only where it does not converge or
+    # leaves a large mismatch (each system decided on its own)
+    par_b, sign_b, conv_b, cost_b = _fit_from(log_h, zero, *args, _START_SPREAD[:1])
+    # a pair that drifted off along the first-order valley is not repeated: every start
+    # drifts the same way there (the fit is unusable whatever the start)
+    drifted = ~conv_b & (par_b[:, _Z] > _ASINH_DRIFT_ZETA)
+    fallback = (~conv_b & ~drifted) | ~(cost_b <= FALLBACK_MISMATCH)
+    if np.any(fallback):
+        k = np.nonzero(fallback)[0]
+        p2, s2, c2, j2 = _fit_from(log_h[k], zero[k], *args, _START_SPREAD)
+        better = j2 < cost_b[k]
+        kb = k[better]
+        par_b[kb], sign_b[kb], conv_b[kb], cost_b[kb] = p2[better], s2[better], c2[better], j2[better]
+    return par_b, sign_b, conv_b, cost_b, fallback
 
 
 def _fit_from(log_h, zero, w, free_zero, max_iterations, spread):

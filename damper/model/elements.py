@@ -14,9 +14,12 @@ the same linear block:
   ``(..., n, n)``, ``(..., n, 1)``, ``(..., 1, n)``, ``(..., 1, 1)`` (used in
   eigenvalue work; a pure delay becomes a Pade approximant here).
 
-To add a hardware element, write a class with these three methods and
-``n_states``, and add its case-file keys in :mod:`damper.case.schema`
-(see DEVELOPERS.md).
+Each class is also the one place its element is described: its case-file ``kind``, its
+``parameters`` (:class:`Parameter`: key, unit, schema bounds, docs text), its ``label`` and
+``formula`` (docs/case-file.md) and ``describe()`` (the case summary). :data:`ELEMENTS` is
+the registry; the case schema (``loop.filters[]``), the loader and the case summary read it.
+To add an element, write a class with these views and attributes and add it to
+:data:`ELEMENTS` (DEVELOPERS.md; ``tests/test_element_registry.py`` checks it).
 """
 
 from __future__ import annotations
@@ -26,6 +29,40 @@ from math import factorial
 from typing import ClassVar
 
 import numpy as np
+
+
+@dataclass(frozen=True)
+class Parameter:
+    """One parameter of an element, as the case file names it.
+
+    Attributes
+    ----------
+    name : str
+        The case-file key and the element's field name.
+    unit : str
+        SI unit of the value (``"-"``: dimensionless).
+    dimension : str
+        The schema's dimension of a quantity with a unit (``"time"``, ``"frequency"``);
+        ``"dimensionless"`` for a plain number.
+    doc : str
+        Plain words (docs/case-file.md adds the element's kind and the unit).
+    positive, nonnegative : bool
+        Sign the value must have.
+    low, high : float or None
+        Bounds of a plain number, in `unit`.
+    """
+
+    name: str
+    unit: str
+    dimension: str
+    doc: str
+    positive: bool = False
+    nonnegative: bool = False
+    low: float | None = None
+    high: float | None = None
+
+
+_T = Parameter("time_constant", "s", "time", "time constant T", positive=True)
 
 
 def _e(p):
@@ -50,7 +87,15 @@ class Lag:
 
     time_constant: np.ndarray
     n_states: ClassVar[int] = 1
+    kind: ClassVar[str] = "lag"
     label: ClassVar[str] = "first-order lag"
+    formula: ClassVar[str] = "1/(T s + 1)"
+    parameters: ClassVar[tuple] = (_T,)
+    in_filters: ClassVar[bool] = True
+
+    def describe(self) -> str:
+        t = float(self.time_constant)
+        return f"first-order lag, time constant {t:.4g} s ({1 / t:.4g} rad/s)"
 
     def response(self, s):
         return 1.0 / (_e(self.time_constant) * s + 1.0)
@@ -78,7 +123,17 @@ class SecondOrderLag:
     natural_frequency: np.ndarray
     damping_ratio: np.ndarray
     n_states: ClassVar[int] = 2
+    kind: ClassVar[str] = "second_order"
     label: ClassVar[str] = "second-order lag"
+    formula: ClassVar[str] = "w^2/(s^2 + 2 zeta w s + w^2)"
+    parameters: ClassVar[tuple] = (
+        Parameter("natural_frequency", "rad/s", "frequency", "natural frequency w", positive=True),
+        Parameter("damping_ratio", "-", "dimensionless", "damping ratio zeta", low=1e-3, high=10.0),
+    )
+    in_filters: ClassVar[bool] = True
+
+    def describe(self) -> str:
+        return f"second-order, {float(self.natural_frequency):.4g} rad/s, damping {float(self.damping_ratio):.3g}"
 
     def response(self, s):
         w = _e(self.natural_frequency)
@@ -114,7 +169,14 @@ class Washout:
 
     time_constant: np.ndarray
     n_states: ClassVar[int] = 1
+    kind: ClassVar[str] = "washout"
     label: ClassVar[str] = "washout"
+    formula: ClassVar[str] = "T s/(T s + 1)"
+    parameters: ClassVar[tuple] = (_T,)
+    in_filters: ClassVar[bool] = False  # its own section, loop.washout
+
+    def describe(self) -> str:
+        return f"washout, time constant {float(self.time_constant):.4g} s"
 
     def response(self, s):
         ts = _e(self.time_constant) * s
@@ -143,7 +205,17 @@ class LeadLag:
     lead_time_constant: np.ndarray
     lag_time_constant: np.ndarray
     n_states: ClassVar[int] = 1
+    kind: ClassVar[str] = "lead_lag"
     label: ClassVar[str] = "lead-lag"
+    formula: ClassVar[str] = "(T1 s + 1)/(T2 s + 1)"
+    parameters: ClassVar[tuple] = (
+        Parameter("lead_time_constant", "s", "time", "numerator time constant T1", nonnegative=True),
+        Parameter("lag_time_constant", "s", "time", "denominator time constant T2", positive=True),
+    )
+    in_filters: ClassVar[bool] = True
+
+    def describe(self) -> str:
+        return f"lead-lag ({float(self.lead_time_constant):.4g} s + 1)/({float(self.lag_time_constant):.4g} s + 1)"
 
     def response(self, s):
         return (_e(self.lead_time_constant) * s + 1.0) / (_e(self.lag_time_constant) * s + 1.0)
@@ -176,7 +248,20 @@ class Notch:
     depth_damping: np.ndarray
     width_damping: np.ndarray
     n_states: ClassVar[int] = 2
+    kind: ClassVar[str] = "notch"
     label: ClassVar[str] = "notch"
+    formula: ClassVar[str] = "(s^2 + 2 zn w s + w^2)/(s^2 + 2 zd w s + w^2)"
+    parameters: ClassVar[tuple] = (
+        Parameter("frequency", "rad/s", "frequency", "centre frequency w", positive=True),
+        Parameter("depth_damping", "-", "dimensionless", "numerator damping zn (0 = infinitely deep)", low=0.0, high=10.0),
+        Parameter("width_damping", "-", "dimensionless", "denominator damping zd (sets the width; above zn)",
+                  low=1e-3, high=10.0),
+    )
+    in_filters: ClassVar[bool] = True
+
+    def describe(self) -> str:
+        return (f"notch at {float(self.frequency):.4g} rad/s, damping "
+                f"{float(self.depth_damping):.3g}/{float(self.width_damping):.3g}")
 
     def response(self, s):
         w = _e(self.frequency)
@@ -231,7 +316,16 @@ class Delay:
     time: np.ndarray
     pade_order: int = 2
     _structure: ClassVar[tuple] = ("pade_order",)
+    kind: ClassVar[str] = "delay"
     label: ClassVar[str] = "delay"
+    formula: ClassVar[str] = "exp(-T s)"
+    parameters: ClassVar[tuple] = (
+        Parameter("time", "s", "time", "delay T (loop.delay plus half a sample)", nonnegative=True),
+    )
+    in_filters: ClassVar[bool] = False  # loop.delay and loop.sample_rate
+
+    def describe(self) -> str:
+        return f"delay {float(self.time):.4g} s (Pade order {int(self.pade_order)} in eigenvalue work)"
 
     @property
     def n_states(self) -> int:
@@ -261,3 +355,22 @@ class Delay:
         C = r[..., None, :]
         D = d[..., None, None]
         return A, B, C, D
+
+
+#: The registry of elements: kind -> class. Each class carries its kind, parameters (with
+#: units and schema bounds), label, formula, description and its three models.
+ELEMENTS = {cls.kind: cls for cls in (Lag, SecondOrderLag, Washout, LeadLag, Notch, Delay)}
+#: The kinds a case may list in ``loop.filters`` (alphabetical: the schema's and the docs' order).
+FILTER_KINDS = tuple(sorted(k for k, cls in ELEMENTS.items() if cls.in_filters))
+
+
+def parameter_names(kind: str) -> tuple:
+    """The case-file keys of element `kind`, in the order of its parameters."""
+    return tuple(p.name for p in ELEMENTS[kind].parameters)
+
+
+def build(kind: str, params: dict):
+    """The element of `kind` from its SI parameters (``{name: value}``); ValueError on an unknown kind."""
+    if kind not in ELEMENTS:
+        raise ValueError(kind)
+    return ELEMENTS[kind](**{name: params[name] for name in parameter_names(kind)})

@@ -7,6 +7,8 @@ from __future__ import annotations
 
 import math
 
+from ..requirements.registry import KINDS as CRITERION_KINDS
+
 R2D = 180.0 / math.pi
 KT = 0.514444  # m/s per knot (exact: 1852/3600)
 FT = 0.3048  # m per foot (exact)
@@ -103,20 +105,7 @@ def unit_text(unit):
 # ---------------------------------------------------------------------------------
 # labels
 # ---------------------------------------------------------------------------------
-REQUIREMENT_LABELS = {
-    "stability": "closed-loop stability (largest real part)",
-    "damping_ratio": "short-period damping ratio",
-    "cap": "control anticipation parameter (CAP)",
-    "equivalent_time_delay": "equivalent time delay",
-    "gain_margin": "gain margin",
-    "phase_margin": "phase margin",
-    "other_mode_damping": "damping of the least-damped other mode",
-    "natural_frequency": "short-period frequency",
-    "delay_margin": "delay margin",
-    "disk_margin": "disk margin",
-    "bandwidth": "pitch-attitude bandwidth",
-    "phase_delay": "phase delay",
-}
+REQUIREMENT_LABELS = {name: kind.label for name, kind in CRITERION_KINDS.items()}  # the criteria's own labels
 
 BINDING_SHORT = {
     "sweep range": "end of the gain sweep",

@@ -122,16 +122,15 @@ def level_legend(case) -> str:
     category; the bands ('fails', 'misses') are the case's own requirements, which may be
     stricter than the standard's level 1, so both can stand side by side.
     """
-    req = (case.raw or {}).get("requirements") or {}
-    preset = req.get("preset")
-    if not preset:
+    preset = case.requirements_given.preset
+    if preset is None:
         return ""
-    own = [k for k, v in req.items() if isinstance(v, dict) and k not in ("preset", "margins_preset") and v]
+    own = case.requirements_given.own_keys
     extra = f" plus {', '.join(own)}" if own else ""
     return (
-        f"level: the best level (1-3) whose {preset['standard']} category {preset['category']} boundaries (damping, "
+        f"level: the best level (1-3) whose {preset.standard} category {preset.category} boundaries (damping, "
         f"CAP, delay, frequency) are met; 'fails'/'misses' judge the case's own requirements (preset level "
-        f"{preset['level']}{extra}), so level 1 can stand beside a failed band."
+        f"{preset.level}{extra}), so level 1 can stand beside a failed band."
     )
 
 

@@ -17,58 +17,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .kind import CriterionKind  # noqa: F401 - the kind's type, imported from here by older code
+from .registry import KINDS
+
 INF = float("inf")
-
-
-@dataclass(frozen=True)
-class CriterionKind:
-    """How one criterion is measured.
-
-    Attributes
-    ----------
-    name : str
-        Key used in case files and outputs.
-    label : str
-        Plain words for tables.
-    unit : str
-    floor : float
-        Smallest normalising scale, in `unit`.
-    undefined_is_met : bool
-        Whether a NaN value meets the requirement (e.g. no crossing: an unbounded margin).
-    needs_stability : bool
-        A stability margin: not met where the closed loop is unstable (it has no margins
-        there, whatever the value).
-    """
-
-    name: str
-    label: str
-    unit: str
-    floor: float
-    undefined_is_met: bool
-    needs_stability: bool = False
-
-
-KINDS = {
-    k.name: k
-    for k in (
-        CriterionKind("stability", "closed-loop stability (largest eigenvalue real part)", "1/s", 1.0, False),
-        CriterionKind("damping_ratio", "short-period damping ratio", "-", 0.1, False),
-        CriterionKind("natural_frequency", "short-period natural frequency", "rad/s", 0.5, False),
-        CriterionKind("cap", "control anticipation parameter", "(rad/s^2)/g", 0.05, False),
-        CriterionKind("equivalent_time_delay", "equivalent time delay", "s", 0.02, False),
-        CriterionKind("gain_margin", "gain margin (smallest of up and down)", "dB", 1.0, True, True),
-        CriterionKind("phase_margin", "phase margin (distance from -180 deg at the nearest crossing)", "deg", 5.0, True, True),
-        CriterionKind("delay_margin", "delay margin", "s", 0.01, True, True),
-        CriterionKind("disk_margin", "symmetric disk margin", "-", 0.1, False, True),
-        CriterionKind("other_mode_damping", "least damping of the other closed-loop modes", "-", 0.05, True),
-        CriterionKind("bandwidth", "pitch-attitude bandwidth", "rad/s", 0.5, False),
-        CriterionKind("phase_delay", "pitch-attitude phase delay", "s", 0.02, False),
-        CriterionKind("equivalent_mismatch", "equivalent-system mismatch", "-", 1.0, False),
-        CriterionKind("phugoid_damping_ratio", "phugoid damping ratio (closed loop)", "-", 0.05, False),
-        CriterionKind("phugoid_time_to_double", "phugoid time to double amplitude (closed loop; none when stable)",
-                      "s", 10.0, True),
-    )
-}
 
 
 @dataclass(frozen=True)
@@ -78,7 +30,7 @@ class Criterion:
     Attributes
     ----------
     name : str
-        A key of :data:`KINDS`.
+        A key of :data:`KINDS` (the registry, :mod:`damper.requirements.registry`).
     lower, upper : float
         The band (``-inf``/``inf`` when one-sided), in the kind's unit.
     source : str
@@ -113,45 +65,11 @@ def slack(criterion: Criterion, value) -> np.ndarray:
 
 
 def measure_values(criterion: Criterion, m) -> np.ndarray:
-    """The value of `criterion`'s measure from a :class:`damper.analysis.assess.Assessment`-like bundle."""
-    name = criterion.name
-    if name == "stability":
-        return np.max(m.modes.eigenvalues.real, -1)
-    if name == "damping_ratio":
-        return m.damping_ratio(criterion.measure)
-    if name == "natural_frequency":
-        return m.natural_frequency(criterion.measure)
-    if name == "cap":
-        return m.cap(criterion.measure)
-    if name == "equivalent_time_delay":
-        return m.equivalent.time_delay
-    if name == "equivalent_mismatch":
-        return m.equivalent.mismatch
-    if name == "gain_margin":
-        up = np.where(np.isnan(m.margins.gain_margin_db), INF, m.margins.gain_margin_db)
-        down = np.where(np.isnan(m.margins.gain_margin_low_db), INF, -m.margins.gain_margin_low_db)
-        both = np.minimum(up, down)
-        return np.where(np.isinf(both), np.nan, both)
-    if name == "phase_margin":
-        # distance of the phase from -180 deg in either direction at the nearest gain
-        # crossing: a crossing with leading phase (e.g. the washout's low one, signed PM
-        # near -170) tolerates that much phase change
-        return m.margins.phase_margin_deg
-    if name == "delay_margin":
-        return m.margins.delay_margin_s
-    if name == "disk_margin":
-        return m.margins.disk_margin
-    if name == "other_mode_damping":
-        return m.modes.other_damping_ratio
-    if name == "bandwidth":
-        return m.bandwidth.bandwidth
-    if name == "phase_delay":
-        return m.bandwidth.phase_delay
-    if name == "phugoid_damping_ratio":
-        return m.modes.phugoid.damping_ratio
-    if name == "phugoid_time_to_double":
-        return m.modes.phugoid.time_to_double
-    raise KeyError(name)
+    """The value of `criterion`'s measure from a :class:`damper.analysis.assess.Assessment`-like bundle.
+
+    The measure is the registered kind's (:mod:`damper.requirements.registry`).
+    """
+    return criterion.kind.measure(m, criterion.measure)
 
 
 @dataclass(frozen=True)

@@ -7,28 +7,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import CaseError
-from . import presets
+from . import presets, registry
 from .criteria import INF, Criterion, evaluate
 
-#: Criteria that a band in the case may name directly.
-BAND_KEYS = (
-    "damping_ratio",
-    "natural_frequency",
-    "cap",
-    "equivalent_time_delay",
-    "gain_margin",
-    "phase_margin",
-    "delay_margin",
-    "disk_margin",
-    "other_mode_damping",
-    "bandwidth",
-    "phase_delay",
-    "equivalent_mismatch",
-    "phugoid_damping_ratio",
-    "phugoid_time_to_double",
-)
+#: Criteria that a band in the case may name directly (the registry's order).
+BAND_KEYS = registry.BAND_KEYS
 #: Criteria of the phugoid: a longitudinal case only.
-PHUGOID_KEYS = ("phugoid_damping_ratio", "phugoid_time_to_double")
+PHUGOID_KEYS = registry.LONGITUDINAL_KEYS
 
 DEFAULT_SOURCE_DAMPING = "common practice (short-period damping 0.35-1.30)"
 
@@ -58,15 +43,11 @@ class Requirements:
 
     @property
     def needs_bandwidth(self) -> bool:
-        return any(c.name in ("bandwidth", "phase_delay") for c in self.criteria)
+        return any(c.kind.needs_bandwidth for c in self.criteria)
 
 
 def _measure_for(name, damping_measure):
-    if name in ("damping_ratio", "natural_frequency", "cap"):
-        return damping_measure
-    if name == "equivalent_time_delay":
-        return "equivalent"
-    return ""
+    return registry.KINDS[name].measure_for(damping_measure)
 
 
 def default_damping_measure(model="short_period") -> str:
@@ -86,7 +67,7 @@ def build_requirements(raw, model="short_period") -> Requirements:
     `model` (``"short_period"`` or ``"longitudinal"``) sets the default damping measure and
     admits the phugoid criteria (a short-period case naming one is a :class:`CaseError`).
     """
-    stability = Criterion("stability", -INF, 0.0, "closed loop must be stable (common practice)")
+    stability = Criterion("stability", -INF, 0.0, registry.KINDS["stability"].preset_source)
     if raw is None:
         dm = default_damping_measure(model)
         return Requirements(
@@ -140,7 +121,7 @@ def build_requirements(raw, model="short_period") -> Requirements:
     )
 
 
-LEVEL_CRITERIA = ("damping_ratio", "cap", "equivalent_time_delay", "natural_frequency")
+LEVEL_CRITERIA = registry.LEVEL_CRITERIA
 
 
 def levels(requirements: Requirements, measures, category=None):

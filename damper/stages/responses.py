@@ -1,7 +1,8 @@
 """The responses stage of a run: simulate every input at every condition, a batch of conditions
 at a time, and write the CSV files, the figures and responses.json.
 
-Shared by ``damper respond`` and ``damper design`` (a command never imports another command).
+Shared by ``damper respond`` and ``damper design`` (a command never imports another command); the
+simulation is the pipeline's responses stage (damper/analysis/pipeline_stages.py).
 """
 
 from __future__ import annotations
@@ -29,39 +30,52 @@ def write_responses(out, case, gains, command, plots=True, gain_text="chosen gai
         The responses.json document.
     notes : list of str
     """
-    import numpy as np
+    from ..analysis.pipeline_stages import responses_stage
 
-    from ..analysis.batches import condition_batches, sub_case
-    from ..analysis.response import respond_case, response_spec
-    from ..output.response_plots import response_document
+    files = ResponseFiles(out, command, plots=plots, gain_text=gain_text, jobs=jobs, plot_only=plot_only)
+    stage = responses_stage(case, gains, current(), emit=files.add)
+    return files.finish(stage), list(stage.notes)
 
-    n = len(case.conditions)
-    gains = np.broadcast_to(np.asarray(gains, dtype=float), (n,))
-    conditions, notes, doc = [], [], None
-    stage = current().stage("responses", n, "conditions")
-    for a, b in condition_batches(n):
-        sub = sub_case(case, range(a, b))
-        spec = response_spec(sub)
-        result = respond_case(sub, gains[a:b], spec)
-        files = {} if out is None else _write_batch(out, sub, a, result, spec, plots, gain_text, jobs, plot_only)
-        doc = response_document(sub, result, command=command, files=files)
-        conditions += doc["conditions"]
-        notes += [note for note in result.notes if note not in notes]
-        stage.update(b)
-    stage.finish()
-    doc = dict(doc, conditions=conditions, notes=list(notes))  # the case-level keys are the same in every batch
-    from ..output.jsonout import with_verdict
-    from ..verdict import Verdict
 
-    doc = with_verdict(doc, Verdict())  # no requirement on the responses yet: nothing judged (docs/verdict.md)
-    if out is not None:
-        import os
+class ResponseFiles:
+    """The responses' files of a run, written batch by batch as the pipeline simulates them.
 
-        from ..output.files import write_atomic
-        from ..output.jsonout import dumps
+    Call :meth:`add` with each :class:`damper.analysis.pipeline.ResponseBatch` (its CSV files,
+    and plots, go into `out` at once; nothing is written when `out` is None), then
+    :meth:`finish` with the :class:`damper.analysis.pipeline.ResponsesStage` for responses.json.
+    """
 
-        write_atomic(os.path.join(out, "responses.json"), dumps(doc))
-    return doc, notes
+    def __init__(self, out, command, plots=True, gain_text="chosen gains", jobs=None, plot_only=None):
+        self.out, self.command, self.plots, self.gain_text = out, command, plots, gain_text
+        self.jobs, self.plot_only = jobs, plot_only
+        self.conditions, self.doc = [], None
+
+    def add(self, batch) -> None:
+        """Write one batch's CSV files (and plots) and keep its entries of responses.json."""
+        from ..output.response_plots import response_document
+
+        out, sub, result, spec = self.out, batch.case, batch.result, batch.spec
+        files = {} if out is None else _write_batch(out, sub, batch.start, result, spec, self.plots, self.gain_text,
+                                                    self.jobs, self.plot_only)
+        self.doc = response_document(sub, result, command=self.command, files=files)
+        self.conditions += self.doc["conditions"]
+
+    def finish(self, stage) -> dict:
+        """The responses.json document (written into `out` when there is one)."""
+        from ..output.jsonout import with_verdict
+        from ..verdict import Verdict
+
+        # the case-level keys are the same in every batch
+        doc = dict(self.doc, conditions=self.conditions, notes=list(stage.notes))
+        doc = with_verdict(doc, Verdict())  # no requirement on the responses yet: nothing judged (docs/verdict.md)
+        if self.out is not None:
+            import os
+
+            from ..output.files import write_atomic
+            from ..output.jsonout import dumps
+
+            write_atomic(os.path.join(self.out, "responses.json"), dumps(doc))
+        return doc
 
 
 def _write_batch(out, sub, start, result, spec, plots, gain_text, jobs, plot_only):

@@ -1,0 +1,184 @@
+"""The files of a design run, written as the pipeline's results arrive.
+
+:func:`damper.analysis.pipeline.run_pipeline` computes; :class:`DesignRunWriter` is its
+``on_event``: it turns each batch of conditions into its ``design.json`` entries and figures,
+each finished stage into its documents (design.json, the gain tables and schedule.json,
+responses.json and the CSV files, failures.json), and queues the figures on the run's
+:class:`damper.output.background.PlotJobs` so that a worker draws them while the analysis goes
+on. :meth:`DesignRunWriter.finish` waits for the figures and writes robustness.json (it lists
+the robustness figures). Every file is written inside the journal part it belongs to
+(docs/run-directory.md).
+"""
+
+from __future__ import annotations
+
+import os
+
+from ..analysis.pipeline_types import FigureBatch, ResponseBatch, SearchBatch, StageDone
+from ..output.journal import part
+from ..output.progress import current
+
+
+class DesignRunWriter:
+    """Writes a design run's files from the pipeline's events (see the module notes).
+
+    Parameters
+    ----------
+    out : str
+        The run directory.
+    case : damper.case.model.Case
+    command : str
+        The command line recorded in the documents.
+    jobs : damper.output.background.PlotJobs
+    plots : bool
+        Whether figures are drawn.
+    max_figures : int
+        Conditions with per-condition figures at most (for the documents' rule text).
+    """
+
+    def __init__(self, out, case, command, jobs, plots, max_figures):
+        from ..output.plots import plot_slugs
+
+        self.out, self.case, self.command, self.jobs = out, case, command, jobs
+        self.plots, self.max_figures = plots, max_figures
+        self.slugs = plot_slugs(case.names)
+        self.entries, self.job_ids, self.rob_jobs = [], [], None
+        self.written = ["design.json"]
+        self.design_doc = self.failures_text = self.robustness_doc = self.responses = None
+
+    def __call__(self, event) -> None:
+        """Write what `event` (a pipeline event) brings."""
+        if isinstance(event, SearchBatch):
+            self._search_batch(event)
+        elif isinstance(event, FigureBatch):
+            self.job_ids += self._queue_design_plots(event.case, event.design, [self.slugs[i] for i in event.indices])
+        elif isinstance(event, ResponseBatch):
+            with part("responses"):
+                self.responses.add(event)
+        elif isinstance(event, StageDone):
+            getattr(self, f"_{event.stage}_done")(event)
+
+    def _search_batch(self, event) -> None:
+        from ..output.design_doc import condition_entries
+        from ..output.jsonout import dump_part
+
+        batch = condition_entries(event.case, event.design)
+        if event.turbulence is not None:
+            from ..output.turbulence_out import add_turbulence
+
+            add_turbulence({"conditions": batch}, event.turbulence.study, event.turbulence.checks)
+        self.entries += [dump_part(e) for e in batch]  # text: about 8 kB per condition
+        if event.figures:
+            a = event.start
+            self.job_ids += self._queue_design_plots(event.case, event.design, self.slugs[a : a + len(batch)])
+
+    def _queue_design_plots(self, sub, design, slugs) -> list:
+        from ..output.plots import design_plot_jobs
+
+        plot_jobs = design_plot_jobs(sub, design, self.out, slugs)
+        with part("design"):
+            return [self.jobs.submit_group(plot_jobs[k : k + 3]) for k in range(0, len(plot_jobs), 3)]
+
+    def _design_done(self, event) -> None:
+        from ..output.design_doc import design_document
+        from ..output.files import write_atomic
+        from ..output.jsonout import dumps, with_verdict
+        from ..verdict import Verdict
+
+        design = event.result
+        if design is None:  # an envelope case: the schedule part judges it
+            doc = with_verdict(design_document(self.case, None, command=self.command), Verdict())
+        else:
+            drawn = None if design.figures is None or not self.plots else {
+                "drawn_for": [self.case.conditions[i].name for i in design.figures],
+                "rule": f"per-condition figures for at most {self.max_figures} conditions: the infeasible ones first, "
+                "then those with the least slack at the chosen gain (--max-figures)",
+            }
+            doc = with_verdict(design_document(self.case, None, command=self.command, entries=self.entries,
+                                               figures=drawn), design.verdict)
+            from .responses import ResponseFiles
+
+            self.responses = ResponseFiles(self.out, self.command, plots=self.plots, gain_text="chosen gain",
+                                           jobs=self.jobs, plot_only=design.figures)
+        with part("design"):
+            write_atomic(os.path.join(self.out, "design.json"), dumps(doc))
+        self.design_doc, self.entries = doc, []
+
+    def _schedule_done(self, event) -> None:
+        if event.result is None:
+            return
+        from ..output.schedule_out import write_schedule
+
+        with part("schedule"):
+            self.written += write_schedule(self.out, self.case, event.result.result, command=self.command,
+                                           verdict=event.result.verdict)
+            if self.plots:  # drawn here while the worker draws the search's figures
+                from ..output.schedule_plots import schedule_plots
+
+                with current().stage("schedule plots"):
+                    n = len(schedule_plots(self.case, event.result.result, self.out))
+                self.written.append(f"{n} schedule plot files in plots/")
+
+    def _responses_done(self, event) -> None:
+        if event.result is None:
+            return
+        with part("responses"):
+            self.responses.finish(event.result)
+        self.written.append("responses.json with time histories")
+
+    def _failures_done(self, event) -> None:
+        if event.result is None:
+            if event.skipped is not None and event.skipped.wanted:
+                self.failures_text = f"failures: not studied: {event.skipped.reason}"
+            return
+        from ..output.failures_out import write_failures
+
+        with part("failures"):
+            self.failures_text, files, _ = write_failures(self.out, self.case, event.result.run, self.command,
+                                                          jobs=self.jobs if self.plots else None)
+        self.written.append(files)
+
+    def _robustness_done(self, event) -> None:
+        if event.result is None or not self.plots:
+            return
+        from ..output.robustness_out import robustness_plot_jobs
+
+        rob = event.result
+        rj = robustness_plot_jobs(rob.case, rob.result, self.out, limit=self.max_figures)
+        # four groups (the result is sent once per group): the worker and this process share them at the end
+        step = max(1, -(-len(rj) // 4))
+        with part("robustness"):
+            self.rob_jobs = [self.jobs.submit_group(rj[k : k + step]) for k in range(0, len(rj), step)]
+
+    def finish(self, result) -> None:
+        """Wait for every queued figure, then write robustness.json (with its figures' names).
+
+        Parameters
+        ----------
+        result : damper.analysis.pipeline.PipelineResult
+        """
+        jobs, out = self.jobs, self.out
+        jobs.finish()
+        if self.job_ids:
+            n = sum(len(jobs.paths(k)) for k in self.job_ids)
+            self.written.insert(1, f"{n} plot files in plots/")
+        rob = result.robustness
+        if rob is None:
+            return
+        from ..output.files import write_atomic
+        from ..output.jsonout import dumps, with_verdict
+        from ..output.robustness_out import robustness_document
+
+        files = ["robustness.json"]
+        if self.rob_jobs is not None:
+            files += sorted(os.path.relpath(p, out) for k in self.rob_jobs for p in jobs.paths(k))
+        doc = with_verdict(robustness_document(rob.case, rob.result, command=self.command, files=files,
+                                               where=rob.where), rob.verdict)
+        with part("robustness"):
+            write_atomic(os.path.join(out, "robustness.json"), dumps(doc))
+        self.written.append("robustness.json" + (f" with {len(files) - 1} robustness plot files" if len(files) > 1
+                                                 else ""))
+        self.robustness_doc = doc
+
+
+__all__ = ["DesignRunWriter"]
