@@ -81,3 +81,45 @@ def random_longitudinal(rng, n, unstable_fraction=0.0, climb=False):
         X_delta=rng.uniform(-1.0, 1.0, n),
         flight_path_angle=rng.uniform(-0.1, 0.1, n) if climb else 0.0,
     )
+
+
+# ---------------------------------------------------------------------------------
+# Shared end-to-end runs and the `slow` marker (DEVELOPERS.md, "How to test")
+# ---------------------------------------------------------------------------------
+@pytest.fixture(scope="session")
+def shared_run(tmp_path_factory):
+    """``shared_run(case_name, options=("--no-plots",))``: a design run of a demo case built
+    once per test run (tests/shared_runs.py) and read by every test that asks for it.
+
+    Never write into the returned ``SharedRun.path``: copy it (``run.copy_to(tmp_path / "x")``).
+    At the end of the session every run handed out must be unchanged.
+    """
+    from .shared_runs import NO_PLOTS, shared_design, snapshot
+
+    base = tmp_path_factory.getbasetemp()
+    if os.environ.get("PYTEST_XDIST_WORKER"):
+        base = base.parent  # common to every worker of this test run
+    handed = {}
+
+    def get(case_name, options=NO_PLOTS):
+        run = shared_design(base / "shared-runs", case_name, options)
+        handed.setdefault(run.path, snapshot(run.path))
+        return run
+
+    yield get
+    changed = [str(p) for p, snap in handed.items() if snapshot(p) != snap]
+    assert not changed, f"a test wrote into a shared run (copy it instead): {changed}"
+
+
+#: Tests marked `slow` besides those using `shared_run` (node-id prefixes relative to tests/):
+#: end-to-end runs with figures, subprocesses that design a case, browser screenshots and the
+#: large oracle comparisons. `python -m pytest -m "not slow"` is the quick inner loop.
+SLOW = (
+)
+
+
+def pytest_collection_modifyitems(config, items):
+    for item in items:
+        nodeid = item.nodeid.split("tests/", 1)[-1]
+        if "shared_run" in getattr(item, "fixturenames", ()) or nodeid.startswith(SLOW):
+            item.add_marker(pytest.mark.slow)
