@@ -11,9 +11,12 @@ A shared run is read-only by contract: a test that must change a run (rebuild it
 (tests/conftest.py) checks at the end of the session that no shared run it handed out was
 changed (names, sizes and modification times of every file).
 
-The command line is the one the tests used before, with the run directory given relative to
-its parent (``--out run``) so that a test can repeat the same command byte for byte in a
-directory of its own (tests/test_determinism.py).
+Where tests ran nearly the same command, they now read one run: ``design --no-plots`` of each
+demo (which writes a superset of what ``--no-report``, ``--no-responses`` or ``--no-robustness``
+wrote, with the same bytes in each file those wrote: tests/test_run_hashes.py checks the hashes
+against the golden ones), and the report run of the first demo with figures. The run directory
+is given relative to its parent (``--out run``) so that a test can repeat the same command byte
+for byte in a directory of its own (tests/test_determinism.py).
 """
 
 from __future__ import annotations
@@ -34,6 +37,9 @@ CASES = ROOT / "cases"
 #: test_determinism and test_cli: everything but the figures (responses, robustness, failures
 #: and report included).
 NO_PLOTS = ("--no-plots",)
+#: The demo run with figures and report read by test_report and test_figure_formats (the
+#: damping_target policy: see test_report.demo_run; ``--figures svg,png`` is the default set).
+REPORT_OPTIONS = ("--policy", "damping_target", "--target-damping", "0.7", "--figures", "svg,png")
 RUN_NAME = "run"
 
 
