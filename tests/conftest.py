@@ -99,12 +99,14 @@ def shared_run(tmp_path_factory):
     base = tmp_path_factory.getbasetemp()
     if os.environ.get("PYTEST_XDIST_WORKER"):
         base = base.parent  # common to every worker of this test run
-    handed = {}
+    runs, handed = {}, {}
 
     def get(case_name, options=NO_PLOTS):
-        run = shared_design(base / "shared-runs", case_name, options)
-        handed.setdefault(run.path, snapshot(run.path))
-        return run
+        key = (case_name, tuple(options))
+        if key not in runs:  # one SharedRun per run and process: its parsed documents are kept
+            runs[key] = shared_design(base / "shared-runs", case_name, options)
+            handed.setdefault(runs[key].path, snapshot(runs[key].path))
+        return runs[key]
 
     yield get
     changed = [str(p) for p, snap in handed.items() if snapshot(p) != snap]
