@@ -81,3 +81,112 @@ def random_longitudinal(rng, n, unstable_fraction=0.0, climb=False):
         X_delta=rng.uniform(-1.0, 1.0, n),
         flight_path_angle=rng.uniform(-0.1, 0.1, n) if climb else 0.0,
     )
+
+
+# ---------------------------------------------------------------------------------
+# Shared end-to-end runs and the `slow` marker (DEVELOPERS.md, "How to test")
+# ---------------------------------------------------------------------------------
+@pytest.fixture(scope="session")
+def shared_run(tmp_path_factory):
+    """``shared_run(case_name, options=("--no-plots",))``: a design run of a demo case built
+    once per test run (tests/shared_runs.py) and read by every test that asks for it.
+
+    Never write into the returned ``SharedRun.path``: copy it (``run.copy_to(tmp_path / "x")``).
+    At the end of the session every run handed out must be unchanged.
+    """
+    from .shared_runs import NO_PLOTS, shared_design, snapshot
+
+    base = tmp_path_factory.getbasetemp()
+    if os.environ.get("PYTEST_XDIST_WORKER"):
+        base = base.parent  # common to every worker of this test run
+    runs, handed = {}, {}
+
+    def get(case_name, options=NO_PLOTS):
+        key = (case_name, tuple(options))
+        if key not in runs:  # one SharedRun per run and process: its parsed documents are kept
+            runs[key] = shared_design(base / "shared-runs", case_name, options)
+            handed.setdefault(runs[key].path, snapshot(runs[key].path))
+        return runs[key]
+
+    yield get
+    changed = [str(p) for p, snap in handed.items() if snapshot(p) != snap]
+    assert not changed, f"a test wrote into a shared run (copy it instead): {changed}"
+
+
+#: Tests marked `slow` besides those using `shared_run` (node-id prefixes relative to tests/;
+#: a prefix covers every parametrisation): end-to-end runs with figures, subprocesses, browser
+#: screenshots, property tests and the oracle comparisons that took 0.5 s of CPU or more on the
+#: 2-core machine. `python -m pytest -m "not slow"` is the quick inner loop (DEVELOPERS.md);
+#: `@pytest.mark.slow` on a test works too.
+SLOW = (
+    "test_api_doc.py::test_api_doc_examples_run",
+    "test_api_doc.py::test_package_docstring_examples_run_as_doctests",
+    "test_authority_response.py",
+    "test_background.py",
+    "test_bandwidth_e2e.py::test_attitude_bandwidth_through_assess_json",
+    "test_compare.py",
+    "test_design_stream.py::test_outputs_do_not_depend_on_the_batch_size",
+    "test_design_stream.py::test_more_conditions_than_max_figures_draws_the_tightest",
+    "test_equivalent.py::test_batched_no_worse_than_scipy_oracle",
+    "test_equivalent.py::test_fit_is_bit_for_bit_independent_of_batch_and_chunking",
+    "test_failures.py",
+    "test_failures_design.py",
+    "test_gain_source.py",
+    "test_interrupt.py",
+    "test_invalid_cases.py::test_message_subprocess",
+    "test_invalid_cases.py::test_deep_nesting_is_refused",
+    "test_longitudinal_case.py::test_demo_case_designs_cleanly",
+    "test_longitudinal_case.py::test_assess_json_matches_the_four_state_oracle",
+    "test_longitudinal_case.py::test_force_and_moment_forms_of_the_speed_derivatives",
+    "test_longitudinal_loop.py::test_reduction_to_the_two_state_loop",
+    "test_longitudinal_loop.py::test_attitude_bandwidth_of_the_four_state_loop",
+    "test_loop_plot.py",
+    "test_margins.py::test_disk_margin_against_python_control",
+    "test_margins_oracle.py::test_margins_equal_the_dense_oracle_on_random_loops",
+    "test_output_errors.py",
+    "test_plot_fixes.py",
+    "test_plots.py",
+    "test_progress.py",
+    "test_properties_input.py",
+    "test_report.py",
+    "test_response.py::test_batched_equals_each_condition_alone",
+    "test_response.py::test_delay_matches_high_order_pade",
+    "test_response.py::test_gust_matches_linear_simulation_and_load_factor_definition",
+    "test_response.py::test_respond_command_writes_files_and_refuses_to_overwrite",
+    "test_response.py::test_respond_into_a_design_run_rebuilds_its_report",
+    "test_response.py::test_travel_limit_binds",
+    "test_response.py::test_unlimited_loop_matches_linear_simulation",
+    "test_robustness.py::test_cli_robust_writes_and_refuses_to_overwrite",
+    "test_robustness.py::test_same_seed_same_results_and_bytes_different_seed_differs",
+    "test_run_directory.py",
+    "test_sample_stats.py::test_study_results_do_not_depend_on_blocks_shards_or_workers",
+    "test_sample_stats.py::test_a_bounded_subsample_changes_no_count_or_worst_case",
+    "test_schedule.py::test_exports_round_trip_and_are_byte_identical",
+    "test_schedule.py::test_too_sparse_schedule_is_caught_and_repaired",
+    "test_schedule.py::test_refinement_stops_when_infeasible_breakpoints_make_no_progress",
+    "test_schedule.py::test_conditions_schedule_warns_when_variants_share_a_breakpoint",
+    "test_schedule_plots.py",
+    "test_schedule_robustness.py",
+    "test_search.py::test_two_disjoint_intervals_match_the_oracle",
+    "test_search.py::test_policies",
+    "test_search.py::test_edges_refined_to_1e4_relative",
+    "test_search.py::test_equivalent_mismatch_band_judges_the_fit_cost",
+    "test_search.py::test_infeasible_condition_names_the_binding_requirement",
+    "test_sweep_output.py::test_sweep_json_on_every_demo_case",
+    "test_turbulence.py::test_rms_equals_the_frequency_domain_integral",
+    "test_turbulence.py::test_bare_airframe_equals_the_oracle_without_a_damper",
+    "test_turbulence.py::test_rice_rate_agrees_with_a_simulated_crossing_count",
+    "test_turbulence_case.py::test_design_json_carries_turbulence_at_the_chosen_gain",
+    "test_understood.py::test_design_json_keeps_the_values_as_written",
+    "test_unit_table.py::test_random_products_equal_pint",
+    "test_verdict.py::test_assess_verdict_items_carry_the_oracle_damping",
+    "test_verdict.py::test_failing_",
+    "test_verdict.py::test_infeasible_design_exits_3",
+)
+
+
+def pytest_collection_modifyitems(config, items):
+    for item in items:
+        nodeid = item.nodeid.split("tests/", 1)[-1]
+        if "shared_run" in getattr(item, "fixturenames", ()) or nodeid.startswith(SLOW):
+            item.add_marker(pytest.mark.slow)

@@ -58,9 +58,10 @@ def test_bad_gain_is_a_clear_error(capsys):
     assert "--gain" in capsys.readouterr().err
 
 
-def test_design_writes_and_refuses_to_overwrite(tmp_path, capsys):
-    out = tmp_path / "run"
-    assert main(["design", DEMO, "--out", str(out), "--no-plots"]) == 0
+def test_design_writes_and_refuses_to_overwrite(tmp_path, capsys, shared_run):
+    shared = shared_run("utility_single_aft_cg")  # design DEMO --no-plots (tests/shared_runs.py)
+    assert shared.code == 0, shared.stderr
+    out = shared.copy_to(tmp_path / "run")  # written into below: a copy
     doc = json.loads((out / "design.json").read_text())
     c = doc["conditions"][0]
     assert set(["chosen_gain_s", "feasible_gains_s", "edges", "measures"]) <= set(c)

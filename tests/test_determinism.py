@@ -1,27 +1,28 @@
 """Same input, same command: byte-identical outputs (design.md s.8, common practice)."""
 
 import os
-import shutil
-
-from damper.cli import main
 
 from .conftest import ROOT
+from .shared_runs import run_main
 
 DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
 
 
-def _run(out):
-    assert main(["design", DEMO, "--out", str(out), "--no-plots"]) == 0
+def _outputs(out):
     return {name: (out / name).read_bytes() for name in sorted(os.listdir(out)) if name.endswith((".json", ".csv", ".yaml", ".h"))}
 
 
-def test_design_twice_gives_identical_bytes(tmp_path, capsys):
+def test_design_twice_gives_identical_bytes(tmp_path, shared_run):
     import json
 
-    out = tmp_path / "run"
-    first = _run(out)
-    shutil.rmtree(out)
-    second = _run(out)
+    # the first run is the shared `design DEMO --out run --no-plots` (tests/shared_runs.py); the
+    # second repeats its command line byte for byte in a directory of its own
+    shared = shared_run("utility_single_aft_cg")
+    assert shared.code == 0 and shared.argv[1] == DEMO, shared.stderr
+    first = _outputs(shared.path)
+    code, _, err = run_main(shared.argv, cwd=tmp_path)
+    assert code == 0, err
+    second = _outputs(tmp_path / "run")
     assert first.keys() == second.keys() and "design.json" in first
     # the manifest lists report.html, which carries its build date (docs/run-directory.md):
     # every other entry is the same
@@ -33,13 +34,13 @@ def test_design_twice_gives_identical_bytes(tmp_path, capsys):
         assert first[name] == second[name], name
 
 
-def test_outputs_carry_provenance(tmp_path, capsys):
+def test_outputs_carry_provenance(shared_run):
     import hashlib
     import json
 
-    out = tmp_path / "run"
-    _run(out)
-    doc = json.loads((out / "design.json").read_text())
+    shared = shared_run("utility_single_aft_cg")  # design DEMO --no-plots (tests/shared_runs.py)
+    assert shared.code == 0, shared.stderr
+    doc = json.loads((shared.path / "design.json").read_text())
     prov = doc["provenance"]
     with open(DEMO, "rb") as fh:
         assert prov["input_sha256"] == hashlib.sha256(fh.read()).hexdigest()

@@ -12,6 +12,7 @@ import pytest
 from damper.cli import main
 
 from .conftest import ROOT
+from .shared_runs import REPORT_OPTIONS
 
 DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
 
@@ -23,11 +24,15 @@ def run(*argv):
     return code, out.getvalue(), err.getvalue()
 
 
-@pytest.mark.parametrize("formats,expected", [("svg", {".svg"}), ("png", {".png"}), ("svg,png", {".svg", ".png"})])
-def test_only_the_chosen_formats_are_written(tmp_path, formats, expected):
-    out = tmp_path / "run"
-    code, _, err = run("design", DEMO, "--out", out, "--no-robustness", "--figures", formats)
-    assert code == 0, err
+@pytest.mark.parametrize("options,expected", [
+    (("--no-robustness", "--figures", "svg"), {".svg"}),
+    (("--no-robustness", "--figures", "png"), {".png"}),
+    (REPORT_OPTIONS, {".svg", ".png"}),  # test_report's run of the demo, with --figures svg,png
+], ids=["svg", "png", "svg,png"])
+def test_only_the_chosen_formats_are_written(shared_run, options, expected):
+    shared = shared_run("utility_single_aft_cg", options)  # design DEMO <options> (tests/shared_runs.py)
+    assert shared.code == 0, shared.stderr
+    out = shared.path
     written = {os.path.splitext(n)[1] for n in os.listdir(out / "plots")}
     assert written == expected
     html = (out / "report.html").read_text(encoding="utf-8")

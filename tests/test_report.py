@@ -28,6 +28,7 @@ from damper.errors import DamperError
 from damper.output.report import build_report, write_report
 
 from .conftest import ROOT
+from .shared_runs import REPORT_OPTIONS
 
 DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
 DEMO_CONDITIONS = (
@@ -52,14 +53,14 @@ SECTIONS = (
 
 
 @pytest.fixture(scope="module")
-def demo_run(tmp_path_factory):
-    """One design run of the demo case with plots and the report (about 15 s)."""
-    out = tmp_path_factory.mktemp("report") / "run"
+def demo_run(shared_run):
+    """One design run of the demo case with plots and the report (about 15 s), shared with
+    test_figure_formats (tests/shared_runs.py: REPORT_OPTIONS); read only."""
     # damping_target policy: the default (balanced) currently picks K = 0 at one
     # condition, where the loop-response plot cannot be drawn (reported separately).
-    argv = ["design", DEMO, "--out", str(out), "--policy", "damping_target", "--target-damping", "0.7"]
-    assert main(argv) == 0
-    return out
+    run = shared_run("utility_single_aft_cg", REPORT_OPTIONS)
+    assert run.code == 0, run.stderr
+    return run.path
 
 
 def _text(html):

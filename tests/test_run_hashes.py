@@ -1,7 +1,8 @@
 """Every JSON document and gain table of every demo case's design run, hashed.
 
-A restructuring of the code must not change a single output byte. This test designs every
-demo case (without figures and report: they are checked elsewhere) and compares the SHA-256
+A restructuring of the code must not change a single output byte. This test reads the shared
+design run of every demo case (tests/shared_runs.py: without figures, which are checked
+elsewhere; the report is written but not hashed) and compares the SHA-256
 of each JSON document, CSV, YAML and C header with `tests/data/demo_run_hashes.json`
 (common practice: a golden-file regression test). Left out, because they hold what differs
 between two honest runs: in each document's provenance the recorded command line (it holds
@@ -16,12 +17,10 @@ When an output changes on purpose, regenerate the stored hashes and say why in t
 from __future__ import annotations
 
 import hashlib
-import io
 import json
 import os
 import sys
 import tempfile
-from contextlib import redirect_stderr, redirect_stdout
 
 import pytest
 
@@ -46,15 +45,8 @@ def _strip(obj):
     return obj
 
 
-def run_hashes(case_name, out_dir):
-    """{file: sha256} of one design run of a demo case (JSON normalised, tables raw)."""
-    sys.path.insert(0, ROOT)
-    from damper.cli import main
-
-    case = os.path.join(ROOT, "cases", case_name + ".yaml")
-    with redirect_stdout(io.StringIO()), redirect_stderr(io.StringIO()):
-        code = main(["design", case, "--out", out_dir, "--no-plots", "--no-report"])
-    assert code in (0, 3), code
+def hash_run(out_dir):
+    """{file: sha256} of the JSON documents and tables of a design run (JSON normalised, tables raw)."""
     hashes = {}
     for base, _, files in os.walk(out_dir):
         for name in sorted(files):
@@ -71,10 +63,12 @@ def run_hashes(case_name, out_dir):
 
 
 @pytest.mark.parametrize("case_name", DEMOS)
-def test_demo_run_outputs_are_unchanged(case_name, tmp_path):
+def test_demo_run_outputs_are_unchanged(case_name, shared_run):
     with open(STORE, encoding="utf-8") as fh:
         stored = json.load(fh)[case_name]
-    now = run_hashes(case_name, str(tmp_path / "run"))
+    run = shared_run(case_name)
+    assert run.code in (0, 3), run.stderr
+    now = hash_run(run.path)
     changed = sorted(k for k in set(stored) | set(now) if stored.get(k) != now.get(k))
     assert not changed, (
         f"{case_name}: outputs changed: {changed}. If on purpose, run "
@@ -83,10 +77,15 @@ def test_demo_run_outputs_are_unchanged(case_name, tmp_path):
 
 
 if __name__ == "__main__" and "--update" in sys.argv:
+    sys.path.insert(0, ROOT)
+    from tests.shared_runs import shared_design
+
     table = {}
-    for name in DEMOS:
-        with tempfile.TemporaryDirectory() as tmp:
-            table[name] = run_hashes(name, os.path.join(tmp, "run"))
+    with tempfile.TemporaryDirectory() as tmp:
+        for name in DEMOS:
+            run = shared_design(tmp, name)  # the same command line as the test's shared runs
+            assert run.code in (0, 3), run.stderr
+            table[name] = hash_run(run.path)
     os.makedirs(os.path.dirname(STORE), exist_ok=True)
     with open(STORE, "w", encoding="utf-8") as fh:
         json.dump(table, fh, indent=1, sort_keys=True)

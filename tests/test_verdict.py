@@ -161,9 +161,9 @@ def _check_part_records(name, doc):
 
 
 @pytest.mark.parametrize("case", DEMOS, ids=[os.path.basename(c) for c in DEMOS])
-def test_exit_status_terminal_json_and_report_agree(case, tmp_path):
-    out_dir = tmp_path / "run"
-    code, out, err = run("design", case, "--out", out_dir, "--no-plots", "--no-responses")
+def test_exit_status_terminal_json_and_report_agree(case, tmp_path, shared_run):
+    shared = shared_run(os.path.basename(case))  # design --no-plots (tests/shared_runs.py), read only
+    out_dir, code, out, err = shared.path, shared.code, shared.stdout, shared.stderr
     assert code in (0, 3), err
     total = Verdict()
     judged = {}
