@@ -119,6 +119,10 @@ def shared_run(tmp_path_factory):
 #: 2-core machine. `python -m pytest -m "not slow"` is the quick inner loop (DEVELOPERS.md);
 #: `@pytest.mark.slow` on a test works too.
 SLOW = (
+    "test_cluster.py",  # Dask clusters and worker processes
+    "test_pipeline.py::test_figures_go_to_the_tightest_conditions",
+    "test_pipeline.py::test_the_stages_run_in_order_and_stream_their_batches",
+    "test_pipeline.py::test_responses_stream_per_batch_and_keep_each_note_once",
     "test_api_doc.py::test_api_doc_examples_run",
     "test_api_doc.py::test_package_docstring_examples_run_as_doctests",
     "test_authority_response.py",
