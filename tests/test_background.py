@@ -28,7 +28,7 @@ def design():
 
 def test_worker_process_draws_byte_identical_files(design, tmp_path):
     # common practice: output must not depend on which process draws it
-    from damper.output.plots import design_plot_jobs
+    from damper.output.figures.design import design_plot_jobs
 
     case, result = design
     here = tmp_path / "here"

@@ -21,7 +21,7 @@ import pytest
 from damper.analysis.assess import assess
 from damper.case import load_case
 from damper.case.load import load_case_text
-from damper.output import loop_plot
+from damper.output.figures import loop_response as loop_plot
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")

@@ -20,8 +20,9 @@ from scipy.stats import beta
 
 from damper.analysis.search import search
 from damper.case import load_case
-from damper.output import plots, robustness_plots
-from damper.output.response_plots import linear_range_note
+from damper.output.figures import design as plots
+from damper.output.figures import robustness as robustness_plots
+from damper.output.figures.responses import linear_range_note
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")

@@ -11,7 +11,8 @@ import pytest
 from damper.analysis.assess import assess
 from damper.analysis.search import SearchSettings, search
 from damper.case import load_case
-from damper.output import loop_plot, plots
+from damper.output.figures import design as plots
+from damper.output.figures import loop_response as loop_plot
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
@@ -150,6 +151,6 @@ def test_safe_names():
 
 
 def test_importing_the_module_does_not_import_matplotlib():
-    code = "import sys, damper.output.plots; print('matplotlib' in sys.modules)"
+    code = "import sys, damper.output.figures.design; print('matplotlib' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT, check=True)
     assert out.stdout.strip() == "False"

@@ -25,7 +25,7 @@ import pytest
 
 from damper.cli import main
 from damper.errors import DamperError
-from damper.output.report import build_report, write_report
+from damper.output.report.build import build_report, write_report
 
 from .conftest import ROOT
 

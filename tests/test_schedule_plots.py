@@ -13,7 +13,7 @@ import pytest
 
 from damper.analysis.schedule import design_schedule
 from damper.case import load_case
-from damper.output.schedule_plots import schedule_plots
+from damper.output.figures.schedule import schedule_plots
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 CASES = {

@@ -65,13 +65,13 @@ def _check_args(args):
 
 def run(args, argv) -> int:
     _check_args(args)
-    from ..output.figures import use_option
+    from ..output.style import use_option
 
     use_option(args.figures)  # before anything is drawn (the plot worker inherits it)
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
     from ..output.background import PlotJobs
-    from ..output.design_doc import design_table
+    from ..output.documents.design import design_table
     from ..output.journal import part
     from ..output.rundir import RunDirectory
 
@@ -91,7 +91,7 @@ def run(args, argv) -> int:
             if design is not None:
                 verdict = design.verdict + verdict
         if not args.no_report:
-            from ..output.report import write_report
+            from ..output.report.build import write_report
             from ..output.runfiles import RunFiles
 
             with part("report"), current().stage("report"):
@@ -101,7 +101,7 @@ def run(args, argv) -> int:
         written.append("manifest.json")
     print(f"{case.title}")
     if design is not None:
-        from ..output.understood import echo_for, with_level_legend
+        from ..output.documents.understood import echo_for, with_level_legend
 
         print(echo_for(case, design.doc))
         print(with_level_legend(design_table(design.doc), case))
@@ -109,7 +109,7 @@ def run(args, argv) -> int:
             print(f"figures drawn for {len(design.figures)} of {len(design.conditions)} conditions (the infeasible ones "
                   "and those with the least slack; --max-figures N to change)")
     if schedule is not None:
-        from ..output.schedule_out import schedule_summary
+        from ..output.documents.schedule import schedule_summary
 
         print(schedule_summary(schedule))
     if robustness_text is not None:
@@ -156,11 +156,11 @@ def _design(args, case, out, command, jobs):
     from ..analysis.batches import condition_batches, sub_case
     from ..analysis.search import SearchSettings, search
     from ..analysis.verdicts import design_misses, design_verdict
-    from ..output.design_doc import condition_entries, design_document
+    from ..output.documents.design import condition_entries, design_document
     from ..output.files import write_atomic
     from ..output.journal import part
-    from ..output.jsonout import dump_part, dumps, with_verdict
-    from ..output.plots import plot_slugs
+    from ..output.documents.jsonout import dump_part, dumps, with_verdict
+    from ..output.figures.design import plot_slugs
     from ..verdict import Verdict
 
     if not case.conditions:  # an envelope case: the schedule part judges it
@@ -209,7 +209,7 @@ def _design(args, case, out, command, jobs):
 
 def _queue_design_plots(jobs, sub, design, out, slugs):
     from ..output.journal import part
-    from ..output.plots import design_plot_jobs
+    from ..output.figures.design import design_plot_jobs
 
     plot_jobs = design_plot_jobs(sub, design, out, slugs)
     with part("design"):
@@ -237,7 +237,7 @@ def _add_turbulence(case, design, entries):
     study = case_turbulence(case, np.array([c.chosen_gain for c in design.conditions]))
     if study is None:
         return []
-    from ..output.turbulence_out import add_turbulence
+    from ..output.documents.turbulence import add_turbulence
 
     checks = check_turbulence(case, study.closed_loop)
     add_turbulence({"conditions": entries}, study, checks)
@@ -253,7 +253,7 @@ def _analyses(args, case, design, out, command, jobs, written):
     """
     from ..output.files import write_atomic
     from ..output.journal import part
-    from ..output.jsonout import dumps, with_verdict
+    from ..output.documents.jsonout import dumps, with_verdict
     from ..verdict import Verdict
 
     schedule = None
@@ -261,14 +261,14 @@ def _analyses(args, case, design, out, command, jobs, written):
     if case.raw.get("schedule") is not None:
         from ..analysis.schedule import design_schedule
         from ..analysis.verdicts import schedule_verdict
-        from ..output.schedule_out import write_schedule
+        from ..output.documents.schedule import write_schedule
 
         schedule = design_schedule(case, progress=current())
         verdict = schedule_verdict(schedule)
         with part("schedule"):
             written += write_schedule(out, case, schedule, command=command, verdict=verdict)
             if not args.no_plots:  # drawn here while the worker draws the search's figures
-                from ..output.schedule_plots import schedule_plots
+                from ..output.figures.schedule import schedule_plots
 
                 with current().stage("schedule plots"):
                     written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
@@ -300,7 +300,7 @@ def _analyses(args, case, design, out, command, jobs, written):
             gains = np.array([c.chosen_gain for c in design.conditions])
         rob = robustness(case, gains, spec, progress=current())
         if not args.no_plots:
-            from ..output.robustness_out import robustness_plot_jobs
+            from ..output.figures.robustness import robustness_plot_jobs
 
             rj = robustness_plot_jobs(case, rob, out, limit=args.max_figures)
             # four groups (the result is sent once per group): the worker and this process
@@ -313,7 +313,7 @@ def _analyses(args, case, design, out, command, jobs, written):
         n = sum(len(jobs.paths(k)) for k in design.plot_jobs)
         written.insert(1, f"{n} plot files in plots/")
     if rob is not None:
-        from ..output.robustness_out import robustness_document, robustness_table
+        from ..output.documents.robustness import robustness_document, robustness_table
 
         files = ["robustness.json"]
         if rob_jobs is not None:
@@ -344,7 +344,7 @@ def _failures(args, case, design, out, command, jobs, written):
     import numpy as np
 
     from ..analysis.failure_run import run_failures
-    from ..output.failures_out import write_failures
+    from ..output.documents.failures import write_failures
     from ..output.journal import part
 
     with part("failures"), current().stage("failures"):

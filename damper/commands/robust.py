@@ -56,7 +56,7 @@ def _check_args(args):
 
 def run(args, argv) -> int:
     _check_args(args)
-    from ..output.figures import use_option
+    from ..output.style import use_option
 
     use_option(args.figures)  # before anything is drawn (the plot worker inherits it)
     import os
@@ -69,10 +69,11 @@ def run(args, argv) -> int:
     from ..output.files import write_atomic
     from ..output.journal import part
     from ..analysis.verdicts import robustness_verdict
-    from ..output.jsonout import dumps, with_verdict
+    from ..output.documents.jsonout import dumps, with_verdict
     from ..output.rundir import RunDirectory
-    from ..output.report import refresh_report
-    from ..output.robustness_out import robustness_document, robustness_plots, robustness_table
+    from ..output.report.build import refresh_report
+    from ..output.documents.robustness import robustness_document, robustness_table
+    from ..output.figures.robustness import robustness_plots
     from .gain_source import design_gains, read_design_run, read_schedule
 
     case = load_case(args.case)

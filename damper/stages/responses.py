@@ -33,7 +33,7 @@ def write_responses(out, case, gains, command, plots=True, gain_text="chosen gai
 
     from ..analysis.batches import condition_batches, sub_case
     from ..analysis.response import respond_case, response_spec
-    from ..output.response_plots import response_document
+    from ..output.documents.responses import response_document
 
     n = len(case.conditions)
     gains = np.broadcast_to(np.asarray(gains, dtype=float), (n,))
@@ -50,7 +50,7 @@ def write_responses(out, case, gains, command, plots=True, gain_text="chosen gai
         stage.update(b)
     stage.finish()
     doc = dict(doc, conditions=conditions, notes=list(notes))  # the case-level keys are the same in every batch
-    from ..output.jsonout import with_verdict
+    from ..output.documents.jsonout import with_verdict
     from ..verdict import Verdict
 
     doc = with_verdict(doc, Verdict())  # no requirement on the responses yet: nothing judged (docs/verdict.md)
@@ -58,7 +58,7 @@ def write_responses(out, case, gains, command, plots=True, gain_text="chosen gai
         import os
 
         from ..output.files import write_atomic
-        from ..output.jsonout import dumps
+        from ..output.documents.jsonout import dumps
 
         write_atomic(os.path.join(out, "responses.json"), dumps(doc))
     return doc, notes
@@ -70,7 +70,8 @@ def _write_batch(out, sub, start, result, spec, plots, gain_text, jobs, plot_onl
     from functools import partial
 
     from ..output.files import write_atomic
-    from ..output.response_plots import file_stem, plot_response, response_csv
+    from ..output.documents.responses import response_csv
+    from ..output.figures.responses import file_stem, plot_response
 
     files = {}
     stride = max(1, int(round(spec.output_step / spec.step)))
@@ -90,7 +91,7 @@ def _write_batch(out, sub, start, result, spec, plots, gain_text, jobs, plot_onl
                     paths += draw(stem, bare, aug)
                 else:  # copies: a view would keep the whole batch's histories alive while the job waits
                     jobs.submit(draw, stem, _owned(bare), _owned(aug))
-                    from ..output.figures import formats
+                    from ..output.style import formats
 
                     paths += [f"{stem}.{fmt}" for fmt in formats()]  # the names save_figure writes
             files[(i, j)] = [os.path.basename(p) for p in paths]

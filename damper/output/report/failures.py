@@ -7,8 +7,8 @@ as failures.json holds it. The view has the shape the template's ``generic`` mac
 
 from __future__ import annotations
 
-from .report_format import DASH, R2D, f
-from .report_sections import _files_figures, _headline, _pairs, _table
+from .format import DASH, R2D, f
+from .sections import _files_figures, _headline, _pairs, _table
 
 LIMIT_WORDS = {"load_factor": "load factor", "pitch_attitude": "pitch attitude", "angle_of_attack": "angle of attack"}
 

@@ -1,17 +1,17 @@
 """The report's views of each condition, of the case (aircraft, loop hardware, conditions,
 derivatives), of the requirements and of the time responses.
 
-Formatting only, from design.json and responses.json (:mod:`damper.output.report` builds the page).
+Formatting only, from design.json and responses.json (:mod:`damper.output.report.build` builds the page).
 """
 
 from __future__ import annotations
 
 import os
 
-from ..requirements.criteria import KINDS
-from .longitudinal_out import longitudinal_rows
-from .runfiles import image_uri as _image
-from .report_format import FT, KT, R2D, DASH, _status, band_text, binding_text, complex_text, f, fixed, pct, requirement_label, roots_text, scaled, unit_text
+from ...requirements.criteria import KINDS
+from ..documents.longitudinal import longitudinal_rows
+from ..runfiles import image_uri as _image
+from .format import FT, KT, R2D, DASH, _status, band_text, binding_text, complex_text, f, fixed, pct, requirement_label, roots_text, scaled, unit_text
 
 
 def _condition_view(i, c, slug, files, summary_cond):

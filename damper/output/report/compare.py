@@ -1,7 +1,7 @@
 """The self-contained HTML comparison report of ``damper compare`` (templates/compare.html.j2).
 
 Everything shown is read from the ``compare.json`` document (built once by
-:mod:`damper.output.compare_doc`); plots are embedded as PNG data URIs. Autoescape is on:
+:mod:`damper.output.documents.compare`); plots are embedded as PNG data URIs. Autoescape is on:
 condition names and paths from the user are escaped.
 """
 
@@ -10,8 +10,8 @@ from __future__ import annotations
 import base64
 import os
 
-from .compare_doc import PASS_FRACTION
-from .text import fmt
+from ..documents.compare import PASS_FRACTION
+from ..documents.text import fmt
 
 #: Most points the report's table lists (compare.json has them all).
 MAX_ROWS = 400
@@ -43,7 +43,7 @@ def _figure(root, fg):
 
 def build_compare_report(doc, root, version) -> str:
     """The HTML text of the comparison report of `doc` (compare.json) whose plots are in `root`."""
-    from .report import _environment
+    from .build import _environment
 
     v = doc["verdict"]
     kinds = {r["kind"] for r in doc["conditions"]}

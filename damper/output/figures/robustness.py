@@ -23,8 +23,8 @@ import os
 
 import numpy as np
 
-from .figures import new_figure, save_figure
-from .text import pct as _pct
+from ..style import new_figure, save_figure
+from ..documents.text import pct as _pct
 
 # ---------------------------------------------------------------------------------
 # Plots
@@ -370,7 +370,7 @@ def robustness_plot_jobs(case, result, out_dir, limit=FIGURE_CONDITIONS) -> list
     import dataclasses
     import functools
 
-    from .plots import safe_name
+    from .design import safe_name
 
     shown = figure_conditions(result, limit)
     plots = os.path.join(out_dir, "plots")

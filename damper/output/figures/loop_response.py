@@ -26,7 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .plot_style import LINES, PALETTE, _criteria, _figure, _fmt_band, _log_x, _render, _short_log_labels
+from ..style import LINES, PALETTE, _criteria, _figure, _fmt_band, _log_x, _render, _short_log_labels
 
 #: Points of the drawn curve across the chosen frequency range.
 CURVE_POINTS = 600
@@ -112,8 +112,8 @@ def bode_data(case, assessment, i, w=None) -> BodeData:
         rad/s, ascending; default :func:`frequency_grid`. The phase is unwrapped from the
         case's lowest frequency whatever `w` is, so its branch matches the margin search.
     """
-    from ..model.batch import map_arrays
-    from ..model.loop import Loop, loop_response
+    from ...model.batch import map_arrays
+    from ...model.loop import Loop, loop_response
 
     w = frequency_grid(case, assessment, i) if w is None else np.asarray(w, dtype=float)
     grid = case.settings.grid()

@@ -1,7 +1,7 @@
 """How the case was understood, for the terminal: each condition as written and in SI, and the level legend.
 
 The echo is formatted from the ``case_summary`` conditions of ``design.json``
-(:func:`damper.output.design_doc.case_summary`), so the terminal and the JSON show the
+(:func:`damper.output.documents.design.case_summary`), so the terminal and the JSON show the
 same numbers, computed once.
 """
 
@@ -22,7 +22,7 @@ def _num(x, spec):
 
 
 def _written_text(key, text) -> str:
-    from ..case.written import is_plain
+    from ...case.written import is_plain
 
     if is_plain(text):
         return f"{key} {text} (plain: {_UNIT_OF[key]})" if key != "mach" else f"mach {text}"
@@ -101,7 +101,7 @@ def conditions_echo(summary_conditions, altitude_kind="geopotential", limit=MAX_
 def echo_for(case, doc=None) -> str:
     """:func:`conditions_echo` of a case, from design.json's ``case_summary`` when `doc` is given."""
     if doc is None:
-        from .design_doc import case_summary
+        from .design import case_summary
 
         summary = case_summary(case)
     else:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 
 from .jsonout import CAUTION, condition_result, num, provenance
-from .longitudinal_out import longitudinal_table, speed_derivatives_summary
+from .longitudinal import longitudinal_table, speed_derivatives_summary
 from .text import fmt, table
 
 
@@ -141,7 +141,7 @@ def condition_entries(case, design) -> list:
 
 
 def _short(binding: str) -> str:
-    from ..analysis.search import BARE_MEETS
+    from ...analysis.search import BARE_MEETS
 
     return {BARE_MEETS: "K=0 meets all", "sweep range": "end of sweep"}.get(binding, binding)
 

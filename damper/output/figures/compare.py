@@ -2,15 +2,15 @@
 against the gain for both runs, and both schedules over the compared points.
 
 Run A is drawn in the primary style (solid, circles), run B in the secondary style
-(dashed, squares) of :mod:`damper.output.plot_style`; the values come computed from the caller.
+(dashed, squares) of :mod:`damper.output.style`; the values come computed from the caller.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from .figures import new_figure, save_figure
-from .plot_style import _RC, DPI, LINES, PALETTE, _plain_log_label  # the house style
+from ..style import new_figure, save_figure
+from ..style import _RC, DPI, LINES, PALETTE, _plain_log_label  # the house style
 
 
 def _render(draw, stem, *args):

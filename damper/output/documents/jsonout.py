@@ -139,7 +139,7 @@ def condition_result(case, result, index) -> dict:
         "criteria": _criteria(result, index),
         "level": _level(result, index),
     }
-    from .longitudinal_out import with_longitudinal
+    from .longitudinal import with_longitudinal
 
     return with_longitudinal(entry, cond, result, index, bi)
 
@@ -284,7 +284,7 @@ def provenance(case, command=None, seed=None) -> dict:
 
     import scipy
 
-    from .. import __version__
+    from ... import __version__
 
     return {
         "input_file": case.file,

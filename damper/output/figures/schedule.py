@@ -28,7 +28,7 @@ outside the envelope dropped); the points carry the computed values.
 Nothing here computes a measure: values come from the verification. Drawing-time geometry
 only: the envelope's speed limits and :meth:`Schedule.gain_at` on a dense grid.
 
-Visual identity: the palette of :mod:`damper.output.plots`; colour scales ``cividis``
+Visual identity: the palette of :mod:`damper.output.figures.design`; colour scales ``cividis``
 (monotone in lightness, readable with the common colour-vision deficiencies and in
 greyscale); configurations differ by marker shape as well as colour; failures are ringed.
 matplotlib is imported inside the functions (Agg canvas, no pyplot state).
@@ -36,13 +36,13 @@ matplotlib is imported inside the functions (Agg canvas, no pyplot state).
 
 from __future__ import annotations
 
-from .figures import new_figure, save_figure  # noqa: E402
+from ..style import new_figure, save_figure  # noqa: E402
 
 import os
 
 import numpy as np
 
-from .plots import COLORMAP, DPI, PALETTE, _RC
+from ..style import COLORMAP, DPI, PALETTE, _RC
 
 #: How each schedule / map variable is shown: (words, unit shown, factor from SI).
 DISPLAY = {
@@ -103,14 +103,14 @@ def _envelope(case, result):
     """The case's Envelope, or None (schedule over conditions)."""
     if result.source != "envelope":
         return None
-    from ..analysis.envelope import envelope_from_case
+    from ...analysis.envelope import envelope_from_case
 
     return envelope_from_case(case)[0]
 
 
 def _outline_tas(env, n=121):
     """Envelope outline as (true airspeed m/s, altitude m): lower edge up, upper edge down."""
-    from ..analysis.envelope import speed_limits
+    from ...analysis.envelope import speed_limits
 
     h = np.linspace(env.altitude[0], env.altitude[1], n) if env.altitude[1] > env.altitude[0] else np.array(
         [env.altitude[0]]
@@ -255,7 +255,7 @@ def _draw_gain_1d(case, result):
         axs.text(0.99, 0.03, "slack below -2 drawn at -2", transform=axs.transAxes, ha="right", va="bottom",
                  fontsize=7, color=PALETTE["critical"])
     if var == "dynamic_pressure":
-        from ..atmosphere import RHO0
+        from ...atmosphere import RHO0
 
         top = ax.secondary_xaxis(
             "top",
@@ -284,7 +284,7 @@ def _draw_gain_1d(case, result):
 
 def _speed_range_in(env, var, h):
     """Envelope speed range at altitudes `h`, expressed in schedule variable `var` (SI)."""
-    from ..analysis.envelope import speed_limits, variable_value
+    from ...analysis.envelope import speed_limits, variable_value
 
     lo, hi = speed_limits(env, h)
     return variable_value(var, h, lo), variable_value(var, h, hi)

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .plot_style import (
+from ..style import (
     COLORMAP,
     LINES,
     PALETTE,
@@ -31,9 +31,9 @@ def open_loop_poles(case) -> np.ndarray:
     The library's closed-loop matrix with zero gain, eigenvalues by
     :func:`damper.measures.modes.closed_loop_modes` (delay as its Pade approximant).
     """
-    from ..analysis.assess import build_loop
-    from ..measures.modes import closed_loop_modes
-    from ..model.loop import closed_loop_matrix
+    from ...analysis.assess import build_loop
+    from ...measures.modes import closed_loop_modes
+    from ...model.loop import closed_loop_matrix
 
     loop = build_loop(case, np.zeros(len(case.conditions)))
     A, _, layout = closed_loop_matrix(loop)

@@ -78,7 +78,7 @@ def assess_table(doc) -> str:
             ]
         )
     out = table(headers, rows) + "\n\n" + handling_table(doc)
-    from .longitudinal_out import longitudinal_table
+    from .longitudinal import longitudinal_table
 
     lon = longitudinal_table(doc["conditions"])
     out = out + ("\n\n" + lon if lon else "")
@@ -93,7 +93,7 @@ def assess_table(doc) -> str:
 
 def handling_table(doc) -> str:
     """Equivalent system, CAP, level and the requirements' verdict per condition."""
-    from ..requirements.criteria import KINDS
+    from ...requirements.criteria import KINDS
 
     headers = [
         "condition",

@@ -1,6 +1,6 @@
 """Formatting for the design report: numbers, units, bands, labels of requirements and keys.
 
-Only formatting: every value comes from the run's documents (:mod:`damper.output.report`).
+Only formatting: every value comes from the run's documents (:mod:`damper.output.report.build`).
 """
 
 from __future__ import annotations
@@ -166,7 +166,7 @@ def requirement_label(name):
 
 
 def binding_text(binding):
-    from ..analysis.search import BARE_MEETS
+    from ...analysis.search import BARE_MEETS
 
     if binding == BARE_MEETS:
         return "none: K = 0 already meets every requirement"

@@ -1,15 +1,20 @@
-"""The design plots' look: one palette, line styles, rc settings and small axis helpers.
+"""The look and the files of every figure: palette, line styles, rc settings, DPI, figure creation
+and atomic saving, file-name rules, and small axis helpers.
 
-Shared by :mod:`damper.output.plots`, :mod:`damper.output.root_locus_plot`,
-:mod:`damper.output.loop_plot` and :mod:`damper.output.schedule_plots`. matplotlib is
+Shared by :mod:`damper.output.figures.design`, :mod:`damper.output.figures.root_locus`,
+:mod:`damper.output.figures.loop_response` and :mod:`damper.output.figures.schedule`. matplotlib is
 imported inside the functions, so importing this module is cheap.
 """
 
 from __future__ import annotations
 
+import io
+import os
+import re
+
 import numpy as np
 
-from .figures import new_figure, save_figure
+from .files import write_atomic
 
 # ---------------------------------------------------------------------------------
 # Visual identity: one palette, every series also told apart by line style and marker
@@ -29,7 +34,6 @@ PALETTE = {
     "critical": "#555555",  # 0 dB / -180 deg / imaginary axis
 }
 COLORMAP = "cividis"  # gain colour scale: monotone in lightness
-DPI = 120
 LINES = {
     "primary": {"color": PALETTE["primary"], "linestyle": "-", "marker": "o", "markersize": 3.0, "linewidth": 1.6},
     "secondary": {
@@ -173,3 +177,106 @@ def _delay_text(case):
         return None, "no delay in the loop"
     t = float(np.asarray(delay.time))
     return t, f"{t * 1e3:.3g} ms"
+
+
+# ---------------------------------------------------------------------------------
+# figure creation and saving
+# ---------------------------------------------------------------------------------
+DPI = 120
+#: Formats a figure can be written in; the report embeds SVG when there is one, else PNG.
+KNOWN_FORMATS = ("png", "svg")
+#: The formats of this process's figures (set once per run by the command, and in the plot
+#: worker by its initializer).
+_FORMATS = {"value": KNOWN_FORMATS}
+
+
+def parse_formats(text: str) -> tuple:
+    """``"svg,png"`` -> ``("png", "svg")``; raises ValueError naming what is not a format."""
+    wanted = [t.strip().lower() for t in str(text).split(",") if t.strip()]
+    bad = [t for t in wanted if t not in KNOWN_FORMATS]
+    if bad or not wanted:
+        raise ValueError(f"{text!r}: give one or more of {', '.join(KNOWN_FORMATS)}, separated by commas")
+    return tuple(f for f in KNOWN_FORMATS if f in wanted)
+
+
+def set_formats(formats) -> None:
+    """Make `formats` (a subset of :data:`KNOWN_FORMATS`) the formats :func:`save_figure` writes."""
+    _FORMATS["value"] = tuple(f for f in KNOWN_FORMATS if f in formats)
+
+
+def use_option(text: str) -> None:
+    """Set the formats from a ``--figures`` value; a bad value is a :class:`~damper.errors.DamperError` (exit 2)."""
+    from ..errors import DamperError
+
+    try:
+        set_formats(parse_formats(text))
+    except ValueError as exc:
+        raise DamperError(f"--figures {exc}") from None
+
+
+def formats() -> tuple:
+    """The formats :func:`save_figure` writes in this process."""
+    return _FORMATS["value"]
+
+
+def new_figure(width, height):
+    """A figure (inches) on its own Agg canvas (no pyplot, no global backend switch)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width, height))
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def save_figure(fig, stem, dpi=DPI):
+    """Render `fig` in each of :func:`formats` into memory, then write ``stem.png`` / ``stem.svg`` atomically."""
+    paths = []
+    for fmt in formats():
+        buf = io.BytesIO()
+        if fmt == "svg":
+            fig.savefig(buf, format=fmt, dpi=dpi, metadata={"Date": None})
+        else:  # zlib level 3: a third less time than the default 6 for about 4 % larger files
+            fig.savefig(buf, format=fmt, dpi=dpi, metadata={"Software": None}, pil_kwargs={"compress_level": 3})
+        paths.append(write_atomic(f"{os.fspath(stem)}.{fmt}", buf.getvalue()))
+    return paths
+
+
+# ---------------------------------------------------------------------------------
+# file names
+# ---------------------------------------------------------------------------------
+_WINDOWS_RESERVED = {"con", "prn", "aux", "nul", *(f"com{k}" for k in range(1, 10)), *(f"lpt{k}" for k in range(1, 10))}
+
+
+def safe_name(name: str) -> str:
+    """A filesystem-safe slug of a condition name (lower case, ``[a-z0-9._-]``)."""
+    s = re.sub(r"[^A-Za-z0-9._-]+", "-", str(name)).strip("-._").lower()[:80].strip("-._")
+    if not s:
+        s = "condition"
+    if s.split(".")[0] in _WINDOWS_RESERVED:
+        s = "condition-" + s
+    return s
+
+
+def plot_slugs(names) -> list:
+    """The file slug of every condition: :func:`safe_name`, made unique by a numeric suffix."""
+    taken, out = set(), []
+    for name in names:
+        base = safe_name(name)
+        slug, n = base, 2
+        while slug in taken:
+            slug, n = f"{base}-{n}", n + 1
+        taken.add(slug)
+        out.append(slug)
+    return out
+
+
+def label_slug(text: str) -> str:
+    """A file-name fragment from a label, case kept (letters, digits, '.', '_', '-'; at most 60).
+
+    The rule of the response files' names (``response-01-SL-climb-fwd-1-doublet``), which
+    responses.json lists: unlike :func:`safe_name` it keeps the case and joins with ``_``.
+    """
+    out = re.sub(r"[^A-Za-z0-9._-]+", "_", text).strip("._")
+    return out[:60] or "x"
+

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 
-from ..verdict import Detail, Item, Verdict
+from ...verdict import Detail, Item, Verdict
 from .jsonout import CAUTION
 from .text import fmt, table
 
@@ -175,7 +175,7 @@ def verdict_of_run(docs) -> tuple:
 
 
 def _item(d):
-    from ..verdict import PARTS
+    from ...verdict import PARTS
 
     if not isinstance(d, dict) or d.get("part") not in PARTS:
         return None

@@ -10,8 +10,8 @@ from __future__ import annotations
 
 import math
 
-from ..analysis.failure_verdict import LIMIT_KEYS, LIMIT_WORDS, failure_verdict
-from ..analysis.failure_verdict import deg_range as _deg_range
+from ...analysis.failure_verdict import LIMIT_KEYS, LIMIT_WORDS, failure_verdict
+from ...analysis.failure_verdict import deg_range as _deg_range
 from .jsonout import CAUTION, num, provenance, with_verdict
 from .text import fmt, table
 
@@ -143,9 +143,9 @@ def write_failures(out, case, run, command, jobs=None, title=None):
     """
     import os
 
-    from .failure_plots import failure_plot_jobs
-    from .figures import formats
-    from .files import write_atomic
+    from ..figures.failures import failure_plot_jobs
+    from ..style import formats
+    from ..files import write_atomic
     from .jsonout import dumps
 
     files = []

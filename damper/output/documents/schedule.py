@@ -13,9 +13,9 @@ import re
 
 import numpy as np
 
-from .. import __version__
-from ..analysis.envelope import VARIABLE_UNITS
-from .files import write_atomic
+from ... import __version__
+from ...analysis.envelope import VARIABLE_UNITS
+from ..files import write_atomic
 from .jsonout import CAUTION, dumps, num, provenance
 
 
@@ -62,8 +62,8 @@ def schedule_from_table(doc, where="gain-schedule.json"):
     where : str
         The file, for messages.
     """
-    from ..analysis.schedule import Schedule
-    from ..errors import DamperError
+    from ...analysis.schedule import Schedule
+    from ...errors import DamperError
 
     def bad(field, why):
         return DamperError(f"{where}: {field}: {why} (expected a gain-schedule.json written by `damper design`)")

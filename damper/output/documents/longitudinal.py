@@ -7,7 +7,7 @@ as they were (no key is added), so its documents are unchanged byte for byte.
 
 from __future__ import annotations
 
-from ..measures.modes import DAMPING_TOLERANCE, FREQUENCY_TOLERANCE
+from ...measures.modes import DAMPING_TOLERANCE, FREQUENCY_TOLERANCE
 from .jsonout import num
 from .text import fmt, table
 
@@ -96,7 +96,7 @@ def longitudinal_table(conditions) -> str:
     Parameters
     ----------
     conditions : iterable of dict
-        ``assess`` structures of conditions (:func:`damper.output.jsonout.condition_result`).
+        ``assess`` structures of conditions (:func:`damper.output.documents.jsonout.condition_result`).
     """
     rows, differ = [], []
     for c in conditions:

@@ -29,43 +29,12 @@ from __future__ import annotations
 import datetime as _dt
 import os
 
-from ..errors import DamperError
-from .names import plot_slugs
-from .runfiles import MAX_SVG_BYTES  # noqa: F401 - part of this module's interface
-from .runfiles import read_json as _read_json
-# formatting and the document views live in their own modules; their names stay importable from here
-from .report_conditions import _case_view, _condition_view, _requirements_view, _responses_view
-from .report_format import (  # noqa: F401
-    DASH,
-    FT,
-    KT,
-    R2D,
-    _status,
-    band_text,
-    binding_text,
-    complex_text,
-    f,
-    fixed,
-    key_label,
-    pct,
-    requirement_label,
-    roots_text,
-    scaled,
-    unit_text,
-)
-from .report_sections import (  # noqa: F401
-    MAX_FAILING_ROWS,
-    MAX_TABLE_ROWS,
-    _files_figures,
-    _headline,
-    _pairs,
-    _plot_dir_figures,
-    _robustness_view,
-    _schedule_view,
-    _section_view,
-    _table,
-    verdict_view,
-)
+from ...errors import DamperError
+from ..style import plot_slugs
+from ..runfiles import read_json as _read_json
+from .conditions import _case_view, _condition_view, _requirements_view, _responses_view
+from .format import DASH
+from .sections import _robustness_view, _schedule_view, _section_view, verdict_view
 
 #: Files of the run directory the report reads, in the order of its sections.
 OPTIONAL_DOCUMENTS = ("schedule.json", "robustness.json", "responses.json", "failures.json")
@@ -99,7 +68,7 @@ def _file_date(path):
 def _library_versions():
     from importlib import metadata
 
-    from .. import __version__
+    from ... import __version__
 
     out = [("damper", __version__)]
     for dist in ("numpy", "scipy", "control", "matplotlib", "pint", "PyYAML", "Jinja2"):
@@ -163,7 +132,7 @@ def report_context(run_dir, files=None) -> dict:
     `files` (a :class:`~damper.output.runfiles.RunFiles`) names what the report may read;
     by default the files the directory's manifest (or journal) lists, with matching hashes.
     """
-    from .runfiles import RunFiles
+    from ..runfiles import RunFiles
 
     run_dir = os.fspath(run_dir)
     if not os.path.isdir(run_dir):
@@ -231,7 +200,7 @@ def report_context(run_dir, files=None) -> dict:
 
 
 def _failures_view(doc, files):
-    from .failures_report import failures_view
+    from .failures import failures_view
 
     return _section_view(doc, files, failures_view, "failures")
 
@@ -273,7 +242,7 @@ def build_report(run_dir, files=None) -> str:
 
 def write_report(run_dir, files=None) -> str:
     """Build the report and write ``run_dir/report.html`` atomically; returns its path."""
-    from .files import write_atomic
+    from ..files import write_atomic
 
     html = build_report(run_dir, files)
     return write_atomic(os.path.join(os.fspath(run_dir), "report.html"), html)
@@ -287,8 +256,8 @@ def refresh_report(run):
     describes files that have since been replaced. Returns the path, or None when there
     was no report to refresh.
     """
-    from .journal import part
-    from .runfiles import RunFiles
+    from ..journal import part
+    from ..runfiles import RunFiles
 
     listed = run.files()
     if "design.json" in listed and os.path.isfile(os.path.join(run.root, "report.html")):

@@ -65,7 +65,7 @@ def plot_hardovers(stem, curves, bands, title, subtitle=""):
     """
     import matplotlib
 
-    from .figures import new_figure, save_figure
+    from ..style import new_figure, save_figure
 
     style = {"font.size": 8.5, "axes.spines.top": False, "axes.spines.right": False, "svg.hashsalt": "damper"}
     with matplotlib.rc_context(style):

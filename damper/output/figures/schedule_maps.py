@@ -1,13 +1,13 @@
 """The schedule's maps: closed-loop damping and smallest margin over the envelope under the
-scheduled gain (split from :mod:`damper.output.schedule_plots`, which draws the gain plot and
+scheduled gain (split from :mod:`damper.output.figures.schedule`, which draws the gain plot and
 writes every schedule figure)."""
 
 from __future__ import annotations
 
 import numpy as np
 
-from .plots import COLORMAP, PALETTE
-from .schedule_plots import DISPLAY, _FAIL_RING, _criterion, _draw_outline, _envelope, _figure, _outline_tas, _title, _verdict
+from ..style import COLORMAP, PALETTE
+from .schedule import DISPLAY, _FAIL_RING, _criterion, _draw_outline, _envelope, _figure, _outline_tas, _title, _verdict
 
 
 # ---------------------------------------------------------------------------------
@@ -29,7 +29,7 @@ def _triangulation(env, v, h):
     except (ValueError, RuntimeError):
         return None
     if env is not None:
-        from ..analysis.envelope import inside
+        from ...analysis.envelope import inside
 
         cv = v[tri.triangles].mean(1)
         ch = h[tri.triangles].mean(1)
@@ -46,7 +46,7 @@ def _unique_points(v, h, z):
 
 def _iso_lines(ax, env, sch, h_plot):
     """The schedule's breakpoints drawn over the (true airspeed, altitude) map, inside the envelope."""
-    from ..analysis.envelope import airspeed_for, speed_limits
+    from ...analysis.envelope import airspeed_for, speed_limits
 
     if env is None:
         return

@@ -1,4 +1,4 @@
-"""``robustness.json`` and the ``damper robust`` table (the plots: :mod:`.robustness_plots`).
+"""``robustness.json`` and the ``damper robust`` table (the plots: :mod:`damper.output.figures.robustness`).
 
 Nothing here computes a measure: everything comes from a
 :class:`damper.analysis.robustness.RobustnessResult`. The JSON is deterministic (same
@@ -11,9 +11,9 @@ import math
 
 import numpy as np
 
-from ..analysis.sample_stats import SLACK_EDGES
-from ..analysis.uncertainty import SHARD_SAMPLES
-from .design_doc import requirements_list
+from ...analysis.sample_stats import SLACK_EDGES
+from ...analysis.uncertainty import SHARD_SAMPLES
+from .design import requirements_list
 from .jsonout import CAUTION, num, provenance
 from .text import fmt, table
 from .text import pct as _pct
@@ -297,15 +297,3 @@ def _worst_cell(w, spec, none="-"):
         return (none if w["met"] else "undef.") + mark
     return fmt(w["value"], spec) + mark
 
-
-# the plots live in their own module; their names stay importable from here
-from .robustness_plots import (  # noqa: E402,F401
-    FIGURE_CONDITIONS,
-    STYLE,
-    figure_conditions,
-    pass_fraction_plot,
-    robustness_plot_jobs,
-    robustness_plots,
-    scatter_plot,
-    sensitivity_plot,
-)

@@ -1,6 +1,6 @@
 """The report's views of the schedule, robustness and other documents, and of the run's verdict.
 
-Formatting only, from the documents the run wrote (:mod:`damper.output.report` builds the page).
+Formatting only, from the documents the run wrote (:mod:`damper.output.report.build` builds the page).
 """
 
 from __future__ import annotations
@@ -9,8 +9,8 @@ import json
 import os
 import re
 
-from .report_format import DASH, _status, binding_text, f, key_label, pct, requirement_label, unit_text
-from .runfiles import image_uri as _image
+from .format import DASH, _status, binding_text, f, key_label, pct, requirement_label, unit_text
+from ..runfiles import image_uri as _image
 
 
 # --- generic documents (schedule, robustness) ------------------------------------
@@ -219,7 +219,7 @@ def _headline(ok, message):
 
 def _part_headline(doc, part):
     """The headline of a section: its part's summary item of the document's verdict object."""
-    from ..verdict import Verdict
+    from ...verdict import Verdict
 
     try:
         item = Verdict.from_doc(doc.get("verdict")).summary(part)
@@ -236,7 +236,7 @@ def verdict_view(docs) -> dict:
     docs : dict
         File name to parsed JSON document (design.json and whatever optional documents exist).
     """
-    from ..verdict import Verdict
+    from ...verdict import Verdict
 
     total, unreadable = Verdict(), []
     for name, doc in docs.items():

@@ -1,8 +1,8 @@
 """Design plots per condition: root locus, loop response and gain sweep, and their jobs.
 
-The root locus is drawn by :mod:`damper.output.root_locus_plot`, the loop response by
-:mod:`damper.output.loop_plot`, the gain sweep here; the shared look is
-:mod:`damper.output.plot_style` (its names are re-exported here). Every plot function takes
+The root locus is drawn by :mod:`damper.output.figures.root_locus`, the loop response by
+:mod:`damper.output.figures.loop_response`, the gain sweep here; the shared look is
+:mod:`damper.output.style` (its names are re-exported here). Every plot function takes
 the case, the :class:`~damper.analysis.search.DesignResult` of
 :func:`damper.analysis.search.search`, a condition index and an output path stem; it writes
 ``<stem>.png`` and ``<stem>.svg`` atomically and returns the written paths.
@@ -18,9 +18,9 @@ import os
 
 import numpy as np
 
-from .loop_plot import loop_response_plot
-from .names import plot_slugs, safe_name  # noqa: F401 - other modules import safe_name from here
-from .plot_style import (  # noqa: F401 - re-exported: schedule_plots and tests use them from here
+from .loop_response import loop_response_plot
+from ..style import plot_slugs, safe_name  # noqa: F401 - other modules import safe_name from here
+from ..style import (  # noqa: F401 - re-exported: schedule_plots and tests use them from here
     COLORMAP,
     DPI,
     LINES,
@@ -36,7 +36,7 @@ from .plot_style import (  # noqa: F401 - re-exported: schedule_plots and tests 
     _short_log_labels,
     _span_edges,
 )
-from .root_locus_plot import open_loop_poles, root_locus
+from .root_locus import open_loop_poles, root_locus
 
 _MARK_EVERY = 8  # markers on every 8th sweep point (the line carries the data)
 SUBTITLE_WIDTH = 145  # characters of a gain-sweep subtitle line (8.5 pt across a 10.5 in figure)
