@@ -20,7 +20,10 @@ from scipy.stats import beta
 
 from damper.analysis.search import search
 from damper.case import load_case
+from damper.analysis.locus import open_loop_poles
+from damper.output import style
 from damper.output.figures import design as plots
+from damper.output.figures.root_locus import root_locus
 from damper.output.figures import robustness as robustness_plots
 from damper.output.figures.responses import linear_range_note
 
@@ -98,7 +101,7 @@ def test_chosen_gain_zero_is_marked_on_the_colour_bar_and_the_sweep(demo, tmp_pa
     zero = [i for i, c in enumerate(design.conditions) if c.chosen_gain == 0.0]
     assert zero  # [derived] SL-climb-aft: the bare airframe meets every requirement with the most slack
     i = zero[0]
-    plots.root_locus(case, design, i, tmp_path / "rl")
+    root_locus(case, design, i, tmp_path / "rl", open_loop_poles(case))
     text = svg_text(tmp_path / "rl.svg")
     assert "K = 0 s" in text and "below" in text  # the mark under the bar names its value
     plots.gain_sweep_plot(case, design, i, tmp_path / "sw")
@@ -107,10 +110,10 @@ def test_chosen_gain_zero_is_marked_on_the_colour_bar_and_the_sweep(demo, tmp_pa
 
 def test_gain_sweep_texts_stay_inside_the_figure(demo):
     case, design = demo
-    with matplotlib.rc_context(plots._RC):
+    with matplotlib.rc_context(style._RC):
         for i in range(len(design.conditions)):
             fig = plots._draw_sweep(case, design, i)
-            fig.set_dpi(plots.DPI)
+            fig.set_dpi(style.DPI)
             r = fig.canvas.get_renderer()
             for t in fig.texts:
                 box = t.get_window_extent(r)

@@ -208,12 +208,14 @@ def _design(args, case, out, command, jobs):
 
 
 def _queue_design_plots(jobs, sub, design, out, slugs):
+    from ..analysis.design_figures import design_figure_inputs
+    from ..output.figures.design import KINDS, design_plot_jobs
     from ..output.journal import part
-    from ..output.figures.design import design_plot_jobs
 
-    plot_jobs = design_plot_jobs(sub, design, out, slugs)
+    plot_jobs = design_plot_jobs(sub, design, design_figure_inputs(sub, design), out, slugs)
+    n = len(KINDS)  # one group per condition
     with part("design"):
-        return [jobs.submit_group(plot_jobs[k : k + 3]) for k in range(0, len(plot_jobs), 3)]
+        return [jobs.submit_group(plot_jobs[k : k + n]) for k in range(0, len(plot_jobs), n)]
 
 
 def _figure_conditions(conds, worst, limit) -> tuple:

@@ -7,7 +7,7 @@ as they were (no key is added), so its documents are unchanged byte for byte.
 
 from __future__ import annotations
 
-from ...measures.modes import DAMPING_TOLERANCE, FREQUENCY_TOLERANCE
+from ...analysis.tolerances import DAMPING_TOLERANCE, FREQUENCY_TOLERANCE
 from .jsonout import num
 from .text import fmt, table
 

@@ -2,12 +2,14 @@
 
 The root locus is drawn by :mod:`damper.output.figures.root_locus`, the loop response by
 :mod:`damper.output.figures.loop_response`, the gain sweep here; the shared look is
-:mod:`damper.output.style` (its names are re-exported here). Every plot function takes
-the case, the :class:`~damper.analysis.search.DesignResult` of
-:func:`damper.analysis.search.search`, a condition index and an output path stem; it writes
+:mod:`damper.output.style`. :data:`KINDS` lists the family's figures with their file stems
+and captions (the report takes its captions from there). Every plot function writes
 ``<stem>.png`` and ``<stem>.svg`` atomically and returns the written paths.
 
-Nothing here computes a measure: the plots show what the search and the assessment found.
+Nothing here computes: the plots show what the search found
+(:class:`~damper.analysis.search.DesignResult`) and what
+:func:`damper.analysis.design_figures.design_figure_inputs` adds (open-loop poles, loop
+curves).
 matplotlib is imported inside the functions (Agg canvas, no pyplot state), so importing this
 module is cheap.
 """
@@ -18,25 +20,19 @@ import os
 
 import numpy as np
 
+from ..style import _criteria, _figure, _fmt_band, _fmt_runs, _log_x, _render, _runs, _short_log_labels, _span_edges
+from ..style import LINES, PALETTE, plot_slugs
+from .kinds import FigureKind
 from .loop_response import loop_response_plot
-from ..style import plot_slugs, safe_name  # noqa: F401 - other modules import safe_name from here
-from ..style import (  # noqa: F401 - re-exported: schedule_plots and tests use them from here
-    COLORMAP,
-    DPI,
-    LINES,
-    PALETTE,
-    _RC,
-    _criteria,
-    _figure,
-    _fmt_band,
-    _fmt_runs,
-    _log_x,
-    _render,
-    _runs,
-    _short_log_labels,
-    _span_edges,
+from .root_locus import root_locus
+
+#: The figures of every design condition, in file order; ``<slug>-<stem>.png`` / ``.svg``.
+ROOT_LOCUS = FigureKind("root-locus", "Root locus: closed-loop roots as the gain rises (eigenvalues, Pad\u00e9 delay).")
+LOOP_RESPONSE = FigureKind(
+    "loop-response", "Loop response L(j\u03c9) at the chosen gain, loop broken at the actuator input (exact delay)."
 )
-from .root_locus import open_loop_poles, root_locus
+GAIN_SWEEP = FigureKind("gain-sweep", "Gain sweep: damping, margins and feasible gains against the gain K (s).")
+KINDS = (ROOT_LOCUS, LOOP_RESPONSE, GAIN_SWEEP)
 
 _MARK_EVERY = 8  # markers on every 8th sweep point (the line carries the data)
 SUBTITLE_WIDTH = 145  # characters of a gain-sweep subtitle line (8.5 pt across a 10.5 in figure)
@@ -326,35 +322,38 @@ def _draw_sweep(case, design, i):
 # ---------------------------------------------------------------------------------
 # all of them
 # ---------------------------------------------------------------------------------
-def design_plot_jobs(case, design, out_dir, slugs=None):
+def design_plot_jobs(case, design, inputs, out_dir, slugs=None):
     """The figures of :func:`design_plots` as separate jobs ``(fn, args)``, in file order.
 
     Each ``fn(*args)`` draws one figure and returns its written paths (see
-    :class:`damper.output.background.PlotJobs`). `slugs` gives each condition's file
-    slug (default: from the names of `design`'s conditions, as :func:`plot_slugs` makes
-    them); a batch of a larger case passes the slugs of the whole case.
+    :class:`damper.output.background.PlotJobs`); every condition has one job per kind of
+    :data:`KINDS`, in that order. `inputs` is
+    :func:`damper.analysis.design_figures.design_figure_inputs` of `case` and `design`.
+    `slugs` gives each condition's file slug (default: from the names of `design`'s
+    conditions, as :func:`~damper.output.style.plot_slugs` makes them); a batch of a larger
+    case passes the slugs of the whole case.
     """
     from functools import partial
 
     plot_dir = os.path.join(os.fspath(out_dir), "plots")
-    ol = open_loop_poles(case)
     if slugs is None:
         slugs = plot_slugs([cond.name for cond in design.conditions])
     jobs = []
     for i, slug in enumerate(slugs):
         stem = os.path.join(plot_dir, slug)
-        jobs.append((partial(root_locus, open_loop=ol), (case, design, i, stem + "-root-locus")))
-        jobs.append((loop_response_plot, (case, design, i, stem + "-loop-response")))
-        jobs.append((gain_sweep_plot, (case, design, i, stem + "-gain-sweep")))
+        jobs.append((partial(root_locus, open_loop=inputs.open_loop), (case, design, i, f"{stem}-{ROOT_LOCUS.stem}")))
+        jobs.append((loop_response_plot, (case, inputs.loop_curves[i], f"{stem}-{LOOP_RESPONSE.stem}")))
+        jobs.append((gain_sweep_plot, (case, design, i, f"{stem}-{GAIN_SWEEP.stem}")))
     return jobs
 
 
-def design_plots(case, design, out_dir):
+def design_plots(case, design, inputs, out_dir):
     """Root locus, loop response and gain sweep for every condition.
 
     Files: ``<out_dir>/plots/<slug>-root-locus.png`` (and ``.svg``), ``-loop-response``,
-    ``-gain-sweep``, with ``<slug>`` = :func:`safe_name` of the condition name (made
-    unique by a numeric suffix when two names give the same slug).
+    ``-gain-sweep``, with ``<slug>`` = :func:`~damper.output.style.safe_name` of the
+    condition name (made unique by a numeric suffix when two names give the same slug).
+    `inputs`: see :func:`design_plot_jobs`.
 
     Returns
     -------
@@ -362,19 +361,9 @@ def design_plots(case, design, out_dir):
         Every written path, in order.
     """
     paths = []
-    for fn, args in design_plot_jobs(case, design, out_dir):
+    for fn, args in design_plot_jobs(case, design, inputs, out_dir):
         paths += fn(*args)
     return paths
 
 
-__all__ = [
-    "design_plot_jobs",
-    "PALETTE",
-    "design_plots",
-    "gain_sweep_plot",
-    "loop_response_plot",
-    "open_loop_poles",
-    "plot_slugs",
-    "root_locus",
-    "safe_name",
-]
+__all__ = ["GAIN_SWEEP", "KINDS", "LOOP_RESPONSE", "ROOT_LOCUS", "design_plot_jobs", "design_plots", "gain_sweep_plot"]

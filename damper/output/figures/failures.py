@@ -13,11 +13,17 @@ import math
 
 import numpy as np
 
+from .kinds import FigureKind
+
 R2D = 180.0 / math.pi
 #: Our line colours, one per condition (least slack first), and the limits'.
 CONDITION_COLOURS = ("#8c2d19", "#1d5c8f", "#5d7a1f", "#6b4a8a")
 LIMIT_COLOUR = "#b3362b"
 STEM = "failures-hardover"
+#: The family's one figure.
+HARDOVER = FigureKind(STEM, "hardover failures at the conditions with the least slack: the airframe's motion until the "
+                               "pilot acts, limits dashed")
+KINDS = (HARDOVER,)
 
 PANELS = (
     ("load_factor", 1.0, "incremental load\nfactor, g", "load_factor_g"),

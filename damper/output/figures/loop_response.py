@@ -16,22 +16,16 @@ The look (docs/plots.md):
 * an unstable closed loop gets no margins: the status line and the axes say
   "closed loop unstable: no margins".
 
-Every value drawn comes from the assessment's margins (the same numbers as design.json);
-the curve is :func:`damper.model.loop.loop_response` (exact delay) at drawing time.
+Nothing is computed here: the curve, its range and every margin drawn come from a
+:class:`damper.analysis.loop_curves.LoopCurve` (the same numbers as design.json).
 """
 
 from __future__ import annotations
-
-from dataclasses import dataclass
 
 import numpy as np
 
 from ..style import LINES, PALETTE, _criteria, _figure, _fmt_band, _log_x, _render, _short_log_labels
 
-#: Points of the drawn curve across the chosen frequency range.
-CURVE_POINTS = 600
-#: Decades drawn beyond the outermost frequency that matters.
-MARGIN_DECADES = 1.0
 #: Half-width of a shaded margin column, decades.
 COLUMN_DECADES = 0.035
 MARGIN_COLOUR = PALETTE["tertiary"]
@@ -40,168 +34,15 @@ STATUS_WIDTH = 130
 OTHER_COLOUR = "#8a8a8a"
 
 
-@dataclass(frozen=True)
-class BodeData:
-    """What the loop-response plot draws and annotates for one condition.
-
-    Attributes
-    ----------
-    gain : float
-        K, s.
-    frequency_rad_s, gain_db, phase_deg : ndarray
-        L(jw) on the grid (exact delay); phase unwrapped from the case's lowest frequency
-        like the margin search (rational part unwrapped, minus ``w T`` of the delay).
-    gain_crossings : tuple of (float, float)
-        (frequency rad/s, signed phase offset from -180 deg (mod 360), deg) of every gain
-        crossing, from the assessment.
-    phase_crossings : tuple of (float, float)
-        (frequency rad/s, -20 log10 |L| dB) of every phase crossing, from the assessment.
-    gain_margin_db, gain_margin_low_db, phase_margin_deg, phase_margin_signed_deg : float
-        The reported margins (NaN: undefined, unbounded, or the closed loop unstable).
-    gain_crossover_rad_s, phase_crossover_rad_s, phase_crossover_low_rad_s : float
-        Frequencies of the crossings that set the phase margin, the gain margin and the
-        downward gain margin, rad/s (NaN: none).
-    delay_margin_s, disk_margin : float
-        s and - (NaN: none).
-    short_period_rad_s : float
-        Bare-airframe short-period natural frequency, rad/s.
-    delay_s : float
-        The loop's pure delay, s (0 without one).
-    stable : bool
-        Closed-loop stability at this gain.
-    per_unit_gain : bool
-        The chosen gain is 0 (the loop is open): the curve is L per unit gain (K = 1 s).
-    """
-
-    gain: float
-    frequency_rad_s: np.ndarray
-    gain_db: np.ndarray
-    phase_deg: np.ndarray
-    gain_crossings: tuple
-    phase_crossings: tuple
-    gain_margin_db: float
-    gain_margin_low_db: float
-    phase_margin_deg: float
-    phase_margin_signed_deg: float
-    gain_crossover_rad_s: float
-    phase_crossover_rad_s: float
-    phase_crossover_low_rad_s: float
-    delay_margin_s: float
-    disk_margin: float
-    short_period_rad_s: float
-    delay_s: float
-    stable: bool
-    per_unit_gain: bool = False
-
-
-def _at(x, i):
-    a = np.asarray(x)
-    return float(a.ravel()[i] if a.size > 1 else a.ravel()[0])
-
-
-def bode_data(case, assessment, i, w=None) -> BodeData:
-    """The loop-response data of condition `i` at the gain of `assessment` (batch (n_conditions,)).
+def loop_response_plot(case, curve, stem):
+    """Loop-response plot of one condition at one gain (exact delay); PNG and SVG.
 
     Parameters
     ----------
     case : Case
-    assessment : Assessment
-        E.g. ``design.chosen``, or :func:`damper.analysis.assess.assess` at other gains.
-    i : int
-    w : ndarray, optional
-        rad/s, ascending; default :func:`frequency_grid`. The phase is unwrapped from the
-        case's lowest frequency whatever `w` is, so its branch matches the margin search.
-    """
-    from ...model.batch import map_arrays
-    from ...model.loop import Loop, loop_response
-
-    w = frequency_grid(case, assessment, i) if w is None else np.asarray(w, dtype=float)
-    grid = case.settings.grid()
-    lead = grid[grid < w[0]]
-    w_all = np.concatenate([lead, w])
-    gain = float(np.asarray(assessment.gains)[i])
-    d = map_arrays(case.derivatives(), lambda a: a[[i]] if np.ndim(a) else a)
-    hw = case.loop.hardware()
-    per_unit = gain == 0.0
-    L = loop_response(Loop(d, hw, np.array([1.0 if per_unit else gain])), w_all[None, :])[0]
-    T = 0.0 if hw.delay is None else float(np.asarray(hw.delay.time))
-    phase = np.rad2deg(np.unwrap(np.angle(L * np.exp(1j * w_all * T))) - w_all * T)[lead.size :]
-    with np.errstate(divide="ignore"):
-        gain_db = 20.0 * np.log10(np.abs(L[lead.size :]))
-    m = assessment.margins
-
-    def pairs(x, y):
-        x, y = np.asarray(x)[i], np.asarray(y)[i]
-        ok = np.isfinite(x) & np.isfinite(y)
-        return tuple((float(a), float(b)) for a, b in zip(x[ok], y[ok]))
-
-    return BodeData(
-        gain=gain, frequency_rad_s=w, gain_db=gain_db, phase_deg=phase,
-        gain_crossings=pairs(m.gain_crossings_rad_s, m.phase_margins_deg),
-        phase_crossings=pairs(m.phase_crossings_rad_s, m.gain_margins_db),
-        gain_margin_db=_at(m.gain_margin_db, i), gain_margin_low_db=_at(m.gain_margin_low_db, i),
-        phase_margin_deg=_at(m.phase_margin_deg, i), phase_margin_signed_deg=_at(m.phase_margin_signed_deg, i),
-        gain_crossover_rad_s=_at(m.gain_crossover_rad_s, i), phase_crossover_rad_s=_at(m.phase_crossover_rad_s, i),
-        phase_crossover_low_rad_s=_at(m.phase_crossover_low_rad_s, i),
-        delay_margin_s=_at(m.delay_margin_s, i), disk_margin=_at(m.disk_margin, i),
-        short_period_rad_s=_at(assessment.bare.natural_frequency, i), delay_s=T,
-        stable=bool(np.asarray(assessment.modes.stable)[i]), per_unit_gain=per_unit,
-    )
-
-
-def frequency_range(case, assessment, i):
-    """(low, high) rad/s: a decade beyond the crossings that set the margins and the short period.
-
-    The frequencies that matter are the bare short-period natural frequency and the
-    crossings that set the reported gain, downward gain and phase margins (from the
-    assessment), or every gain crossing when the closed loop is unstable; the range is clipped to the case's frequency range and spans at least two
-    decades.
-    """
-    m = assessment.margins
-    keys = [m.gain_crossover_rad_s, m.phase_crossover_rad_s, m.phase_crossover_low_rad_s]
-    pts = [_at(k, i) for k in keys] + [_at(assessment.bare.natural_frequency, i)]
-    if not bool(np.asarray(assessment.modes.stable)[i]):  # no margins: the gain crossings matter
-        pts += list(np.asarray(m.gain_crossings_rad_s)[i])
-    pts = np.array([p for p in pts if np.isfinite(p) and p > 0])
-    grid = case.settings.grid()
-    if pts.size == 0:
-        return float(grid[0]), float(grid[-1])
-    lo, hi = np.log10(pts.min()) - MARGIN_DECADES, np.log10(pts.max()) + MARGIN_DECADES
-    if hi - lo < 2.0:
-        mid = 0.5 * (hi + lo)
-        lo, hi = mid - 1.0, mid + 1.0
-    return float(max(10.0**lo, grid[0])), float(min(10.0**hi, grid[-1]))
-
-
-def frequency_grid(case, assessment, i) -> np.ndarray:
-    """The drawn grid: :data:`CURVE_POINTS` log-spaced points over :func:`frequency_range`
-    plus every crossing inside it (so each marker sits on the drawn curve), rad/s."""
-    lo, hi = frequency_range(case, assessment, i)
-    m = assessment.margins
-    extra = np.concatenate([np.asarray(m.gain_crossings_rad_s)[i], np.asarray(m.phase_crossings_rad_s)[i]])
-    extra = extra[np.isfinite(extra) & (extra > lo) & (extra < hi)]
-    return np.unique(np.concatenate([np.logspace(np.log10(lo), np.log10(hi), CURVE_POINTS), extra]))
-
-
-def loop_response_plot(case, design, i, stem):
-    """Loop-response plot of condition `i` at the chosen gain (exact delay); PNG and SVG.
-
-    Returns
-    -------
-    list of str
-    """
-    return assessment_loop_plot(case, design.chosen, i, stem)
-
-
-def assessment_loop_plot(case, assessment, i, stem):
-    """Loop-response plot of condition `i` at the gain of `assessment`; PNG and SVG.
-
-    Parameters
-    ----------
-    case : Case
-    assessment : Assessment
-        Batch (n_conditions,), e.g. ``design.chosen`` or :func:`damper.analysis.assess.assess`.
-    i : int
+        For the title and the required margins.
+    curve : LoopCurve
+        :func:`damper.analysis.loop_curves.loop_curve` of the condition at the gain.
     stem : str or path
         Output path without extension.
 
@@ -209,15 +50,15 @@ def assessment_loop_plot(case, assessment, i, stem):
     -------
     list of str
     """
-    return _render(_draw_bode, stem, case, case.conditions[i].name, bode_data(case, assessment, i))
-
-
-def _fmt(v, fmt, unit, none):
-    return f"{v:{fmt}} {unit}".strip() if np.isfinite(v) else none
+    return _render(_draw_bode, stem, case, curve)
 
 
 def _interp_log(w, y, wq):
     return float(np.interp(np.log10(wq), np.log10(w), y))
+
+
+def _fmt(v, fmt, unit, none):
+    return f"{v:{fmt}} {unit}".strip() if np.isfinite(v) else none
 
 
 def _required(case, name, unit):
@@ -225,9 +66,9 @@ def _required(case, name, unit):
     return reqs[0] if reqs else None, (f" (required {_fmt_band(reqs[0].lower, reqs[0].upper, unit)})" if reqs else "")
 
 
-def status_line(case, b: BodeData) -> str:
+def status_line(case, b) -> str:
     """The headline numbers under the title (the same values as design.json)."""
-    head = f"K = {b.gain:.4g} s"
+    head = f"K = {b.gain_s:.4g} s"
     if b.per_unit_gain:
         return (f"{head}: the damper is off, so there is no loop and no margins; "
                 "drawn: L per unit gain (K = 1 s), for its shape only")
@@ -298,18 +139,18 @@ def _side(w, lo, hi):
     return 1 if np.log10(hi / w) >= np.log10(w / lo) else -1
 
 
-def _other_crossings(ax_g, ax_p, b: BodeData, lo, hi):
+def _other_crossings(ax_g, ax_p, b, lo, hi):
     """Every crossing in view that does not set a reported margin: a grey dot, no value."""
     w = b.frequency_rad_s
     set_by = {b.gain_crossover_rad_s, b.phase_crossover_rad_s, b.phase_crossover_low_rad_s} if b.stable else set()
     shown = [0, 0]
-    for wc, _ in b.gain_crossings:
+    for wc, _ in b.gain_crossings_rad_s_deg:
         if lo <= wc <= hi and not any(np.isclose(wc, x) for x in set_by):
             ax_g.plot([wc], [0.0], marker="o", markersize=4.5, color=OTHER_COLOUR, linestyle="none", zorder=4)
             ax_p.plot([wc], [_interp_log(w, b.phase_deg, wc)], marker="o", markersize=4.5, color=OTHER_COLOUR,
                       linestyle="none", zorder=4)
             shown[0] += 1
-    for wp, _ in b.phase_crossings:
+    for wp, _ in b.phase_crossings_rad_s_db:
         if lo <= wp <= hi and wp > 0 and not any(np.isclose(wp, x) for x in set_by):
             ax_g.plot([wp], [_interp_log(w, b.gain_db, wp)], marker="D", markersize=4, color=OTHER_COLOUR,
                       linestyle="none", zorder=4)
@@ -319,7 +160,7 @@ def _other_crossings(ax_g, ax_p, b: BodeData, lo, hi):
     return shown
 
 
-def _reported_margins(ax_g, ax_p, b: BodeData, lo, hi):
+def _reported_margins(ax_g, ax_p, b, lo, hi):
     """The reported margins (stable loop only), each at the crossing that sets it."""
     w = b.frequency_rad_s
     if not b.stable or b.per_unit_gain:
@@ -341,11 +182,11 @@ def _reported_margins(ax_g, ax_p, b: BodeData, lo, hi):
     return drawn
 
 
-def _outside_note(b: BodeData, lo, hi):
+def _outside_note(b, lo, hi):
     """Crossings outside the drawn range, counted (their values are in design.json)."""
     lo, hi = lo * (1 - 1e-9), hi * (1 + 1e-9)
-    out_g = [wc for wc, _ in b.gain_crossings if not lo <= wc <= hi]
-    out_p = [(wp, gm) for wp, gm in b.phase_crossings if not lo <= wp <= hi and wp > 0]
+    out_g = [wc for wc, _ in b.gain_crossings_rad_s_deg if not lo <= wc <= hi]
+    out_p = [(wp, gm) for wp, gm in b.phase_crossings_rad_s_db if not lo <= wp <= hi and wp > 0]
     if not out_g and not out_p:
         return ""
     parts = []
@@ -361,7 +202,7 @@ def _outside_note(b: BodeData, lo, hi):
     return "Outside the drawn range: " + "; ".join(parts) + ". Every crossing is listed in design.json."
 
 
-def _phase_limits(b: BodeData):
+def _phase_limits(b):
     pmin, pmax = float(np.nanmin(b.phase_deg)), float(np.nanmax(b.phase_deg))
     if b.stable and np.isfinite(b.gain_crossover_rad_s) and np.isfinite(b.phase_margin_signed_deg):
         ref = _interp_log(b.frequency_rad_s, b.phase_deg, b.gain_crossover_rad_s) - b.phase_margin_signed_deg
@@ -372,7 +213,7 @@ def _phase_limits(b: BodeData):
     return pmin, pmax
 
 
-def _axes_setup(ax_g, ax_p, b: BodeData, lo, hi, pmin, pmax):
+def _axes_setup(ax_g, ax_p, b, lo, hi, pmin, pmax):
     from matplotlib.ticker import MultipleLocator
 
     finite_g = b.gain_db[np.isfinite(b.gain_db)]
@@ -393,9 +234,10 @@ def _axes_setup(ax_g, ax_p, b: BodeData, lo, hi, pmin, pmax):
     ax_g.tick_params(which="both", labelbottom=False)
 
 
-def _draw_bode(case, name, b: BodeData):
+def _draw_bode(case, b):
     import textwrap
 
+    name = b.condition
     w = b.frequency_rad_s
     lo, hi = float(w[0]), float(w[-1])
     fig = _figure(10.5, 7.4)
@@ -431,16 +273,16 @@ def _draw_bode(case, name, b: BodeData):
     return fig
 
 
-def _range_note(b: BodeData, lo, hi):
+def _range_note(b, lo, hi):
     sets = [b.gain_crossover_rad_s, b.phase_crossover_rad_s, b.phase_crossover_low_rad_s]
     what = "the crossings that set the margins and " if any(np.isfinite(x) for x in sets) else ""
-    if not b.stable and b.gain_crossings:
+    if not b.stable and b.gain_crossings_rad_s_deg:
         what = "the gain crossings and "
     return (f"Frequency range {lo:.3g}-{hi:.3g} rad/s: a decade beyond {what}the "
             f"bare short-period frequency ({b.short_period_rad_s:.3g} rad/s).")
 
 
-def _legend(fig, keep, drawn, others, b: BodeData):
+def _legend(fig, keep, drawn, others, b):
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
@@ -458,4 +300,4 @@ def _legend(fig, keep, drawn, others, b: BodeData):
     fig.legend(handles=h, loc="upper left", bbox_to_anchor=(0.08, 0.17), ncol=3, frameon=False, fontsize=8)
 
 
-__all__ = ["BodeData", "assessment_loop_plot", "bode_data", "frequency_grid", "frequency_range", "loop_response_plot", "status_line"]
+__all__ = ["loop_response_plot", "status_line"]

@@ -23,8 +23,15 @@ import os
 
 import numpy as np
 
-from ..style import new_figure, save_figure
 from ..documents.text import pct as _pct
+from ..style import new_figure, safe_name, save_figure
+from .kinds import FigureKind
+
+#: The family's figures: ``pass-fraction``, then ``scatter-<nn>-<slug>`` and ``sensitivity-<nn>-<slug>`` per condition.
+PASS_FRACTION = FigureKind("pass-fraction", "fraction of samples meeting every requirement, per condition, with its interval")
+SCATTER = FigureKind("scatter", "damping ratio against the smallest gain margin, every sample")
+SENSITIVITY = FigureKind("sensitivity", "which parameters drive the worst slack")
+KINDS = (PASS_FRACTION, SCATTER, SENSITIVITY)
 
 # ---------------------------------------------------------------------------------
 # Plots
@@ -370,21 +377,19 @@ def robustness_plot_jobs(case, result, out_dir, limit=FIGURE_CONDITIONS) -> list
     import dataclasses
     import functools
 
-    from .design import safe_name
-
     shown = figure_conditions(result, limit)
     plots = os.path.join(out_dir, "plots")
     overview = result
     if len(shown) < len(result.conditions):  # the pass-fraction plot: only the conditions shown
         overview = dataclasses.replace(result, conditions=tuple(result.conditions[i] for i in shown))
     draw = pass_fraction_plot if overview is result else functools.partial(pass_fraction_plot, total=len(result.conditions))
-    jobs = [(draw, (case, overview, os.path.join(plots, "pass-fraction")))]
+    jobs = [(draw, (case, overview, os.path.join(plots, PASS_FRACTION.stem)))]
     for i in shown:
         c = result.conditions[i]
         slug = f"{i + 1:02d}-{safe_name(c.name)}"
-        jobs.append((scatter_plot, (case, result, i, os.path.join(plots, f"scatter-{slug}"))))
+        jobs.append((scatter_plot, (case, result, i, os.path.join(plots, f"{SCATTER.stem}-{slug}"))))
         if result.axes.names:
-            jobs.append((sensitivity_plot, (case, result, i, os.path.join(plots, f"sensitivity-{slug}"))))
+            jobs.append((sensitivity_plot, (case, result, i, os.path.join(plots, f"{SENSITIVITY.stem}-{slug}"))))
     return jobs
 
 

@@ -1,9 +1,7 @@
 """The root-locus plot of one design condition (PNG and SVG, written atomically).
 
-Nothing here computes a measure: the plot shows the search's sweep and chosen gain. One value
-comes from library functions at drawing time: the open-loop (K = 0) poles
-(:func:`damper.measures.modes.closed_loop_modes` on the library's closed-loop matrix with zero
-gain; Pade delay like every eigenvalue view).
+Nothing here computes: the plot shows the search's sweep and chosen gain, and the open-loop
+(K = 0) poles of :func:`damper.analysis.locus.open_loop_poles`.
 """
 
 from __future__ import annotations
@@ -25,22 +23,6 @@ from ..style import (
 # ---------------------------------------------------------------------------------
 # 1. root locus
 # ---------------------------------------------------------------------------------
-def open_loop_poles(case) -> np.ndarray:
-    """Open-loop (K = 0) poles of every condition, 1/s, shape (n_conditions, n_states).
-
-    The library's closed-loop matrix with zero gain, eigenvalues by
-    :func:`damper.measures.modes.closed_loop_modes` (delay as its Pade approximant).
-    """
-    from ...analysis.assess import build_loop
-    from ...measures.modes import closed_loop_modes
-    from ...model.loop import closed_loop_matrix
-
-    loop = build_loop(case, np.zeros(len(case.conditions)))
-    A, _, layout = closed_loop_matrix(loop)
-    A = np.broadcast_to(A, (len(case.conditions),) + A.shape[-2:])
-    return closed_loop_modes(A, layout.alpha, layout.q).eigenvalues
-
-
 def _damping_sector(ax, lower, upper, radius):
     """Shade the region between the rays zeta = lower and zeta = upper (left half-plane)."""
     from matplotlib.patches import Polygon
@@ -81,7 +63,7 @@ def _zoom_limits(sp_roots, extra):
     return (re_lo - 0.12 * span, re_hi + 0.12 * span), (-1.12 * im_hi, 1.12 * im_hi)
 
 
-def root_locus(case, design, i, stem, open_loop=None):
+def root_locus(case, design, i, stem, open_loop):
     """Closed-loop poles of condition `i` over the swept gains; writes PNG and SVG.
 
     Parameters
@@ -92,16 +74,14 @@ def root_locus(case, design, i, stem, open_loop=None):
         Condition index.
     stem : str or path
         Output path without extension.
-    open_loop : ndarray, optional
-        Open-loop poles of every condition (:func:`open_loop_poles`); computed when omitted.
+    open_loop : OpenLoopPoles
+        Open-loop poles of every condition (:func:`damper.analysis.locus.open_loop_poles`).
 
     Returns
     -------
     list of str
         The PNG and SVG paths.
     """
-    if open_loop is None:
-        open_loop = open_loop_poles(case)
     return _render(_draw_root_locus, stem, case, design, i, open_loop)
 
 
@@ -117,7 +97,7 @@ def _draw_root_locus(case, design, i, open_loop):
     chosen_ev = design.chosen.modes.eigenvalues[i]
     chosen_sp = design.chosen.modes.short_period.roots[i]
     bare_sp = np.broadcast_to(design.sweep.bare.roots, design.sweep_gains.shape + (2,))[i, 0]
-    ol = np.asarray(open_loop)[i]
+    ol = np.asarray(open_loop.poles_1_s)[i]
     kk = np.repeat(gains[:, None], ev.shape[1], 1)
     norm = LogNorm(vmin=float(gains.min()), vmax=float(gains.max()))
 
@@ -327,4 +307,4 @@ def matplotlib_mid_colour():
     return matplotlib.colormaps[COLORMAP](0.5)
 
 
-__all__ = ["open_loop_poles", "root_locus"]
+__all__ = ["root_locus"]

@@ -10,6 +10,7 @@ import os
 
 from ...requirements.criteria import KINDS
 from ..documents.longitudinal import longitudinal_rows
+from ..figures.design import KINDS as DESIGN_FIGURES
 from ..runfiles import image_uri as _image
 from .format import FT, KT, R2D, DASH, _status, band_text, binding_text, complex_text, f, fixed, pct, requirement_label, roots_text, scaled, unit_text
 
@@ -123,12 +124,9 @@ def _condition_view(i, c, slug, files, summary_cond):
     levels = [(requirement_label(k), str(v)) for k, v in level.items() if k != "overall"]
     sweep = c.get("sweep_range_s") or [None, None]
     figures = []
-    for suffix, caption in (
-        ("root-locus", "Root locus: closed-loop roots as the gain rises (eigenvalues, Pad\u00e9 delay)."),
-        ("loop-response", "Loop response L(j\u03c9) at the chosen gain, loop broken at the actuator input (exact delay)."),
-        ("gain-sweep", "Gain sweep: damping, margins and feasible gains against the gain K (s)."),
-    ):
-        figures.append({"src": _image(files, [os.path.join("plots", f"{slug}-{suffix}")]), "caption": caption, "kind": suffix})
+    for kind in DESIGN_FIGURES:
+        src = _image(files, [os.path.join("plots", f"{slug}-{kind.stem}")])
+        figures.append({"src": src, "caption": kind.caption, "kind": kind.stem})
 
     return {
         "index": i,

@@ -8,7 +8,8 @@ as failures.json holds it. The view has the shape the template's ``generic`` mac
 from __future__ import annotations
 
 from .format import DASH, R2D, f
-from .sections import _files_figures, _headline, _pairs, _table
+from ..figures.failures import KINDS as FAILURE_FIGURES
+from .sections import _files_figures, _headline, _pairs, _table, family_captions
 
 LIMIT_WORDS = {"load_factor": "load factor", "pitch_attitude": "pitch attitude", "angle_of_attack": "angle of attack"}
 
@@ -114,8 +115,6 @@ def failures_view(doc, files):
     if misses:
         blocks.append(_table("Failure requirements not met", ["condition", "requirement", "finding"], misses,
                              [True] * len(misses)))
-    figures = _files_figures(files, doc.get("files") or [], {
-        "failures": "hardover failures at the conditions with the least slack: the airframe's motion until the "
-                    "pilot acts, limits dashed"})
+    figures = _files_figures(files, doc.get("files") or [], family_captions(FAILURE_FIGURES))
     return {"error": None, "headline": _headline(bool(head["met"]), head["text"]), "blocks": blocks,
             "figures": figures, "warnings": []}

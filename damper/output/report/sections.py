@@ -10,6 +10,7 @@ import os
 import re
 
 from .format import DASH, _status, binding_text, f, key_label, pct, requirement_label, unit_text
+from ..figures.robustness import KINDS as ROBUSTNESS_FIGURES
 from ..runfiles import image_uri as _image
 
 
@@ -188,6 +189,11 @@ def _table(title, heads, rows, fails=None, limit=MAX_TABLE_ROWS):
         if more > 0
         else "",
     }
+
+
+def family_captions(kinds) -> dict:
+    """{first word of a file name: caption} of a figure family's :class:`FigureKind` list."""
+    return {k.stem.split("-")[0]: k.caption for k in kinds}
 
 
 def _files_figures(files, names, captions=None):
@@ -464,8 +470,7 @@ def _robustness_view(doc, files):
     figures = _files_figures(
         files,
         doc.get("files") or [],
-        {"scatter": "damping ratio against the smallest gain margin, every sample", "sensitivity": "which parameters drive the worst slack",
-         "pass": "fraction of samples meeting every requirement, per condition, with its interval"},
+        family_captions(ROBUSTNESS_FIGURES),
     )
     if not figures:
         figures = _plot_dir_figures(files, ("pass-fraction", "scatter-", "sensitivity-", "robust"))
