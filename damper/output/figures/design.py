@@ -110,32 +110,58 @@ def _sweep_notes(cond, k, stable, pm, gm_up, conv):
 
 
 def _draw_sweep(case, design, i):
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch
+    import textwrap
 
     cond = design.conditions[i]
-    s = design.sweep
     k = design.sweep_gains[i]
+    v = _sweep_values(design, i)
+    notes = _sweep_notes(cond, k, v["stable"], v["pm"], v["gm_up"], v["conv"])
+    wrapped = "\n".join(textwrap.fill(n, 118) for n in notes)
+    subtitle = textwrap.fill(f"{case.title}  |  {len(k)} sweep points  |  {cond.reason}", SUBTITLE_WIDTH)
+    fig, axes, bottom_in, height = _sweep_canvas(wrapped.count("\n") + 1, subtitle.count("\n"))
+    ax_z, ax_g, ax_p = axes
+    for ax in axes:
+        _gain_marks(ax, cond, k, v["stable"])
+    dz, amb = _damping_panel(ax_z, case, k, v)
+    g_req, p_req, has_dn = _margin_panels(ax_g, ax_p, case, k, v)
+    for ax in axes[:-1]:
+        ax.tick_params(which="both", labelbottom=False)
+    _edge_names(ax_z, cond, k)
+    _sweep_legends(case, cond, axes, amb, dz, g_req, p_req, has_dn, v["stable"])
+    fig.text(0.085, (bottom_in - 0.6) / height, wrapped, va="top", ha="left", fontsize=7.8, color=PALETTE["ink"])
+    fig.suptitle(
+        f"{cond.name}: damping and margins against the gain", fontsize=12, x=0.085, ha="left", y=1.0 - 0.12 / height
+    )
+    fig.text(0.085, 1.0 - 0.34 / height, subtitle, va="top", fontsize=8.5, color=PALETTE["ink"])
+    return fig
+
+
+def _sweep_values(design, i) -> dict:
+    """The swept series of condition `i` as drawn: margins blanked where the closed loop is unstable."""
+    s = design.sweep
     stable = np.asarray(s.modes.stable)[i]
-    eq = np.array(s.damping_ratio("equivalent")[i], dtype=float)
-    mod = np.array(s.damping_ratio("modal")[i], dtype=float)
     conv = np.asarray(s.equivalent.converged, bool)[i]
-    amb = np.asarray(s.modes.ambiguous, bool)[i]
-    eq_shown = np.where(conv, eq, np.nan)
     gm_up = np.array(s.margins.gain_margin_db[i], dtype=float)
     gm_dn = -np.array(s.margins.gain_margin_low_db[i], dtype=float)
     pm = np.array(s.margins.phase_margin_deg[i], dtype=float)
-    gm_up_s = np.where(stable, gm_up, np.nan)
-    gm_dn_s = np.where(stable, gm_dn, np.nan)
-    pm_s = np.where(stable, pm, np.nan)
+    return {
+        "stable": stable,
+        "conv": conv,
+        "amb": np.asarray(s.modes.ambiguous, bool)[i],
+        "mod": np.array(s.damping_ratio("modal")[i], dtype=float),
+        "eq_shown": np.where(conv, np.array(s.damping_ratio("equivalent")[i], dtype=float), np.nan),
+        "gm_up": gm_up,
+        "pm": pm,
+        "gm_up_s": np.where(stable, gm_up, np.nan),
+        "gm_dn_s": np.where(stable, gm_dn, np.nan),
+        "pm_s": np.where(stable, pm, np.nan),
+    }
 
-    import textwrap
 
-    wrapped = "\n".join(textwrap.fill(n, 118) for n in _sweep_notes(cond, k, stable, pm, gm_up, conv))
-    n_lines = wrapped.count("\n") + 1
-    subtitle = textwrap.fill(f"{case.title}  |  {len(k)} sweep points  |  {cond.reason}", SUBTITLE_WIDTH)
-    # fixed panel height; the figure grows with the notes and the subtitle's lines (inches)
-    bottom_in, panels_in, top_in = 0.75 + 0.15 * n_lines, 6.2, 1.15 + 0.16 * subtitle.count("\n")
+def _sweep_canvas(n_lines, subtitle_breaks):
+    """The figure and its three panels; fixed panel height, the figure grows with the notes and
+    the subtitle's lines (inches). Returns (fig, axes, bottom_in, height_in)."""
+    bottom_in, panels_in, top_in = 0.75 + 0.15 * n_lines, 6.2, 1.15 + 0.16 * subtitle_breaks
     height = bottom_in + panels_in + top_in
     fig = _figure(10.5, height)
     gs = fig.add_gridspec(
@@ -144,20 +170,25 @@ def _draw_sweep(case, design, i):
     ax_z = fig.add_subplot(gs[0])
     ax_g = fig.add_subplot(gs[1], sharex=ax_z)
     ax_p = fig.add_subplot(gs[2], sharex=ax_z)
-    axes = (ax_z, ax_g, ax_p)
+    return fig, (ax_z, ax_g, ax_p), bottom_in, height
 
-    for ax in axes:
-        _log_x(ax)
-        for lo, hi in cond.intervals:
-            ax.axvspan(lo, hi, facecolor=PALETTE["feasible"], edgecolor="none", zorder=0)
-        for lo, hi in _span_edges(~stable, k):
-            ax.axvspan(lo, hi, facecolor="none", edgecolor=PALETTE["unstable"], hatch="///", linewidth=0, zorder=0)
-        ax.axvline(max(cond.chosen_gain, k[0]), **LINES["chosen"], zorder=4)
-        for pair in cond.edges:
-            for e in pair:
-                ax.axvline(e.gain, color=PALETTE["tertiary"], linestyle=":", linewidth=1.0, zorder=1)
 
-    # --- damping ratio --------------------------------------------------------
+def _gain_marks(ax, cond, k, stable):
+    """Log gain axis, feasible intervals, unstable hatching, the chosen gain and the interval edges."""
+    _log_x(ax)
+    for lo, hi in cond.intervals:
+        ax.axvspan(lo, hi, facecolor=PALETTE["feasible"], edgecolor="none", zorder=0)
+    for lo, hi in _span_edges(~stable, k):
+        ax.axvspan(lo, hi, facecolor="none", edgecolor=PALETTE["unstable"], hatch="///", linewidth=0, zorder=0)
+    ax.axvline(max(cond.chosen_gain, k[0]), **LINES["chosen"], zorder=4)
+    for pair in cond.edges:
+        for e in pair:
+            ax.axvline(e.gain, color=PALETTE["tertiary"], linestyle=":", linewidth=1.0, zorder=1)
+
+
+def _damping_panel(ax_z, case, k, v):
+    """Equivalent and modal damping against the gain with the required band; returns (criteria, ambiguous)."""
+    mod, amb = v["mod"], v["amb"]
     dz = _criteria(case, "damping_ratio")
     z_top = 1.6
     for c in dz:
@@ -172,26 +203,25 @@ def _draw_sweep(case, design, i):
             alpha=0.6,
             zorder=0,
         )
-        for v in (c.lower, c.upper):
-            if np.isfinite(v):
-                ax_z.axhline(v, **LINES["limit"], zorder=2)
-    ax_z.plot(k, eq_shown, markevery=_MARK_EVERY, **LINES["primary"], zorder=3)
+        for x in (c.lower, c.upper):
+            if np.isfinite(x):
+                ax_z.axhline(x, **LINES["limit"], zorder=2)
+    ax_z.plot(k, v["eq_shown"], markevery=_MARK_EVERY, **LINES["primary"], zorder=3)
     ax_z.plot(k, mod, markevery=(_MARK_EVERY // 2, _MARK_EVERY), **LINES["secondary"], zorder=3)
     if amb.any():
-        ax_z.plot(
-            k[amb],
-            np.clip(mod[amb], z_bot, z_top),
-            linestyle="none",
-            marker="x",
-            markersize=4,
-            color=PALETTE["ink"],
-            alpha=0.6,
-            zorder=3,
-        )
+        ax_z.plot(k[amb], np.clip(mod[amb], z_bot, z_top), **_AMBIGUOUS, zorder=3)
     ax_z.set_ylim(z_bot, z_top)
     ax_z.set_ylabel("short-period\ndamping ratio (-)")
+    return dz, amb
 
-    # --- gain margin -----------------------------------------------------------
+
+#: The mark of a sweep point whose short-period pick is ambiguous.
+_AMBIGUOUS = {"linestyle": "none", "marker": "x", "markersize": 4, "color": PALETTE["ink"], "alpha": 0.6}
+
+
+def _margin_panels(ax_g, ax_p, case, k, v):
+    """Gain margins (up and down) and phase margin against the gain with their required minima."""
+    gm_up_s, gm_dn_s, pm_s = v["gm_up_s"], v["gm_dn_s"], v["pm_s"]
     ax_g.plot(k, gm_up_s, markevery=_MARK_EVERY, **LINES["primary"], zorder=3)
     has_dn = np.isfinite(gm_dn_s).any()
     if has_dn:
@@ -205,7 +235,6 @@ def _draw_sweep(case, design, i):
     ax_g.set_ylim(min(0.0, float(gvals.min())) - 2.0, float(gvals.max()) * 1.08 + 2.0)
     ax_g.set_ylabel("gain margin (dB)")
 
-    # --- phase margin ----------------------------------------------------------
     ax_p.plot(k, pm_s, markevery=_MARK_EVERY, **LINES["secondary"], zorder=3)
     p_req = _criteria(case, "phase_margin")
     for c in p_req:
@@ -218,10 +247,11 @@ def _draw_sweep(case, design, i):
     ax_p.set_xlabel("gain K (s)")
     ax_p.set_xlim(k[0], k[-1])
     _short_log_labels(ax_p.xaxis, float(k[0]), float(k[-1]))
-    for ax in axes[:-1]:
-        ax.tick_params(which="both", labelbottom=False)
+    return g_req, p_req, has_dn
 
-    # --- edge names (above the top panel), each outside its interval ------------
+
+def _edge_names(ax_z, cond, k):
+    """The interval edges' names above the top panel, each outside its interval, and the chosen K."""
     from matplotlib.transforms import blended_transform_factory
 
     tr = blended_transform_factory(ax_z.transData, ax_z.transAxes)
@@ -257,7 +287,13 @@ def _draw_sweep(case, design, i):
         zorder=6,
     )
 
-    # --- legends: one per panel, and the shared marks below ------------------
+
+def _sweep_legends(case, cond, axes, amb, dz, g_req, p_req, has_dn, stable):
+    """One legend per panel, right of the axes; the shared marks go with the bottom panel's."""
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    ax_z, ax_g, ax_p = axes
     dm = case.requirements.damping_measure
     leg = {"loc": "upper left", "bbox_to_anchor": (1.01, 1.0), "borderaxespad": 0.0, "fontsize": 7.8}
     h = [
@@ -265,18 +301,7 @@ def _draw_sweep(case, design, i):
         Line2D([], [], **LINES["secondary"], label="modal" + (" (judged)" if dm == "modal" else "")),
     ]
     if amb.any():
-        h.append(
-            Line2D(
-                [],
-                [],
-                linestyle="none",
-                marker="x",
-                markersize=5,
-                color=PALETTE["ink"],
-                alpha=0.6,
-                label="short-period pick\nambiguous",
-            )
-        )
+        h.append(Line2D([], [], **{**_AMBIGUOUS, "markersize": 5}, label="short-period pick\nambiguous"))
     for c in dz:
         h.append(Patch(facecolor=PALETTE["band"], alpha=0.6, label=f"required {_fmt_band(c.lower, c.upper)}"))
     ax_z.legend(handles=h, **leg)
@@ -297,26 +322,10 @@ def _draw_sweep(case, design, i):
     ]
     if cond.edges:
         h.append(Line2D([], [], color=PALETTE["tertiary"], linestyle=":", label="interval edge"))
-    h += [
-        Line2D([], [], **LINES["chosen"], label=f"chosen K ({cond.policy})"),
-    ]
+    h.append(Line2D([], [], **LINES["chosen"], label=f"chosen K ({cond.policy})"))
     if (~stable).any():
         h.append(Patch(facecolor="none", edgecolor=PALETTE["unstable"], hatch="///", label="closed loop unstable"))
     ax_p.legend(handles=h, **leg)
-
-    fig.text(0.085, (bottom_in - 0.6) / height, wrapped, va="top", ha="left", fontsize=7.8, color=PALETTE["ink"])
-    fig.suptitle(
-        f"{cond.name}: damping and margins against the gain", fontsize=12, x=0.085, ha="left", y=1.0 - 0.12 / height
-    )
-    fig.text(
-        0.085,
-        1.0 - 0.34 / height,
-        subtitle,
-        va="top",
-        fontsize=8.5,
-        color=PALETTE["ink"],
-    )
-    return fig
 
 
 # ---------------------------------------------------------------------------------

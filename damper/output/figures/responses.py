@@ -54,6 +54,17 @@ def linear_range_note(bare, augmented):
 # ---------------------------------------------------------------------------
 
 
+#: The panels of a response figure: (history field, display scale, axis label).
+PANELS = (
+    ("q", R2D, "pitch rate\ndeg/s"),
+    ("alpha", R2D, "angle of attack\ndeg"),
+    ("theta", R2D, "pitch attitude\ndeg"),
+    ("load_factor", 1.0, "load factor\nincrement, g"),
+    ("surface", R2D, "surface\ndeg"),
+    ("surface_rate", R2D, "surface rate\ndeg/s"),
+)
+
+
 def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None, travel=None, stride=1):
     """Bare and augmented histories of one condition on shared axes; PNG and SVG.
 
@@ -79,55 +90,16 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
     from ..style import new_figure, save_figure
 
     t = bare.time[::stride]
-
-    def s(h, name, scale=1.0):
-        return np.asarray(getattr(h, name))[::stride] * scale
-
-    gust = bool(np.any(np.asarray(augmented.gust_alpha) != 0))
-    panels = [
-        ("q", R2D, "pitch rate\ndeg/s"),
-        ("alpha", R2D, "angle of attack\ndeg"),
-        ("theta", R2D, "pitch attitude\ndeg"),
-        ("load_factor", 1.0, "load factor\nincrement, g"),
-        ("surface", R2D, "surface\ndeg"),
-        ("surface_rate", R2D, "surface rate\ndeg/s"),
-    ]
-    style = {"font.size": 8.5, "axes.spines.top": False, "axes.spines.right": False, "svg.hashsalt": "damper"}
     note, exceeded = linear_range_note(bare, augmented)
+    style = {"font.size": 8.5, "axes.spines.top": False, "axes.spines.right": False, "svg.hashsalt": "damper"}
     with matplotlib.rc_context(style):
         fig = new_figure(7.5, 10.0)
         # fixed margins (inches converted to fractions) instead of a layout pass: one draw per file
         top_in = 1.1 if note else 0.7
         fig.subplots_adjust(left=0.95 / 7.5, right=1.0 - 0.15 / 7.5, bottom=0.5 / 10.0, top=1.0 - top_in / 10.0,
                             hspace=0.12)
-        axes = fig.subplots(len(panels), 1, sharex=True)
-        for ax, (name, scale, label) in zip(axes, panels):
-            ax.plot(t, s(bare, name, scale), color=BARE_COLOUR, lw=1.2, label="bare airframe (K = 0)")
-            ax.plot(t, s(augmented, name, scale), color=AUGMENTED_COLOUR, lw=1.6, label="with damper")
-            ax.set_ylabel(label)
-            ax.grid(True, color="#e4e4e4", lw=0.6)
-            ax.axhline(0.0, color="#9a9a9a", lw=0.5)
-        ax_alpha = axes[1]
-        if gust:
-            ax_alpha.plot(t, s(augmented, "gust_alpha", R2D), color=INPUT_COLOUR, lw=1.0, ls=":",
-                          label="gust angle w/V")
-        ax_surf, ax_rate = axes[4], axes[5]
-        if not gust:
-            ax_surf.plot(t, s(augmented, "pilot", R2D), color=INPUT_COLOUR, lw=1.0, ls=":", label="pilot command")
-        if travel is not None and math.isfinite(travel):
-            for sign in (1, -1):
-                ax_surf.axhline(sign * travel * R2D, color=LIMIT_COLOUR, lw=1.0, ls="--",
-                                label="travel limit" if sign > 0 else None)
-        if rate_limit is not None and math.isfinite(rate_limit):
-            for sign in (1, -1):
-                ax_rate.axhline(sign * rate_limit * R2D, color=LIMIT_COLOUR, lw=1.0, ls="--",
-                                label="rate limit" if sign > 0 else None)
-        axes[0].legend(loc="upper right", fontsize=7.5, frameon=False, ncol=2)
-        for ax in (ax_alpha, ax_surf, ax_rate):
-            handles, labels = ax.get_legend_handles_labels()
-            extra = [(hd, lb) for hd, lb in zip(handles, labels) if lb not in ("bare airframe (K = 0)", "with damper")]
-            if extra:
-                ax.legend(*zip(*extra), loc="upper right", fontsize=7.5, frameon=False)
+        axes = fig.subplots(len(PANELS), 1, sharex=True)
+        _response_curves(axes, t, bare, augmented, stride, rate_limit, travel)
         axes[-1].set_xlabel("time, s")
         axes[-1].set_xlim(t[0], t[-1])
         fig.align_ylabels(axes)
@@ -135,14 +107,7 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
         if subtitle:
             fig.text(0.02, 0.955, subtitle, fontsize=8, ha="left", color="#444444")
         if note:
-            import textwrap
-
-            fig.text(0.02, 0.945, textwrap.fill(note, 125), fontsize=7.5, ha="left", va="top", color=LIMIT_COLOUR)
-            for ax, (name, scale, label) in zip(axes, panels):
-                for field, _, limit, _, _ in SMALL_PERTURBATION_LIMITS:
-                    if field == name and field in exceeded:
-                        for sign in (1, -1):
-                            ax.axhline(sign * limit, color=LIMIT_COLOUR, lw=0.7, ls=":", alpha=0.8)
+            _linear_range_marks(fig, axes, note, exceeded)
         written = save_figure(fig, stem, dpi=110)
     return written
 
@@ -152,3 +117,51 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
 def file_stem(i_condition: int, condition: str, j_input: int, label: str) -> str:
     """``response-<nn>-<condition>-<m>-<input>`` (numbered, so names never collide)."""
     return f"response-{i_condition + 1:02d}-{label_slug(condition)}-{j_input + 1}-{label_slug(label)}"
+
+
+def _response_curves(axes, t, bare, augmented, stride, rate_limit, travel):
+    """Bare and augmented histories on every panel; the input (gust or pilot) and the surface limits."""
+    def s(h, name, scale=1.0):
+        return np.asarray(getattr(h, name))[::stride] * scale
+
+    gust = bool(np.any(np.asarray(augmented.gust_alpha) != 0))
+    for ax, (name, scale, label) in zip(axes, PANELS):
+        ax.plot(t, s(bare, name, scale), color=BARE_COLOUR, lw=1.2, label="bare airframe (K = 0)")
+        ax.plot(t, s(augmented, name, scale), color=AUGMENTED_COLOUR, lw=1.6, label="with damper")
+        ax.set_ylabel(label)
+        ax.grid(True, color="#e4e4e4", lw=0.6)
+        ax.axhline(0.0, color="#9a9a9a", lw=0.5)
+    ax_alpha = axes[1]
+    if gust:
+        ax_alpha.plot(t, s(augmented, "gust_alpha", R2D), color=INPUT_COLOUR, lw=1.0, ls=":",
+                      label="gust angle w/V")
+    ax_surf, ax_rate = axes[4], axes[5]
+    if not gust:
+        ax_surf.plot(t, s(augmented, "pilot", R2D), color=INPUT_COLOUR, lw=1.0, ls=":", label="pilot command")
+    if travel is not None and math.isfinite(travel):
+        for sign in (1, -1):
+            ax_surf.axhline(sign * travel * R2D, color=LIMIT_COLOUR, lw=1.0, ls="--",
+                            label="travel limit" if sign > 0 else None)
+    if rate_limit is not None and math.isfinite(rate_limit):
+        for sign in (1, -1):
+            ax_rate.axhline(sign * rate_limit * R2D, color=LIMIT_COLOUR, lw=1.0, ls="--",
+                            label="rate limit" if sign > 0 else None)
+    axes[0].legend(loc="upper right", fontsize=7.5, frameon=False, ncol=2)
+    for ax in (ax_alpha, ax_surf, ax_rate):
+        handles, labels = ax.get_legend_handles_labels()
+        extra = [(hd, lb) for hd, lb in zip(handles, labels) if lb not in ("bare airframe (K = 0)", "with damper")]
+        if extra:
+            ax.legend(*zip(*extra), loc="upper right", fontsize=7.5, frameon=False)
+
+
+def _linear_range_marks(fig, axes, note, exceeded):
+    """The note under the title and dotted lines at the small-perturbation limits that are exceeded."""
+    import textwrap
+
+    fig.text(0.02, 0.945, textwrap.fill(note, 125), fontsize=7.5, ha="left", va="top", color=LIMIT_COLOUR)
+    for ax, (name, scale, label) in zip(axes, PANELS):
+        for field, _, limit, _, _ in SMALL_PERTURBATION_LIMITS:
+            if field == name and field in exceeded:
+                for sign in (1, -1):
+                    ax.axhline(sign * limit, color=LIMIT_COLOUR, lw=0.7, ls=":", alpha=0.8)
+

@@ -126,14 +126,38 @@ def scatter_plot(case, result, i, stem):
 
 
 def _draw_scatter(case, result, i):
-    from matplotlib.patches import Rectangle
+    c = result.conditions[i]
+    fig = _figure(6.8, 5.0)
+    ax = fig.add_axes([0.10, 0.29, 0.86, 0.64])
+    lim = _scatter_limits(result, i)
+    _requirement_box(ax, lim)
+    _samples(ax, result, i, lim)
+    _nominal_and_worst(ax, result, i, lim["top"])
+    ax.set_xlim(lim["xmin"], lim["xmax"])
+    ax.set_ylim(lim["ymin"], lim["ymax"])
+    ax.set_xlabel(f"short-period damping ratio, {result.damping_measure} (-)")
+    ax.set_ylabel("smallest gain margin, up or down (dB)")
+    _title(fig, f"{c.name}: damping and gain margin under uncertainty (K = {c.gain:.4g} s)")
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=2, frameon=True)
+    shown_note = "" if c.shown >= c.samples else f"points: the first {c.shown} of {c.samples} samples\n"
+    ax.text(
+        0.985, 0.03,
+        f"{shown_note}meets every requirement: {c.passed_all}/{c.samples} samples ({_pct(c.fraction_all, 'down')} %)\n"
+        f"{100 * result.spec.confidence:.0f} % Clopper-Pearson interval "
+        f"{_pct(c.lower_all, 'down')}-{_pct(c.upper_all, 'up')} %",
+        transform=ax.transAxes, fontsize=7.5, va="bottom", ha="right", color=STYLE["ink"],
+        bbox=dict(boxstyle="round,pad=0.3", facecolor="white", edgecolor=STYLE["grid"]), zorder=6,
+    )
+    _footer(fig, case, result)
+    return fig
 
+
+def _scatter_limits(result, i) -> dict:
+    """Axis limits holding the samples, the requirement box and the worst cases; ``top``: where an
+    unbounded gain margin is drawn (dB); ``ypad``: the vertical padding (dB)."""
     c = result.conditions[i]
     z = result.damping[i]
     gm = result.gain_margin[i]
-    ok = np.all(result.slacks[:, i, :] >= 0, 0)
-    fig = _figure(6.8, 5.0)
-    ax = fig.add_axes([0.10, 0.29, 0.86, 0.64])
     finite_gm = gm[np.isfinite(gm)]
     finite_z = z[np.isfinite(z)]
     zlo, zhi = _band(result, "damping_ratio")
@@ -150,17 +174,30 @@ def _draw_scatter(case, result, i):
     ypad = 0.08 * max(ymax - ymin, 1.0)
     ymin = min(ymin - ypad, 0.0) if ymin >= 0 else ymin - ypad
     ymax = ymax + 2.5 * ypad
-    top = ymax - 0.8 * ypad  # where unbounded gain margins are drawn
-    # requirement box
-    bx0 = zlo if np.isfinite(zlo) else xmin
-    bx1 = zhi if np.isfinite(zhi) else xmax
-    by0 = glo if np.isfinite(glo) else ymin
+    return {"xmin": xmin, "xmax": xmax, "ymin": ymin, "ymax": ymax, "ypad": ypad, "top": ymax - 0.8 * ypad,
+            "zlo": zlo, "zhi": zhi, "glo": glo}
+
+
+def _requirement_box(ax, lim):
+    from matplotlib.patches import Rectangle
+
+    bx0 = lim["zlo"] if np.isfinite(lim["zlo"]) else lim["xmin"]
+    bx1 = lim["zhi"] if np.isfinite(lim["zhi"]) else lim["xmax"]
+    by0 = lim["glo"] if np.isfinite(lim["glo"]) else lim["ymin"]
     ax.add_patch(
         Rectangle(
-            (bx0, by0), bx1 - bx0, ymax - by0, facecolor=STYLE["box_fill"], edgecolor=STYLE["box"],
+            (bx0, by0), bx1 - bx0, lim["ymax"] - by0, facecolor=STYLE["box_fill"], edgecolor=STYLE["box"],
             linewidth=1.4, linestyle="--", zorder=0, label="required: damping band and gain margin",
         )
     )
+
+
+def _samples(ax, result, i, lim):
+    """Every shown sample, pass and fail told apart by colour and marker; unbounded margins on the top edge."""
+    z = result.damping[i]
+    gm = result.gain_margin[i]
+    ok = np.all(result.slacks[:, i, :] >= 0, 0)
+    top, xmin, xmax, ypad = lim["top"], lim["xmin"], lim["xmax"], lim["ypad"]
     yplot = np.where(np.isfinite(gm), gm, top)
     unb = ~np.isfinite(gm)
     off, off_names = _fails_off_axes(result, i)
@@ -184,13 +221,13 @@ def _draw_scatter(case, result, i):
         ax.axhline(top, color="#888888", linewidth=0.6, linestyle=":", zorder=1)
         ax.text(xmin + 0.01 * (xmax - xmin), top + 0.25 * ypad, "gain margin unbounded (no phase crossing)",
                 fontsize=6.5, va="bottom", ha="left", color="#555555")
-    # nominal and worst cases
+
+
+def _nominal_and_worst(ax, result, i, top):
+    """The nominal point and the worst cases of damping and gain margin."""
+    c = result.conditions[i]
     names = [cr.name for cr in result.criteria]
-    if "damping_ratio" in names:
-        j = names.index("damping_ratio")
-        nz = c.nominal_values[j]
-    else:
-        nz = np.nan
+    nz = c.nominal_values[names.index("damping_ratio")] if "damping_ratio" in names else np.nan
     ngm = c.nominal_values[names.index("gain_margin")] if "gain_margin" in names else np.nan
     if np.isfinite(nz):
         ax.scatter([nz], [ngm if np.isfinite(ngm) else top], marker="D", s=42, facecolors="white",
@@ -204,23 +241,6 @@ def _draw_scatter(case, result, i):
         if wz is not None and np.isfinite(wz):
             ax.scatter([wz], [wg if np.isfinite(wg) else top], marker=marker, s=90, c=STYLE["worst"],
                        edgecolors=STYLE["ink"], linewidths=0.7, zorder=5, label=label)
-    ax.set_xlim(xmin, xmax)
-    ax.set_ylim(ymin, ymax)
-    ax.set_xlabel(f"short-period damping ratio, {result.damping_measure} (-)")
-    ax.set_ylabel("smallest gain margin, up or down (dB)")
-    _title(fig, f"{c.name}: damping and gain margin under uncertainty (K = {c.gain:.4g} s)")
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=2, frameon=True)
-    shown_note = "" if c.shown >= c.samples else f"points: the first {c.shown} of {c.samples} samples\n"
-    ax.text(
-        0.985, 0.03,
-        f"{shown_note}meets every requirement: {c.passed_all}/{c.samples} samples ({_pct(c.fraction_all, 'down')} %)\n"
-        f"{100 * result.spec.confidence:.0f} % Clopper-Pearson interval "
-        f"{_pct(c.lower_all, 'down')}-{_pct(c.upper_all, 'up')} %",
-        transform=ax.transAxes, fontsize=7.5, va="bottom", ha="right", color=STYLE["ink"],
-        bbox=dict(boxstyle="round,pad=0.3", facecolor="white", edgecolor=STYLE["grid"]), zorder=6,
-    )
-    _footer(fig, case, result)
-    return fig
 
 
 def _fails_off_axes(result, i):

@@ -86,21 +86,14 @@ def root_locus(case, design, i, stem, open_loop):
 
 
 def _draw_root_locus(case, design, i, open_loop):
-    from matplotlib.colors import LogNorm
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch, Rectangle
-
     cond = design.conditions[i]
     gains = design.sweep_gains[i]
-    ev = design.sweep.modes.eigenvalues[i]  # (points, n)
-    sp = design.sweep.modes.short_period.roots[i]  # (points, 2)
-    chosen_ev = design.chosen.modes.eigenvalues[i]
+    pts = {
+        "ev": design.sweep.modes.eigenvalues[i],  # (points, n)
+        "chosen_ev": design.chosen.modes.eigenvalues[i],
+        "ol": np.asarray(open_loop.poles_1_s)[i],
+    }
     chosen_sp = design.chosen.modes.short_period.roots[i]
-    bare_sp = np.broadcast_to(design.sweep.bare.roots, design.sweep_gains.shape + (2,))[i, 0]
-    ol = np.asarray(open_loop.poles_1_s)[i]
-    kk = np.repeat(gains[:, None], ev.shape[1], 1)
-    norm = LogNorm(vmin=float(gains.min()), vmax=float(gains.max()))
-
     fig = _figure(11.5, 6.6)
     gs = fig.add_gridspec(
         2, 2, width_ratios=[1.5, 1.0], left=0.065, right=0.865, top=0.865, bottom=0.2, wspace=0.26, hspace=0.42
@@ -110,23 +103,66 @@ def _draw_root_locus(case, design, i, open_loop):
     ax_a = fig.add_subplot(gs[1, 1])
     cax = fig.add_axes((0.89, 0.2, 0.016, 0.665))
 
-    # detail: the short-period pair up to 1.5 x the top of the feasible gains (or the chosen gain)
     k_top = max([cond.chosen_gain] + [hi for _, hi in cond.intervals])
+    limits, reach = _panel_limits(design, i, k_top, pts)
+    dz = _criteria(case, "damping_ratio")
+    sc, rays = _pole_clouds((ax_d, ax_n, ax_a), limits, reach, dz, gains, pts)
+    _panel_titles(ax_d, ax_n, ax_a, limits, cond, k_top, gains)
+    _annotate_chosen(ax_d, design, i, chosen_sp)
+    cb = fig.colorbar(sc, cax=cax)
+    cb.set_label("gain K (s)")
+    _short_log_labels(cax.yaxis, float(gains.min()), float(gains.max()))
+    _colour_bar_marks(cax, cond, float(gains.min()), float(gains.max()))
+    fig.legend(handles=_locus_legend(cond, dz, rays), loc="lower center", ncol=3, frameon=False,
+               bbox_to_anchor=(0.5, 0.0), columnspacing=1.5)
+    pade = design.sweep.pade_order
+    _, dtext = _delay_text(case)
+    view = (
+        f"eigenvalues with the {dtext} delay as a ({pade}, {pade}) Pade approximant"
+        if pade
+        else "eigenvalues (no delay in the loop)"
+    )
+    fig.suptitle(f"{cond.name}: root locus of the pitch-rate damper", fontsize=12, x=0.065, ha="left", y=0.975)
+    fig.text(
+        0.065,
+        0.925,
+        f"{case.title}  |  sweep K {cond.sweep_range[0]:.3g}-{cond.sweep_range[1]:.3g} s  |  {view}",
+        fontsize=8.5,
+        color=PALETTE["ink"],
+    )
+    return fig
+
+
+def _panel_limits(design, i, k_top, pts):
+    """((detail, near, all) axis limits, ray length): the detail shows the short-period pair up
+    to 1.5 x the top of the feasible gains (or the chosen gain); each next panel contains the last."""
+    gains = design.sweep_gains[i]
+    sp = design.sweep.modes.short_period.roots[i]  # (points, 2)
+    chosen_sp = design.chosen.modes.short_period.roots[i]
+    bare_sp = np.broadcast_to(design.sweep.bare.roots, design.sweep_gains.shape + (2,))[i, 0]
     near = gains <= 1.5 * k_top
     d_lim = _zoom_limits(sp[near], np.concatenate([chosen_sp, bare_sp]))
     n_lim = _zoom_limits(sp, np.concatenate([chosen_sp, bare_sp]))
-    all_pts = np.concatenate([ev.ravel(), ol, chosen_ev])
+    all_pts = np.concatenate([pts["ev"].ravel(), pts["ol"], pts["chosen_ev"]])
     all_pts = all_pts[np.isfinite(all_pts)]
     re_lo = min(float(np.min(all_pts.real)), n_lim[0][0])
     re_hi = max(float(np.max(all_pts.real)), n_lim[0][1], 0.0)
     im_hi = max(float(np.max(np.abs(all_pts.imag))), n_lim[1][1])
     pad = 0.08 * max(re_hi - re_lo, 2 * im_hi)
     a_lim = ((re_lo - pad, re_hi + pad), (-im_hi - pad, im_hi + pad))
-    reach = 4.0 * max(abs(re_lo), abs(re_hi), im_hi) + 1.0
+    return (d_lim, n_lim, a_lim), 4.0 * max(abs(re_lo), abs(re_hi), im_hi) + 1.0
 
-    dz = _criteria(case, "damping_ratio")
+
+def _pole_clouds(axes, limits, reach, dz, gains, pts):
+    """Every panel: axes lines, the required damping sector, the swept poles coloured by K, the
+    open-loop and chosen poles. Returns the scatter (for the colour bar) and the sector's rays."""
+    from matplotlib.colors import LogNorm
+
+    ev, ol, chosen_ev = pts["ev"], pts["ol"], pts["chosen_ev"]
+    kk = np.repeat(gains[:, None], ev.shape[1], 1)
+    norm = LogNorm(vmin=float(gains.min()), vmax=float(gains.max()))
     rays = []
-    for ax, (xl, yl), size in ((ax_d, d_lim, 14), (ax_n, n_lim, 7), (ax_a, a_lim, 7)):
+    for ax, (xl, yl), size in zip(axes, limits, (14, 7, 7)):
         ax.axvline(0.0, **LINES["critical"], zorder=1)
         ax.axhline(0.0, color=PALETTE["grid"], linewidth=0.8, zorder=1)
         if dz:
@@ -141,7 +177,7 @@ def _draw_root_locus(case, design, i, open_loop):
             marker="o",
             linewidths=0,
             zorder=2,
-            rasterized=ax is not ax_d,  # overview clouds as an image inside the SVG (small, fast)
+            rasterized=ax is not axes[0],  # overview clouds as an image inside the SVG (small, fast)
         )
         ax.scatter(ol.real, ol.imag, marker="x", s=4 * size + 10, linewidths=1.5, color=PALETTE["ink"], zorder=4)
         ax.scatter(
@@ -158,7 +194,14 @@ def _draw_root_locus(case, design, i, open_loop):
         ax.set_ylim(*yl)
         ax.set_xlabel("real part (1/s)")
         ax.set_ylabel("imaginary part (rad/s)")
-    for ax, lim in ((ax_n, d_lim), (ax_a, n_lim)):
+    return sc, rays
+
+
+def _panel_titles(ax_d, ax_n, ax_a, limits, cond, k_top, gains):
+    """Each overview panel boxes the panel before it; the titles say which."""
+    from matplotlib.patches import Rectangle
+
+    for ax, lim in ((ax_n, limits[0]), (ax_a, limits[1])):
         (x0, x1), (y0, y1) = lim
         ax.add_patch(
             Rectangle(
@@ -173,63 +216,46 @@ def _draw_root_locus(case, design, i, open_loop):
     ax_n.set_title("near the origin, whole sweep (box: left panel)", fontsize=9)
     ax_a.set_title("all poles (box: panel above)", fontsize=9)
 
-    # annotate the chosen short-period pair
+
+def _annotate_chosen(ax_d, design, i, chosen_sp):
+    """The chosen short-period pair's value and damping, pointing at its upper root."""
     zeta_eq = float(design.chosen.damping_ratio("equivalent")[i])
     zeta_mod = float(design.chosen.damping_ratio("modal")[i])
-    if np.all(np.isfinite(chosen_sp)):
-        top = chosen_sp[np.argmax(chosen_sp.imag)]
-        ax_d.annotate(
-            f"chosen K: short period\n{top.real:.3g} {'+' if top.imag >= 0 else '-'} {abs(top.imag):.3g}j 1/s\n"
-            f"modal zeta {zeta_mod:.3f}, equivalent {zeta_eq:.3f}",
-            xy=(top.real, top.imag),
-            xytext=(0.03, 0.97),
-            textcoords="axes fraction",
-            ha="left",
-            va="top",
-            fontsize=8,
-            color=PALETTE["ink"],
-            bbox={"boxstyle": "round,pad=0.3", "fc": "white", "ec": PALETTE["grid"], "alpha": 0.92},
-            arrowprops={"arrowstyle": "-", "color": PALETTE["ink"], "linewidth": 0.8, "shrinkB": 6},
-            zorder=7,
-        )
+    if not np.all(np.isfinite(chosen_sp)):
+        return
+    top = chosen_sp[np.argmax(chosen_sp.imag)]
+    ax_d.annotate(
+        f"chosen K: short period\n{top.real:.3g} {'+' if top.imag >= 0 else '-'} {abs(top.imag):.3g}j 1/s\n"
+        f"modal zeta {zeta_mod:.3f}, equivalent {zeta_eq:.3f}",
+        xy=(top.real, top.imag),
+        xytext=(0.03, 0.97),
+        textcoords="axes fraction",
+        ha="left",
+        va="top",
+        fontsize=8,
+        color=PALETTE["ink"],
+        bbox={"boxstyle": "round,pad=0.3", "fc": "white", "ec": PALETTE["grid"], "alpha": 0.92},
+        arrowprops={"arrowstyle": "-", "color": PALETTE["ink"], "linewidth": 0.8, "shrinkB": 6},
+        zorder=7,
+    )
 
-    cb = fig.colorbar(sc, cax=cax)
-    cb.set_label("gain K (s)")
-    _short_log_labels(cax.yaxis, float(gains.min()), float(gains.max()))
-    _colour_bar_marks(cax, cond, float(gains.min()), float(gains.max()))
 
-    # legend below the panels
+def _marker(marker, size, label, **kw):
+    from matplotlib.lines import Line2D
+
+    return Line2D([], [], linestyle="none", marker=marker, markersize=size, label=label, **kw)
+
+
+def _locus_legend(cond, dz, rays):
+    """The legend below the panels: the pole marks, the damping sector and its rays, the colour bar's marks."""
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
     handles = [
-        Line2D(
-            [],
-            [],
-            linestyle="none",
-            marker="o",
-            markersize=5,
-            color=matplotlib_mid_colour(),
-            label="closed-loop poles over the sweep (colour: K)",
-        ),
-        Line2D(
-            [],
-            [],
-            linestyle="none",
-            marker="x",
-            markersize=7,
-            markeredgewidth=1.5,
-            color=PALETTE["ink"],
-            label="open-loop poles (K = 0)",
-        ),
-        Line2D(
-            [],
-            [],
-            linestyle="none",
-            marker="D",
-            markersize=7,
-            markerfacecolor="none",
-            markeredgewidth=1.5,
-            color=PALETTE["secondary"],
-            label=f"poles at the chosen K = {cond.chosen_gain:.4g} s",
-        ),
+        _marker("o", 5, "closed-loop poles over the sweep (colour: K)", color=matplotlib_mid_colour()),
+        _marker("x", 7, "open-loop poles (K = 0)", markeredgewidth=1.5, color=PALETTE["ink"]),
+        _marker("D", 7, f"poles at the chosen K = {cond.chosen_gain:.4g} s", markerfacecolor="none",
+                markeredgewidth=1.5, color=PALETTE["secondary"]),
     ]
     if dz:
         c = dz[0]
@@ -252,24 +278,7 @@ def _draw_root_locus(case, design, i, open_loop):
         Patch(facecolor=PALETTE["feasible"], edgecolor=PALETTE["tertiary"], label="feasible K (on the colour bar)")
     )
     handles.append(Line2D([], [], color=PALETTE["secondary"], linewidth=2.2, label="chosen K (on the colour bar)"))
-    fig.legend(handles=handles, loc="lower center", ncol=3, frameon=False, bbox_to_anchor=(0.5, 0.0), columnspacing=1.5)
-
-    pade = design.sweep.pade_order
-    _, dtext = _delay_text(case)
-    view = (
-        f"eigenvalues with the {dtext} delay as a ({pade}, {pade}) Pade approximant"
-        if pade
-        else "eigenvalues (no delay in the loop)"
-    )
-    fig.suptitle(f"{cond.name}: root locus of the pitch-rate damper", fontsize=12, x=0.065, ha="left", y=0.975)
-    fig.text(
-        0.065,
-        0.925,
-        f"{case.title}  |  sweep K {cond.sweep_range[0]:.3g}-{cond.sweep_range[1]:.3g} s  |  {view}",
-        fontsize=8.5,
-        color=PALETTE["ink"],
-    )
-    return fig
+    return handles
 
 
 def _colour_bar_marks(cax, cond, k_min, k_max):

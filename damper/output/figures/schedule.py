@@ -158,29 +158,48 @@ def _verdict(result):
 # 1. gain against the schedule variable
 # ---------------------------------------------------------------------------------
 def _draw_gain_1d(case, result):
-    from matplotlib.lines import Line2D
-
     sch = result.schedule
-    ver = result.verification
     var = sch.variables[0]
     bp = np.asarray(sch.breakpoints[0], float)
     kb = np.asarray(sch.gains, float).ravel()
-    xv = np.asarray(ver.points.values[0], float)
-    lo = float(np.nanmin(np.concatenate([bp, xv])))
-    hi = float(np.nanmax(np.concatenate([bp, xv])))
-    span = max(hi - lo, abs(hi) * 0.1, 1e-9)
-    xd = np.linspace(lo - 0.04 * span, hi + 0.04 * span, _DENSE)
-    if var == "dynamic_pressure":
-        xd = xd[xd > 0]
-    kd = sch.gain_at([xd])
-
+    xd, kd = _dense_law(sch, result.verification, bp)
     fig = _figure(7.6, 6.6)
     gs = fig.add_gridspec(2, 1, height_ratios=(3.0, 2.0), hspace=0.08, left=0.11, right=0.97, top=0.82, bottom=0.17)
     ax = fig.add_subplot(gs[0])
     axs = fig.add_subplot(gs[1], sharex=ax)
     sx = DISPLAY[var][2]
+    law_handles, bp_label = _law_line(ax, sch, xd, kd, bp, sx)
+    bad = _breakpoints_1d(ax, axs, result, bp, kb, sx, bp_label)
+    conf_handles, slack = _verification_1d(ax, axs, result, sx)
+    ws = np.asarray(result.design.worst_slack, float).ravel()  # design slack at the breakpoints (worst over their points)
+    okb = np.isfinite(ws) & (np.asarray(result.design.points).ravel() > 0)
+    if ws.size == bp.size and okb.any():
+        axs.scatter(bp[okb] * sx, ws[okb], marker="D", s=40, facecolors="white", edgecolors=PALETTE["chosen"],
+                    linewidths=1.3, zorder=6)
+    axs.axhline(0.0, color=PALETTE["limit"], linewidth=1.3, linestyle=(0, (6, 3)), zorder=2)
+    _axes_1d(ax, axs, var, kd, kb, slack)
+    handles = _legend_1d(law_handles, bp_label, conf_handles, bad.size == bp.size and bad.any())
+    fig.legend(handles=handles, loc="lower center", ncol=3, fontsize=7.2, frameon=True, bbox_to_anchor=(0.5, 0.0))
+    _title(fig, f"Gain schedule in {DISPLAY[var][0]}: {bp.size} breakpoints", case, _verdict(result))
+    return fig
 
-    # law: inside the table solid, clamped ends dotted
+
+def _dense_law(sch, ver, bp):
+    """The schedule variable on a dense grid a little beyond the breakpoints and points (SI), and K there (s)."""
+    xv = np.asarray(ver.points.values[0], float)
+    lo = float(np.nanmin(np.concatenate([bp, xv])))
+    hi = float(np.nanmax(np.concatenate([bp, xv])))
+    span = max(hi - lo, abs(hi) * 0.1, 1e-9)
+    xd = np.linspace(lo - 0.04 * span, hi + 0.04 * span, _DENSE)
+    if sch.variables[0] == "dynamic_pressure":
+        xd = xd[xd > 0]
+    return xd, sch.gain_at([xd])
+
+
+def _law_line(ax, sch, xd, kd, bp, sx):
+    """The scheduled gain: inside the table solid, clamped ends dotted (or the fitted law); its legend entries."""
+    from matplotlib.lines import Line2D
+
     if sch.form == "table":
         inside = (xd >= bp[0]) & (xd <= bp[-1])
         ax.plot(xd[inside] * sx, kd[inside], color=PALETTE["primary"], linewidth=1.8, zorder=3,
@@ -193,12 +212,15 @@ def _draw_gain_1d(case, result):
                               label="scheduled gain (linear between breakpoints)"),
                        Line2D([], [], color=PALETTE["primary"], linewidth=1.4, linestyle=(0, (1.5, 1.5)),
                               label="held constant beyond the table")]
-        bp_label = "breakpoint (designed gain)"
-    else:
-        ax.plot(xd * sx, kd, color=PALETTE["primary"], linewidth=1.8, zorder=3)
-        law_handles = [Line2D([], [], color=PALETTE["primary"], linewidth=1.8,
-                              label=f"K = {sch.k_ref:.3g} s x {sch.q_ref * 1e-3:.3g} kPa / q (fitted law)")]
-        bp_label = "breakpoint design gain (fit data)"
+        return law_handles, "breakpoint (designed gain)"
+    ax.plot(xd * sx, kd, color=PALETTE["primary"], linewidth=1.8, zorder=3)
+    law_handles = [Line2D([], [], color=PALETTE["primary"], linewidth=1.8,
+                          label=f"K = {sch.k_ref:.3g} s x {sch.q_ref * 1e-3:.3g} kPa / q (fitted law)")]
+    return law_handles, "breakpoint design gain (fit data)"
+
+
+def _breakpoints_1d(ax, axs, result, bp, kb, sx, bp_label):
+    """Breakpoints with their gains, the infeasible ones crossed; returns the infeasible mask."""
     ax.scatter(bp * sx, kb, marker="D", s=46, facecolors="white", edgecolors=PALETTE["chosen"], linewidths=1.4,
                zorder=6, label=bp_label)
     # infeasible breakpoints: no gain met every requirement at all their design points
@@ -212,10 +234,17 @@ def _draw_gain_1d(case, result):
     for b in bp:
         ax.axvline(b * sx, color=PALETTE["grid"], linewidth=0.9, linestyle=(0, (4, 3)), zorder=1)
         axs.axvline(b * sx, color=PALETTE["grid"], linewidth=0.9, linestyle=(0, (4, 3)), zorder=1)
+    return bad
 
+
+def _verification_1d(ax, axs, result, sx):
+    """Verification points per configuration (gain above, worst slack below), failures ringed."""
+    from matplotlib.lines import Line2D
+
+    ver = result.verification
+    xv = np.asarray(ver.points.values[0], float)
     conf = np.asarray(ver.points.configuration, int)
     names = result.configurations or tuple(f"configuration {i}" for i in range(int(conf.max()) + 1))
-    passed = np.asarray(ver.passed, bool)
     slack = np.asarray(ver.worst_slack, float)
     conf_handles = []
     for ci, name in enumerate(names):
@@ -234,18 +263,15 @@ def _draw_gain_1d(case, result):
         conf_handles.append(Line2D([], [], linestyle="none", marker=mk, color=col, markersize=5,
                                    markerfacecolor="none" if hollow else col, markeredgewidth=1.1,
                                    label=f"verification point, {name}"))
-    fail = ~passed
+    fail = ~np.asarray(ver.passed, bool)
     if fail.any():
         ax.scatter(xv[fail] * sx, ver.gains[fail], s=130, zorder=5, **_FAIL_RING)
         axs.scatter(xv[fail] * sx, np.clip(slack[fail], -2.0, None), s=90, zorder=5, **_FAIL_RING)
-    # design slack at the breakpoints (worst over their design points)
-    ws = np.asarray(result.design.worst_slack, float).ravel()
-    okb = np.isfinite(ws) & (np.asarray(result.design.points).ravel() > 0)
-    if ws.size == bp.size and okb.any():
-        axs.scatter(bp[okb] * sx, ws[okb], marker="D", s=40, facecolors="white", edgecolors=PALETTE["chosen"],
-                    linewidths=1.3, zorder=6)
-    axs.axhline(0.0, color=PALETTE["limit"], linewidth=1.3, linestyle=(0, (6, 3)), zorder=2)
+    return conf_handles, slack
 
+
+def _axes_1d(ax, axs, var, kd, kb, slack):
+    """Labels and limits; equivalent airspeed on top when the variable is the dynamic pressure."""
     ax.set_ylabel("damper gain K (s)\n(rad surface per rad/s pitch rate)")
     ax.set_ylim(bottom=0.0, top=max(float(np.nanmax(kd)), float(np.nanmax(kb))) * 1.18)
     ax.tick_params(labelbottom=False)
@@ -265,6 +291,10 @@ def _draw_gain_1d(case, result):
         top.set_xlabel("equivalent airspeed (m/s)", fontsize=8)
         top.tick_params(labelsize=7.5)
 
+
+def _legend_1d(law_handles, bp_label, conf_handles, any_bad):
+    from matplotlib.lines import Line2D
+
     handles = law_handles + [
         Line2D([], [], linestyle="none", marker="D", markerfacecolor="white", markeredgecolor=PALETTE["chosen"],
                markersize=6, label=bp_label + " / design slack"),
@@ -274,12 +304,10 @@ def _draw_gain_1d(case, result):
         Line2D([], [], color=PALETTE["limit"], linewidth=1.3, linestyle=(0, (6, 3)),
                label="slack 0 (requirement boundary)"),
     ]
-    if bad.size == bp.size and bad.any():
+    if any_bad:
         handles.append(Line2D([], [], linestyle="none", marker="X", color=PALETTE["limit"], markersize=7,
                               label="breakpoint: no gain meets every requirement"))
-    fig.legend(handles=handles, loc="lower center", ncol=3, fontsize=7.2, frameon=True, bbox_to_anchor=(0.5, 0.0))
-    _title(fig, f"Gain schedule in {DISPLAY[var][0]}: {bp.size} breakpoints", case, _verdict(result))
-    return fig
+    return handles
 
 
 def _speed_range_in(env, var, h):
@@ -291,79 +319,112 @@ def _speed_range_in(env, var, h):
 
 
 def _draw_gain_2d(case, result):
-    from matplotlib.colors import Normalize
-    from matplotlib.lines import Line2D
-
-    sch = result.schedule
-    ver = result.verification
-    ia = sch.variables.index("altitude")
-    sv = sch.variables[1 - ia]
-    hb = np.asarray(sch.breakpoints[ia], float)
-    sb = np.asarray(sch.breakpoints[1 - ia], float)
-    G = np.asarray(sch.gains, float)
-    G_hs = G if ia == 0 else G.T  # G_hs[i_alt, j_speed]
-    counts = np.asarray(result.design.points).reshape(G.shape)
-    counts_hs = counts if ia == 0 else counts.T
-    feas = np.asarray(result.design.feasible, bool).reshape(G.shape)
-    feas_hs = feas if ia == 0 else feas.T
+    d = _grid_2d(result)
     env = _envelope(case, result)
-
-    hv = np.asarray(ver.points.values[ia], float)
-    svv = np.asarray(ver.points.values[1 - ia], float)
-    h_lo, h_hi = min(hb[0], np.nanmin(hv)), max(hb[-1], np.nanmax(hv))
-    s_lo, s_hi = min(sb[0], np.nanmin(svv)), max(sb[-1], np.nanmax(svv))
-    hd = np.linspace(h_lo, h_hi, 160)
-    sd = np.linspace(s_lo, s_hi, 200)
-    Hm, Sm = np.meshgrid(hd, sd, indexing="ij")
-    vals = [Hm.ravel(), Sm.ravel()] if ia == 0 else [Sm.ravel(), Hm.ravel()]
-    Kd = sch.gain_at(vals).reshape(Hm.shape)
-    kmin = float(min(np.nanmin(Kd), np.nanmin(G)))
-    kmax = float(max(np.nanmax(Kd), np.nanmax(G)))
-    norm = Normalize(vmin=kmin, vmax=kmax if kmax > kmin else kmin + 1e-6)
-
     fig = _figure(11.6, 5.0)
     gs = fig.add_gridspec(1, 4, width_ratios=(1.0, 0.04, 0.17, 0.85), wspace=0.04, left=0.06, right=0.985, top=0.84,
                           bottom=0.25)
     ax = fig.add_subplot(gs[0])
     cax = fig.add_subplot(gs[1])
     axl = fig.add_subplot(gs[3])
-    ssx = DISPLAY[sv][2]
-    hsx = DISPLAY["altitude"][2]
-    im = ax.imshow(Kd, origin="lower", aspect="auto", cmap=COLORMAP, norm=norm, interpolation="bilinear",
-                   extent=(s_lo * ssx, s_hi * ssx, h_lo * hsx, h_hi * hsx), zorder=0)
+    _gain_image(fig, ax, cax, d)
+    outline_handle = _outline_2d(ax, env, d) if env is not None else None
+    infeas = _nodes_2d(ax, d)
+    ver, ssx, hsx = result.verification, d["ssx"], d["hsx"]
+    fail = ~np.asarray(ver.passed, bool)
+    ax.scatter(d["svv"] * ssx, d["hv"] * hsx, marker=".", s=6, color=PALETTE["ink"], alpha=0.55, linewidths=0,
+               zorder=3)
+    if fail.any():
+        ax.scatter(d["svv"][fail] * ssx, d["hv"][fail] * hsx, s=60, zorder=5, **_FAIL_RING)
+    ax.set_xlabel(_axis_label(d["sv"]))
+    ax.set_ylabel(_axis_label("altitude"))
+    ax.set_xlim(d["s_lo"] * ssx, d["s_hi"] * ssx)
+    ax.set_ylim(d["h_lo"] * hsx, d["h_hi"] * hsx)
+    ax.grid(False)
+    ax.set_title("gain table over the envelope (node values in s)", fontsize=9)
+    _k_lines(axl, result.schedule, env, d)
+    ax.legend(handles=_legend_2d(outline_handle is not None, infeas.any()), loc="upper center", ncol=2, fontsize=7.2,
+              bbox_to_anchor=(0.5, -0.13))
+    _title(fig, f"Gain schedule in altitude and {DISPLAY[d['sv']][0]}: {d['hb'].size} x {d['sb'].size} nodes", case,
+           _verdict(result))
+    return fig
+
+
+def _grid_2d(result) -> dict:
+    """The table's nodes as [altitude, speed variable] arrays, the verification points, the drawn
+    ranges (SI) and the interpolated gain on a dense grid (s)."""
+    from matplotlib.colors import Normalize
+
+    sch = result.schedule
+    ver = result.verification
+    ia = sch.variables.index("altitude")
+    G = np.asarray(sch.gains, float)
+    hs = (lambda a: a) if ia == 0 else (lambda a: a.T)  # to [i_alt, j_speed]
+    d = {"ia": ia, "sv": sch.variables[1 - ia], "hb": np.asarray(sch.breakpoints[ia], float),
+         "sb": np.asarray(sch.breakpoints[1 - ia], float), "G_hs": hs(G),
+         "counts_hs": hs(np.asarray(result.design.points).reshape(G.shape)),
+         "feas_hs": hs(np.asarray(result.design.feasible, bool).reshape(G.shape)),
+         "hv": np.asarray(ver.points.values[ia], float), "svv": np.asarray(ver.points.values[1 - ia], float)}
+    d["h_lo"], d["h_hi"] = min(d["hb"][0], np.nanmin(d["hv"])), max(d["hb"][-1], np.nanmax(d["hv"]))
+    d["s_lo"], d["s_hi"] = min(d["sb"][0], np.nanmin(d["svv"])), max(d["sb"][-1], np.nanmax(d["svv"]))
+    Hm, Sm = np.meshgrid(np.linspace(d["h_lo"], d["h_hi"], 160), np.linspace(d["s_lo"], d["s_hi"], 200), indexing="ij")
+    vals = [Hm.ravel(), Sm.ravel()] if ia == 0 else [Sm.ravel(), Hm.ravel()]
+    d["Kd"] = sch.gain_at(vals).reshape(Hm.shape)
+    kmin = float(min(np.nanmin(d["Kd"]), np.nanmin(G)))
+    d["kmax"] = kmax = float(max(np.nanmax(d["Kd"]), np.nanmax(G)))
+    d["norm"] = Normalize(vmin=kmin, vmax=kmax if kmax > kmin else kmin + 1e-6)
+    d["ssx"], d["hsx"] = DISPLAY[d["sv"]][2], DISPLAY["altitude"][2]
+    return d
+
+
+def _gain_image(fig, ax, cax, d):
+    """The interpolated gain as an image with its colour bar, and the breakpoint lines."""
+    ssx, hsx = d["ssx"], d["hsx"]
+    im = ax.imshow(d["Kd"], origin="lower", aspect="auto", cmap=COLORMAP, norm=d["norm"], interpolation="bilinear",
+                   extent=(d["s_lo"] * ssx, d["s_hi"] * ssx, d["h_lo"] * hsx, d["h_hi"] * hsx), zorder=0)
     cb = fig.colorbar(im, cax=cax)
     cb.set_label("damper gain K (s), bilinear between nodes")
-    for b in sb:
+    for b in d["sb"]:
         ax.axvline(b * ssx, color="white", linewidth=0.8, alpha=0.9, zorder=1)
         ax.axvline(b * ssx, color=PALETTE["ink"], linewidth=0.6, linestyle=(0, (3, 3)), zorder=1)
-    for b in hb:
+    for b in d["hb"]:
         ax.axhline(b * hsx, color="white", linewidth=0.8, alpha=0.9, zorder=1)
         ax.axhline(b * hsx, color=PALETTE["ink"], linewidth=0.6, linestyle=(0, (3, 3)), zorder=1)
-    outline_handle = None
-    if env is not None:
-        h_o = np.linspace(env.altitude[0], env.altitude[1], 121)
-        lo_s, hi_s = _speed_range_in(env, sv, h_o)
-        ok = np.isfinite(lo_s) & np.isfinite(hi_s)
-        if ok.any():
-            xs = np.concatenate([lo_s[ok], hi_s[ok][::-1], lo_s[ok][:1]]) * ssx
-            ys = np.concatenate([h_o[ok], h_o[ok][::-1], h_o[ok][:1]]) * hsx
-            ax.plot(xs, ys, color="white", linewidth=3.0, zorder=2)
-            (outline_handle,) = ax.plot(xs, ys, color=PALETTE["ink"], linewidth=1.3, zorder=2, label="flight envelope")
-    # nodes: designed (filled white diamond), copied (no envelope point: hollow square)
+
+
+def _outline_2d(ax, env, d):
+    """The flight envelope in (speed variable, altitude); returns its line (None when nothing to draw)."""
+    ssx, hsx = d["ssx"], d["hsx"]
+    h_o = np.linspace(env.altitude[0], env.altitude[1], 121)
+    lo_s, hi_s = _speed_range_in(env, d["sv"], h_o)
+    ok = np.isfinite(lo_s) & np.isfinite(hi_s)
+    if not ok.any():
+        return None
+    xs = np.concatenate([lo_s[ok], hi_s[ok][::-1], lo_s[ok][:1]]) * ssx
+    ys = np.concatenate([h_o[ok], h_o[ok][::-1], h_o[ok][:1]]) * hsx
+    ax.plot(xs, ys, color="white", linewidth=3.0, zorder=2)
+    (line,) = ax.plot(xs, ys, color=PALETTE["ink"], linewidth=1.3, zorder=2, label="flight envelope")
+    return line
+
+
+def _nodes_2d(ax, d):
+    """Nodes: designed (white diamond), copied (no envelope point: square), infeasible (cross), each
+    with its gain (italic and starred when copied). Returns the infeasible mask."""
+    ssx, hsx, hb, sb = d["ssx"], d["hsx"], d["hb"], d["sb"]
     Hn, Sn = np.meshgrid(hb, sb, indexing="ij")
-    designed = counts_hs > 0
+    designed = d["counts_hs"] > 0
     ax.scatter(Sn[designed] * ssx, Hn[designed] * hsx, marker="D", s=26, facecolors="white",
                edgecolors=PALETTE["chosen"], linewidths=1.1, zorder=4, clip_on=False)
     if (~designed).any():
         ax.scatter(Sn[~designed] * ssx, Hn[~designed] * hsx, marker="s", s=26, facecolors="white",
                    edgecolors=PALETTE["chosen"], linewidths=1.0, zorder=4, clip_on=False)
-    infeas = designed & ~feas_hs
+    infeas = designed & ~d["feas_hs"]
     if infeas.any():
         ax.scatter(Sn[infeas] * ssx, Hn[infeas] * hsx, marker="X", s=55, color=PALETTE["limit"], zorder=5,
                    clip_on=False)
     for i in range(hb.size):
         for j in range(sb.size):
-            txt = f"{G_hs[i, j]:.3g}" + ("" if designed[i, j] else "*")
+            txt = f"{d['G_hs'][i, j]:.3g}" + ("" if designed[i, j] else "*")
             # label towards the inside of the plot so edge nodes stay readable
             right = j == sb.size - 1 and sb.size > 1
             top = i == hb.size - 1 and hb.size > 1
@@ -372,48 +433,47 @@ def _draw_gain_2d(case, result):
                         va="top" if top else "bottom", fontsize=7.2, color=PALETTE["ink"], zorder=6,
                         style="normal" if designed[i, j] else "italic",
                         bbox=dict(boxstyle="round,pad=0.15", facecolor="white", edgecolor="none", alpha=0.85))
-    fail = ~np.asarray(ver.passed, bool)
-    ax.scatter(svv * ssx, hv * hsx, marker=".", s=6, color=PALETTE["ink"], alpha=0.55, linewidths=0, zorder=3)
-    if fail.any():
-        ax.scatter(svv[fail] * ssx, hv[fail] * hsx, s=60, zorder=5, **_FAIL_RING)
-    ax.set_xlabel(_axis_label(sv))
-    ax.set_ylabel(_axis_label("altitude"))
-    ax.set_xlim(s_lo * ssx, s_hi * ssx)
-    ax.set_ylim(h_lo * hsx, h_hi * hsx)
-    ax.grid(False)
-    ax.set_title("gain table over the envelope (node values in s)", fontsize=9)
+    return infeas
 
-    # right: K against the speed variable, one line per altitude breakpoint
+
+def _k_lines(axl, sch, env, d):
+    """Right panel: K against the speed variable, one line per altitude breakpoint (dotted outside the envelope)."""
     from matplotlib import colormaps
+    from matplotlib.lines import Line2D
 
+    ssx, hsx, sb = d["ssx"], d["hsx"], d["sb"]
     cmap = colormaps[COLORMAP]
     styles = ("-", "--", "-.", ":", (0, (5, 1, 1, 1)), (0, (3, 1)))
     markers = ("o", "s", "^", "D", "v", "P", "X", "<", ">", "h")
-    sdense = np.linspace(s_lo, s_hi, _DENSE)
+    sdense = np.linspace(d["s_lo"], d["s_hi"], _DENSE)
     line_handles = []
-    for i, h in enumerate(hb):
-        col = cmap(0.05 + 0.65 * (i / max(hb.size - 1, 1)))  # stop short of the pale end: visible on white
+    for i, h in enumerate(d["hb"]):
+        col = cmap(0.05 + 0.65 * (i / max(d["hb"].size - 1, 1)))  # stop short of the pale end: visible on white
         ls, mk = styles[i % len(styles)], markers[i % len(markers)]
-        v = [np.full(sdense.size, h), sdense] if ia == 0 else [sdense, np.full(sdense.size, h)]
+        v = [np.full(sdense.size, h), sdense] if d["ia"] == 0 else [sdense, np.full(sdense.size, h)]
         kline = sch.gain_at(v)
         if env is not None:
-            a, b = _speed_range_in(env, sv, np.array([h]))
+            a, b = _speed_range_in(env, d["sv"], np.array([h]))
             inside = (sdense >= a[0] * (1 - 1e-9)) & (sdense <= b[0] * (1 + 1e-9))
         else:
             inside = np.ones(sdense.size, bool)
         axl.plot(sdense * ssx, kline, color=col, linewidth=0.8, linestyle=(0, (1, 2)), zorder=2)
         kin = np.where(inside, kline, np.nan)
         axl.plot(sdense * ssx, kin, color=col, linewidth=1.8, linestyle=ls, zorder=3)
-        axl.scatter(sb * ssx, G_hs[i], marker=mk, s=30, color=col, edgecolors=PALETTE["ink"], linewidths=0.6,
+        axl.scatter(sb * ssx, d["G_hs"][i], marker=mk, s=30, color=col, edgecolors=PALETTE["ink"], linewidths=0.6,
                     zorder=4)
         line_handles.append(Line2D([], [], color=col, linestyle=ls, marker=mk, markeredgecolor=PALETTE["ink"],
                                    markersize=5, linewidth=1.6, label=f"{h * hsx:.3g} km"))
-    axl.set_xlabel(_axis_label(sv))
+    axl.set_xlabel(_axis_label(d["sv"]))
     axl.set_ylabel("damper gain K (s)")
-    axl.set_ylim(bottom=0.0, top=kmax * 1.12)
+    axl.set_ylim(bottom=0.0, top=d["kmax"] * 1.12)
     axl.set_title("K along each altitude breakpoint", fontsize=9)
     axl.legend(handles=line_handles, fontsize=7.2, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=3,
                title="altitude breakpoint (dotted: outside the envelope at that altitude)", title_fontsize=7.2)
+
+
+def _legend_2d(with_outline, any_infeasible):
+    from matplotlib.lines import Line2D
 
     handles = [
         Line2D([], [], linestyle="none", marker="D", markerfacecolor="white", markeredgecolor=PALETTE["chosen"],
@@ -424,15 +484,12 @@ def _draw_gain_2d(case, result):
         Line2D([], [], linestyle="none", marker="o", markerfacecolor="none", markeredgecolor=PALETTE["limit"],
                markersize=8, markeredgewidth=1.4, label="fails a requirement"),
     ]
-    if outline_handle is not None:
+    if with_outline:
         handles.append(Line2D([], [], color=PALETTE["ink"], linewidth=1.3, label="flight envelope"))
-    if infeas.any():
+    if any_infeasible:
         handles.append(Line2D([], [], linestyle="none", marker="X", color=PALETTE["limit"], markersize=7,
                               label="node: no gain meets every requirement"))
-    ax.legend(handles=handles, loc="upper center", ncol=2, fontsize=7.2, bbox_to_anchor=(0.5, -0.13))
-    _title(fig, f"Gain schedule in altitude and {DISPLAY[sv][0]}: {hb.size} x {sb.size} nodes", case,
-           _verdict(result))
-    return fig
+    return handles
 
 
 # ---------------------------------------------------------------------------------

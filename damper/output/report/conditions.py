@@ -15,17 +15,8 @@ from ..runfiles import image_uri as _image
 from .format import FT, KT, R2D, DASH, _status, band_text, binding_text, complex_text, f, fixed, pct, requirement_label, roots_text, scaled, unit_text
 
 
-def _condition_view(i, c, slug, files, summary_cond):
-    m = c.get("measures") or {}
-    fl = m.get("flight") or {}
-    bare = (m.get("bare") or {}).get("short_period") or {}
-    cl = m.get("closed_loop") or {}
-    sp = cl.get("short_period") or {}
-    eq = cl.get("equivalent") or None
-    hq = cl.get("handling") or {}
-    mg = m.get("margins") or {}
-    other = cl.get("least_damped_other_mode") or {}
-
+def _criterion_rows(m) -> list:
+    """The requirement rows of one condition: missed first, then the case's order; the tightest marked."""
     criteria = []
     raw_criteria = m.get("criteria") or []
     finite_slacks = [k.get("slack") for k in raw_criteria if k.get("slack") is not None]
@@ -49,29 +40,36 @@ def _condition_view(i, c, slug, files, summary_cond):
             }
         )
     criteria.sort(key=lambda r: r["met"])  # missed first, then the case's order
+    return criteria
 
-    def sp_rows():
-        rows = [
-            ("damping ratio", "\u2013", f(bare.get("damping_ratio"), 3), f(sp.get("damping_ratio"), 3), f(eq.get("damping_ratio"), 3) if eq else DASH),
-            ("natural frequency", "rad/s", f(bare.get("natural_frequency_rad_s")), f(sp.get("natural_frequency_rad_s")), f(eq.get("natural_frequency_rad_s")) if eq else DASH),
-            ("period", "s", f(bare.get("period_s")), f(sp.get("period_s")), DASH),
-            ("time to half amplitude", "s", f(bare.get("time_to_half_s")), f(sp.get("time_to_half_s")), DASH),
-        ]
-        if bare.get("time_to_double_s") is not None:
-            rows.append(("time to double amplitude", "s", f(bare.get("time_to_double_s")), DASH, DASH))
-        return rows
 
-    equivalent = None
-    if eq:
-        equivalent = [
-            ("damping ratio \u03b6e", "\u2013", f(eq.get("damping_ratio"), 3)),
-            ("frequency \u03c9e", "rad/s", f(eq.get("natural_frequency_rad_s"))),
-            ("equivalent time delay \u03c4e", "s", f(eq.get("time_delay_s"), 3)),
-            ("zero 1/T\u03b82", "1/s", f(eq.get("inv_t_theta2_1_s"))),
-            ("gain Kq", "1/s", f(eq.get("gain_1_s"))),
-            ("mismatch J", "\u2013", f(eq.get("mismatch"), 3)),
-            ("fit converged", "", "yes" if eq.get("converged") else "NO"),
-        ]
+def _short_period_rows(bare, sp, eq) -> list:
+    rows = [
+        ("damping ratio", "\u2013", f(bare.get("damping_ratio"), 3), f(sp.get("damping_ratio"), 3), f(eq.get("damping_ratio"), 3) if eq else DASH),
+        ("natural frequency", "rad/s", f(bare.get("natural_frequency_rad_s")), f(sp.get("natural_frequency_rad_s")), f(eq.get("natural_frequency_rad_s")) if eq else DASH),
+        ("period", "s", f(bare.get("period_s")), f(sp.get("period_s")), DASH),
+        ("time to half amplitude", "s", f(bare.get("time_to_half_s")), f(sp.get("time_to_half_s")), DASH),
+    ]
+    if bare.get("time_to_double_s") is not None:
+        rows.append(("time to double amplitude", "s", f(bare.get("time_to_double_s")), DASH, DASH))
+    return rows
+
+
+def _equivalent_rows(eq):
+    if not eq:
+        return None
+    return [
+        ("damping ratio \u03b6e", "\u2013", f(eq.get("damping_ratio"), 3)),
+        ("frequency \u03c9e", "rad/s", f(eq.get("natural_frequency_rad_s"))),
+        ("equivalent time delay \u03c4e", "s", f(eq.get("time_delay_s"), 3)),
+        ("zero 1/T\u03b82", "1/s", f(eq.get("inv_t_theta2_1_s"))),
+        ("gain Kq", "1/s", f(eq.get("gain_1_s"))),
+        ("mismatch J", "\u2013", f(eq.get("mismatch"), 3)),
+        ("fit converged", "", "yes" if eq.get("converged") else "NO"),
+    ]
+
+
+def _handling_rows(hq) -> list:
     handling = [
         ("CAP (equivalent frequency)", unit_text(KINDS["cap"].unit), f(hq.get("cap_equivalent"))),
         ("CAP (modal frequency)", unit_text(KINDS["cap"].unit), f(hq.get("cap_modal"))),
@@ -86,10 +84,13 @@ def _condition_view(i, c, slug, files, summary_cond):
     ):
         if key in hq:
             handling.append((label, unit, f(hq.get(key))))
+    return handling
 
+
+def _margin_rows(cl, mg) -> list:
     # a null margin: no such crossing (unbounded) on a stable loop, no margin at all on an unstable one
     unb = "none (unbounded)" if cl.get("stable", True) else "none: closed loop unstable"
-    margins = [
+    return [
         ("gain margin, gain may rise by", "dB", f(mg.get("gain_margin_db"), 3, unb), f(mg.get("phase_crossover_rad_s"), 4, DASH)),
         ("gain margin, gain may fall by", "dB", f(mg.get("gain_margin_low_db"), 3, unb), DASH),
         ("phase margin (smallest magnitude)", "deg", f(mg.get("phase_margin_deg"), 3, unb), f(mg.get("gain_crossover_rad_s"), 4, DASH)),
@@ -98,7 +99,10 @@ def _condition_view(i, c, slug, files, summary_cond):
         ("disk gain margin", "\u00b1dB", f(mg.get("disk_gain_margin_db"), 3, unb), DASH),
         ("disk phase margin", "\u00b1deg", f(mg.get("disk_phase_margin_deg"), 3, unb), DASH),
     ]
-    crossings = [
+
+
+def _crossing_rows(mg) -> list:
+    return [
         # a crossing's offset is a margin only where it sets the reported one (table above)
         {"kind": "gain crossing |L| = 1", "w": f(x.get("frequency_rad_s")), "value": f(x.get("phase_margin_deg"), 4), "unit": "deg from \u2212180 deg"}
         for x in mg.get("gain_crossings") or []
@@ -107,6 +111,8 @@ def _condition_view(i, c, slug, files, summary_cond):
         for x in mg.get("phase_crossings") or []
     ]
 
+
+def _interval_rows(c) -> list:
     intervals = []
     for (a, b), e in zip(c.get("feasible_gains_s") or [], c.get("edges") or [None] * len(c.get("feasible_gains_s") or [])):
         lo = (e or {}).get("lower") or {}
@@ -119,14 +125,32 @@ def _condition_view(i, c, slug, files, summary_cond):
                 "high_binding": binding_text(hi.get("binding")) if hi else DASH,
             }
         )
+    return intervals
 
-    level = m.get("level") or {}
-    levels = [(requirement_label(k), str(v)) for k, v in level.items() if k != "overall"]
-    sweep = c.get("sweep_range_s") or [None, None]
+
+def _figure_rows(files, slug) -> list:
+    """The design family's figures of one condition, captions from :mod:`damper.output.figures.design`."""
     figures = []
     for kind in DESIGN_FIGURES:
         src = _image(files, [os.path.join("plots", f"{slug}-{kind.stem}")])
         figures.append({"src": src, "caption": kind.caption, "kind": kind.stem})
+    return figures
+
+
+def _condition_view(i, c, slug, files, summary_cond):
+    m = c.get("measures") or {}
+    fl = m.get("flight") or {}
+    bare = (m.get("bare") or {}).get("short_period") or {}
+    cl = m.get("closed_loop") or {}
+    sp = cl.get("short_period") or {}
+    eq = cl.get("equivalent") or None
+    mg = m.get("margins") or {}
+    other = cl.get("least_damped_other_mode") or {}
+    criteria = _criterion_rows(m)
+    intervals = _interval_rows(c)
+    level = m.get("level") or {}
+    levels = [(requirement_label(k), str(v)) for k, v in level.items() if k != "overall"]
+    sweep = c.get("sweep_range_s") or [None, None]
 
     return {
         "index": i,
@@ -153,24 +177,24 @@ def _condition_view(i, c, slug, files, summary_cond):
         "stable": cl.get("stable"),
         "ambiguous": bool(sp.get("ambiguous")),
         "closed_delay_model": cl.get("delay_model") or "",
-        "sp_rows": sp_rows(),
+        "sp_rows": _short_period_rows(bare, sp, eq),
         "bare_roots": roots_text(bare.get("roots")),
         "other_mode": {
             "damping": f(other.get("damping_ratio"), 3),
             "eigenvalue": complex_text(other.get("eigenvalue")),
         },
         "eigenvalues": roots_text(cl.get("eigenvalues")),
-        "equivalent": equivalent,
+        "equivalent": _equivalent_rows(eq),
         "equivalent_large_mismatch": bool(eq and eq.get("large_mismatch")),
-        "handling": handling,
+        "handling": _handling_rows(cl.get("handling") or {}),
         "longitudinal": longitudinal_rows(m, f),
-        "margins": margins,
-        "crossings": crossings,
+        "margins": _margin_rows(cl, mg),
+        "crossings": _crossing_rows(mg),
         "criteria": criteria,
         "missed": sum(1 for k in criteria if not k["met"]),
         "level": level.get("overall", DASH) if level else DASH,
         "levels": levels,
-        "figures": figures,
+        "figures": _figure_rows(files, slug),
         # summary row
         "zeta_eq": f(eq.get("damping_ratio"), 3) if eq else DASH,
         "zeta_modal": f(sp.get("damping_ratio"), 3),

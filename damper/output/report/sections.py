@@ -288,6 +288,23 @@ def _schedule_view(doc, files):
             ],
         )
     ]
+    blocks += _gain_table_blocks(variables, gains)
+    blocks += _breakpoint_blocks(doc)
+    blocks += _verification_blocks(doc, variables)
+    figures = _plot_dir_figures(files, ("schedule",))
+    return {
+        "error": None,
+        "headline": _part_headline(doc, "schedule") or (_headline(bool(doc.get("passed")), doc.get("message"))
+                                                          if isinstance(doc.get("passed"), bool) else None),
+        "blocks": blocks,
+        "figures": figures,
+        "warnings": [str(w) for w in doc.get("warnings") or []],
+    }
+
+
+def _gain_table_blocks(variables, gains) -> list:
+    """The gain table (one or two schedule variables)."""
+    blocks = []
     if len(variables) == 1:
         v = variables[0]
         rows = [[f(b), f(k)] for b, k in zip(v["breakpoints"], gains)]
@@ -298,6 +315,12 @@ def _schedule_view(doc, files):
         heads += [f(b) for b in v1["breakpoints"]]
         rows = [[f(b)] + [f(k) for k in row] for b, row in zip(v0["breakpoints"], gains)]
         blocks.append(_table("Gain table, K (s)", heads, rows, limit=500))
+    return blocks
+
+
+def _breakpoint_blocks(doc) -> list:
+    """The design at each breakpoint and the repair rounds."""
+    blocks = []
     bd = doc.get("breakpoint_design") or {}
     if bd.get("gain_s") is not None:
         n = len(bd["gain_s"])
@@ -322,6 +345,12 @@ def _schedule_view(doc, files):
             _table("Breakpoint repair rounds", ["breakpoints", "failing verification points"],
                    [[_cell(h.get("breakpoints")), _cell(h.get("failing_points"))] for h in hist], limit=100)
         )
+    return blocks
+
+
+def _verification_blocks(doc, variables) -> list:
+    """The verification summary and its points."""
+    blocks = []
     ver = doc.get("verification") or {}
     if ver:
         blocks.append(
@@ -357,15 +386,7 @@ def _schedule_view(doc, files):
                 fails,
             )
         )
-    figures = _plot_dir_figures(files, ("schedule",))
-    return {
-        "error": None,
-        "headline": _part_headline(doc, "schedule") or (_headline(bool(doc.get("passed")), doc.get("message"))
-                                                          if isinstance(doc.get("passed"), bool) else None),
-        "blocks": blocks,
-        "figures": figures,
-        "warnings": [str(w) for w in doc.get("warnings") or []],
-    }
+    return blocks
 
 
 def _interval_text(iv):
@@ -375,86 +396,19 @@ def _interval_text(iv):
 
 
 def _robustness_view(doc, files):
-    m = doc.get("method") or {}
-    conf = m.get("confidence")
-    blocks = [
-        _pairs(
-            "Method",
-            [
-                ("conditions studied", m.get("conditions_studied")),
-                ("samples", _cell(m.get("samples"))),
-                ("seed", _cell(m.get("seed"))),
-                ("confidence of the intervals", f"{100 * conf:.0f} %" if isinstance(conf, (int, float)) else None),
-                ("corners evaluated", f"{m.get('corners_evaluated')}" + (" (all)" if m.get("corners_complete") else "")),
-                ("loops evaluated", f"{m['loops_evaluated']:,}" if isinstance(m.get("loops_evaluated"), int)
-                 else _cell(m.get("loops_evaluated"))),
-                ("sampling", m.get("sampling")),
-                ("normal distributions", m.get("normal")),
-                ("corners", m.get("corners")),
-                ("worst-case refinement", m.get("refinement") if isinstance(m.get("refinement"), str) else _cell(m.get("refinement"))),
-                ("pass-fraction interval", m.get("interval")),
-                ("sensitivity", m.get("sensitivity")),
-                ("centre-of-gravity model", m.get("cg_model")),
-                ("frequency domain", m.get("frequency_domain")),
-            ],
-        )
-    ]
+    blocks = [_method_block(doc.get("method") or {})]
     params = doc.get("parameters") or []
     if params and all(isinstance(p, dict) for p in params):
-        cols = []
-        for p in params:
-            for k, v in p.items():
-                flat = _scalar(v) or (isinstance(v, list) and all(_scalar(x) for x in v))
-                if k not in cols and flat:
-                    cols.append(k)
-        cells = [[unit_text(p.get(k)) if k == "unit" else _cell(p.get(k)) for k in cols] for p in params]
-        block = _table("Uncertain parameters", [_head(k) for k in cols], cells, limit=200)
-        block["more"] = "the nominal value and bounds of every parameter at every condition are in robustness.json"
-        blocks.append(block)
-    rows, fails = [], []
-    worst_blocks, missed_at = [], []
+        blocks.append(_parameter_block(params))
+    rows, fails, worst_blocks = [], [], []
     for c in doc.get("conditions") or []:
-        pa = (c.get("pass") or {}).get("all") or {}
         worst = [w for w in c.get("worst") or [] if isinstance(w, dict)]
-        slack_of = lambda w: w["slack"] if isinstance(w.get("slack"), (int, float)) else (-1e300 if w.get("slack") == "-inf" else 1e300)  # noqa: E731
-        tightest = min(worst, key=slack_of) if worst else None
-        frac = pa.get("fraction")
-        worst_missed = bool(tightest) and slack_of(tightest) < 0
-        ok = frac is not None and frac >= 1.0 and not worst_missed
-        if worst_missed:
-            missed_at.append(c.get("name", ""))
-        rows.append(
-            [
-                c.get("name", ""),
-                f(c.get("gain_s")),
-                _cell((c.get("nominal") or {}).get("all_met")),
-                f"{pa.get('passed', DASH)} of {c.get('samples', DASH)}",
-                DASH if frac is None else f"{100 * frac:.1f} %",
-                _interval_text(pa.get("interval")),
-                requirement_label(tightest["criterion"]) if tightest else DASH,
-                (pct(tightest["slack"]) if isinstance(tightest.get("slack"), (int, float)) else str(tightest.get("slack"))) if tightest else DASH,
-                (c.get("sensitivity") or {}).get("top_driver") or DASH,
-                f"{(c.get('corners') or {}).get('passed_all', DASH)} of {(c.get('corners') or {}).get('evaluated', DASH)}",
-            ]
-        )
+        row, ok = _pass_row(c, worst)
+        rows.append(row)
         fails.append(not ok)
-        wrows, wfails = [], []
-        for w in worst:
-            sl = w.get("slack")
-            wrows.append(
-                [
-                    requirement_label(w.get("criterion")),
-                    (f(w.get("value")) + (f" {unit_text(w.get('unit'))}" if unit_text(w.get("unit")) else "")) if w.get("value") is not None else (w.get("value_note") or DASH),
-                    pct(sl) if isinstance(sl, (int, float)) else str(sl),
-                    _cell(w.get("met")),
-                    "; ".join(f"{k} {f(v)}" for k, v in (w.get("parameters") or {}).items()),
-                ]
-            )
-            wfails.append(w.get("met") is False)
-        if wrows:
-            worst_blocks.append(
-                _table(f"Worst cases found at {c.get('name', '')}", ["requirement", "worst value", "slack", "met", "parameters there"], wrows, wfails, limit=100)
-            )
+        block = _worst_block(c, worst)
+        if block is not None:
+            worst_blocks.append(block)
     blocks.append(
         _table(
             "Pass fraction per condition",
@@ -467,11 +421,7 @@ def _robustness_view(doc, files):
     )
     blocks += worst_blocks
     headline = _part_headline(doc, "robustness")
-    figures = _files_figures(
-        files,
-        doc.get("files") or [],
-        family_captions(ROBUSTNESS_FIGURES),
-    )
+    figures = _files_figures(files, doc.get("files") or [], family_captions(ROBUSTNESS_FIGURES))
     if not figures:
         figures = _plot_dir_figures(files, ("pass-fraction", "scatter-", "sensitivity-", "robust"))
     return {
@@ -481,6 +431,90 @@ def _robustness_view(doc, files):
         "figures": figures,
         "warnings": [str(w) for w in doc.get("warnings") or []],
     }
+
+
+def _method_block(m):
+    conf = m.get("confidence")
+    return _pairs(
+        "Method",
+        [
+            ("conditions studied", m.get("conditions_studied")),
+            ("samples", _cell(m.get("samples"))),
+            ("seed", _cell(m.get("seed"))),
+            ("confidence of the intervals", f"{100 * conf:.0f} %" if isinstance(conf, (int, float)) else None),
+            ("corners evaluated", f"{m.get('corners_evaluated')}" + (" (all)" if m.get("corners_complete") else "")),
+            ("loops evaluated", f"{m['loops_evaluated']:,}" if isinstance(m.get("loops_evaluated"), int)
+             else _cell(m.get("loops_evaluated"))),
+            ("sampling", m.get("sampling")),
+            ("normal distributions", m.get("normal")),
+            ("corners", m.get("corners")),
+            ("worst-case refinement", m.get("refinement") if isinstance(m.get("refinement"), str) else _cell(m.get("refinement"))),
+            ("pass-fraction interval", m.get("interval")),
+            ("sensitivity", m.get("sensitivity")),
+            ("centre-of-gravity model", m.get("cg_model")),
+            ("frequency domain", m.get("frequency_domain")),
+        ],
+    )
+
+
+def _parameter_block(params):
+    cols = []
+    for p in params:
+        for k, v in p.items():
+            flat = _scalar(v) or (isinstance(v, list) and all(_scalar(x) for x in v))
+            if k not in cols and flat:
+                cols.append(k)
+    cells = [[unit_text(p.get(k)) if k == "unit" else _cell(p.get(k)) for k in cols] for p in params]
+    block = _table("Uncertain parameters", [_head(k) for k in cols], cells, limit=200)
+    block["more"] = "the nominal value and bounds of every parameter at every condition are in robustness.json"
+    return block
+
+
+def _slack_of(w):
+    """A worst case's slack as a number for ordering (``"-inf"`` lowest, non-numbers highest)."""
+    return w["slack"] if isinstance(w.get("slack"), (int, float)) else (-1e300 if w.get("slack") == "-inf" else 1e300)
+
+
+def _pass_row(c, worst):
+    """One condition's row of the pass-fraction table, and whether it passes (every sample, no worst case missed)."""
+    pa = (c.get("pass") or {}).get("all") or {}
+    tightest = min(worst, key=_slack_of) if worst else None
+    frac = pa.get("fraction")
+    worst_missed = bool(tightest) and _slack_of(tightest) < 0
+    ok = frac is not None and frac >= 1.0 and not worst_missed
+    row = [
+        c.get("name", ""),
+        f(c.get("gain_s")),
+        _cell((c.get("nominal") or {}).get("all_met")),
+        f"{pa.get('passed', DASH)} of {c.get('samples', DASH)}",
+        DASH if frac is None else f"{100 * frac:.1f} %",
+        _interval_text(pa.get("interval")),
+        requirement_label(tightest["criterion"]) if tightest else DASH,
+        (pct(tightest["slack"]) if isinstance(tightest.get("slack"), (int, float)) else str(tightest.get("slack"))) if tightest else DASH,
+        (c.get("sensitivity") or {}).get("top_driver") or DASH,
+        f"{(c.get('corners') or {}).get('passed_all', DASH)} of {(c.get('corners') or {}).get('evaluated', DASH)}",
+    ]
+    return row, ok
+
+
+def _worst_block(c, worst):
+    """The table of one condition's worst cases (None without any)."""
+    wrows, wfails = [], []
+    for w in worst:
+        sl = w.get("slack")
+        wrows.append(
+            [
+                requirement_label(w.get("criterion")),
+                (f(w.get("value")) + (f" {unit_text(w.get('unit'))}" if unit_text(w.get("unit")) else "")) if w.get("value") is not None else (w.get("value_note") or DASH),
+                pct(sl) if isinstance(sl, (int, float)) else str(sl),
+                _cell(w.get("met")),
+                "; ".join(f"{k} {f(v)}" for k, v in (w.get("parameters") or {}).items()),
+            ]
+        )
+        wfails.append(w.get("met") is False)
+    if not wrows:
+        return None
+    return _table(f"Worst cases found at {c.get('name', '')}", ["requirement", "worst value", "slack", "met", "parameters there"], wrows, wfails, limit=100)
 
 
 def _section_view(doc, files, dedicated, prefix):
