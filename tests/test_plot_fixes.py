@@ -55,7 +55,7 @@ def _result(conds, criteria=("damping_ratio", "gain_margin")):
 
 def test_pass_fraction_axis_is_the_whole_scale_and_never_reads_100_for_1999():
     case = SimpleNamespace(title="Invented case")
-    with matplotlib.rc_context(robustness_plots._RC):
+    with matplotlib.rc_context(style.ROBUSTNESS_RC):
         fig = robustness_plots._draw_pass(case, _result([_cond("a", 2000), _cond("b", 1999)]))
     ax = fig.axes[0]
     lo, hi = ax.get_xlim()

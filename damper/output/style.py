@@ -1,8 +1,11 @@
 """The look and the files of every figure: palette, line styles, rc settings, DPI, figure creation
 and atomic saving, file-name rules, and small axis helpers.
 
-Shared by :mod:`damper.output.figures.design`, :mod:`damper.output.figures.root_locus`,
-:mod:`damper.output.figures.loop_response` and :mod:`damper.output.figures.schedule`. matplotlib is
+Used by every module of :mod:`damper.output.figures`: :data:`PALETTE` and :data:`LINES` for
+the design, schedule and compare figures, :data:`SAMPLE_COLOURS` and :data:`ROBUSTNESS_RC` for
+the robustness figures, :data:`HISTORY_COLOURS` and :data:`HISTORY_RC` for the time histories;
+one :data:`DPI`; :func:`new_figure` and :func:`save_figure` (atomic, formats chosen per run);
+the file-name rules :func:`safe_name`, :func:`plot_slugs` and :func:`label_slug`. matplotlib is
 imported inside the functions, so importing this module is cheap.
 """
 
@@ -34,6 +37,8 @@ PALETTE = {
     "critical": "#555555",  # 0 dB / -180 deg / imaginary axis
 }
 COLORMAP = "cividis"  # gain colour scale: monotone in lightness
+#: Resolution of every PNG, dots per inch.
+DPI = 120
 LINES = {
     "primary": {"color": PALETTE["primary"], "linestyle": "-", "marker": "o", "markersize": 3.0, "linewidth": 1.6},
     "secondary": {
@@ -72,6 +77,41 @@ _RC = {
     "hatch.linewidth": 0.6,
 }
 
+#: Samples of an uncertainty study (Okabe-Ito colours, safe for the common colour-vision
+#: deficiencies; every series also has its own marker or hatch). Ink and grid as :data:`PALETTE`.
+SAMPLE_COLOURS = {
+    "ink": PALETTE["ink"],
+    "pass": "#0072B2",  # blue
+    "fail": "#D55E00",  # vermillion
+    "box": "#009E73",  # bluish green: requirement box
+    "box_fill": "#d6f0e8",
+    "nominal": "#000000",
+    "worst": "#CC79A7",  # reddish purple
+    "positive": "#56B4E9",  # sky blue
+    "negative": "#E69F00",  # orange
+    "grid": PALETTE["grid"],
+}
+#: rc settings of the robustness figures: the house settings with smaller legends, no hatch
+#: colour of their own and lighter grid lines.
+ROBUSTNESS_RC = {k: v for k, v in _RC.items() if k not in ("grid.alpha", "legend.edgecolor", "hatch.color")}
+ROBUSTNESS_RC.update({"legend.fontsize": 7.5, "svg.hashsalt": "damper-robust", "hatch.linewidth": 0.7})
+
+#: Time histories (responses, failures): bare airframe, airframe with the damper, the input;
+#: limits in the palette's limit colour; light grid and zero line.
+HISTORY_COLOURS = {
+    "augmented": "#00696b",  # deep teal
+    "bare": "#a0785a",  # warm grey-brown
+    "input": "#5b5b8f",
+    "limit": PALETTE["limit"],
+    "grid": "#e4e4e4",
+    "zero": "#9a9a9a",
+    "subtitle": "#444444",
+}
+#: One colour per condition of a failure figure (least slack first).
+CONDITION_COLOURS = ("#8c2d19", "#1d5c8f", "#5d7a1f", "#6b4a8a")
+#: rc settings of the time-history figures: no top and right spines.
+HISTORY_RC = {"font.size": 8.5, "axes.spines.top": False, "axes.spines.right": False, "svg.hashsalt": "damper"}
+
 
 # ---------------------------------------------------------------------------------
 # helpers
@@ -84,10 +124,11 @@ def _save(fig, stem):
     return save_figure(fig, stem, DPI)
 
 
-def _render(draw, stem, *args):
+def _render(draw, stem, *args, rc=None):
+    """Draw ``draw(*args)`` under the house rc settings (or `rc`) and save it as `stem`; the written paths."""
     import matplotlib
 
-    with matplotlib.rc_context(_RC):
+    with matplotlib.rc_context(_RC if rc is None else rc):
         fig = draw(*args)
         return _save(fig, stem)
 
@@ -182,7 +223,6 @@ def _delay_text(case):
 # ---------------------------------------------------------------------------------
 # figure creation and saving
 # ---------------------------------------------------------------------------------
-DPI = 120
 #: Formats a figure can be written in; the report embeds SVG when there is one, else PNG.
 KNOWN_FORMATS = ("png", "svg")
 #: The formats of this process's figures (set once per run by the command, and in the plot

@@ -9,15 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..style import new_figure, save_figure
-from ..style import _RC, DPI, LINES, PALETTE, _plain_log_label  # the house style
-
-
-def _render(draw, stem, *args):
-    import matplotlib
-
-    with matplotlib.rc_context(_RC):
-        return save_figure(draw(*args), stem, DPI)
+from ..style import LINES, PALETTE, _plain_log_label, _render, new_figure  # the house style
 
 
 def _line(ax, x, y, which, label):

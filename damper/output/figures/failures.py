@@ -13,12 +13,12 @@ import math
 
 import numpy as np
 
+from ..style import CONDITION_COLOURS, HISTORY_COLOURS, HISTORY_RC
 from .kinds import FigureKind
 
 R2D = 180.0 / math.pi
-#: Our line colours, one per condition (least slack first), and the limits'.
-CONDITION_COLOURS = ("#8c2d19", "#1d5c8f", "#5d7a1f", "#6b4a8a")
-LIMIT_COLOUR = "#b3362b"
+#: The limits' colour, as in every time-history figure.
+LIMIT_COLOUR = HISTORY_COLOURS["limit"]
 STEM = "failures-hardover"
 #: The family's one figure.
 HARDOVER = FigureKind(STEM, "hardover failures at the conditions with the least slack: the airframe's motion until the "
@@ -73,8 +73,7 @@ def plot_hardovers(stem, curves, bands, title, subtitle=""):
 
     from ..style import new_figure, save_figure
 
-    style = {"font.size": 8.5, "axes.spines.top": False, "axes.spines.right": False, "svg.hashsalt": "damper"}
-    with matplotlib.rc_context(style):
+    with matplotlib.rc_context(HISTORY_RC):
         fig = new_figure(7.5, 9.0)
         fig.subplots_adjust(left=1.0 / 7.5, right=1.0 - 0.15 / 7.5, bottom=0.5 / 9.0, top=1.0 - 1.05 / 9.0,
                             hspace=0.14)
@@ -88,8 +87,8 @@ def plot_hardovers(stem, curves, bands, title, subtitle=""):
                 for j, edge in enumerate(band):
                     ax.axhline(edge * scale, color=LIMIT_COLOUR, lw=1.0, ls="--", label="limit" if j == 0 else None)
             ax.set_ylabel(label)
-            ax.grid(True, color="#e4e4e4", lw=0.6)
-            ax.axhline(0.0, color="#9a9a9a", lw=0.5)
+            ax.grid(True, color=HISTORY_COLOURS["grid"], lw=0.6)
+            ax.axhline(0.0, color=HISTORY_COLOURS["zero"], lw=0.5)
         axes[0].legend(loc="lower left", bbox_to_anchor=(0.0, 1.02), ncol=3, fontsize=7.0, frameon=False)
         axes[-1].set_xlabel("time after the failure, s")
         t = curves[0][2].time
@@ -97,5 +96,5 @@ def plot_hardovers(stem, curves, bands, title, subtitle=""):
         fig.align_ylabels(axes)
         fig.suptitle(title, fontsize=10, x=0.02, y=0.985, ha="left")
         if subtitle:
-            fig.text(0.02, 0.952, subtitle, fontsize=7.5, ha="left", color="#444444")
-        return save_figure(fig, stem, dpi=110)
+            fig.text(0.02, 0.952, subtitle, fontsize=7.5, ha="left", color=HISTORY_COLOURS["subtitle"])
+        return save_figure(fig, stem)

@@ -10,13 +10,13 @@ import math
 
 import numpy as np
 
-from ..style import label_slug
+from ..style import HISTORY_COLOURS, HISTORY_RC, label_slug
 
-#: Our plot colours: augmented (deep teal), bare (warm grey-brown), limits (brick red).
-AUGMENTED_COLOUR = "#00696b"
-BARE_COLOUR = "#a0785a"
-LIMIT_COLOUR = "#b3362b"
-INPUT_COLOUR = "#5b5b8f"
+#: The time-history colours of :mod:`damper.output.style`.
+AUGMENTED_COLOUR = HISTORY_COLOURS["augmented"]
+BARE_COLOUR = HISTORY_COLOURS["bare"]
+LIMIT_COLOUR = HISTORY_COLOURS["limit"]
+INPUT_COLOUR = HISTORY_COLOURS["input"]
 
 R2D = 180.0 / math.pi
 
@@ -91,8 +91,7 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
 
     t = bare.time[::stride]
     note, exceeded = linear_range_note(bare, augmented)
-    style = {"font.size": 8.5, "axes.spines.top": False, "axes.spines.right": False, "svg.hashsalt": "damper"}
-    with matplotlib.rc_context(style):
+    with matplotlib.rc_context(HISTORY_RC):
         fig = new_figure(7.5, 10.0)
         # fixed margins (inches converted to fractions) instead of a layout pass: one draw per file
         top_in = 1.1 if note else 0.7
@@ -105,10 +104,10 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
         fig.align_ylabels(axes)
         fig.suptitle(title, fontsize=10, x=0.02, y=0.985, ha="left")
         if subtitle:
-            fig.text(0.02, 0.955, subtitle, fontsize=8, ha="left", color="#444444")
+            fig.text(0.02, 0.955, subtitle, fontsize=8, ha="left", color=HISTORY_COLOURS["subtitle"])
         if note:
             _linear_range_marks(fig, axes, note, exceeded)
-        written = save_figure(fig, stem, dpi=110)
+        written = save_figure(fig, stem)
     return written
 
 
@@ -129,8 +128,8 @@ def _response_curves(axes, t, bare, augmented, stride, rate_limit, travel):
         ax.plot(t, s(bare, name, scale), color=BARE_COLOUR, lw=1.2, label="bare airframe (K = 0)")
         ax.plot(t, s(augmented, name, scale), color=AUGMENTED_COLOUR, lw=1.6, label="with damper")
         ax.set_ylabel(label)
-        ax.grid(True, color="#e4e4e4", lw=0.6)
-        ax.axhline(0.0, color="#9a9a9a", lw=0.5)
+        ax.grid(True, color=HISTORY_COLOURS["grid"], lw=0.6)
+        ax.axhline(0.0, color=HISTORY_COLOURS["zero"], lw=0.5)
     ax_alpha = axes[1]
     if gust:
         ax_alpha.plot(t, s(augmented, "gust_alpha", R2D), color=INPUT_COLOUR, lw=1.0, ls=":",

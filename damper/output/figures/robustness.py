@@ -24,7 +24,8 @@ import os
 import numpy as np
 
 from ..documents.text import pct as _pct
-from ..style import new_figure, safe_name, save_figure
+from ..style import ROBUSTNESS_RC, _figure, _render, safe_name
+from ..style import SAMPLE_COLOURS as STYLE
 from .kinds import FigureKind
 
 #: The family's figures: ``pass-fraction``, then ``scatter-<nn>-<slug>`` and ``sensitivity-<nn>-<slug>`` per condition.
@@ -36,51 +37,6 @@ KINDS = (PASS_FRACTION, SCATTER, SENSITIVITY)
 # ---------------------------------------------------------------------------------
 # Plots
 # ---------------------------------------------------------------------------------
-#: Our visual identity for robustness plots (Okabe-Ito colours, safe for the common
-#: colour-vision deficiencies; every series also has its own marker or hatch).
-STYLE = {
-    "ink": "#222222",
-    "pass": "#0072B2",  # blue
-    "fail": "#D55E00",  # vermillion
-    "box": "#009E73",  # bluish green: requirement box
-    "box_fill": "#d6f0e8",
-    "nominal": "#000000",
-    "worst": "#CC79A7",  # reddish purple
-    "positive": "#56B4E9",  # sky blue
-    "negative": "#E69F00",  # orange
-    "grid": "#d0d0d0",
-}
-_RC = {
-    "font.family": "sans-serif",
-    "font.sans-serif": ["DejaVu Sans"],
-    "font.size": 9.0,
-    "axes.titlesize": 10.0,
-    "axes.labelsize": 9.0,
-    "axes.edgecolor": STYLE["ink"],
-    "axes.labelcolor": STYLE["ink"],
-    "axes.grid": True,
-    "axes.axisbelow": True,
-    "grid.color": STYLE["grid"],
-    "grid.linewidth": 0.6,
-    "xtick.color": STYLE["ink"],
-    "ytick.color": STYLE["ink"],
-    "legend.fontsize": 7.5,
-    "legend.framealpha": 0.92,
-    "svg.fonttype": "none",
-    "svg.hashsalt": "damper-robust",
-    "hatch.linewidth": 0.7,
-}
-DPI = 120
-
-
-def _figure(width, height):
-    return new_figure(width, height)
-
-
-def _save(fig, stem):
-    return save_figure(fig, stem, DPI)
-
-
 def _footer(fig, case, result):
     spec = result.spec
     fig.text(
@@ -118,11 +74,7 @@ def _band(result, name):
 
 def scatter_plot(case, result, i, stem):
     """Damping ratio against the smallest gain margin at condition `i`; returns the paths."""
-    import matplotlib
-
-    with matplotlib.rc_context(_RC):
-        fig = _draw_scatter(case, result, i)
-        return _save(fig, stem)
+    return _render(_draw_scatter, stem, case, result, i, rc=ROBUSTNESS_RC)
 
 
 def _draw_scatter(case, result, i):
@@ -270,11 +222,7 @@ def _point_at(result, i, w):
 
 def sensitivity_plot(case, result, i, stem):
     """Spearman rho of each parameter with the worst slack at condition `i`; returns the paths."""
-    import matplotlib
-
-    with matplotlib.rc_context(_RC):
-        fig = _draw_sensitivity(case, result, i)
-        return _save(fig, stem)
+    return _render(_draw_sensitivity, stem, case, result, i, rc=ROBUSTNESS_RC)
 
 
 def _draw_sensitivity(case, result, i):
@@ -313,11 +261,7 @@ def _draw_sensitivity(case, result, i):
 
 def pass_fraction_plot(case, result, stem, total=None):
     """Per-condition pass fraction with its confidence interval; returns the paths."""
-    import matplotlib
-
-    with matplotlib.rc_context(_RC):
-        fig = _draw_pass(case, result, total)
-        return _save(fig, stem)
+    return _render(_draw_pass, stem, case, result, total, rc=ROBUSTNESS_RC)
 
 
 def _draw_pass(case, result, total=None):

@@ -28,7 +28,7 @@ outside the envelope dropped); the points carry the computed values.
 Nothing here computes a measure: values come from the verification. Drawing-time geometry
 only: the envelope's speed limits and :meth:`Schedule.gain_at` on a dense grid.
 
-Visual identity: the palette of :mod:`damper.output.figures.design`; colour scales ``cividis``
+Visual identity: the palette of :mod:`damper.output.style`; colour scales ``cividis``
 (monotone in lightness, readable with the common colour-vision deficiencies and in
 greyscale); configurations differ by marker shape as well as colour; failures are ringed.
 matplotlib is imported inside the functions (Agg canvas, no pyplot state).
@@ -36,13 +36,11 @@ matplotlib is imported inside the functions (Agg canvas, no pyplot state).
 
 from __future__ import annotations
 
-from ..style import new_figure, save_figure  # noqa: E402
-
 import os
 
 import numpy as np
 
-from ..style import COLORMAP, DPI, PALETTE, _RC
+from ..style import COLORMAP, PALETTE, _RC, _figure, _save
 
 #: How each schedule / map variable is shown: (words, unit shown, factor from SI).
 DISPLAY = {
@@ -72,14 +70,6 @@ def _axis_label(var):
 
 def _style(i):
     return _CONFIG_STYLE[i % len(_CONFIG_STYLE)]
-
-
-def _figure(width, height):
-    return new_figure(width, height)
-
-
-def _save(fig, stem):
-    return save_figure(fig, stem, DPI)
 
 
 def _criterion(case, name):
