@@ -346,11 +346,13 @@ def _failures(args, case, design, out, command, jobs, written):
     import numpy as np
 
     from ..analysis.failure_run import run_failures
+    from ..analysis.failure_verdict import failure_verdict
     from ..output.documents.failures import write_failures
     from ..output.journal import part
 
     with part("failures"), current().stage("failures"):
         result = run_failures(case, np.array([c.chosen_gain for c in design.conditions]))
-        text, files, verdict = write_failures(out, case, result, command, jobs=None if args.no_plots else jobs)
+        text, files, verdict = write_failures(out, case, result, command, failure_verdict(result),
+                                              jobs=None if args.no_plots else jobs)
     written.append(files)
     return text, verdict

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 
-from ...analysis.failure_verdict import LIMIT_KEYS, LIMIT_WORDS, failure_verdict
+from ...analysis.failure_verdict import LIMIT_KEYS, LIMIT_WORDS
 from ...analysis.failure_verdict import deg_range as _deg_range
 from .jsonout import CAUTION, num, provenance, with_verdict
 from .text import fmt, table
@@ -51,15 +51,15 @@ def _saturation(rows) -> list:
              "peak_damper_demand_rad": num(s.peak_damper_demand_rad), "duration_s": num(s.duration_s)} for s in rows]
 
 
-def failures_document(case, run, command=None, files=(), verdict=None) -> dict:
+def failures_document(case, run, verdict, command=None, files=()) -> dict:
     """The failures.json document (SI units; null for NaN and unbounded values).
 
     Per condition ``failures`` follows the design.json contract of docs/failures.md; beside it
     ``saturation`` (per response input: time at the authority limit, at its rate limit, the
     largest damper demand). At top level ``failures`` (the common window) and ``verdict``
-    (`verdict`, default :func:`failure_verdict` of `run`).
+    (`verdict`: :func:`damper.analysis.failure_verdict.failure_verdict` of `run`, built once
+    by the caller).
     """
-    verdict = verdict if verdict is not None else failure_verdict(run)
     conds = [{"name": n, "gain_s": num(g), "failures": rec, "saturation": _saturation(sat)}
              for n, g, rec, sat in zip(run.names, run.gains, run.records, run.saturation)]
     return with_verdict({
@@ -128,9 +128,12 @@ def _limits_text(limits) -> str:
     return ", ".join(out)
 
 
-def write_failures(out, case, run, command, jobs=None, title=None):
+def write_failures(out, case, run, command, verdict, jobs=None, title=None):
     """Write failures.json (and queue the hardover figure on `jobs`, a
     :class:`~damper.output.background.PlotJobs`, when given).
+
+    `verdict` is :func:`damper.analysis.failure_verdict.failure_verdict` of `run` (the part
+    ``failures`` of the run's verdict), returned as given.
 
     Returns
     -------
@@ -153,10 +156,9 @@ def write_failures(out, case, run, command, jobs=None, title=None):
         for fn, args in failure_plot_jobs(run, out, title or case.title):
             jobs.submit(fn, *args)
             files += [f"{os.path.relpath(args[0], out)}.{fmt}" for fmt in formats()]  # the names save_figure writes
-    verdict = failure_verdict(run)
-    doc = failures_document(case, run, command=command, files=files, verdict=verdict)
+    doc = failures_document(case, run, verdict, command=command, files=files)
     write_atomic(os.path.join(out, "failures.json"), dumps(doc))
     return failures_summary(doc), "failures.json" + (f" with {len(files)} failure plot files" if files else ""), verdict
 
 
-__all__ = ["failure_verdict", "failures_document", "failures_summary", "write_failures"]
+__all__ = ["failures_document", "failures_summary", "write_failures"]
