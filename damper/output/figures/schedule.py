@@ -41,6 +41,13 @@ import os
 import numpy as np
 
 from ..style import COLORMAP, PALETTE, _RC, _figure, _save
+from .kinds import FigureKind
+
+#: The family's figures (``plots/<stem>.png`` / ``.svg``); the captions are the report's.
+GAIN = FigureKind("schedule-gain", "schedule gain")
+DAMPING_MAP = FigureKind("schedule-damping-map", "schedule damping map")
+MARGIN_MAP = FigureKind("schedule-margin-map", "schedule margin map")
+KINDS = (GAIN, DAMPING_MAP, MARGIN_MAP)
 
 #: How each schedule / map variable is shown: (words, unit shown, factor from SI).
 DISPLAY = {
@@ -509,9 +516,9 @@ def schedule_plots(case, result, out_dir):
     paths = []
     one_d = len(result.schedule.variables) == 1
     jobs = (
-        ("schedule-gain", _draw_gain_1d if one_d else _draw_gain_2d),
-        ("schedule-damping-map", _draw_damping_map),
-        ("schedule-margin-map", _draw_margin_map),
+        (GAIN.stem, _draw_gain_1d if one_d else _draw_gain_2d),
+        (DAMPING_MAP.stem, _draw_damping_map),
+        (MARGIN_MAP.stem, _draw_margin_map),
     )
     with matplotlib.rc_context(_RC):
         for stem, draw in jobs:
@@ -520,4 +527,4 @@ def schedule_plots(case, result, out_dir):
     return paths
 
 
-__all__ = ["DISPLAY", "schedule_plots"]
+__all__ = ["DAMPING_MAP", "DISPLAY", "GAIN", "KINDS", "MARGIN_MAP", "schedule_plots"]

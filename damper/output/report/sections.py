@@ -11,6 +11,7 @@ import re
 
 from .format import DASH, _status, binding_text, f, key_label, pct, requirement_label, unit_text
 from ..figures.robustness import KINDS as ROBUSTNESS_FIGURES
+from ..figures.schedule import KINDS as SCHEDULE_FIGURES
 from ..runfiles import image_uri as _image
 
 
@@ -207,7 +208,8 @@ def _files_figures(files, names, captions=None):
         src = _image(files, [stem, os.path.join("plots", stem)])
         if src:
             base = os.path.basename(stem)
-            out.append({"src": src, "caption": (captions or {}).get(base.split("-")[0], base.replace("-", " "))})
+            caps = captions or {}  # by the whole stem, else by its first word
+            out.append({"src": src, "caption": caps.get(base, caps.get(base.split("-")[0], base.replace("-", " ")))})
     return out
 
 
@@ -291,7 +293,7 @@ def _schedule_view(doc, files):
     blocks += _gain_table_blocks(variables, gains)
     blocks += _breakpoint_blocks(doc)
     blocks += _verification_blocks(doc, variables)
-    figures = _plot_dir_figures(files, ("schedule",))
+    figures = _plot_dir_figures(files, ("schedule",), {k.stem: k.caption for k in SCHEDULE_FIGURES})
     return {
         "error": None,
         "headline": _part_headline(doc, "schedule") or (_headline(bool(doc.get("passed")), doc.get("message"))
