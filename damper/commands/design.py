@@ -270,10 +270,12 @@ def _analyses(args, case, design, out, command, jobs, written):
         with part("schedule"):
             written += write_schedule(out, case, schedule, command=command, verdict=verdict)
             if not args.no_plots:  # drawn here while the worker draws the search's figures
+                from ..analysis.envelope_view import envelope_view
                 from ..output.figures.schedule import schedule_plots
 
                 with current().stage("schedule plots"):
-                    written.append(f"{len(schedule_plots(case, schedule, out))} schedule plot files in plots/")
+                    paths = schedule_plots(case, schedule, out, envelope_view(case, schedule))
+                    written.append(f"{len(paths)} schedule plot files in plots/")
     if design is not None and not args.no_responses:
         import numpy as np
 

@@ -96,23 +96,12 @@ def _fmt_band(band, unit=""):
     return f"<= {hi:.3g}{u}"
 
 
-def _envelope(case, result):
-    """The case's Envelope, or None (schedule over conditions)."""
-    if result.source != "envelope":
-        return None
-    from ...analysis.envelope import envelope_from_case
-
-    return envelope_from_case(case)[0]
-
-
 def _outline_tas(env, n=121):
     """Envelope outline as (true airspeed m/s, altitude m): lower edge up, upper edge down."""
-    from ...analysis.envelope import speed_limits
-
     h = np.linspace(env.altitude[0], env.altitude[1], n) if env.altitude[1] > env.altitude[0] else np.array(
         [env.altitude[0]]
     )
-    lo, hi = speed_limits(env, h)
+    lo, hi = env.speed_limits(h)
     ok = np.isfinite(lo) & np.isfinite(hi)
     h, lo, hi = h[ok], lo[ok], hi[ok]
     if h.size == 0:
@@ -154,7 +143,7 @@ def _verdict(result):
 # ---------------------------------------------------------------------------------
 # 1. gain against the schedule variable
 # ---------------------------------------------------------------------------------
-def _draw_gain_1d(case, result):
+def _draw_gain_1d(case, result, env):
     sch = result.schedule
     var = sch.variables[0]
     bp = np.asarray(sch.breakpoints[0], float)
@@ -307,17 +296,8 @@ def _legend_1d(law_handles, bp_label, conf_handles, any_bad):
     return handles
 
 
-def _speed_range_in(env, var, h):
-    """Envelope speed range at altitudes `h`, expressed in schedule variable `var` (SI)."""
-    from ...analysis.envelope import speed_limits, variable_value
-
-    lo, hi = speed_limits(env, h)
-    return variable_value(var, h, lo), variable_value(var, h, hi)
-
-
-def _draw_gain_2d(case, result):
+def _draw_gain_2d(case, result, env):
     d = _grid_2d(result)
-    env = _envelope(case, result)
     fig = _figure(11.6, 5.0)
     gs = fig.add_gridspec(1, 4, width_ratios=(1.0, 0.04, 0.17, 0.85), wspace=0.04, left=0.06, right=0.985, top=0.84,
                           bottom=0.25)
@@ -393,7 +373,7 @@ def _outline_2d(ax, env, d):
     """The flight envelope in (speed variable, altitude); returns its line (None when nothing to draw)."""
     ssx, hsx = d["ssx"], d["hsx"]
     h_o = np.linspace(env.altitude[0], env.altitude[1], 121)
-    lo_s, hi_s = _speed_range_in(env, d["sv"], h_o)
+    lo_s, hi_s = env.speed_range_in(d["sv"], h_o)
     ok = np.isfinite(lo_s) & np.isfinite(hi_s)
     if not ok.any():
         return None
@@ -450,7 +430,7 @@ def _k_lines(axl, sch, env, d):
         v = [np.full(sdense.size, h), sdense] if d["ia"] == 0 else [sdense, np.full(sdense.size, h)]
         kline = sch.gain_at(v)
         if env is not None:
-            a, b = _speed_range_in(env, d["sv"], np.array([h]))
+            a, b = env.speed_range_in(d["sv"], np.array([h]))
             inside = (sdense >= a[0] * (1 - 1e-9)) & (sdense <= b[0] * (1 + 1e-9))
         else:
             inside = np.ones(sdense.size, bool)
@@ -492,7 +472,7 @@ def _legend_2d(with_outline, any_infeasible):
 # ---------------------------------------------------------------------------------
 # all of them
 # ---------------------------------------------------------------------------------
-def schedule_plots(case, result, out_dir):
+def schedule_plots(case, result, out_dir, envelope=None):
     """Write the schedule plots of `result` into ``<out_dir>/plots/``.
 
     Parameters
@@ -501,6 +481,9 @@ def schedule_plots(case, result, out_dir):
     result : damper.analysis.schedule.ScheduleResult
     out_dir : path
         Run directory; the files go to its ``plots`` sub-directory.
+    envelope : EnvelopeView or None
+        :func:`damper.analysis.envelope_view.envelope_view` of `case` and `result` (None: a
+        schedule over the case's conditions, drawn without an envelope).
 
     Returns
     -------
@@ -522,7 +505,7 @@ def schedule_plots(case, result, out_dir):
     )
     with matplotlib.rc_context(_RC):
         for stem, draw in jobs:
-            fig = draw(case, result)
+            fig = draw(case, result, envelope)
             paths += _save(fig, os.path.join(plot_dir, stem))
     return paths
 

@@ -7,7 +7,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..style import COLORMAP, PALETTE
-from .schedule import DISPLAY, _FAIL_RING, _criterion, _draw_outline, _envelope, _figure, _outline_tas, _title, _verdict
+from .schedule import DISPLAY, _FAIL_RING, _criterion, _draw_outline, _figure, _outline_tas, _title, _verdict
 
 
 # ---------------------------------------------------------------------------------
@@ -29,11 +29,9 @@ def _triangulation(env, v, h):
     except (ValueError, RuntimeError):
         return None
     if env is not None:
-        from ...analysis.envelope import inside
-
         cv = v[tri.triangles].mean(1)
         ch = h[tri.triangles].mean(1)
-        tri.set_mask(~inside(env, ch, cv, tol=1e-6))
+        tri.set_mask(~env.inside(ch, cv, tol=1e-6))
     return tri
 
 
@@ -46,26 +44,24 @@ def _unique_points(v, h, z):
 
 def _iso_lines(ax, env, sch, h_plot):
     """The schedule's breakpoints drawn over the (true airspeed, altitude) map, inside the envelope."""
-    from ...analysis.envelope import airspeed_for, speed_limits
-
     if env is None:
         return
-    lo, hi = speed_limits(env, h_plot)
+    lo, hi = env.speed_limits(h_plot)
     style = dict(color=PALETTE["critical"], linewidth=0.8, linestyle=(0, (1, 2)), zorder=2)
     for var, bps in zip(sch.variables, sch.breakpoints):
         for b in bps:
             if var == "altitude":
-                lo_b, hi_b = speed_limits(env, np.array([b]))
+                lo_b, hi_b = env.speed_limits(np.array([b]))
                 if np.isfinite(lo_b[0]):
                     ax.plot([lo_b[0], hi_b[0]], [b * 1e-3, b * 1e-3], **style)
                 continue
-            v = airspeed_for(var, np.full(h_plot.shape, b), h_plot)
+            v = env.airspeed_for(var, np.full(h_plot.shape, b), h_plot)
             ok = (v >= lo * (1 - 1e-9)) & (v <= hi * (1 + 1e-9))
             if ok.any():
                 ax.plot(np.where(ok, v, np.nan), h_plot * 1e-3, **style)
 
 
-def _map_figure(case, result, values, *, title, cbar_label, limits, undefined_label, undefined_means, unit=""):
+def _map_figure(case, result, env, values, *, title, cbar_label, limits, undefined_label, undefined_means, unit=""):
     """One panel per configuration: verification points coloured by `values`, limits as contours.
 
     `limits`: list of (value, words, linestyle); `undefined_means`: "met" (NaN drawn as the top of the
@@ -75,7 +71,6 @@ def _map_figure(case, result, values, *, title, cbar_label, limits, undefined_la
 
     ver = result.verification
     pts = ver.points
-    env = _envelope(case, result)
     conf = np.asarray(pts.configuration, int)
     names = result.configurations or tuple(f"configuration {i}" for i in range(int(conf.max()) + 1))
     n = len(names)
@@ -270,7 +265,7 @@ def _mid_colour():
     return colormaps[COLORMAP](0.55)
 
 
-def _draw_damping_map(case, result):
+def _draw_damping_map(case, result, env):
     band = _criterion(case, "damping_ratio")
     measure = case.requirements.damping_measure
     limits = []
@@ -278,7 +273,7 @@ def _draw_damping_map(case, result):
         limits = [(band[0], "damping band lower limit", (0, (6, 3))), (band[1], "damping band upper limit", "-.")]
     words = "equivalent-system" if measure == "equivalent" else "closed-loop modal"
     return _map_figure(
-        case, result, result.verification.damping_ratio,
+        case, result, env, result.verification.damping_ratio,
         title=f"Short-period damping ratio with the schedule ({words}, the measure the requirement judges)",
         cbar_label=f"damping ratio ({measure})",
         limits=limits,
@@ -287,11 +282,11 @@ def _draw_damping_map(case, result):
     )
 
 
-def _draw_margin_map(case, result):
+def _draw_margin_map(case, result, env):
     band = _criterion(case, "gain_margin")
     limits = [] if band is None else [(band[0], "gain-margin requirement", (0, (6, 3)))]
     return _map_figure(
-        case, result, result.verification.smallest_margin_db,
+        case, result, env, result.verification.smallest_margin_db,
         title="Smallest gain margin with the schedule (up or down, loop broken at the actuator, exact delay)",
         cbar_label="smallest gain margin (dB)",
         limits=limits,
