@@ -1,4 +1,4 @@
-"""The design report (damper/output/report.py): contents, escaping, self-containment, browser.
+"""The design report (damper/output/report/): contents, escaping, self-containment, browser.
 
 The browser test drives headless Chromium through its DevTools protocol with a small
 websocket client written here (standard library only). The page is opened in its own

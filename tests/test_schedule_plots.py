@@ -21,7 +21,7 @@ CASES = {
     "regional": os.path.join(ROOT, "cases", "regional_twinjet_envelope.yaml"),
     "uav": os.path.join(ROOT, "cases", "survey_uav_altitude.yaml"),
 }
-# [derived] the module docstring of damper/output/schedule_plots.py: three plots, PNG then SVG
+# [derived] the module docstring of damper/output/figures/schedule.py: three plots, PNG then SVG
 STEMS = ("schedule-gain", "schedule-damping-map", "schedule-margin-map")
 
 

@@ -113,7 +113,7 @@ def test_cap_has_one_unit_in_terminal_json_report_and_docs():
     assert unit in handling_table({"conditions": []})
     import glob
 
-    src = "".join(open(p, encoding="utf-8").read() for p in sorted(glob.glob(f"{ROOT}/damper/output/report*.py")))
+    src = "".join(open(p, encoding="utf-8").read() for p in sorted(glob.glob(f"{ROOT}/damper/output/report/*.py")))
     assert 'unit_text(KINDS["cap"].unit)' in src and "1/(s^2 g)" not in src
     assert unit_text(unit) == "(rad/s\u00b2)/g"
     with open(f"{ROOT}/docs/case-file.md", encoding="utf-8") as fh:
