@@ -80,3 +80,20 @@ def test_the_walk_finds_every_form_of_a_forbidden_import(tmp_path):
     bad = forbidden_imports(str(tmp_path / "damper" / "output"))
     lines = sorted({(line, mod.split(".")[1]) for _, line, mod in bad})
     assert lines == [(2, "model"), (5, "measures"), (6, "model")]  # [derived] the planted lines above
+
+
+def test_captions_live_with_their_figures_only():
+    """Source: issue 18 ("captions and labels come from the figures ..., not from copies"): every
+    family's FigureKind has a stem and a caption, stems are unique, and no caption is typed again
+    in the report's modules."""
+    import glob
+
+    from damper.output.figures import design, failures, robustness, schedule
+    from damper.output.figures.kinds import FigureKind
+
+    kinds = [k for family in (design, failures, robustness, schedule) for k in family.KINDS]
+    assert all(isinstance(k, FigureKind) and k.stem and k.caption for k in kinds)
+    assert len({k.stem for k in kinds}) == len(kinds)
+    report = "".join(open(p, encoding="utf-8").read() for p in glob.glob(os.path.join(ROOT, "damper", "output", "report", "*.py")))
+    copied = [k.caption for k in kinds if len(k.caption) > 25 and k.caption[:25] in report]
+    assert copied == []
