@@ -28,13 +28,14 @@ def design():
 
 def test_worker_process_draws_byte_identical_files(design, tmp_path):
     # common practice: output must not depend on which process draws it
-    from damper.output.plots import design_plot_jobs
+    from damper.analysis.design_figures import design_figure_inputs
+    from damper.output.figures.design import design_plot_jobs
 
     case, result = design
     here = tmp_path / "here"
     there = tmp_path / "there"
-    jobs_here = design_plot_jobs(case, result, here)[:4]
-    jobs_there = design_plot_jobs(case, result, there)[:4]
+    jobs_here = design_plot_jobs(case, result, design_figure_inputs(case, result), here)[:4]
+    jobs_there = design_plot_jobs(case, result, design_figure_inputs(case, result), there)[:4]
     paths_here = run_jobs(jobs_here)
     with PlotJobs(workers=1) as jobs:
         assert jobs.in_background

@@ -116,8 +116,8 @@ def test_many_small_blocks_spread_over_the_dask_workers_give_the_inline_result(s
     # several workers really share them and results arrive out of order
     from damper.analysis.robustness import robustness, uncertainty_spec
     from damper.case import load_case
-    from damper.output.jsonout import dumps
-    from damper.output.robustness_out import robustness_document
+    from damper.output.documents.jsonout import dumps
+    from damper.output.documents.robustness import robustness_document
 
     case = load_case(small[0])
     spec = uncertainty_spec(case, chunk=16, refine_iterations=6)

@@ -161,7 +161,7 @@ def test_schedules_compared_on_the_union_of_both_grids(tmp_path):
 
 
 def test_verdict_read_from_run_bs_verdict_objects():
-    from damper.output.compare_doc import verdict_of_run
+    from damper.output.documents.compare import verdict_of_run
 
     item = {"part": "robustness", "condition": "x", "requirement": "gain_margin", "met": False,
             "detail": {"value": 0.9, "lower": 0.95, "upper": None, "slack": -0.05, "unit": "1"}, "text": "90 %"}
@@ -199,7 +199,7 @@ def test_bad_input_is_one_line_exit_2(runs, tmp_path):
 
 
 def test_worse_counts_unbounded_slack_and_a_lower_pass_fraction():
-    from damper.output.compare_doc import compare_point, point_record
+    from damper.output.documents.compare import compare_point, point_record
 
     def entry(pm_slack, pm_met, gm_slack, k):
         crit = [{"name": "phase_margin", "slack": pm_slack, "met": pm_met},

@@ -101,9 +101,9 @@ def test_stability_source_is_what_every_case_gets():
 
 
 def test_every_criterion_has_a_report_row_with_its_label_and_unit():
-    from damper.output.design_doc import requirements_list
-    from damper.output.report_conditions import _requirements_view
-    from damper.output.report_format import requirement_label, unit_text
+    from damper.output.documents.design import requirements_list
+    from damper.output.report.conditions import _requirements_view
+    from damper.output.report.format import requirement_label, unit_text
 
     class _Case:
         requirements = _every_band_requirements()

@@ -309,7 +309,7 @@ def test_no_failures_option_and_cases_without_the_section(tmp_path):
 
 
 def test_report_section_reads_failures_json(run_a):
-    from damper.output.report import build_report
+    from damper.output.report.build import build_report
 
     _, doc, _, out = run_a
     html = build_report(out)

@@ -21,7 +21,8 @@ import pytest
 from damper.analysis.assess import assess
 from damper.case import load_case
 from damper.case.load import load_case_text
-from damper.output import loop_plot
+from damper.analysis.loop_curves import loop_curve
+from damper.output.figures import loop_response as loop_plot
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
@@ -44,9 +45,9 @@ def test_only_the_reported_phase_margin_is_labelled(tmp_path):
     seen_two = 0
     for i, cond in enumerate(case.conditions):
         stem = str(tmp_path / f"c{i}")
-        loop_plot.assessment_loop_plot(case, a, i, stem)
+        loop_plot.loop_response_plot(case, loop_curve(case, a, i), stem)
         text = svg_text(stem)
-        b = loop_plot.bode_data(case, a, i)
+        b = loop_curve(case, a, i)
         w, g, ph = b.frequency_rad_s, b.gain_db, b.phase_deg
         # [derived] gain crossings of the drawn curve: sign changes of |L| dB, linearly interpolated in log w
         k = np.nonzero(np.sign(g[:-1]) != np.sign(g[1:]))[0]
@@ -70,7 +71,7 @@ def test_range_is_chosen_from_the_loop_and_far_crossings_are_left_to_a_note(tmp_
     case = load_case(DEMO)
     a = assess(case, np.full(len(case.conditions), 0.19), with_bandwidth=False)
     i = 0
-    b = loop_plot.bode_data(case, a, i)
+    b = loop_curve(case, a, i)
     lo, hi = b.frequency_rad_s[0], b.frequency_rad_s[-1]
     wp = float(a.margins.phase_crossover_rad_s[i])
     wn = float(np.ravel(a.bare.natural_frequency)[i])
@@ -79,7 +80,7 @@ def test_range_is_chosen_from_the_loop_and_far_crossings_are_left_to_a_note(tmp_
     assert hi / lo < 1e4  # [derived] not the 6-decade default grid
     far = [x for x in np.asarray(a.margins.phase_crossings_rad_s)[i] if np.isfinite(x) and x > hi]
     stem = str(tmp_path / "far")
-    loop_plot.assessment_loop_plot(case, a, i, stem)
+    loop_plot.loop_response_plot(case, loop_curve(case, a, i), stem)
     text = svg_text(stem)
     assert far and f"{len(far)} phase crossings" in text  # counted, not drawn
     for x in far:
@@ -120,7 +121,7 @@ def test_unstable_loop_gets_no_margins(tmp_path, k):
     case = load_case_text(CASE, "loop.yaml")
     a = assess(case, k, with_bandwidth=False)
     stem = str(tmp_path / "lp")
-    loop_plot.assessment_loop_plot(case, a, 0, stem)
+    loop_plot.loop_response_plot(case, loop_curve(case, a, 0), stem)
     text = svg_text(stem)
     margins = [v for name, unit in (("gain margin", "dB"), ("phase margin", "deg")) for v in tagged(text, name, unit)]
     if oracle_stable(k):

@@ -20,8 +20,12 @@ from scipy.stats import beta
 
 from damper.analysis.search import search
 from damper.case import load_case
-from damper.output import plots, robustness_plots
-from damper.output.response_plots import linear_range_note
+from damper.analysis.locus import open_loop_poles
+from damper.output import style
+from damper.output.figures import design as plots
+from damper.output.figures.root_locus import root_locus
+from damper.output.figures import robustness as robustness_plots
+from damper.output.figures.responses import linear_range_note
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
@@ -51,7 +55,7 @@ def _result(conds, criteria=("damping_ratio", "gain_margin")):
 
 def test_pass_fraction_axis_is_the_whole_scale_and_never_reads_100_for_1999():
     case = SimpleNamespace(title="Invented case")
-    with matplotlib.rc_context(robustness_plots._RC):
+    with matplotlib.rc_context(style.ROBUSTNESS_RC):
         fig = robustness_plots._draw_pass(case, _result([_cond("a", 2000), _cond("b", 1999)]))
     ax = fig.axes[0]
     lo, hi = ax.get_xlim()
@@ -97,7 +101,7 @@ def test_chosen_gain_zero_is_marked_on_the_colour_bar_and_the_sweep(demo, tmp_pa
     zero = [i for i, c in enumerate(design.conditions) if c.chosen_gain == 0.0]
     assert zero  # [derived] SL-climb-aft: the bare airframe meets every requirement with the most slack
     i = zero[0]
-    plots.root_locus(case, design, i, tmp_path / "rl")
+    root_locus(case, design, i, tmp_path / "rl", open_loop_poles(case))
     text = svg_text(tmp_path / "rl.svg")
     assert "K = 0 s" in text and "below" in text  # the mark under the bar names its value
     plots.gain_sweep_plot(case, design, i, tmp_path / "sw")
@@ -106,10 +110,10 @@ def test_chosen_gain_zero_is_marked_on_the_colour_bar_and_the_sweep(demo, tmp_pa
 
 def test_gain_sweep_texts_stay_inside_the_figure(demo):
     case, design = demo
-    with matplotlib.rc_context(plots._RC):
+    with matplotlib.rc_context(style._RC):
         for i in range(len(design.conditions)):
             fig = plots._draw_sweep(case, design, i)
-            fig.set_dpi(plots.DPI)
+            fig.set_dpi(style.DPI)
             r = fig.canvas.get_renderer()
             for t in fig.texts:
                 box = t.get_window_extent(r)

@@ -11,7 +11,13 @@ import pytest
 from damper.analysis.assess import assess
 from damper.analysis.search import SearchSettings, search
 from damper.case import load_case
-from damper.output import loop_plot, plots
+from damper.analysis.design_figures import design_figure_inputs
+from damper.analysis.locus import open_loop_poles
+from damper.analysis.loop_curves import loop_curve
+from damper.output import style
+from damper.output.figures import design as plots
+from damper.output.figures import loop_response as loop_plot
+from damper.output.figures import root_locus as locus_plot
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
@@ -28,14 +34,14 @@ def demo():
 def written(demo, tmp_path_factory):
     case, design = demo
     out = tmp_path_factory.mktemp("run")
-    return out, plots.design_plots(case, design, out)
+    return out, plots.design_plots(case, design, design_figure_inputs(case, design), out)
 
 
 def test_every_condition_gets_three_plots_in_two_formats(demo, written):
     case, design = demo
     out, paths = written
     expected = {
-        os.path.join(str(out), "plots", f"{plots.safe_name(c.name)}-{kind}.{ext}")
+        os.path.join(str(out), "plots", f"{style.safe_name(c.name)}-{kind}.{ext}")
         for c in design.conditions
         for kind in KINDS
         for ext in ("png", "svg")
@@ -79,19 +85,19 @@ def _bode_at(case, assessment, i):
     extra = np.concatenate([m.gain_crossings_rad_s[i], m.phase_crossings_rad_s[i]])
     extra = extra[np.isfinite(extra) & (extra > 0)]
     w = np.unique(np.concatenate([case.settings.grid(), extra]))
-    return loop_plot.bode_data(case, assessment, i, w=w)
+    return loop_curve(case, assessment, i, w=w)
 
 
 def _check_annotations(b, tol_db=0.02, tol_deg=0.05):
     w = b.frequency_rad_s
-    for wc, pm in b.gain_crossings:
+    for wc, pm in b.gain_crossings_rad_s_deg:
         k = int(np.argmin(np.abs(w - wc)))
         # [derived] a gain crossing is |L| = 1, i.e. 0 dB on the drawn curve
         assert abs(b.gain_db[k]) < tol_db, (wc, b.gain_db[k])
         # [derived] PM = phase + 180 deg (mod 360): the drawn phase minus PM is -180 (mod 360)
         off = np.mod(b.phase_deg[k] - pm + 180.0 + 180.0, 360.0) - 180.0
         assert abs(off) < tol_deg, (wc, b.phase_deg[k], pm)
-    for wp, gm in b.phase_crossings:
+    for wp, gm in b.phase_crossings_rad_s_db:
         if wp == 0.0:
             continue
         k = int(np.argmin(np.abs(w - wp)))
@@ -106,11 +112,11 @@ def test_bode_annotations_agree_with_the_drawn_response_at_the_chosen_gains(demo
     case, design = demo
     for i in range(len(design.conditions)):
         b = _bode_at(case, design.chosen, i)
-        assert b.gain == pytest.approx(design.conditions[i].chosen_gain, rel=1e-12)
+        assert b.gain_s == pytest.approx(design.conditions[i].chosen_gain, rel=1e-12)
         gm = design.chosen.margins.gain_margin_db[i]
         if np.isfinite(gm):
             assert b.gain_margin_db == pytest.approx(gm)
-            assert any(g == pytest.approx(gm) for _, g in b.phase_crossings)  # the headline one is annotated
+            assert any(g == pytest.approx(gm) for _, g in b.phase_crossings_rad_s_db)  # the headline one is annotated
         _check_annotations(b)
 
 
@@ -122,9 +128,9 @@ def test_bode_annotations_with_gain_crossings(demo):
     for i in range(len(case.conditions)):
         b = _bode_at(case, a, i)
         _check_annotations(b)
-        seen += len(b.gain_crossings)
+        seen += len(b.gain_crossings_rad_s_deg)
         if np.isfinite(b.phase_margin_deg):
-            assert any(p == pytest.approx(b.phase_margin_deg) for _, p in b.gain_crossings)
+            assert any(p == pytest.approx(b.phase_margin_deg) for _, p in b.gain_crossings_rad_s_deg)
     assert seen >= len(case.conditions)  # [derived] 0.8 s is well above where |L| first reaches 1 (sweep data)
 
 
@@ -133,8 +139,8 @@ def test_an_infeasible_condition_still_gets_its_plots(demo, tmp_path):
     case, _ = demo
     design = search(case, SearchSettings(gain_min=1.0, gain_max=6.0, points=21))
     assert not design.conditions[0].feasible
-    paths = plots.root_locus(case, design, 0, tmp_path / "rl")
-    paths += loop_plot.loop_response_plot(case, design, 0, tmp_path / "bode")
+    paths = locus_plot.root_locus(case, design, 0, tmp_path / "rl", open_loop_poles(case))
+    paths += loop_plot.loop_response_plot(case, loop_curve(case, design.chosen, 0), tmp_path / "bode")
     paths += plots.gain_sweep_plot(case, design, 0, tmp_path / "sweep")
     assert len(paths) == 6 and all(os.path.getsize(p) > 5000 for p in paths)
     text = "".join(ET.parse(str(tmp_path / "sweep.svg")).getroot().itertext())
@@ -143,13 +149,13 @@ def test_an_infeasible_condition_still_gets_its_plots(demo, tmp_path):
 
 
 def test_safe_names():
-    assert plots.safe_name("SL climb / fwd: 20 %") == "sl-climb-fwd-20"
-    assert plots.safe_name("../..") == "condition"
-    assert plots.safe_name("CON") == "condition-con"
-    assert plots.safe_name("10kft-cruise-aft") == "10kft-cruise-aft"
+    assert style.safe_name("SL climb / fwd: 20 %") == "sl-climb-fwd-20"
+    assert style.safe_name("../..") == "condition"
+    assert style.safe_name("CON") == "condition-con"
+    assert style.safe_name("10kft-cruise-aft") == "10kft-cruise-aft"
 
 
 def test_importing_the_module_does_not_import_matplotlib():
-    code = "import sys, damper.output.plots; print('matplotlib' in sys.modules)"
+    code = "import sys, damper.output.figures.design; print('matplotlib' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT, check=True)
     assert out.stdout.strip() == "False"

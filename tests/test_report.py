@@ -1,4 +1,4 @@
-"""The design report (damper/output/report.py): contents, escaping, self-containment, browser.
+"""The design report (damper/output/report/): contents, escaping, self-containment, browser.
 
 The browser test drives headless Chromium through its DevTools protocol with a small
 websocket client written here (standard library only). The page is opened in its own
@@ -25,7 +25,7 @@ import pytest
 
 from damper.cli import main
 from damper.errors import DamperError
-from damper.output.report import build_report, write_report
+from damper.output.report.build import build_report, write_report
 
 from .conftest import ROOT
 from .shared_runs import REPORT_OPTIONS

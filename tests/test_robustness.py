@@ -31,8 +31,8 @@ from damper.case import load_case, load_case_text
 from damper.case.uncertainty import UncertainParameter, UncertaintySpec
 from damper.cli import main
 from damper.errors import CaseError
-from damper.output.jsonout import dumps
-from damper.output.robustness_out import robustness_document, robustness_table
+from damper.output.documents.jsonout import dumps
+from damper.output.documents.robustness import robustness_document, robustness_table
 
 from .conftest import ROOT
 

@@ -8,7 +8,7 @@ from damper.analysis.schedule import Schedule, bilinear, design_schedule
 from damper.atmosphere import standard_atmosphere
 from damper.case import load_case_text
 from damper.model.airframe import from_coefficients
-from damper.output import schedule_out
+from damper.output.documents import schedule as schedule_out
 
 # Invented test aircraft: constant coefficients, one altitude, a wide speed range so the
 # gain needed falls roughly as 1/q (control power grows with q).

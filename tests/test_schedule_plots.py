@@ -11,16 +11,17 @@ import xml.etree.ElementTree as ET
 import numpy as np
 import pytest
 
+from damper.analysis.envelope_view import envelope_view
 from damper.analysis.schedule import design_schedule
 from damper.case import load_case
-from damper.output.schedule_plots import schedule_plots
+from damper.output.figures.schedule import schedule_plots
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 CASES = {
     "regional": os.path.join(ROOT, "cases", "regional_twinjet_envelope.yaml"),
     "uav": os.path.join(ROOT, "cases", "survey_uav_altitude.yaml"),
 }
-# [derived] the module docstring of damper/output/schedule_plots.py: three plots, PNG then SVG
+# [derived] the module docstring of damper/output/figures/schedule.py: three plots, PNG then SVG
 STEMS = ("schedule-gain", "schedule-damping-map", "schedule-margin-map")
 
 
@@ -38,7 +39,7 @@ def written(designed, tmp_path_factory):
     out = {}
     for name, (case, result) in designed.items():
         run = tmp_path_factory.mktemp(name)
-        out[name] = (run, schedule_plots(case, result, run))
+        out[name] = (run, schedule_plots(case, result, run, envelope_view(case, result)))
     return out
 
 
@@ -121,7 +122,7 @@ def test_failures_and_undefined_values_are_drawn(designed, tmp_path):
     feasible = np.zeros_like(np.asarray(result.design.feasible, bool))
     res = dataclasses.replace(result, verification=bad, passed=False,
                               design=dataclasses.replace(result.design, feasible=feasible))
-    paths = schedule_plots(case, res, tmp_path)
+    paths = schedule_plots(case, res, tmp_path, envelope_view(case, res))
     assert len(paths) == 6  # [derived] same six files whatever the verdict
     _, gain_text = _svg_text(paths[1])
     assert "fails a requirement" in gain_text
@@ -137,7 +138,7 @@ def test_failures_and_undefined_values_are_drawn(designed, tmp_path):
 def test_svg_identical_on_rerun(designed, written, tmp_path):
     case, result = designed["regional"]
     _, first = written["regional"]
-    again = schedule_plots(case, result, tmp_path)
+    again = schedule_plots(case, result, tmp_path, envelope_view(case, result))
     # [derived] svg.hashsalt fixed and the date left out: a rerun writes the same bytes
     for a, b in zip(first, again):
         if a.endswith(".svg"):

@@ -155,7 +155,7 @@ def test_robust_reads_a_schedule_file_and_studies_its_tightest_points(tmp_path, 
 )
 def test_schedule_file_errors_name_the_field(tmp_path, change, words):
     from damper.errors import DamperError
-    from damper.output.schedule_out import schedule_from_table, table_dict
+    from damper.output.documents.schedule import schedule_from_table, table_dict
 
     case = _twinjet("")
     doc = json.loads(json.dumps(table_dict(design_schedule(case).schedule, case)))
@@ -170,7 +170,7 @@ def test_schedule_file_errors_name_the_field(tmp_path, change, words):
                                         ("survey_uav_altitude.yaml", "inverse_dynamic_pressure")])
 def test_schedule_file_reads_back_the_written_schedule(name, form):
     # gain-schedule.json (repr precision) read back gives the same gains everywhere
-    from damper.output.schedule_out import schedule_from_table, table_dict
+    from damper.output.documents.schedule import schedule_from_table, table_dict
 
     with open(os.path.join(ROOT, "cases", name), encoding="utf-8") as f:
         text = f.read()
@@ -185,7 +185,7 @@ def test_schedule_file_reads_back_the_written_schedule(name, form):
 
 def test_table_names_the_requirement_met_by_the_fewest_samples():
     # [derived] the column shows the criterion with the smallest pass count and its percentage
-    from damper.output.robustness_out import _most_missed
+    from damper.output.documents.robustness import _most_missed
 
     c = {"samples": 10, "pass": {"criteria": [
         {"name": "stability", "passed": 10, "fraction": 1.0},
@@ -201,8 +201,8 @@ def test_table_names_the_requirement_met_by_the_fewest_samples():
 @pytest.mark.parametrize("extra", ["", " with a much longer name than any envelope label would have"])
 def test_robustness_titles_fit_the_figure(extra):
     # a verification label as condition name makes long titles: they shrink or break, never clip
-    from damper.output.figures import DPI, new_figure
-    from damper.output.robustness_plots import _title
+    from damper.output.style import DPI, new_figure
+    from damper.output.figures.robustness import _title
 
     fig = new_figure(6.8, 5.0)
     fig.set_dpi(DPI)
@@ -214,8 +214,8 @@ def test_robustness_titles_fit_the_figure(extra):
 
 def test_pass_fraction_plot_fits_long_condition_names(tmp_path):
     # verification labels as condition names: every y tick label lies inside the figure
-    from damper.output.figures import DPI
-    from damper.output.robustness_plots import _draw_pass
+    from damper.output.style import DPI
+    from damper.output.figures.robustness import _draw_pass
 
     case = _twinjet(UNCERTAIN)
     study, gains, _ = schedule_study_case(case, design_schedule(case), 4)

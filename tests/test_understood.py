@@ -10,7 +10,7 @@ import json
 from damper.case import load_case_text
 from damper.case.written import plain_number_warnings
 from damper.cli import main
-from damper.output.understood import conditions_echo
+from damper.output.documents.understood import conditions_echo
 
 from .conftest import ROOT
 
@@ -101,19 +101,19 @@ def test_a_level_beside_a_failed_band_is_explained(capsys):
 
 
 def test_cap_has_one_unit_in_terminal_json_report_and_docs():
-    from damper.output.report import unit_text
+    from damper.output.report.format import unit_text
     from damper.requirements.criteria import KINDS
 
     unit = KINDS["cap"].unit
     assert unit == "(rad/s^2)/g"  # docs/theory.md: CAP = w^2 / (n/alpha) in (rad/s^2)/g
     with open(f"{ROOT}/docs/theory.md", encoding="utf-8") as fh:
         assert f"in {unit}" in fh.read()
-    from damper.output.text import handling_table
+    from damper.output.documents.text import handling_table
 
     assert unit in handling_table({"conditions": []})
     import glob
 
-    src = "".join(open(p, encoding="utf-8").read() for p in sorted(glob.glob(f"{ROOT}/damper/output/report*.py")))
+    src = "".join(open(p, encoding="utf-8").read() for p in sorted(glob.glob(f"{ROOT}/damper/output/report/*.py")))
     assert 'unit_text(KINDS["cap"].unit)' in src and "1/(s^2 g)" not in src
     assert unit_text(unit) == "(rad/s\u00b2)/g"
     with open(f"{ROOT}/docs/case-file.md", encoding="utf-8") as fh:

@@ -27,8 +27,8 @@ def run(args, argv) -> int:
     from ..case import load_case
     from ..cli import CAUTION_SHORT, warn_case
     from ..analysis.verdicts import assess_verdict
-    from ..output.jsonout import assess_document, dumps, with_verdict
-    from ..output.text import assess_table
+    from ..output.documents.jsonout import assess_document, dumps, with_verdict
+    from ..output.documents.text import assess_table
     from .gain_source import check_gain, resolve_gains
 
     check_gain(args.gain)
@@ -46,7 +46,7 @@ def run(args, argv) -> int:
     turbulence = turbulence_stage(case, gains.values)
     extra = ()
     if turbulence is not None:
-        from ..output.turbulence_out import add_turbulence
+        from ..output.documents.turbulence import add_turbulence
 
         add_turbulence(doc, turbulence.study, turbulence.checks)
         extra = turbulence.misses
@@ -61,12 +61,12 @@ def run(args, argv) -> int:
         if envelope:
             print(f"(no conditions in the case: evaluated at the {len(case.conditions)} envelope design points "
                   "that damper design starts its schedule from)")
-        from ..output.understood import echo_for, with_level_legend
+        from ..output.documents.understood import echo_for, with_level_legend
 
         print(echo_for(case))
         print(with_level_legend(assess_table(doc), case))
         if turbulence is not None:
-            from ..output.turbulence_out import turbulence_table
+            from ..output.documents.turbulence import turbulence_table
 
             print(f"continuous turbulence (Dryden, vertical; covariance analysis, delay as "
                   f"{turbulence.study.closed_loop.delay_model}); rates: expected excursions per second beyond the limit, "

@@ -88,7 +88,7 @@ def _pass_fractions(docs):
 
 
 def _condition_points(docs):
-    from ..output.compare_doc import point_record
+    from ..output.documents.compare import point_record
 
     pf = _pass_fractions(docs)
     return {c["name"]: ("condition", point_record(c, pf.get(c["name"])))
@@ -100,8 +100,8 @@ def _schedule_points(case, schedule, schedules, docs):
     import numpy as np
 
     from ..analysis.compare_points import union_grid_points
-    from ..output.compare_doc import point_record
-    from ..output.jsonout import condition_result
+    from ..output.documents.compare import point_record
+    from ..output.documents.jsonout import condition_result
 
     sp = union_grid_points(case, schedule, schedules)
     pf = _pass_fractions(docs)
@@ -115,17 +115,17 @@ def _schedule_points(case, schedule, schedules, docs):
 
 
 def run(args, argv) -> int:
-    from ..output.compare_doc import compare_document, compare_points, compare_table, verdict_lines, verdict_of_run
+    from ..output.documents.compare import compare_document, compare_points, compare_table, verdict_lines, verdict_of_run
     from ..output.files import write_atomic
     from ..output.journal import part
-    from ..output.jsonout import dumps
+    from ..output.documents.jsonout import dumps
     from ..output.rundir import RunDirectory
-    from ..output.schedule_out import schedule_from_table
+    from ..output.documents.schedule import schedule_from_table
     from ..cli import CAUTION_SHORT
     from ..verdict import EXIT_NOT_MET
 
     from ..errors import DamperError
-    from ..output.figures import use_option
+    from ..output.style import use_option
 
     use_option("png,svg")  # the report embeds the PNGs; the SVGs are for documents
     if any(os.path.realpath(args.out) == os.path.realpath(r) for r in (args.run_a, args.run_b)):
@@ -161,7 +161,7 @@ def run(args, argv) -> int:
             doc = compare_document(runs, rows, only_a, only_b, verdict, source, figures, notes)
             write_atomic(os.path.join(out.root, "compare.json"), dumps(doc))
             from .. import __version__
-            from ..output.compare_report import build_compare_report
+            from ..output.report.compare import build_compare_report
 
             write_atomic(os.path.join(out.root, "compare.html"), build_compare_report(doc, out.root, __version__))
         out.finish()
@@ -181,8 +181,8 @@ def _plots(root, rows, cases, evaluated):
     import numpy as np
 
     from ..analysis.compare_points import condition_sweep, sweep_gains
-    from ..output.compare_plots import overlay_sweep_plot, schedule_overlay_plot
-    from ..output.names import plot_slugs
+    from ..output.figures.compare import overlay_sweep_plot, schedule_overlay_plot
+    from ..output.style import plot_slugs
 
     figures = []
     chosen = [r for r in rows if r["kind"] == "condition"][:MAX_OVERLAYS]

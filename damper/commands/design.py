@@ -80,7 +80,7 @@ def options(args):
 
 def run(args, argv) -> int:
     _check_args(args)
-    from ..output.figures import use_option
+    from ..output.style import use_option
 
     use_option(args.figures)  # before anything is drawn (the plot worker inherits it)
     from ..analysis.pipeline import run_pipeline
@@ -107,7 +107,7 @@ def run(args, argv) -> int:
             result = run_pipeline(case, options(args), on_event=writer, progress=current())
             writer.finish(result)
         if not args.no_report:
-            from ..output.report import write_report
+            from ..output.report.build import write_report
             from ..output.runfiles import RunFiles
 
             with part("report"), current().stage("report"):
@@ -122,12 +122,12 @@ def run(args, argv) -> int:
 def _print(args, result, writer, out) -> None:
     """The run on the terminal: what was understood, the tables, the files, the verdict, the caution."""
     from ..cli import CAUTION_SHORT
-    from ..output.design_doc import design_table
+    from ..output.documents.design import design_table
 
     case, design, schedule, rob = result.case, result.design, result.schedule, result.robustness
     print(f"{case.title}")
     if design is not None:
-        from ..output.understood import echo_for, with_level_legend
+        from ..output.documents.understood import echo_for, with_level_legend
 
         print(echo_for(case, writer.design_doc))
         print(with_level_legend(design_table(writer.design_doc), case))
@@ -135,11 +135,11 @@ def _print(args, result, writer, out) -> None:
             print(f"figures drawn for {len(design.figures)} of {len(design.conditions)} conditions (the infeasible ones "
                   "and those with the least slack; --max-figures N to change)")
     if schedule is not None:
-        from ..output.schedule_out import schedule_summary
+        from ..output.documents.schedule import schedule_summary
 
         print(schedule_summary(schedule.result))
     if rob is not None:
-        from ..output.robustness_out import robustness_table
+        from ..output.documents.robustness import robustness_table
 
         where = "the scheduled gains, at the tightest verification points" if schedule is not None else "the chosen gains"
         print(f"robustness at {where} ({rob.spec.samples} samples, seed {rob.spec.seed}):")

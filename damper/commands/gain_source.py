@@ -247,7 +247,7 @@ def read_schedule(path, option="--schedule"):
         The file read.
     """
     from ..errors import DamperError
-    from ..output.schedule_out import schedule_from_table
+    from ..output.documents.schedule import schedule_from_table
 
     file = os.path.join(path, "gain-schedule.json") if os.path.isdir(path) else path
     if not os.path.exists(file):

@@ -22,7 +22,7 @@ def run(args, argv) -> int:
     from ..cli import CAUTION_SHORT
     from ..errors import DamperError
     from ..output.journal import part
-    from ..output.report import write_report
+    from ..output.report.build import write_report
     from ..output.rundir import RunDirectory
     from ..output.runfiles import RunFiles
 

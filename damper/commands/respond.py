@@ -29,7 +29,7 @@ def register(sub) -> str:
 def run(args, argv) -> int:
     from ..stages.responses import write_responses
 
-    from ..output.figures import use_option
+    from ..output.style import use_option
 
     use_option(args.figures)  # before anything is drawn (the plot worker inherits it)
     import sys
@@ -55,7 +55,7 @@ def run(args, argv) -> int:
         print(CAUTION_SHORT)
         return 0
     from ..output.journal import part
-    from ..output.report import refresh_report
+    from ..output.report.build import refresh_report
     from ..output.rundir import RunDirectory
 
     with RunDirectory(args.out, command, case.sha256, mode="add", parts=("responses",), force=args.force) as run:
@@ -71,7 +71,7 @@ def run(args, argv) -> int:
 
 
 def _print(case, gains, doc, notes):
-    from ..output.response_plots import response_table
+    from ..output.documents.responses import response_table
 
     default = doc["simulation"]["default_inputs"]
     print(f"{case.title}: time responses with {gains.text}" + (" (default doublet)" if default else ""))

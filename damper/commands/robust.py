@@ -61,7 +61,7 @@ def _check_args(args):
 
 def run(args, argv) -> int:
     _check_args(args)
-    from ..output.figures import use_option
+    from ..output.style import use_option
 
     use_option(args.figures)  # before anything is drawn (the plot worker inherits it)
     import os
@@ -71,7 +71,7 @@ def run(args, argv) -> int:
     from ..analysis.runners import cluster_client
     from ..case import load_case
     from ..cli import CAUTION_SHORT
-    from ..output.robustness_out import robustness_table
+    from ..output.documents.robustness import robustness_table
 
     case = load_case(args.case)
     spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
@@ -112,9 +112,10 @@ def _write_run(args, case, gains, checked, spec, command, out, cluster):
     from ..cli import warn_case
     from ..output.files import write_atomic
     from ..output.journal import part
-    from ..output.jsonout import dumps, with_verdict
-    from ..output.report import refresh_report
-    from ..output.robustness_out import robustness_document, robustness_plots
+    from ..output.documents.jsonout import dumps, with_verdict
+    from ..output.report.build import refresh_report
+    from ..output.documents.robustness import robustness_document
+    from ..output.figures.robustness import robustness_plots
     from ..output.rundir import RunDirectory
 
     with RunDirectory(out, command, case.sha256, mode="add", parts=("robustness",), force=args.force) as run:

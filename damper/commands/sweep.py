@@ -1,7 +1,7 @@
 """``damper sweep CASE --condition NAME [--design RUN_DIR | --schedule FILE]``: damping, frequency and margins
 against gain at one condition (the designed or scheduled gain marked).
 
-Table on the terminal, ``--csv FILE``, ``--json`` (damper/output/sweep_out.py builds all
+Table on the terminal, ``--csv FILE``, ``--json`` (damper/output/documents/sweep.py builds all
 three from one set of rows; no margin values where the closed loop is unstable)."""
 
 from __future__ import annotations
@@ -42,8 +42,8 @@ def run(args, argv) -> int:
     from ..cli import CAUTION_SHORT, warn_case
     from ..errors import DamperError
     from ..output.files import write_atomic
-    from ..output.jsonout import dumps
-    from ..output.sweep_out import sweep_csv, sweep_document, sweep_rows, sweep_table
+    from ..output.documents.jsonout import dumps
+    from ..output.documents.sweep import sweep_csv, sweep_document, sweep_rows, sweep_table
 
     case = design_points_case(load_case(args.case))  # an envelope case: its design points
     names = [c.name for c in case.conditions]

@@ -66,7 +66,7 @@ def _worker_start(parent_pid, run, formats=None):
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     _die_with_parent(parent_pid)
     if formats is not None:
-        from .figures import set_formats
+        from .style import set_formats
 
         set_formats(formats)
     if run is not None:
@@ -115,7 +115,7 @@ class PlotJobs:
                 import multiprocessing
                 from concurrent.futures import ProcessPoolExecutor
 
-                from .figures import formats
+                from .style import formats
                 from .journal import active
 
                 run = active()

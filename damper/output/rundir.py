@@ -320,7 +320,7 @@ class RunDirectory:
                                  "parts": list(self.parts) or list(journal.PARTS)}]
             first = self.runs[0].get("input_sha256") if self.runs else self.input_sha256
             doc = journal.manifest_document(files, runs, first, __version__)
-            from .jsonout import dumps
+            from .documents.jsonout import dumps
 
             write_atomic(os.path.join(self.root, journal.MANIFEST_NAME), dumps(doc))
             try:

@@ -37,7 +37,7 @@ class DesignRunWriter:
     """
 
     def __init__(self, out, case, command, jobs, plots, max_figures):
-        from ..output.plots import plot_slugs
+        from ..output.style import plot_slugs
 
         self.out, self.case, self.command, self.jobs = out, case, command, jobs
         self.plots, self.max_figures = plots, max_figures
@@ -59,12 +59,12 @@ class DesignRunWriter:
             getattr(self, f"_{event.stage}_done")(event)
 
     def _search_batch(self, event) -> None:
-        from ..output.design_doc import condition_entries
-        from ..output.jsonout import dump_part
+        from ..output.documents.design import condition_entries
+        from ..output.documents.jsonout import dump_part
 
         batch = condition_entries(event.case, event.design)
         if event.turbulence is not None:
-            from ..output.turbulence_out import add_turbulence
+            from ..output.documents.turbulence import add_turbulence
 
             add_turbulence({"conditions": batch}, event.turbulence.study, event.turbulence.checks)
         self.entries += [dump_part(e) for e in batch]  # text: about 8 kB per condition
@@ -73,16 +73,18 @@ class DesignRunWriter:
             self.job_ids += self._queue_design_plots(event.case, event.design, self.slugs[a : a + len(batch)])
 
     def _queue_design_plots(self, sub, design, slugs) -> list:
-        from ..output.plots import design_plot_jobs
+        from ..analysis.design_figures import design_figure_inputs
+        from ..output.figures.design import KINDS, design_plot_jobs
 
-        plot_jobs = design_plot_jobs(sub, design, self.out, slugs)
+        plot_jobs = design_plot_jobs(sub, design, design_figure_inputs(sub, design), self.out, slugs)
+        n = len(KINDS)  # one group per condition
         with part("design"):
-            return [self.jobs.submit_group(plot_jobs[k : k + 3]) for k in range(0, len(plot_jobs), 3)]
+            return [self.jobs.submit_group(plot_jobs[k : k + n]) for k in range(0, len(plot_jobs), n)]
 
     def _design_done(self, event) -> None:
-        from ..output.design_doc import design_document
+        from ..output.documents.design import design_document
         from ..output.files import write_atomic
-        from ..output.jsonout import dumps, with_verdict
+        from ..output.documents.jsonout import dumps, with_verdict
         from ..verdict import Verdict
 
         design = event.result
@@ -107,16 +109,18 @@ class DesignRunWriter:
     def _schedule_done(self, event) -> None:
         if event.result is None:
             return
-        from ..output.schedule_out import write_schedule
+        from ..output.documents.schedule import write_schedule
 
         with part("schedule"):
             self.written += write_schedule(self.out, self.case, event.result.result, command=self.command,
                                            verdict=event.result.verdict)
             if self.plots:  # drawn here while the worker draws the search's figures
-                from ..output.schedule_plots import schedule_plots
+                from ..analysis.envelope_view import envelope_view
+                from ..output.figures.schedule import schedule_plots
 
                 with current().stage("schedule plots"):
-                    n = len(schedule_plots(self.case, event.result.result, self.out))
+                    view = envelope_view(self.case, event.result.result)
+                    n = len(schedule_plots(self.case, event.result.result, self.out, view))
                 self.written.append(f"{n} schedule plot files in plots/")
 
     def _responses_done(self, event) -> None:
@@ -131,17 +135,17 @@ class DesignRunWriter:
             if event.skipped is not None and event.skipped.wanted:
                 self.failures_text = f"failures: not studied: {event.skipped.reason}"
             return
-        from ..output.failures_out import write_failures
+        from ..output.documents.failures import write_failures
 
         with part("failures"):
             self.failures_text, files, _ = write_failures(self.out, self.case, event.result.run, self.command,
-                                                          jobs=self.jobs if self.plots else None)
+                                                          event.result.verdict, jobs=self.jobs if self.plots else None)
         self.written.append(files)
 
     def _robustness_done(self, event) -> None:
         if event.result is None or not self.plots:
             return
-        from ..output.robustness_out import robustness_plot_jobs
+        from ..output.figures.robustness import robustness_plot_jobs
 
         rob = event.result
         rj = robustness_plot_jobs(rob.case, rob.result, self.out, limit=self.max_figures)
@@ -166,8 +170,8 @@ class DesignRunWriter:
         if rob is None:
             return
         from ..output.files import write_atomic
-        from ..output.jsonout import dumps, with_verdict
-        from ..output.robustness_out import robustness_document
+        from ..output.documents.jsonout import dumps, with_verdict
+        from ..output.documents.robustness import robustness_document
 
         files = ["robustness.json"]
         if self.rob_jobs is not None:

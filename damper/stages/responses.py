@@ -52,7 +52,7 @@ class ResponseFiles:
 
     def add(self, batch) -> None:
         """Write one batch's CSV files (and plots) and keep its entries of responses.json."""
-        from ..output.response_plots import response_document
+        from ..output.documents.responses import response_document
 
         out, sub, result, spec = self.out, batch.case, batch.result, batch.spec
         files = {} if out is None else _write_batch(out, sub, batch.start, result, spec, self.plots, self.gain_text,
@@ -62,7 +62,7 @@ class ResponseFiles:
 
     def finish(self, stage) -> dict:
         """The responses.json document (written into `out` when there is one)."""
-        from ..output.jsonout import with_verdict
+        from ..output.documents.jsonout import with_verdict
         from ..verdict import Verdict
 
         # the case-level keys are the same in every batch
@@ -72,7 +72,7 @@ class ResponseFiles:
             import os
 
             from ..output.files import write_atomic
-            from ..output.jsonout import dumps
+            from ..output.documents.jsonout import dumps
 
             write_atomic(os.path.join(self.out, "responses.json"), dumps(doc))
         return doc
@@ -84,7 +84,8 @@ def _write_batch(out, sub, start, result, spec, plots, gain_text, jobs, plot_onl
     from functools import partial
 
     from ..output.files import write_atomic
-    from ..output.response_plots import file_stem, plot_response, response_csv
+    from ..output.figures.responses import file_stem, plot_response
+    from ..output.documents.responses import response_csv
 
     files = {}
     stride = max(1, int(round(spec.output_step / spec.step)))
@@ -104,7 +105,7 @@ def _write_batch(out, sub, start, result, spec, plots, gain_text, jobs, plot_onl
                     paths += draw(stem, bare, aug)
                 else:  # copies: a view would keep the whole batch's histories alive while the job waits
                     jobs.submit(draw, stem, _owned(bare), _owned(aug))
-                    from ..output.figures import formats
+                    from ..output.style import formats
 
                     paths += [f"{stem}.{fmt}" for fmt in formats()]  # the names save_figure writes
             files[(i, j)] = [os.path.basename(p) for p in paths]

@@ -1,0 +1,205 @@
+"""The ``design.json`` structure and the design summary table."""
+
+from __future__ import annotations
+
+import json
+
+from .jsonout import CAUTION, condition_result, num, provenance
+from .longitudinal import longitudinal_table, speed_derivatives_summary
+from .text import fmt, table
+
+
+def requirements_list(case) -> list:
+    """The case's requirements with their sources."""
+    req = case.requirements
+    return [
+        {
+            "name": c.name,
+            "measure": c.measure or None,
+            "lower": num(c.lower),
+            "upper": num(c.upper),
+            "unit": c.kind.unit,
+            "source": c.source,
+        }
+        for c in req.criteria
+    ]
+
+
+def case_summary(case) -> dict:
+    """What the case describes (aircraft, flight conditions, loop hardware), SI, for the report."""
+    a, loop = case.aircraft, case.loop
+
+    def element(spec):
+        return spec.describe() if spec is not None else "ideal (unity)"
+
+    conds = []
+    for c in case.conditions:
+        d = c.derivatives
+        conds.append(
+            {
+                "name": c.name,
+                "note": c.note,
+                "derivative_source": c.source,
+                "airspeed_m_s": num(c.airspeed),
+                "equivalent_airspeed_m_s": num(c.equivalent_airspeed),
+                "altitude_m": num(c.altitude_input),
+                "geopotential_altitude_m": num(c.altitude),
+                "density_kg_m3": num(c.density),
+                "mach": num(c.mach),
+                "dynamic_pressure_pa": num(c.dynamic_pressure),
+                "mass_kg": num(c.mass),
+                "pitch_inertia_kg_m2": num(c.pitch_inertia),
+                "as_written": {w.key: w.text for w in c.written},
+                "derivatives": {
+                    "Z_alpha_m_s2": num(d.Z_alpha),
+                    "Z_q_m_s": num(d.Z_q),
+                    "Z_delta_m_s2": num(d.Z_delta),
+                    "M_alpha_1_s2": num(d.M_alpha),
+                    "M_alpha_dot_1_s": num(d.M_alpha_dot),
+                    "M_q_1_s": num(d.M_q),
+                    "M_delta_1_s2": num(d.M_delta),
+                    **speed_derivatives_summary(d),
+                },
+            }
+        )
+    return {
+        "aircraft": {
+            "name": a.name,
+            "mass_kg": num(a.mass),
+            "pitch_inertia_kg_m2": num(a.pitch_inertia),
+            "wing_area_m2": None if a.wing_area is None else num(a.wing_area),
+            "mean_chord_m": None if a.mean_chord is None else num(a.mean_chord),
+        },
+        "altitude_kind": case.altitude_kind,
+        "conditions": conds,
+        "loop": {
+            "actuator": element(loop.actuator),
+            "actuator_rate_limit_rad_s": None if loop.rate_limit is None else num(loop.rate_limit),
+            "actuator_travel_rad": None if loop.travel is None else num(loop.travel),
+            "rate_sensor": element(loop.sensor),
+            "washout": element(loop.washout),
+            "filters": [f.describe() for f in loop.filters],
+            "computation_delay_s": num(loop.delay),
+            "sample_rate_hz": None if loop.sample_rate is None else num(loop.sample_rate),
+            "total_delay_s": num(loop.total_delay),
+            "pade_order": loop.pade_order,
+        },
+        "frequency_grid_rad_s": {
+            "low": num(case.settings.frequency_low),
+            "high": num(case.settings.frequency_high),
+            "points_per_decade": case.settings.points_per_decade,
+        },
+    }
+
+
+def design_document(case, design, command=None, entries=None, figures=None) -> dict:
+    """Per condition: chosen gain, feasible intervals, edges and the measures at the chosen gain.
+
+    `entries` (from :func:`condition_entries`, batch by batch) replaces `design` for a case
+    searched in batches. `figures` (a dict) says which conditions have figures when not all do.
+    """
+    doc = {
+        "title": case.title,
+        "caution": CAUTION,
+        "warnings": list(case.warnings),
+        "damping_measure": case.requirements.damping_measure,
+        "requirements": requirements_list(case),
+        "conditions": entries if entries is not None else condition_entries(case, design),
+        "provenance": provenance(case, command),
+        "case_summary": case_summary(case),
+    }
+    if figures is not None:
+        doc["figures"] = figures
+    return doc
+
+
+def condition_entries(case, design) -> list:
+    """The ``design.json`` entry of every condition of `design` (a search of `case`)."""
+    conds = []
+    for i, d in enumerate(design.conditions if design is not None else ()):
+        conds.append(
+            {
+                "name": d.name,
+                "chosen_gain_s": num(d.chosen_gain),
+                "feasible": d.feasible,
+                "policy": d.policy,
+                "reason": d.reason,
+                "feasible_gains_s": [[num(a), num(b)] for a, b in d.intervals],
+                "edges": [
+                    {
+                        "lower": {"gain_s": num(lo.gain), "binding": lo.binding},
+                        "upper": {"gain_s": num(hi.gain), "binding": hi.binding},
+                    }
+                    for lo, hi in d.edges
+                ],
+                "failing_at_chosen_gain": [{"name": n, "slack": num(s)} for n, s in d.binding],
+                "sweep_range_s": [num(d.sweep_range[0]), num(d.sweep_range[1])],
+                "measures": condition_result(case, design.chosen, (i,)),
+            }
+        )
+    return conds
+
+
+def _short(binding: str) -> str:
+    from ...analysis.search import BARE_MEETS
+
+    return {BARE_MEETS: "K=0 meets all", "sweep range": "end of sweep"}.get(binding, binding)
+
+
+def design_table(doc) -> str:
+    """Terminal summary of a design: failing conditions first."""
+    headers = [
+        "condition",
+        "status",
+        "K chosen\ns",
+        "feasible K\ns",
+        "closed by\n(low / high)",
+        "zeta\nequiv.",
+        "zeta\nmodal",
+        "GM\ndB",
+        "PM\ndeg",
+        "tau_e\ns",
+        "level",
+    ]
+    rows = []
+    conds = doc["conditions"]
+
+    def entry(i):  # an entry kept as JSON text (a large case) is read back one at a time
+        c = conds[i]
+        return json.loads(c) if isinstance(c, str) else c
+
+    order = sorted(range(len(conds)), key=lambda i: entry(i)["feasible"])
+    for i in order:
+        c = entry(i)
+        m = c["measures"]
+        eq = m["closed_loop"]["equivalent"] or {}
+        sp = m["closed_loop"]["short_period"]
+        intervals = ", ".join(f"{fmt(a, '.3g')}-{fmt(b, '.3g')}" for a, b in c["feasible_gains_s"]) or "none"
+        closed = "; ".join(f"{_short(e['lower']['binding'])} / {_short(e['upper']['binding'])}" for e in c["edges"]) or "-"
+        if not c["feasible"]:
+            closed = "misses: " + ", ".join(f"{f['name']} ({fmt(f['slack'], '+.2f')})" for f in c["failing_at_chosen_gain"])
+        level = m["level"]["overall"] if m.get("level") else "-"
+        rows.append(
+            [
+                c["name"],
+                "ok" if c["feasible"] else "INFEASIBLE",
+                fmt(c["chosen_gain_s"], ".4g"),
+                intervals,
+                closed,
+                fmt(eq.get("damping_ratio"), ".3f"),
+                fmt(sp["damping_ratio"], ".3f") + ("*" if sp["ambiguous"] else ""),
+                fmt(m["margins"]["gain_margin_db"], ".1f", "none"),
+                fmt(m["margins"]["phase_margin_deg"], ".1f", "none"),
+                fmt(eq.get("time_delay_s"), ".3f"),
+                str(level),
+            ]
+        )
+    out = table(headers, rows, aligns=["<", "<", ">", "<", "<", ">", ">", ">", ">", ">", ">"])
+    lon = longitudinal_table(entry(i)["measures"] for i in order)
+    out = out + ("\n\n" + lon + "\n" if lon else "")
+    notes = [
+        f"Damping band applies to the {doc['damping_measure']} damping ratio. Slack is normalised: "
+        "negative means missed by that fraction of the limit.",
+        "GM/PM 'none': no such crossing (unbounded). * modal pick ambiguous (coalescence with a hardware mode).",
+    ]
+    return out + "\n" + "\n".join(notes)

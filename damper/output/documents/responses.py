@@ -1,0 +1,227 @@
+"""Outputs of the time responses: plots (PNG, SVG), CSV tables, JSON and the terminal table.
+
+Nothing is computed here beyond unit conversion for display (rad to deg); the
+histories and measures come from :mod:`damper.analysis.response`.
+matplotlib is imported inside the plotting function (Agg backend).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .jsonout import CAUTION, num, provenance
+from .text import fmt, table
+
+R2D = 180.0 / math.pi
+
+# ---------------------------------------------------------------------------
+# CSV
+# ---------------------------------------------------------------------------
+
+CSV_SERIES = (
+    ("alpha", "alpha_rad"),
+    ("q", "q_rad_s"),
+    ("theta", "theta_rad"),
+    ("load_factor", "nz_g"),
+    ("surface", "surface_rad"),
+    ("surface_rate", "surface_rate_rad_s"),
+    ("command", "actuator_command_rad"),
+    ("rate_limited", "at_rate_limit"),
+    ("position_limited", "at_travel_limit"),
+)
+
+
+def response_csv(bare, augmented, stride=1) -> str:
+    """CSV text of one condition: time, inputs, then bare and augmented series (SI units in headers)."""
+    cols = [("time_s", bare.time), ("pilot_command_rad", augmented.pilot), ("gust_alpha_rad", augmented.gust_alpha)]
+    for prefix, h in (("bare", bare), ("augmented", augmented)):
+        for name, head in CSV_SERIES:
+            cols.append((f"{prefix}_{head}", getattr(h, name)))
+    lines = [",".join(c[0] for c in cols)]
+    data = [np.asarray(c[1])[::stride] for c in cols]
+    for row in zip(*data):
+        lines.append(",".join(_csv_value(v) for v in row))
+    return "\n".join(lines) + "\n"
+
+
+def _csv_value(v) -> str:
+    if isinstance(v, (bool, np.bool_)):
+        return "1" if v else "0"
+    v = float(v)
+    if not math.isfinite(v):
+        return ""
+    return f"{v:.9g}"
+
+
+# ---------------------------------------------------------------------------
+# JSON and table
+# ---------------------------------------------------------------------------
+
+
+def _measures(m, i) -> dict:
+    return {
+        "time_to_half_s": num(m.time_to_half[i]),
+        "settling_time_5pct_s": num(m.settling_time[i]),
+        "overshoot_ratio": num(m.overshoot[i]),
+        "peak_pitch_rate_rad_s": num(m.peak_pitch_rate[i]),
+        "peak_alpha_rad": num(m.peak_alpha[i]),
+        "peak_load_factor_g": num(m.peak_load_factor[i]),
+        "peak_surface_rad": num(m.peak_surface[i]),
+        "peak_surface_rate_rad_s": num(m.peak_surface_rate[i]),
+        "time_at_rate_limit_s": num(m.time_at_rate_limit[i]),
+        "time_at_travel_limit_s": num(m.time_at_position_limit[i]),
+        "input_end_s": num(m.input_end[i]),
+    }
+
+
+def _authority_measures(res, i) -> dict:
+    """The damper's authority in one augmented response (only when the case sets an authority, so the
+    documents of cases without one are unchanged): time at the authority and at its rate limit, s,
+    and the largest damper demand before its limits, rad."""
+    if res.authority is None:
+        return {}
+    m = res.augmented_measures
+
+    def at(x):
+        return None if x is None else num(np.asarray(x, dtype=float).reshape(-1)[i])
+
+    return {
+        "time_at_authority_limit_s": at(m.time_at_authority_limit),
+        "time_at_authority_rate_limit_s": at(m.time_at_authority_rate_limit),
+        "peak_damper_demand_rad": at(m.peak_damper_demand),
+    }
+
+
+def _input_json(inp, i) -> dict:
+    def at(x):
+        a = np.asarray(x, dtype=float).reshape(-1)
+        return num(a[i] if a.size > 1 else a[0])
+
+    out = {"name": inp.label, "kind": inp.kind, "start_s": at(inp.start)}
+    if not inp.is_gust:
+        out["amplitude_rad"] = at(inp.amplitude)
+    if inp.kind == "doublet":
+        out["half_period_s"] = at(inp.half_period)
+    if inp.kind == "pulse":
+        out["duration_s"] = at(inp.duration)
+    if inp.is_gust:
+        out["gust_velocity_m_s"] = at(inp.gust_velocity)
+    if inp.kind == "gust_one_minus_cosine":
+        out["gust_length_m"] = at(inp.gust_length)
+    return out
+
+
+def response_document(case, result, command=None, files=None) -> dict:
+    """The JSON document of ``damper respond`` (SI units; NaN as null).
+
+    Parameters
+    ----------
+    case : Case
+    result : CaseResponses
+        With a gains array of shape ``(n_conditions,)``.
+    files : dict or None
+        ``{(i_condition, j_input): [paths]}`` written alongside.
+    """
+    from ...analysis.response import DELAY_MODEL, METHOD
+
+    spec = result.spec
+    conds = []
+    for i, c in enumerate(case.conditions):
+        runs = []
+        for j, res in enumerate(result.responses):
+            runs.append(
+                {
+                    "input": _input_json(res.input, i),
+                    "bare": _measures(res.bare_measures, i),
+                    "augmented": _measures(res.augmented_measures, i) | _authority_measures(res, i),
+                    "files": list((files or {}).get((i, j), [])),
+                }
+            )
+        conds.append(
+            {"name": c.name, "gain_s": num(result.gains[i]), "airspeed_m_s": num(c.airspeed), "responses": runs}
+        )
+    return {
+        "title": case.title,
+        "caution": CAUTION,
+        "warnings": list(case.warnings),
+        "notes": list(result.notes),
+        "simulation": {
+            "method": METHOD,
+            "step_s": spec.step,
+            "duration_s": spec.duration,
+            "output_step_s": spec.output_step,
+            "delay_model": DELAY_MODEL,
+            "default_inputs": spec.default,
+            "bare_airframe": "gain 0 with the same actuator and limits",
+            "gust_model": "alpha_g = w_g / V added to the aerodynamic angle of attack; M_alpha_dot alpha_g' neglected",
+            "load_factor": "n_z = -(Z_alpha (alpha + alpha_g) + Z_q q + Z_delta delta) / g0",
+        },
+        "limits": {"rate_limit_rad_s": None if result.rate_limit is None else num(result.rate_limit),
+                   "travel_rad": None if result.travel is None else num(result.travel)},
+        "conditions": conds,
+        "provenance": provenance(case, command),
+    }
+
+
+def response_table(doc) -> str:
+    """The terminal table of ``damper respond`` (angles in deg for reading)."""
+    headers = [
+        "condition",
+        "input",
+        "t half bare\ns",
+        "t half aug\ns",
+        "settle aug\ns",
+        "oversh. bare\n%",
+        "oversh. aug\n%",
+        "peak q aug\ndeg/s",
+        "peak nz bare\ng",
+        "peak nz aug\ng",
+        "peak surf\ndeg",
+        "peak rate\ndeg/s",
+        "at rate lim\ns",
+        "at travel\ns",
+    ]
+    rows = []
+    for c in doc["conditions"]:
+        for r in c["responses"]:
+            b, a = r["bare"], r["augmented"]
+
+            def deg(x):
+                return None if x is None else x * R2D
+
+            def pct(x):
+                return None if x is None else 100.0 * x
+
+            rows.append(
+                [
+                    c["name"],
+                    r["input"]["name"],
+                    fmt(b["time_to_half_s"], ".3g"),
+                    fmt(a["time_to_half_s"], ".3g"),
+                    fmt(a["settling_time_5pct_s"], ".3g"),
+                    fmt(pct(b["overshoot_ratio"]), ".1f"),
+                    fmt(pct(a["overshoot_ratio"]), ".1f"),
+                    fmt(deg(a["peak_pitch_rate_rad_s"]), ".3g"),
+                    fmt(b["peak_load_factor_g"], ".3f"),
+                    fmt(a["peak_load_factor_g"], ".3f"),
+                    fmt(deg(a["peak_surface_rad"]), ".3g"),
+                    fmt(deg(a["peak_surface_rate_rad_s"]), ".3g"),
+                    fmt(a["time_at_rate_limit_s"], ".3f"),
+                    fmt(a["time_at_travel_limit_s"], ".3f"),
+                ]
+            )
+    lim = doc["limits"]
+    rl = "none" if lim["rate_limit_rad_s"] is None else f"{lim['rate_limit_rad_s'] * R2D:.4g} deg/s"
+    tr = "none" if lim["travel_rad"] is None else f"{lim['travel_rad'] * R2D:.4g} deg"
+    sim = doc["simulation"]
+    legend = [
+        "t half: time to half amplitude of the pitch-rate envelope from its first peak after the input ends; "
+        "settle: to within 5 % after the input ends; '-': not reached in the record.",
+        "oversh.: first opposite-sign pitch-rate peak over the first peak. nz: normal load factor increment. "
+        "surf/rate: actuator (aug = with damper).",
+        f"Actuator limits: rate {rl}, travel {tr}. {sim['method']}, step {sim['step_s'] * 1000:g} ms, "
+        f"{sim['duration_s']:g} s; delay {sim['delay_model']}.",
+    ]
+    return table(headers, rows, ["<", "<"] + [">"] * (len(headers) - 2)) + "\n" + "\n".join(legend)
