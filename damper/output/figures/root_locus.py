@@ -167,10 +167,15 @@ def _pole_clouds(axes, limits, reach, dz, gains, pts):
         ax.axhline(0.0, color=PALETTE["grid"], linewidth=0.8, zorder=1)
         if dz:
             _, rays = _damping_sector(ax, dz[0].lower, dz[0].upper, reach)
+        # only the poles inside the panel (and a marker's width around it): the ones outside are
+        # clipped anyway, and each one drawn is an element of the SVG
+        x, y, k = ev.real.ravel(), ev.imag.ravel(), kk.ravel()
+        mx, my = 0.03 * (xl[1] - xl[0]), 0.03 * (yl[1] - yl[0])
+        seen = (x >= xl[0] - mx) & (x <= xl[1] + mx) & (y >= yl[0] - my) & (y <= yl[1] + my)
         sc = ax.scatter(
-            ev.real.ravel(),
-            ev.imag.ravel(),
-            c=kk.ravel(),
+            x[seen],
+            y[seen],
+            c=k[seen],
             norm=norm,
             cmap=COLORMAP,
             s=size,
