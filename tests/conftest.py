@@ -194,3 +194,15 @@ def pytest_collection_modifyitems(config, items):
         nodeid = item.nodeid.split("tests/", 1)[-1]
         if "shared_run" in getattr(item, "fixturenames", ()) or nodeid.startswith(SLOW):
             item.add_marker(pytest.mark.slow)
+
+
+@pytest.fixture(scope="module")
+def both_formats():
+    """Figures in PNG and SVG for a test module that checks both (the default is SVG alone:
+    ``damper.output.options.DEFAULT_FORMATS``); the default is restored afterwards."""
+    from damper.output.style import KNOWN_FORMATS, formats, set_formats
+
+    before = formats()
+    set_formats(KNOWN_FORMATS)
+    yield KNOWN_FORMATS
+    set_formats(before)

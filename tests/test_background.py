@@ -7,6 +7,12 @@ import pytest
 from damper.output.background import PlotJobs, run_jobs
 
 
+@pytest.fixture(scope="module", autouse=True)
+def _both_formats(both_formats):
+    """These tests check the PNG and the SVG of each figure (the default writes SVG alone)."""
+
+
+
 def _tree(root):
     out = {}
     for dirpath, _, names in os.walk(root):

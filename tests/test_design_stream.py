@@ -94,10 +94,10 @@ loop:""")
     ranked = sorted(doc["conditions"], key=lambda c: (c["feasible"], worst(c)))
     assert drawn == [ranked[0]["name"]]
     plots = sorted(os.listdir(out / "plots"))
-    assert len(plots) == 1 * 3 * 2  # one condition, three figures, PNG and SVG
+    assert len(plots) == 1 * 3  # one condition, three figures, SVG (the default)
     csvs = [n for n in os.listdir(out) if n.endswith(".csv")]
-    pngs = [n for n in os.listdir(out) if n.startswith("response-") and n.endswith(".png")]
-    assert len(csvs) == 3 and len(pngs) == 1  # every condition's data, one condition's response plot
+    svgs = [n for n in os.listdir(out) if n.startswith("response-") and n.endswith(".svg")]
+    assert len(csvs) == 3 and len(svgs) == 1  # every condition's data, one condition's response plot
     html = (out / "report.html").read_text()
     assert html.count("no figure for this condition") == 2 * 3  # two conditions without their three figures
 

@@ -92,7 +92,7 @@ def _wait_for(predicate, what):
 
 def _figures(out):
     plots = out / "plots"
-    return plots.is_dir() and any(n.endswith(".png") for n in os.listdir(plots))
+    return plots.is_dir() and any(n.endswith((".png", ".svg")) for n in os.listdir(plots))
 
 
 def test_sigint_stops_robust_with_two_workers_and_a_large_study(tmp_path, started):

@@ -19,6 +19,12 @@ from damper.output.figures import design as plots
 from damper.output.figures import loop_response as loop_plot
 from damper.output.figures import root_locus as locus_plot
 
+
+@pytest.fixture(scope="module", autouse=True)
+def _both_formats(both_formats):
+    """These tests check the PNG and the SVG of each figure (the default writes SVG alone)."""
+
+
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 DEMO = os.path.join(ROOT, "cases", "utility_single_aft_cg.yaml")
 KINDS = ("root-locus", "loop-response", "gain-sweep")

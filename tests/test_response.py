@@ -426,7 +426,7 @@ def test_respond_command_writes_files_and_refuses_to_overwrite(tmp_path, capsys)
     assert CAUTION_SHORT in text and "deg/s" in text and "cruise" in text
     names = sorted(os.listdir(out))
     assert "responses.json" in names
-    assert {"response-01-cruise-1-doublet.csv", "response-01-cruise-1-doublet.png",
+    assert {"response-01-cruise-1-doublet.csv", "response-01-cruise-1-doublet.svg",
             "response-01-cruise-1-doublet.svg"} <= set(names)
     doc = json.loads((out / "responses.json").read_text())
     assert doc["conditions"][0]["responses"][0]["augmented"]["peak_surface_rate_rad_s"] <= 30 * DEG * (1 + 1e-9)

@@ -415,7 +415,7 @@ def test_cli_robust_writes_and_refuses_to_overwrite(tmp_path, capsys):
     assert "Preliminary engineering analysis only" in text and "meets all" in text and "dB" in text
     doc = json.loads((out / "robustness.json").read_text())
     assert doc["method"]["samples"] == 6
-    assert (out / "plots" / "pass-fraction.png").exists()
+    assert (out / "plots" / "pass-fraction.svg").exists()
     assert any(f.startswith("plots/scatter-") for f in doc["files"])
     assert main(["robust", str(case), "--gain", "0.1", "--samples", "6", "--out", str(out), "--quiet"]) == 2
     assert "earlier run" in capsys.readouterr().err

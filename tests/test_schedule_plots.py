@@ -16,6 +16,12 @@ from damper.analysis.schedule import design_schedule
 from damper.case import load_case
 from damper.output.figures.schedule import schedule_plots
 
+
+@pytest.fixture(scope="module", autouse=True)
+def _both_formats(both_formats):
+    """These tests check the PNG and the SVG of each figure (the default writes SVG alone)."""
+
+
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 CASES = {
     "regional": os.path.join(ROOT, "cases", "regional_twinjet_envelope.yaml"),

@@ -8,6 +8,7 @@ stage ends) and to the terminal.
 from __future__ import annotations
 
 from ..output.progress import add_quiet_option, configure, current
+from ..output.options import add_figures_option
 
 NAME = "design"
 #: Conditions that get their own figures by default (docs/performance.md: a 2,000-condition run
@@ -31,8 +32,7 @@ def register(sub) -> str:
     p.add_argument("--gain-max", type=float, metavar="K", help="highest gain of the sweep, s")
     p.add_argument("--points", type=int, default=161, help="gains in the sweep (default 161)")
     p.add_argument("--no-plots", action="store_true", help="skip the plots")
-    p.add_argument("--figures", default="png,svg", metavar="FORMATS",
-                   help="figure formats, comma-separated: png, svg or both (default png,svg; the report embeds SVG when there is one; one format draws the figures in about half the time)")
+    add_figures_option(p)
     p.add_argument("--max-figures", type=int, default=FIGURE_CONDITIONS, metavar="N",
                    help=f"per-condition figures for at most N conditions (default {FIGURE_CONDITIONS}): every condition "
                    "when the case has no more, else the infeasible ones and those with the least slack")

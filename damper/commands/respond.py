@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from ..output.progress import add_quiet_option, configure
+from ..output.options import add_figures_option
 
 NAME = "respond"
 
@@ -20,8 +21,7 @@ def register(sub) -> str:
     a.add_argument("--force", action="store_true",
                    help="replace the responses of an earlier damper run in DIR (its other files are kept)")
     a.add_argument("--no-plots", action="store_true", help="with --out: skip the plots")
-    a.add_argument("--figures", default="png,svg", metavar="FORMATS",
-                   help="figure formats, comma-separated: png, svg or both (default png,svg; the report embeds SVG when there is one; one format draws the figures in about half the time)")
+    add_figures_option(a)
     add_quiet_option(a)
     return NAME
 

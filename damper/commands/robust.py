@@ -5,6 +5,7 @@ from __future__ import annotations
 import sys
 
 from ..output.progress import add_quiet_option, configure, current
+from ..output.options import add_figures_option
 
 NAME = "robust"
 
@@ -36,8 +37,7 @@ def register(sub) -> str:
     p.add_argument("--force", action="store_true",
                    help="replace the robustness files of an earlier damper run in DIR (its other files are kept)")
     p.add_argument("--no-plots", action="store_true", help="skip the plots")
-    p.add_argument("--figures", default="png,svg", metavar="FORMATS",
-                   help="figure formats, comma-separated: png, svg or both (default png,svg; the report embeds SVG when there is one; one format draws the figures in about half the time)")
+    add_figures_option(p)
     add_quiet_option(p)
     return NAME
 

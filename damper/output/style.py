@@ -224,10 +224,10 @@ def _delay_text(case):
 # figure creation and saving
 # ---------------------------------------------------------------------------------
 #: Formats a figure can be written in; the report embeds SVG when there is one, else PNG.
-KNOWN_FORMATS = ("png", "svg")
+from .options import DEFAULT_FORMATS, KNOWN_FORMATS  # noqa: E402  (one list of formats, one default)
 #: The formats of this process's figures (set once per run by the command, and in the plot
 #: worker by its initializer).
-_FORMATS = {"value": KNOWN_FORMATS}
+_FORMATS = {"value": tuple(f for f in KNOWN_FORMATS if f in DEFAULT_FORMATS.split(","))}
 
 
 def parse_formats(text: str) -> tuple:

@@ -45,7 +45,7 @@ def _label(name):
 
 
 def gain_sweep_plot(case, design, i, stem):
-    """Damping ratio and margins of condition `i` against the gain; PNG and SVG.
+    """Damping ratio and margins of condition `i` against the gain; in the ``--figures`` formats.
 
     Returns
     -------

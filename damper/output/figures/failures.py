@@ -1,6 +1,6 @@
 """Figure of the hardover failures: the airframe's motion after the failure, with its limits.
 
-One figure (PNG and SVG) for the conditions with the least slack to their tightest limit: the
+One figure (in the ``--figures`` formats) for the conditions with the least slack to their tightest limit: the
 incremental load factor, pitch-attitude change, angle-of-attack change and pitch rate from the
 failure until the pilot acts, and the surface the failed damper drives; the transient limits as
 dashed lines. Nothing is computed here beyond rad to deg; the histories come from
@@ -51,7 +51,7 @@ def failure_plot_jobs(run, out, title) -> list:
 
 
 def plot_hardovers(stem, curves, bands, title, subtitle=""):
-    """Draw the hardover transients of a few conditions on shared axes; PNG and SVG.
+    """Draw the hardover transients of a few conditions on shared axes; in the ``--figures`` formats.
 
     Parameters
     ----------

@@ -35,7 +35,7 @@ OTHER_COLOUR = "#8a8a8a"
 
 
 def loop_response_plot(case, curve, stem):
-    """Loop-response plot of one condition at one gain (exact delay); PNG and SVG.
+    """Loop-response plot of one condition at one gain (exact delay); in the ``--figures`` formats.
 
     Parameters
     ----------

@@ -66,7 +66,7 @@ PANELS = (
 
 
 def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None, travel=None, stride=1):
-    """Bare and augmented histories of one condition on shared axes; PNG and SVG.
+    """Bare and augmented histories of one condition on shared axes; in the ``--figures`` formats.
 
     Parameters
     ----------

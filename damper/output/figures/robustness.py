@@ -1,4 +1,4 @@
-"""The robustness plots (PNG and SVG, written atomically).
+"""The robustness plots (in the ``--figures`` formats, written atomically).
 
 Nothing here computes a measure: everything comes from a
 :class:`damper.analysis.robustness.RobustnessResult`. matplotlib is imported inside the

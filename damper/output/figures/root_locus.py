@@ -1,4 +1,4 @@
-"""The root-locus plot of one design condition (PNG and SVG, written atomically).
+"""The root-locus plot of one design condition (in the ``--figures`` formats, written atomically).
 
 Nothing here computes: the plot shows the search's sweep and chosen gain, and the open-loop
 (K = 0) poles of :func:`damper.analysis.locus.open_loop_poles`.
@@ -64,7 +64,7 @@ def _zoom_limits(sp_roots, extra):
 
 
 def root_locus(case, design, i, stem, open_loop):
-    """Closed-loop poles of condition `i` over the swept gains; writes PNG and SVG.
+    """Closed-loop poles of condition `i` over the swept gains; writes it in the ``--figures`` formats.
 
     Parameters
     ----------
@@ -80,7 +80,7 @@ def root_locus(case, design, i, stem, open_loop):
     Returns
     -------
     list of str
-        The PNG and SVG paths.
+        The written paths (one per format).
     """
     return _render(_draw_root_locus, stem, case, design, i, open_loop)
 
