@@ -41,4 +41,22 @@ def die_with_parent(parent_pid: int) -> None:
     threading.Thread(target=watch, name="damper-parent-watch", daemon=True).start()
 
 
-__all__ = ["PARENT_CHECK_INTERVAL", "die_with_parent"]
+def end_pool_now(pool) -> None:
+    """End the worker processes of a ``ProcessPoolExecutor`` at once (after an error or an
+    interrupt): queued tasks are cancelled and running ones stopped, which ``shutdown()``
+    alone would let finish."""
+    processes = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for p in processes:
+        try:
+            p.terminate()
+        except (OSError, AttributeError, ValueError):
+            pass
+    for p in processes:
+        try:
+            p.join(timeout=10)
+        except (OSError, AttributeError, ValueError, AssertionError):
+            pass
+
+
+__all__ = ["PARENT_CHECK_INTERVAL", "die_with_parent", "end_pool_now"]

@@ -184,18 +184,9 @@ class Processes(Inline):
         if finished:
             self._pool.shutdown(wait=True)
             return
-        processes = list((getattr(self._pool, "_processes", None) or {}).values())
-        self._pool.shutdown(wait=False, cancel_futures=True)
-        for p in processes:  # shutdown() lets a running task finish; this does not
-            try:
-                p.terminate()
-            except (OSError, AttributeError, ValueError):
-                pass
-        for p in processes:
-            try:
-                p.join(timeout=10)
-            except (OSError, AttributeError, ValueError, AssertionError):
-                pass
+        from ..childproc import end_pool_now
+
+        end_pool_now(self._pool)
 
 
 def connect(address: str):

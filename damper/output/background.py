@@ -27,44 +27,15 @@ import os
 
 __all__ = ["PlotJobs", "run_jobs"]
 
-#: How often the worker checks that its parent is alive, s.
-PARENT_CHECK_INTERVAL = 0.2
-
-
-def _die_with_parent(parent_pid: int) -> None:
-    """End this (worker) process as soon as the process `parent_pid` is gone."""
-    import sys
-    import threading
-    import time
-
-    if sys.platform.startswith("linux"):
-        try:
-            import ctypes
-            import signal
-
-            libc = ctypes.CDLL(None, use_errno=True)
-            libc.prctl(1, int(signal.SIGKILL), 0, 0, 0)  # PR_SET_PDEATHSIG = 1
-        except (OSError, AttributeError):
-            pass
-    if os.getppid() != parent_pid:  # the parent died before the request above took effect
-        os._exit(1)
-
-    def watch():
-        while True:
-            time.sleep(PARENT_CHECK_INTERVAL)
-            if os.getppid() != parent_pid:
-                os._exit(1)
-
-    threading.Thread(target=watch, name="damper-parent-watch", daemon=True).start()
-
-
 def _worker_start(parent_pid, run, formats=None):
     """Initializer of the plot worker: ignore Ctrl-C, die with the parent, journal into `run`,
     write the parent's figure formats."""
     import signal
 
     signal.signal(signal.SIGINT, signal.SIG_IGN)
-    _die_with_parent(parent_pid)
+    from ..childproc import die_with_parent
+
+    die_with_parent(parent_pid)
     if formats is not None:
         from .style import set_formats
 
@@ -225,18 +196,9 @@ class PlotJobs:
     def close(self) -> None:
         """End the worker at once, queued and running jobs alike (after an error or an interrupt)."""
         if self._pool is not None:
-            processes = list((getattr(self._pool, "_processes", None) or {}).values())
-            self._pool.shutdown(wait=False, cancel_futures=True)
-            for p in processes:  # shutdown() lets a running job finish; this does not
-                try:
-                    p.terminate()
-                except (OSError, AttributeError, ValueError):
-                    pass
-            for p in processes:
-                try:
-                    p.join(timeout=10)
-                except (OSError, AttributeError, ValueError, AssertionError):
-                    pass
+            from ..childproc import end_pool_now
+
+            end_pool_now(self._pool)
             self._pool = None
 
     def __enter__(self):
