@@ -199,24 +199,12 @@ def bench_robustness(samples=10_000, n_conditions=20, processes=None, workers=No
     """Robustness study of `samples` x `n_conditions`: the uncertain demo's conditions, cycled
     with airspeeds scaled 0.9-1.1 (benchmark data only), at K = 0.15 s everywhere.
     `processes`/`workers` as :func:`damper.analysis.robustness.robustness` (None: its default)."""
-    import yaml
+    sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+    from bench_cluster import study_case
 
     from damper.analysis.robustness import robustness, uncertainty_spec
-    from damper.case import load_case_text
 
-    with open(os.path.join(ROOT, "cases", "utility_single_uncertain.yaml")) as f:
-        doc = yaml.safe_load(f)
-    base = doc["conditions"]
-    conds = []
-    for k in range(n_conditions):
-        c = dict(base[k % len(base)])
-        scale = 0.9 + 0.2 * k / max(n_conditions - 1, 1)
-        c["name"] = f"{c['name']}-{k + 1:02d}"
-        c["airspeed"] = f"{float(str(c['airspeed']).split()[0]) * scale:.1f} kt"
-        conds.append(c)
-    doc["conditions"] = conds
-    doc["uncertainty"]["samples"] = samples
-    case = load_case_text(yaml.safe_dump(doc, sort_keys=False))
+    case = study_case(n_conditions, samples)
     spec = uncertainty_spec(case)
     t = time.perf_counter()
     r = robustness(case, 0.15, spec, processes=processes, workers=workers)
