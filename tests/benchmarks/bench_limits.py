@@ -68,7 +68,7 @@ def peak(argv):
     _, status, usage = os.wait4(proc.pid, 0)
     proc.returncode = os.waitstatus_to_exitcode(status)
     err = proc.stderr.read().decode()
-    if proc.returncode != 0:
+    if proc.returncode not in (0, 3):  # 3: a requirement not met, a result like any other
         raise RuntimeError(f"damper {' '.join(argv)} failed ({proc.returncode}): {err[-400:]}")
     return time.perf_counter() - t, usage.ru_maxrss / 1024.0
 
