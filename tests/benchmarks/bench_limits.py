@@ -128,14 +128,14 @@ def main(quick=False):
         for samples in (100_000,) if quick else (100_000, 1_000_000):
             t, mb = peak(["robust", one, "--gain", "0.3", "--samples", str(samples), "--workers", "2", "--quiet",
                           "--out", os.path.join(tmp, f"r{samples}")])
-            print(f"damper robust, {samples} samples at one condition, two threads: {t:.0f} s, peak {mb:.0f} MB")
+            print(f"damper robust, {samples} samples at one condition, two worker processes: {t:.0f} s, peak {mb:.0f} MB")
         out = os.path.join(tmp, "stop-robust")
         for sig in (signal.SIGINT, signal.SIGTERM):
             dt, rc = stop_time(["robust", UNCERTAIN, "--gain", "0.3", "--samples", "3000000", "--workers", "2",
                                 "--quiet", "--out", out + sig.name],
                                lambda o=out + sig.name: _after(os.path.exists(os.path.join(o, ".damper-journal")), 2.0),
                                sig)
-            print(f"damper robust, 3,000,000 samples, two threads: exit {rc} {dt:.2f} s after {sig.name}")
+            print(f"damper robust, 3,000,000 samples, two worker processes: exit {rc} {dt:.2f} s after {sig.name}")
         for sig in (signal.SIGINT, signal.SIGKILL):
             d = os.path.join(tmp, "stop-design" + sig.name)
             dt, rc = stop_time(["design", DEMO, "--out", d],
