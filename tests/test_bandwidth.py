@@ -118,3 +118,22 @@ def test_single_system_and_bad_grid():
     assert r.phase_delay[0] == pytest.approx(0.050, rel=1e-9)
     with pytest.raises(ValueError):
         attitude_bandwidth(lambda w: 1.0 / (1j * w), np.array([1.0, 0.5, 2.0]))
+
+
+@pytest.mark.parametrize("depth", [2, 5, 8])
+def test_several_bisection_steps_per_call_give_the_one_step_answer_bit_for_bit(monkeypatch, depth):
+    # [derived] the tree of midpoints holds exactly the points one-at-a-time bisection visits
+    # (each 0.5 * (a + b) of the bracket it halves), so the answer cannot depend on how many
+    # steps one response call serves; fewer calls is the only difference.
+    import damper.measures.bandwidth as bw
+
+    def run(d):
+        monkeypatch.setattr(bw, "_tree_depth", lambda n_sys: d)
+        calls = []
+        return attitude_bandwidth(batch_response(calls), GRID), len(calls)
+
+    one, n_one = run(1)
+    many, n_many = run(depth)
+    for name in ("phase_crossover", "bandwidth_phase", "bandwidth_gain", "bandwidth", "phase_delay"):
+        np.testing.assert_array_equal(getattr(many, name), getattr(one, name), err_msg=name)
+    assert n_many < n_one
