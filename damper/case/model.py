@@ -10,6 +10,7 @@ from ..model.airframe import Derivatives
 from ..model import elements
 from ..model.elements import Delay
 from ..model.loop import Hardware
+from ..quantities import quantity, quantity_property
 from .envelope import Aerodynamics, Envelope
 from .failure_spec import FailureSpec
 from .sections import RequirementsGiven, ResponseSettings, ScheduleSettings, TurbulenceSettings
@@ -34,10 +35,10 @@ class Aircraft:
     """
 
     name: str | None
-    mass: float
-    pitch_inertia: float
-    wing_area: float | None
-    mean_chord: float | None
+    mass: float = quantity("kg")
+    pitch_inertia: float = quantity("kg m^2")
+    wing_area: float | None = quantity("m^2")
+    mean_chord: float | None = quantity("m")
 
 
 @dataclass(frozen=True)
@@ -85,24 +86,24 @@ class Condition:
     """
 
     name: str
-    airspeed: float
-    altitude: float
-    altitude_input: float
-    density: float
-    speed_of_sound: float
-    mach: float
-    dynamic_pressure: float
-    mass: float
-    pitch_inertia: float
+    airspeed: float = quantity("m/s")
+    altitude: float = quantity("m", key="geopotential_altitude_m")
+    altitude_input: float = quantity("m", key="altitude_m")
+    density: float = quantity("kg/m^3")
+    speed_of_sound: float = quantity("m/s")
+    mach: float = quantity("")
+    dynamic_pressure: float = quantity("Pa")
+    mass: float = quantity("kg")
+    pitch_inertia: float = quantity("kg m^2")
     derivatives: Derivatives
     source: str
     note: str | None = None
     configuration: str | None = None
-    flight_path_angle: float = 0.0
+    flight_path_angle: float = quantity("rad", default=0.0)
     written: tuple = field(default=(), compare=False)
     lift_curve_slope_per_rad: float | None = None
 
-    @property
+    @quantity_property("m/s")
     def equivalent_airspeed(self) -> float:
         """Equivalent airspeed, m/s."""
         from ..atmosphere import RHO0

@@ -43,6 +43,8 @@ from typing import Callable
 
 import numpy as np
 
+from ..quantities import quantity
+
 __all__ = ["AttitudeBandwidth", "attitude_bandwidth"]
 
 BISECTION_ITERATIONS = 40
@@ -74,11 +76,11 @@ class AttitudeBandwidth:
         ``tau_p``, s; nan when omega_180 is nan.
     """
 
-    phase_crossover: np.ndarray
-    bandwidth_phase: np.ndarray
-    bandwidth_gain: np.ndarray
-    bandwidth: np.ndarray
-    phase_delay: np.ndarray
+    phase_crossover: np.ndarray = quantity("rad/s", key="attitude_phase_crossover_rad_s")
+    bandwidth_phase: np.ndarray = quantity("rad/s")
+    bandwidth_gain: np.ndarray = quantity("rad/s")
+    bandwidth: np.ndarray = quantity("rad/s")
+    phase_delay: np.ndarray = quantity("s")
 
 
 def _nearest_branch(raw, reference):

@@ -61,6 +61,8 @@ import numpy as np
 
 __all__ = ["EquivalentFit", "fit_frequencies", "fit_equivalent_system"]
 
+from ..quantities import quantity
+
 # the model and its starts live in their own modules; their names stay importable from here
 from .loes_residuals import _LN_K, _LN_W, _LN_ZERO, _TAU, _Z, PHASE_WEIGHT, _evaluate, _normal_equations  # noqa: F401
 from .loes_starts import _START_SPREAD, _merged_starts, _scan_delay_and_sign, _starting_points  # noqa: F401
@@ -123,12 +125,13 @@ class EquivalentFit:
         converge or left a mismatch above :data:`FALLBACK_MISMATCH`).
     """
 
-    damping_ratio: np.ndarray
-    natural_frequency: np.ndarray
-    time_delay: np.ndarray
-    gain: np.ndarray
-    inv_t_theta2: np.ndarray
-    mismatch: np.ndarray
+    damping_ratio: np.ndarray = quantity("")
+    natural_frequency: np.ndarray = quantity("rad/s")
+    time_delay: np.ndarray = quantity("s")
+    # the documents' key predates the unit written above; kept so they stay byte-identical
+    gain: np.ndarray = quantity("1/s^2", key="gain_1_s")
+    inv_t_theta2: np.ndarray = quantity("1/s")
+    mismatch: np.ndarray = quantity("")
     converged: np.ndarray
     fallback: np.ndarray = False
 

@@ -40,6 +40,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..model.rational import FactoredLoop, at_zero, crossing_polynomial, evaluate, factored_loop
+from ..quantities import quantity
 from .freqset import W_ZERO, Intervals, bounded_intervals, concat, intervals_between, split
 from .refine import golden_max, illinois
 
@@ -105,17 +106,17 @@ class Margins:
         Every phase crossing (ascending) and its gain margin, NaN-padded.
     """
 
-    gain_margin_db: np.ndarray
-    gain_margin_low_db: np.ndarray
-    phase_margin_deg: np.ndarray
-    phase_margin_signed_deg: np.ndarray
-    gain_crossover_rad_s: np.ndarray
-    phase_crossover_rad_s: np.ndarray
-    phase_crossover_low_rad_s: np.ndarray
-    delay_margin_s: np.ndarray
-    disk_margin: np.ndarray
-    disk_gain_margin_db: np.ndarray
-    disk_phase_margin_deg: np.ndarray
+    gain_margin_db: np.ndarray = quantity("dB")
+    gain_margin_low_db: np.ndarray = quantity("dB")
+    phase_margin_deg: np.ndarray = quantity("deg")
+    phase_margin_signed_deg: np.ndarray = quantity("deg")
+    gain_crossover_rad_s: np.ndarray = quantity("rad/s")
+    phase_crossover_rad_s: np.ndarray = quantity("rad/s")
+    phase_crossover_low_rad_s: np.ndarray = quantity("rad/s")
+    delay_margin_s: np.ndarray = quantity("s")
+    disk_margin: np.ndarray = quantity("")
+    disk_gain_margin_db: np.ndarray = quantity("dB")
+    disk_phase_margin_deg: np.ndarray = quantity("deg")
     gain_crossings_rad_s: np.ndarray
     phase_margins_deg: np.ndarray
     phase_crossings_rad_s: np.ndarray

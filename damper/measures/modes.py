@@ -15,6 +15,7 @@ import numpy as np
 
 from ..model import airframe as af
 from ..model import airframes
+from ..quantities import quantity
 
 LN2 = float(np.log(2.0))
 
@@ -51,11 +52,11 @@ class SecondOrderMode:
         The two roots, 1/s.
     """
 
-    natural_frequency: np.ndarray
-    damping_ratio: np.ndarray
-    period: np.ndarray
-    time_to_half: np.ndarray
-    time_to_double: np.ndarray
+    natural_frequency: np.ndarray = quantity("rad/s")
+    damping_ratio: np.ndarray = quantity("")
+    period: np.ndarray = quantity("s")
+    time_to_half: np.ndarray = quantity("s")
+    time_to_double: np.ndarray = quantity("s")
     roots: np.ndarray
 
 

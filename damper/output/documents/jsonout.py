@@ -8,11 +8,7 @@ import os
 
 import numpy as np
 
-
-def num(x):
-    """A JSON number or ``None`` for NaN/inf."""
-    x = float(x)
-    return x if math.isfinite(x) else None
+from .serialize import num, point
 
 
 def clean(obj):
@@ -79,6 +75,19 @@ def _finite(values):
     return [num(v) for v in np.asarray(values).ravel() if math.isfinite(float(v))]
 
 
+#: The values each part of :func:`condition_result` writes, in the document's order (keys and
+#: units from the fields' metadata, :mod:`damper.quantities`): the condition's flight state
+#: (:class:`~damper.case.model.Condition`), the bare and closed-loop short period
+#: (:class:`~damper.measures.modes.SecondOrderMode`), the equivalent system
+#: (:class:`~damper.measures.equivalent.EquivalentFit`) and the attitude bandwidth
+#: (:class:`~damper.measures.bandwidth.AttitudeBandwidth`).
+FLIGHT = ("airspeed", "equivalent_airspeed", "altitude_input", "mach", "dynamic_pressure", "mass")
+BARE_MODE = ("damping_ratio", "natural_frequency", "period", "time_to_half", "time_to_double")
+CLOSED_LOOP_MODE = ("damping_ratio", "natural_frequency", "period", "time_to_half")
+EQUIVALENT = ("damping_ratio", "natural_frequency", "time_delay", "gain", "inv_t_theta2", "mismatch")
+BANDWIDTH = ("phase_crossover", "bandwidth_phase", "bandwidth_gain", "bandwidth", "phase_delay")
+
+
 def condition_result(case, result, index) -> dict:
     """The ``assess`` structure of one (condition, gain) point.
 
@@ -100,21 +109,10 @@ def condition_result(case, result, index) -> dict:
     entry = {
         "name": cond.name,
         "gain_s": num(result.gains[index]),
-        "flight": {
-            "airspeed_m_s": num(cond.airspeed),
-            "equivalent_airspeed_m_s": num(cond.equivalent_airspeed),
-            "altitude_m": num(cond.altitude_input),
-            "mach": num(cond.mach),
-            "dynamic_pressure_pa": num(cond.dynamic_pressure),
-            "mass_kg": num(cond.mass),
-        },
+        "flight": point(cond, None, FLIGHT),
         "bare": {
             "short_period": {
-                "damping_ratio": num(bare.damping_ratio[bi]),
-                "natural_frequency_rad_s": num(bare.natural_frequency[bi]),
-                "period_s": num(bare.period[bi]),
-                "time_to_half_s": num(bare.time_to_half[bi]),
-                "time_to_double_s": num(bare.time_to_double[bi]),
+                **point(bare, bi, BARE_MODE),
                 "roots": [[num(z.real), num(z.imag)] for z in bare.roots[bi]],
             }
         },
@@ -122,10 +120,7 @@ def condition_result(case, result, index) -> dict:
             "stable": bool(modes.stable[index]),
             "eigenvalues": [[num(z.real), num(z.imag)] for z in eig],
             "short_period": {
-                "damping_ratio": num(sp.damping_ratio[index]),
-                "natural_frequency_rad_s": num(sp.natural_frequency[index]),
-                "period_s": num(sp.period[index]),
-                "time_to_half_s": num(sp.time_to_half[index]),
+                **point(sp, index, CLOSED_LOOP_MODE),
                 "ambiguous": bool(modes.ambiguous[index]),
             },
             "least_damped_other_mode": {
@@ -164,17 +159,9 @@ def margins_object(mg, index, stable=None) -> dict:
     gpm = mg.phase_margins_deg[index]
     px = mg.phase_crossings_rad_s[index]
     pgm = mg.gain_margins_db[index]
+    values = point(mg, index, MARGIN_VALUES)
     out = {
-        "gain_margin_db": num(mg.gain_margin_db[index]),
-        "gain_margin_low_db": num(mg.gain_margin_low_db[index]),
-        "phase_margin_deg": num(mg.phase_margin_deg[index]),
-        "phase_margin_signed_deg": num(mg.phase_margin_signed_deg[index]),
-        "gain_crossover_rad_s": num(mg.gain_crossover_rad_s[index]),
-        "phase_crossover_rad_s": num(mg.phase_crossover_rad_s[index]),
-        "delay_margin_s": num(mg.delay_margin_s[index]),
-        "disk_margin": num(mg.disk_margin[index]),
-        "disk_gain_margin_db": num(mg.disk_gain_margin_db[index]),
-        "disk_phase_margin_deg": num(mg.disk_phase_margin_deg[index]),
+        **values,
         "gain_crossings": [
             {"frequency_rad_s": num(w), "phase_margin_deg": num(p)}
             for w, p in zip(gx, gpm)
@@ -188,12 +175,13 @@ def margins_object(mg, index, stable=None) -> dict:
         "delay_model": "exact",
     }
     if stable is False:
-        out.update({key: None for key in MARGIN_VALUE_KEYS})
+        out.update({key: None for key in values})
     return out
 
 
-#: The keys of :func:`margins_object` that hold margin values (``null`` on an unstable loop).
-MARGIN_VALUE_KEYS = (
+#: The :class:`~damper.measures.margins.Margins` values :func:`margins_object` writes, in order
+#: (``null`` on an unstable loop); their keys are :data:`MARGIN_VALUE_KEYS`.
+MARGIN_VALUES = (
     "gain_margin_db",
     "gain_margin_low_db",
     "phase_margin_deg",
@@ -212,12 +200,7 @@ def _equivalent(result, index):
     if eq is None:
         return None
     return {
-        "damping_ratio": num(eq.damping_ratio[index]),
-        "natural_frequency_rad_s": num(eq.natural_frequency[index]),
-        "time_delay_s": num(eq.time_delay[index]),
-        "gain_1_s": num(eq.gain[index]),
-        "inv_t_theta2_1_s": num(eq.inv_t_theta2[index]),
-        "mismatch": num(eq.mismatch[index]),
+        **point(eq, index, EQUIVALENT),
         "converged": bool(eq.converged[index]),
         "large_mismatch": bool(eq.mismatch[index] > MISMATCH_WARNING),
         "delay_model": "exact",
@@ -237,15 +220,7 @@ def _handling(result, index):
     }
     bw = result.bandwidth
     if bw is not None:
-        out.update(
-            {
-                "attitude_phase_crossover_rad_s": num(bw.phase_crossover[index]),
-                "bandwidth_phase_rad_s": num(bw.bandwidth_phase[index]),
-                "bandwidth_gain_rad_s": num(bw.bandwidth_gain[index]),
-                "bandwidth_rad_s": num(bw.bandwidth[index]),
-                "phase_delay_s": num(bw.phase_delay[index]),
-            }
-        )
+        out.update(point(bw, index, BANDWIDTH))
     return out
 
 
