@@ -21,6 +21,7 @@ from ..measures.modes import (
 from ..model import airframes
 from ..model.batch import batch_shape, map_arrays
 from ..model.loop import Loop, StateLayout, closed_loop_matrix
+from ..quantities import quantity
 from ..requirements.criteria import CriteriaResult, evaluate
 from ..requirements.spec import Requirements, build_requirements, levels
 
@@ -76,7 +77,7 @@ class Assessment:
     margins: Margins
     equivalent: object
     bandwidth: object
-    n_alpha: np.ndarray
+    n_alpha: np.ndarray = quantity("g/rad", key="n_alpha_g_per_rad")
     inv_t_theta2: np.ndarray
     layout: StateLayout
     pade_order: int | None

@@ -18,6 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..atmosphere import G0
+from ..quantities import quantity
 
 
 @dataclass(frozen=True)
@@ -44,14 +45,14 @@ class Derivatives:
         1/s^2 (rad/s^2 per rad of elevator).
     """
 
-    airspeed: np.ndarray
-    Z_alpha: np.ndarray
-    Z_q: np.ndarray
-    Z_delta: np.ndarray
-    M_alpha: np.ndarray
-    M_alpha_dot: np.ndarray
-    M_q: np.ndarray
-    M_delta: np.ndarray
+    airspeed: np.ndarray = quantity("m/s")
+    Z_alpha: np.ndarray = quantity("m/s^2")
+    Z_q: np.ndarray = quantity("m/s")
+    Z_delta: np.ndarray = quantity("m/s^2")
+    M_alpha: np.ndarray = quantity("1/s^2")
+    M_alpha_dot: np.ndarray = quantity("1/s")
+    M_q: np.ndarray = quantity("1/s")
+    M_delta: np.ndarray = quantity("1/s^2")
 
 
 def nose_up_surface(d: Derivatives):

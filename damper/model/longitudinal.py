@@ -30,6 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..atmosphere import G0
+from ..quantities import quantity
 from . import airframe as af
 
 
@@ -65,21 +66,21 @@ class LongitudinalDerivatives:
         reduce the model to the short period in a check).
     """
 
-    airspeed: np.ndarray
-    Z_alpha: np.ndarray
-    Z_q: np.ndarray
-    Z_delta: np.ndarray
-    M_alpha: np.ndarray
-    M_alpha_dot: np.ndarray
-    M_q: np.ndarray
-    M_delta: np.ndarray
-    X_u: np.ndarray
-    X_alpha: np.ndarray
-    Z_u: np.ndarray
-    M_u: np.ndarray
-    X_delta: np.ndarray = 0.0
-    flight_path_angle: np.ndarray = 0.0
-    gravity: np.ndarray = G0
+    airspeed: np.ndarray = quantity("m/s")
+    Z_alpha: np.ndarray = quantity("m/s^2")
+    Z_q: np.ndarray = quantity("m/s")
+    Z_delta: np.ndarray = quantity("m/s^2")
+    M_alpha: np.ndarray = quantity("1/s^2")
+    M_alpha_dot: np.ndarray = quantity("1/s")
+    M_q: np.ndarray = quantity("1/s")
+    M_delta: np.ndarray = quantity("1/s^2")
+    X_u: np.ndarray = quantity("1/s")
+    X_alpha: np.ndarray = quantity("m/s^2")
+    Z_u: np.ndarray = quantity("1/s")
+    M_u: np.ndarray = quantity("1/(m s)")
+    X_delta: np.ndarray = quantity("m/s^2", default=0.0)
+    flight_path_angle: np.ndarray = quantity("rad", default=0.0)
+    gravity: np.ndarray = quantity("m/s^2", default=G0)
 
 
 #: State names of the longitudinal model, in order.

@@ -6,6 +6,7 @@ import json
 
 from .jsonout import CAUTION, condition_result, num, provenance
 from .longitudinal import longitudinal_table, speed_derivatives_summary
+from .serialize import point
 from .text import fmt, table
 
 
@@ -25,6 +26,16 @@ def requirements_list(case) -> list:
     ]
 
 
+#: The values of :func:`case_summary`, in the document's order (keys and units from the fields'
+#: metadata, :mod:`damper.quantities`): a condition (:class:`~damper.case.model.Condition`), its
+#: short-period derivatives (:class:`~damper.model.airframe.Derivatives`) and the aircraft
+#: (:class:`~damper.case.model.Aircraft`).
+SUMMARY_CONDITION = ("airspeed", "equivalent_airspeed", "altitude_input", "altitude", "density", "mach",
+                     "dynamic_pressure", "mass", "pitch_inertia")
+SUMMARY_DERIVATIVES = ("Z_alpha", "Z_q", "Z_delta", "M_alpha", "M_alpha_dot", "M_q", "M_delta")
+SUMMARY_AIRCRAFT = ("mass", "pitch_inertia", "wing_area", "mean_chord")
+
+
 def case_summary(case) -> dict:
     """What the case describes (aircraft, flight conditions, loop hardware), SI, for the report."""
     a, loop = case.aircraft, case.loop
@@ -40,36 +51,13 @@ def case_summary(case) -> dict:
                 "name": c.name,
                 "note": c.note,
                 "derivative_source": c.source,
-                "airspeed_m_s": num(c.airspeed),
-                "equivalent_airspeed_m_s": num(c.equivalent_airspeed),
-                "altitude_m": num(c.altitude_input),
-                "geopotential_altitude_m": num(c.altitude),
-                "density_kg_m3": num(c.density),
-                "mach": num(c.mach),
-                "dynamic_pressure_pa": num(c.dynamic_pressure),
-                "mass_kg": num(c.mass),
-                "pitch_inertia_kg_m2": num(c.pitch_inertia),
+                **point(c, None, SUMMARY_CONDITION),
                 "as_written": {w.key: w.text for w in c.written},
-                "derivatives": {
-                    "Z_alpha_m_s2": num(d.Z_alpha),
-                    "Z_q_m_s": num(d.Z_q),
-                    "Z_delta_m_s2": num(d.Z_delta),
-                    "M_alpha_1_s2": num(d.M_alpha),
-                    "M_alpha_dot_1_s": num(d.M_alpha_dot),
-                    "M_q_1_s": num(d.M_q),
-                    "M_delta_1_s2": num(d.M_delta),
-                    **speed_derivatives_summary(d),
-                },
+                "derivatives": {**point(d, None, SUMMARY_DERIVATIVES), **speed_derivatives_summary(d)},
             }
         )
     return {
-        "aircraft": {
-            "name": a.name,
-            "mass_kg": num(a.mass),
-            "pitch_inertia_kg_m2": num(a.pitch_inertia),
-            "wing_area_m2": None if a.wing_area is None else num(a.wing_area),
-            "mean_chord_m": None if a.mean_chord is None else num(a.mean_chord),
-        },
+        "aircraft": {"name": a.name, **point(a, None, SUMMARY_AIRCRAFT)},
         "altitude_kind": case.altitude_kind,
         "conditions": conds,
         "loop": {

@@ -214,7 +214,7 @@ MISMATCH_WARNING = 10.0
 
 def _handling(result, index):
     out = {
-        "n_alpha_g_per_rad": num(result.n_alpha[index]),
+        **point(result, index, ("n_alpha",)),
         "cap_equivalent": num(result.cap("equivalent")[index]),
         "cap_modal": num(result.cap("modal")[index]),
     }

@@ -8,17 +8,25 @@ as they were (no key is added), so its documents are unchanged byte for byte.
 from __future__ import annotations
 
 from ...analysis.tolerances import DAMPING_TOLERANCE, FREQUENCY_TOLERANCE
-from .jsonout import num
+from .serialize import point
 from .text import fmt, table
+
+
+#: The values each part writes, in the document's order (keys and units from the fields'
+#: metadata, :mod:`damper.quantities`): a phugoid and the two-state short period
+#: (:class:`~damper.measures.modes.SecondOrderMode`), the equivalent system's plain form
+#: (:class:`~damper.measures.equivalent.EquivalentFit`) and the speed derivatives
+#: (:class:`~damper.model.longitudinal.LongitudinalDerivatives`).
+PHUGOID = ("damping_ratio", "natural_frequency", "period", "time_to_double")
+TWO_STATE = ("damping_ratio", "natural_frequency")
+PLAIN_FORM = ("damping_ratio", "natural_frequency", "time_delay", "mismatch")
+SPEED_DERIVATIVES = ("X_u", "X_alpha", "Z_u", "M_u", "X_delta", "flight_path_angle")
 
 
 def _mode(mode, index, ambiguous=None) -> dict:
     """``{damping_ratio, natural_frequency_rad_s, period_s, time_to_double_s, ambiguous}`` of one pair."""
     return {
-        "damping_ratio": num(mode.damping_ratio[index]),
-        "natural_frequency_rad_s": num(mode.natural_frequency[index]),
-        "period_s": num(mode.period[index]),
-        "time_to_double_s": num(mode.time_to_double[index]),
+        **point(mode, index, PHUGOID),
         "ambiguous": None if ambiguous is None else bool(ambiguous[index]),
     }
 
@@ -45,17 +53,13 @@ def with_longitudinal(entry: dict, cond, result, index, bare_index) -> dict:
     modes = result.modes
     two = result.two_state
     entry = _insert_after(entry, "gain_s", {"model": "longitudinal"})
-    entry["flight"] = {**entry["flight"], "flight_path_angle_rad": num(cond.flight_path_angle)}
+    entry["flight"] = {**entry["flight"], **point(cond, None, ("flight_path_angle",))}
     entry["bare"] = {**entry["bare"], "phugoid": _mode(result.bare_phugoid, bare_index)}
     plain = result.equivalent_plain
     eq = entry["closed_loop"].get("equivalent")
     if eq is not None:
         eq = {**eq, "phugoid_factor_removed": True,
-              "plain_form": {"damping_ratio": num(plain.damping_ratio[index]),
-                             "natural_frequency_rad_s": num(plain.natural_frequency[index]),
-                             "time_delay_s": num(plain.time_delay[index]),
-                             "mismatch": num(plain.mismatch[index]),
-                             "converged": bool(plain.converged[index])}}
+              "plain_form": {**point(plain, index, PLAIN_FORM), "converged": bool(plain.converged[index])}}
         entry["closed_loop"] = {**entry["closed_loop"], "equivalent": eq}
     entry["closed_loop"] = _insert_after(
         entry["closed_loop"],
@@ -63,8 +67,7 @@ def with_longitudinal(entry: dict, cond, result, index, bare_index) -> dict:
         {
             "phugoid": _mode(modes.phugoid, index, modes.phugoid_ambiguous),
             "short_period_two_state": {
-                "damping_ratio": num(two.damping_ratio[index]),
-                "natural_frequency_rad_s": num(two.natural_frequency[index]),
+                **point(two, index, TWO_STATE),
                 "differs": bool(result.two_state_differs[index]),
                 "damping_tolerance": DAMPING_TOLERANCE,
                 "frequency_tolerance_relative": FREQUENCY_TOLERANCE,
@@ -80,14 +83,7 @@ def speed_derivatives_summary(d) -> dict:
     ``X_delta_m_s2``, ``flight_path_angle_rad``."""
     if not hasattr(d, "M_u"):
         return {}
-    return {
-        "X_u_1_s": num(d.X_u),
-        "X_alpha_m_s2": num(d.X_alpha),
-        "Z_u_1_s": num(d.Z_u),
-        "M_u_1_m_s": num(d.M_u),
-        "X_delta_m_s2": num(d.X_delta),
-        "flight_path_angle_rad": num(d.flight_path_angle),
-    }
+    return point(d, None, SPEED_DERIVATIVES)
 
 
 def longitudinal_table(conditions) -> str:
