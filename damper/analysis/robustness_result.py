@@ -7,6 +7,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from ..quantities import quantity
+
 if TYPE_CHECKING:  # annotations only
     from ..case.uncertainty import UncertaintySpec
     from .uncertainty import Axes
@@ -47,18 +49,18 @@ class WorstCase:
 
     criterion: str
     value: float
-    slack: float
+    slack: float = quantity("")
     u: np.ndarray
     parameters: np.ndarray
     source: str
     index: int
-    start_slack: float
+    start_slack: float = quantity("", key="worst_evaluated_slack")
     evaluations: int = 0
     values: np.ndarray = None
     slacks: np.ndarray = None
-    damping: float = float("nan")
-    gain_margin: float = float("nan")
-    phase_margin: float = float("nan")
+    damping: float = quantity("", key="damping_ratio", default=float("nan"))
+    gain_margin: float = quantity("dB", default=float("nan"))
+    phase_margin: float = quantity("deg", default=float("nan"))
 
 
 @dataclass(frozen=True)
@@ -102,7 +104,7 @@ class ConditionRobustness:
     """
 
     name: str
-    gain: float
+    gain: float = quantity("s")
     nominal_values: np.ndarray
     nominal_slacks: np.ndarray
     nominal_met: bool

@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..model.airframe import Derivatives
+from ..quantities import quantity
 
 @dataclass(frozen=True)
 class Schedule:
@@ -82,37 +83,64 @@ class PointSet:
 
     derivatives: Derivatives
     values: np.ndarray
-    altitude: np.ndarray
-    airspeed: np.ndarray
+    altitude: np.ndarray = quantity("m")
+    airspeed: np.ndarray = quantity("m/s")
     configuration: np.ndarray
     labels: tuple
     kind: np.ndarray
-    mass: np.ndarray
-    pitch_inertia: np.ndarray
+    mass: np.ndarray = quantity("kg")
+    pitch_inertia: np.ndarray = quantity("kg m^2")
 
 
 @dataclass(frozen=True)
 class BreakpointDesign:
-    """Per breakpoint (flattened over a 2-D table): gain, whether feasible, design points, binding."""
+    """Per breakpoint (flattened over a 2-D table): gain, whether feasible, design points, binding.
 
-    gains: np.ndarray
+    Attributes
+    ----------
+    gains : ndarray
+        s.
+    feasible : ndarray of bool
+    worst_slack : ndarray
+        Least normalised slack (negative: missed).
+    binding : tuple of str
+    points : ndarray of int
+    """
+
+    gains: np.ndarray = quantity("s", key="gain_s")
     feasible: np.ndarray
-    worst_slack: np.ndarray
+    worst_slack: np.ndarray = quantity("")
     binding: tuple
     points: np.ndarray  # number of design points per breakpoint
 
 
 @dataclass(frozen=True)
 class Verification:
-    """Schedule verification results at every verification point."""
+    """Schedule verification results at every verification point.
+
+    Attributes
+    ----------
+    points : PointSet
+    gains : ndarray
+        The scheduled gain at each point, s.
+    passed : ndarray of bool
+    worst_slack : ndarray
+        Least normalised slack (negative: missed).
+    binding : tuple of str
+    damping_ratio : ndarray
+        By the requirements' damping measure.
+    smallest_margin_db : ndarray
+        Smallest gain margin, dB (NaN: unbounded).
+    criteria_names : tuple of str
+    """
 
     points: PointSet
-    gains: np.ndarray
+    gains: np.ndarray = quantity("s", key="gain_s")
     passed: np.ndarray
-    worst_slack: np.ndarray
+    worst_slack: np.ndarray = quantity("")
     binding: tuple
-    damping_ratio: np.ndarray
-    smallest_margin_db: np.ndarray
+    damping_ratio: np.ndarray = quantity("")
+    smallest_margin_db: np.ndarray = quantity("dB", key="smallest_gain_margin_db")
     criteria_names: tuple
 
 

@@ -15,6 +15,7 @@ from ...analysis.sample_stats import SLACK_EDGES
 from ...analysis.uncertainty import SHARD_SAMPLES
 from .design import requirements_list
 from .jsonout import CAUTION, num, provenance
+from .serialize import point
 from .text import fmt, table
 from .text import pct as _pct
 
@@ -76,6 +77,11 @@ def parameters_list(case, result) -> list:
     return out
 
 
+#: The :class:`~damper.analysis.robustness_result.WorstCase` values of a worst entry's ``there``
+#: object, in the document's order (keys and units from the fields' metadata).
+WORST_THERE = ("damping", "gain_margin", "phase_margin")
+
+
 def _worst_entries(result, i, c) -> list:
     """The ``worst`` list of condition `i`: one entry per criterion."""
     crit = result.criteria
@@ -86,18 +92,16 @@ def _worst_entries(result, i, c) -> list:
             "unit": crit[j].kind.unit,
             "value": num(w.value),
             "value_note": None if math.isfinite(w.value) else "undefined: unbounded margin (met) or no such mode (failed)",
-            "slack": num(w.slack),
+            **point(w, None, ("slack",)),
             "met": bool(w.slack >= 0),
             "source": w.source,
             "index": w.index,
-            "worst_evaluated_slack": num(w.start_slack),
+            **point(w, None, ("start_slack",)),
             "refinement_evaluations": w.evaluations,
             "parameters": _params(result, i, w.parameters),
             "normalised": [num(x) for x in w.u],
             "there": {
-                "damping_ratio": num(w.damping),
-                "gain_margin_db": num(w.gain_margin),
-                "phase_margin_deg": num(w.phase_margin),
+                **point(w, None, WORST_THERE),
                 "all_met": bool(np.all(w.slacks >= 0)) if w.slacks is not None else None,
             },
         }
@@ -123,7 +127,7 @@ def condition_document(case, result, i) -> dict:
     top = c.top_driver()
     return {
         "name": c.name,
-        "gain_s": num(c.gain),
+        **point(c, None, ("gain",)),
         "nominal": {
             "all_met": c.nominal_met,
             "criteria": [

@@ -17,6 +17,7 @@ from ... import __version__
 from ...analysis.envelope import VARIABLE_UNITS
 from ..files import write_atomic
 from .jsonout import CAUTION, dumps, num, provenance
+from .serialize import point, series
 
 
 def _unit_key(var):
@@ -208,9 +209,9 @@ def schedule_document(case, result, command=None) -> dict:
         "table": table_dict(result.schedule, case),
         "breakpoint_design": {
             "shape": list(shape),
-            "gain_s": [num(x) for x in bd.gains],
+            **series(bd, ("gains",)),
             "feasible": [bool(x) for x in bd.feasible],
-            "worst_slack": [num(x) for x in bd.worst_slack],
+            **series(bd, ("worst_slack",)),
             "binding": list(bd.binding),
             "design_points": [int(x) for x in bd.points],
         },
@@ -224,15 +225,13 @@ def schedule_document(case, result, command=None) -> dict:
                     "label": pts.labels[i],
                     "kind": str(pts.kind[i]),
                     "configuration": int(pts.configuration[i]),
-                    "altitude_m": num(pts.altitude[i]),
-                    "airspeed_m_s": num(pts.airspeed[i]),
+                    **point(pts, i, ("altitude", "airspeed")),
                     "variables": [num(x) for x in pts.values[:, i]],
-                    "gain_s": num(v.gains[i]),
+                    **point(v, i, ("gains",)),
                     "passed": bool(v.passed[i]),
-                    "worst_slack": num(v.worst_slack[i]),
+                    **point(v, i, ("worst_slack",)),
                     "binding": v.binding[i],
-                    "damping_ratio": num(v.damping_ratio[i]),
-                    "smallest_gain_margin_db": num(v.smallest_margin_db[i]),
+                    **point(v, i, ("damping_ratio", "smallest_margin_db")),
                 }
                 for i in range(len(pts.labels))
             ],

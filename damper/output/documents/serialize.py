@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 from ...quantities import quantities
 
 
@@ -44,6 +46,18 @@ def point(obj, index=None, names=None) -> dict:
             value = value[index]
         out[q.key] = None if value is None else num(value)
     return out
+
+
+def series(obj, names=None) -> dict:
+    """``{json key: [number, ...]}``: every element (flattened) of the annotated values `names` of `obj`.
+
+    Parameters
+    ----------
+    obj : dataclass instance
+    names : sequence of str, optional
+        As :func:`point`.
+    """
+    return {q.key: [num(x) for x in np.ravel(getattr(obj, q.attribute))] for q in quantities(obj, names)}
 
 
 def keys(obj, names=None) -> tuple:
