@@ -20,6 +20,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..quantities import quantity
 from . import authority as au
 from .failure_case import failure_spec, servo_limits
 from .failure_spec import FailureSpec, ServoLimits
@@ -60,10 +61,10 @@ class Saturation:
     """
 
     input: str
-    time_at_authority_limit_s: float
-    time_at_authority_rate_limit_s: float
-    peak_damper_demand_rad: float
-    duration_s: float
+    time_at_authority_limit_s: float = quantity("s")
+    time_at_authority_rate_limit_s: float = quantity("s")
+    peak_damper_demand_rad: float = quantity("rad")
+    duration_s: float = quantity("s")
 
 
 @dataclass(frozen=True)

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..quantities import quantity
 from .simulation import TimeHistory
 
 #: A second peak below this fraction of the first means "not oscillatory": the
@@ -65,21 +66,21 @@ class ResponseMeasures:
         of the simulation: :attr:`TimeHistory.damper_demand_peak`; else over the samples).
     """
 
-    time_to_half: np.ndarray
-    settling_time: np.ndarray
-    overshoot: np.ndarray
-    peak_pitch_rate: np.ndarray
-    peak_alpha: np.ndarray
-    peak_load_factor: np.ndarray
-    peak_surface: np.ndarray
-    peak_surface_rate: np.ndarray
-    time_at_rate_limit: np.ndarray
-    time_at_position_limit: np.ndarray
-    input_end: np.ndarray
-    time_at_authority_limit: np.ndarray | None = None
-    time_at_authority_rate_limit: np.ndarray | None = None
-    peak_damper: np.ndarray | None = None
-    peak_damper_demand: np.ndarray | None = None
+    time_to_half: np.ndarray = quantity("s")
+    settling_time: np.ndarray = quantity("s", key="settling_time_5pct_s")
+    overshoot: np.ndarray = quantity("", key="overshoot_ratio")
+    peak_pitch_rate: np.ndarray = quantity("rad/s")
+    peak_alpha: np.ndarray = quantity("rad")
+    peak_load_factor: np.ndarray = quantity("g")
+    peak_surface: np.ndarray = quantity("rad")
+    peak_surface_rate: np.ndarray = quantity("rad/s")
+    time_at_rate_limit: np.ndarray = quantity("s")
+    time_at_position_limit: np.ndarray = quantity("s", key="time_at_travel_limit_s")
+    input_end: np.ndarray = quantity("s")
+    time_at_authority_limit: np.ndarray | None = quantity("s", default=None)
+    time_at_authority_rate_limit: np.ndarray | None = quantity("s", default=None)
+    peak_damper: np.ndarray | None = quantity("rad", default=None)
+    peak_damper_demand: np.ndarray | None = quantity("rad", default=None)
 
 
 def _signed_peak(x):

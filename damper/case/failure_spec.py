@@ -25,6 +25,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..quantities import quantity
+
 #: Failure kinds, in the order of the results.
 KINDS = ("hardover", "oscillatory", "passive")
 
@@ -168,10 +170,10 @@ class ServoLimits:
         The actuator's travel, +/- rad, on pilot plus damper command (None: none).
     """
 
-    authority: object = None
-    authority_rate_limit: object = None
-    rate_limit: object = None
-    travel: object = None
+    authority: object = quantity("rad", default=None)
+    authority_rate_limit: object = quantity("rad/s", default=None)
+    rate_limit: object = quantity("rad/s", key="actuator_rate_limit_rad_s", default=None)
+    travel: object = quantity("rad", key="actuator_travel_rad", default=None)
 
     def failure_authority(self):
         """The authority a failure runs to, rad: `authority`, else `travel`.

@@ -168,20 +168,20 @@ class LoopSpec:
     sensor: ElementSpec | None = None
     washout: ElementSpec | None = None
     filters: tuple = ()
-    delay: float = 0.0
-    sample_rate: float | None = None
+    delay: float = quantity("s", key="computation_delay_s", default=0.0)
+    sample_rate: float | None = quantity("Hz", default=None)
     pade_order: int = 2
-    rate_limit: float | None = None
-    travel: float | None = None
-    authority: float | None = None
-    authority_rate_limit: float | None = None
+    rate_limit: float | None = quantity("rad/s", key="actuator_rate_limit_rad_s", default=None)
+    travel: float | None = quantity("rad", key="actuator_travel_rad", default=None)
+    authority: float | None = quantity("rad", default=None)
+    authority_rate_limit: float | None = quantity("rad/s", default=None)
 
     @property
     def damper_rate_limit(self) -> float | None:
         """The damper command's rate limit, rad/s: its own, else the actuator's (None: none)."""
         return self.authority_rate_limit if self.authority_rate_limit is not None else self.rate_limit
 
-    @property
+    @quantity_property("s")
     def total_delay(self) -> float:
         """Computation delay plus half a sample (zero-order hold), s."""
         half = 0.5 / self.sample_rate if self.sample_rate else 0.0

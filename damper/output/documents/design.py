@@ -62,14 +62,11 @@ def case_summary(case) -> dict:
         "conditions": conds,
         "loop": {
             "actuator": element(loop.actuator),
-            "actuator_rate_limit_rad_s": None if loop.rate_limit is None else num(loop.rate_limit),
-            "actuator_travel_rad": None if loop.travel is None else num(loop.travel),
+            **point(loop, None, ("rate_limit", "travel")),
             "rate_sensor": element(loop.sensor),
             "washout": element(loop.washout),
             "filters": [f.describe() for f in loop.filters],
-            "computation_delay_s": num(loop.delay),
-            "sample_rate_hz": None if loop.sample_rate is None else num(loop.sample_rate),
-            "total_delay_s": num(loop.total_delay),
+            **point(loop, None, ("delay", "sample_rate", "total_delay")),
             "pade_order": loop.pade_order,
         },
         "frequency_grid_rad_s": {

@@ -13,9 +13,17 @@ import math
 from ...analysis.failure_verdict import LIMIT_KEYS, LIMIT_WORDS
 from ...analysis.failure_verdict import deg_range as _deg_range
 from .jsonout import CAUTION, num, provenance, with_verdict
+from .serialize import point
 from .text import fmt, table
 
 R2D = 180.0 / math.pi
+
+#: The values the settings' ``servo`` object (:class:`~damper.case.failure_spec.ServoLimits`) and a
+#: ``saturation`` row (:class:`~damper.analysis.failure_run.Saturation`) write, in the document's
+#: order (keys and units from the fields' metadata, :mod:`damper.quantities`).
+SERVO = ("authority", "authority_rate_limit", "rate_limit", "travel")
+SATURATION = ("time_at_authority_limit_s", "time_at_authority_rate_limit_s", "peak_damper_demand_rad", "duration_s")
+
 
 def _band(b):
     return None if b is None else [num(b[0]), num(b[1])]
@@ -33,10 +41,7 @@ def _settings(run) -> dict:
         "passive_category": spec.passive_category,
         "sources": dict(spec.sources),
         "servo": {
-            "authority_rad": None if servo.authority is None else num(servo.authority),
-            "authority_rate_limit_rad_s": None if servo.authority_rate_limit is None else num(servo.authority_rate_limit),
-            "actuator_rate_limit_rad_s": None if servo.rate_limit is None else num(servo.rate_limit),
-            "actuator_travel_rad": None if servo.travel is None else num(servo.travel),
+            **point(servo, None, SERVO),
             "failures_run_to": "loop.authority" if servo.authority is not None else "loop.actuator.travel (no authority)",
         },
         "step_s": spec.time_grid()[0],
@@ -46,9 +51,7 @@ def _settings(run) -> dict:
 
 
 def _saturation(rows) -> list:
-    return [{"input": s.input, "time_at_authority_limit_s": num(s.time_at_authority_limit_s),
-             "time_at_authority_rate_limit_s": num(s.time_at_authority_rate_limit_s),
-             "peak_damper_demand_rad": num(s.peak_damper_demand_rad), "duration_s": num(s.duration_s)} for s in rows]
+    return [{"input": s.input, **point(s, None, SATURATION)} for s in rows]
 
 
 def failures_document(case, run, verdict, command=None, files=()) -> dict:

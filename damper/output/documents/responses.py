@@ -12,6 +12,7 @@ import math
 import numpy as np
 
 from .jsonout import CAUTION, num, provenance
+from .serialize import point
 from .text import fmt, table
 
 R2D = 180.0 / math.pi
@@ -60,20 +61,16 @@ def _csv_value(v) -> str:
 # ---------------------------------------------------------------------------
 
 
+#: The :class:`~damper.analysis.response_measures.ResponseMeasures` values of a response, in the
+#: document's order (keys and units from the fields' metadata, :mod:`damper.quantities`), and those
+#: written only when the case sets an authority.
+MEASURES = ("time_to_half", "settling_time", "overshoot", "peak_pitch_rate", "peak_alpha", "peak_load_factor",
+            "peak_surface", "peak_surface_rate", "time_at_rate_limit", "time_at_position_limit", "input_end")
+AUTHORITY_MEASURES = ("time_at_authority_limit", "time_at_authority_rate_limit", "peak_damper_demand")
+
+
 def _measures(m, i) -> dict:
-    return {
-        "time_to_half_s": num(m.time_to_half[i]),
-        "settling_time_5pct_s": num(m.settling_time[i]),
-        "overshoot_ratio": num(m.overshoot[i]),
-        "peak_pitch_rate_rad_s": num(m.peak_pitch_rate[i]),
-        "peak_alpha_rad": num(m.peak_alpha[i]),
-        "peak_load_factor_g": num(m.peak_load_factor[i]),
-        "peak_surface_rad": num(m.peak_surface[i]),
-        "peak_surface_rate_rad_s": num(m.peak_surface_rate[i]),
-        "time_at_rate_limit_s": num(m.time_at_rate_limit[i]),
-        "time_at_travel_limit_s": num(m.time_at_position_limit[i]),
-        "input_end_s": num(m.input_end[i]),
-    }
+    return point(m, i, MEASURES)
 
 
 def _authority_measures(res, i) -> dict:
@@ -82,16 +79,7 @@ def _authority_measures(res, i) -> dict:
     and the largest damper demand before its limits, rad."""
     if res.authority is None:
         return {}
-    m = res.augmented_measures
-
-    def at(x):
-        return None if x is None else num(np.asarray(x, dtype=float).reshape(-1)[i])
-
-    return {
-        "time_at_authority_limit_s": at(m.time_at_authority_limit),
-        "time_at_authority_rate_limit_s": at(m.time_at_authority_rate_limit),
-        "peak_damper_demand_rad": at(m.peak_damper_demand),
-    }
+    return point(res.augmented_measures, i, AUTHORITY_MEASURES, flat=True)
 
 
 def _input_json(inp, i) -> dict:

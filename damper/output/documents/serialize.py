@@ -21,7 +21,7 @@ def num(x):
     return x if math.isfinite(x) else None
 
 
-def point(obj, index=None, names=None) -> dict:
+def point(obj, index=None, names=None, flat=False) -> dict:
     """``{json key: number}`` of the annotated values `names` of `obj` at batch index `index`.
 
     Parameters
@@ -33,6 +33,8 @@ def point(obj, index=None, names=None) -> dict:
     names : sequence of str, optional
         The attributes, in the document's order (default: every annotated field in
         declaration order).
+    flat : bool
+        Index each value flattened to one dimension (values of different batch shapes).
 
     Returns
     -------
@@ -43,7 +45,7 @@ def point(obj, index=None, names=None) -> dict:
     for q in quantities(obj, names):
         value = getattr(obj, q.attribute)
         if value is not None and index is not None:
-            value = value[index]
+            value = np.asarray(value, dtype=float).reshape(-1)[index] if flat else value[index]
         out[q.key] = None if value is None else num(value)
     return out
 
