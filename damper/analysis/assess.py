@@ -71,7 +71,7 @@ class Assessment:
     The closed-loop phugoid is ``modes.phugoid`` (NaN for the short-period model).
     """
 
-    gains: np.ndarray
+    gains: np.ndarray = quantity("s", key="gain_s")
     bare: SecondOrderMode
     modes: ClosedLoopModes
     margins: Margins

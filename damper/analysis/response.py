@@ -26,6 +26,7 @@ import numpy as np
 from ..case.sections import DEFAULT_OUTPUT_STEP as _OUTPUT_STEP
 from ..model.batch import batch_shape, map_arrays
 from ..model.loop import Loop
+from ..quantities import quantity
 from .response_inputs import (  # noqa: F401 (re-exported)
     EDGE_TOL,
     GUST_KINDS,
@@ -254,13 +255,13 @@ class CaseResponses:
     """
 
     spec: ResponseSpec
-    gains: np.ndarray
+    gains: np.ndarray = quantity("s", key="gain_s")
     responses: tuple
-    rate_limit: float | None = None
-    travel: float | None = None
+    rate_limit: float | None = quantity("rad/s", default=None)
+    travel: float | None = quantity("rad", default=None)
     notes: tuple = field(default=())
-    authority: float | None = None
-    authority_rate_limit: float | None = None
+    authority: float | None = quantity("rad", default=None)
+    authority_rate_limit: float | None = quantity("rad/s", default=None)
 
 
 #: Default of :func:`respond_case`'s authority and its rate limit: the case's ``loop.authority``

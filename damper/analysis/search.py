@@ -25,6 +25,7 @@ from ..case.model import Case
 from ..measures.modes import bare_short_period
 from ..model.batch import map_arrays
 from ..model.loop import Loop
+from ..quantities import quantity
 from .assess import Assessment, assess_loop
 
 POLICIES = ("balanced", "least_gain", "damping_target")
@@ -83,7 +84,7 @@ class Edge:
         The requirement that closes the interval there ("sweep range" at the range's end).
     """
 
-    gain: float
+    gain: float = quantity("s")
     side: str
     binding: str
 
@@ -114,7 +115,7 @@ class ConditionDesign:
     name: str
     intervals: tuple
     edges: tuple
-    chosen_gain: float
+    chosen_gain: float = quantity("s")
     feasible: bool
     policy: str
     reason: str

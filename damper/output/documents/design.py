@@ -105,15 +105,15 @@ def condition_entries(case, design) -> list:
         conds.append(
             {
                 "name": d.name,
-                "chosen_gain_s": num(d.chosen_gain),
+                **point(d, None, ("chosen_gain",)),
                 "feasible": d.feasible,
                 "policy": d.policy,
                 "reason": d.reason,
                 "feasible_gains_s": [[num(a), num(b)] for a, b in d.intervals],
                 "edges": [
                     {
-                        "lower": {"gain_s": num(lo.gain), "binding": lo.binding},
-                        "upper": {"gain_s": num(hi.gain), "binding": hi.binding},
+                        "lower": {**point(lo, None, ("gain",)), "binding": lo.binding},
+                        "upper": {**point(hi, None, ("gain",)), "binding": hi.binding},
                     }
                     for lo, hi in d.edges
                 ],

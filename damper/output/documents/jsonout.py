@@ -108,7 +108,7 @@ def condition_result(case, result, index) -> dict:
     eig = modes.eigenvalues[index]
     entry = {
         "name": cond.name,
-        "gain_s": num(result.gains[index]),
+        **point(result, index, ("gains",)),
         "flight": point(cond, None, FLIGHT),
         "bare": {
             "short_period": {

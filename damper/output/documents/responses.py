@@ -128,7 +128,7 @@ def response_document(case, result, command=None, files=None) -> dict:
                 }
             )
         conds.append(
-            {"name": c.name, "gain_s": num(result.gains[i]), "airspeed_m_s": num(c.airspeed), "responses": runs}
+            {"name": c.name, **point(result, i, ("gains",)), **point(c, None, ("airspeed",)), "responses": runs}
         )
     return {
         "title": case.title,
@@ -146,8 +146,7 @@ def response_document(case, result, command=None, files=None) -> dict:
             "gust_model": "alpha_g = w_g / V added to the aerodynamic angle of attack; M_alpha_dot alpha_g' neglected",
             "load_factor": "n_z = -(Z_alpha (alpha + alpha_g) + Z_q q + Z_delta delta) / g0",
         },
-        "limits": {"rate_limit_rad_s": None if result.rate_limit is None else num(result.rate_limit),
-                   "travel_rad": None if result.travel is None else num(result.travel)},
+        "limits": point(result, None, ("rate_limit", "travel")),
         "conditions": conds,
         "provenance": provenance(case, command),
     }

@@ -12,6 +12,7 @@ from __future__ import annotations
 import math
 
 from .jsonout import CAUTION, margins_object, num, provenance
+from .serialize import point
 
 #: CSV columns that hold margins (empty on an unstable row), in the order written.
 MARGIN_COLUMNS = ("gain_margin_db", "gain_margin_low_db", "phase_margin_deg", "delay_margin_s", "disk_margin")
@@ -51,7 +52,7 @@ def sweep_rows(result) -> list:
         stable = bool(result.modes.stable[j])
         rows.append(
             {
-                "gain_s": num(result.gains[j]),
+                **point(result, j, ("gains",)),
                 "damping_equivalent": num(result.equivalent.damping_ratio[j]),
                 "damping_modal": num(result.modes.short_period.damping_ratio[j]),
                 "frequency_equivalent_rad_s": num(result.equivalent.natural_frequency[j]),

@@ -1,0 +1,304 @@
+"""The JSON keys of result fields come from the fields' metadata (damper/quantities.py).
+
+Checks: the unit-suffix rule against a table written here (common practice: the unit spelled
+in the key, lower case, ``/`` and spaces as ``_``); every annotated unit is an SI unit of
+damper's unit table or one of the few non-SI units the documents publish on purpose; the keys
+an ``assess`` document and a case summary write for annotated fields are the metadata's keys,
+and each value there is the field's value (read back through the metadata, not through the
+serializer); no document module types such a key by hand; docs/json-keys.md is current.
+"""
+
+from __future__ import annotations
+
+import ast
+import dataclasses
+import importlib
+import math
+import os
+
+import numpy as np
+import pytest
+
+from damper.quantities import quantities, quantity, quantity_property, rule_key, unit_suffix
+from damper.quantity_docs import TYPES, page
+
+from .conftest import ROOT
+
+DOCUMENTS = os.path.join(ROOT, "damper", "output", "documents")
+
+#: unit -> key suffix (common practice: the unit in the key, lower case, "/" and spaces as "_",
+#: powers as plain digits, nothing for a dimensionless value).
+SUFFIXES = {
+    "rad/s": "_rad_s",
+    "1/s": "_1_s",
+    "1/s^2": "_1_s2",
+    "dB": "_db",
+    "deg": "_deg",
+    "s": "_s",
+    "rad": "_rad",
+    "m": "_m",
+    "m/s": "_m_s",
+    "m/s^2": "_m_s2",
+    "m^2": "_m2",
+    "kg": "_kg",
+    "kg m^2": "_kg_m2",
+    "kg/m^3": "_kg_m3",
+    "1/(m s)": "_1_m_s",
+    "Pa": "_pa",
+    "Hz": "_hz",
+    "g": "_g",
+    "": "",
+}
+
+#: Units the documents publish in other than SI on purpose (common practice in handling
+#: qualities: margins in dB and deg, load factor in g).
+NOT_SI = {"dB", "deg", "g", "g/rad"}
+
+#: Fields whose JSON key is not the rule's, each with why (the published documents keep it).
+EXPLICIT = {
+    ("Condition", "altitude"): "geopotential_altitude_m",  # the atmosphere's altitude
+    ("Condition", "altitude_input"): "altitude_m",  # the altitude as the case gave it
+    ("LoopSpec", "delay"): "computation_delay_s",
+    ("LoopSpec", "rate_limit"): "actuator_rate_limit_rad_s",
+    ("LoopSpec", "travel"): "actuator_travel_rad",
+    ("ServoLimits", "rate_limit"): "actuator_rate_limit_rad_s",
+    ("ServoLimits", "travel"): "actuator_travel_rad",
+    ("EquivalentFit", "gain"): "gain_1_s",  # unit 1/s^2: the published key predates it
+    ("AttitudeBandwidth", "phase_crossover"): "attitude_phase_crossover_rad_s",
+    ("Assessment", "gains"): "gain_s",  # one gain per point of the batch
+    ("Assessment", "n_alpha"): "n_alpha_g_per_rad",
+    ("CaseResponses", "gains"): "gain_s",
+    ("ResponseMeasures", "settling_time"): "settling_time_5pct_s",
+    ("ResponseMeasures", "overshoot"): "overshoot_ratio",
+    ("ResponseMeasures", "time_at_position_limit"): "time_at_travel_limit_s",
+    ("BreakpointDesign", "gains"): "gain_s",
+    ("Verification", "gains"): "gain_s",
+    ("Verification", "smallest_margin_db"): "smallest_gain_margin_db",
+    ("WorstCase", "start_slack"): "worst_evaluated_slack",
+    ("WorstCase", "damping"): "damping_ratio",
+}
+
+
+def _types():
+    return [getattr(importlib.import_module(m), n) for m, n in TYPES]
+
+
+@pytest.mark.parametrize("unit,suffix", sorted(SUFFIXES.items()))
+def test_unit_suffix_rule(unit, suffix):
+    assert ("_" + unit_suffix(unit) if unit_suffix(unit) else "") == suffix
+    assert rule_key("natural_frequency", unit) == "natural_frequency" + suffix
+    assert rule_key("x" + suffix, unit) == "x" + suffix  # a name that already carries its unit
+
+
+def test_metadata_survives_a_frozen_dataclass_and_a_property():
+    @dataclasses.dataclass(frozen=True)
+    class Example:
+        period: float = quantity("s")
+        label: str = "a"
+        margin: float = quantity("dB", key="smallest_margin_db", default=1.0)
+
+        @quantity_property("rad/s")
+        def frequency(self):
+            return 2 * math.pi / self.period
+
+    e = Example(2.0)
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        e.period = 3.0
+    got = [(q.attribute, q.key, q.unit) for q in quantities(e)]
+    assert got == [("period", "period_s", "s"), ("margin", "smallest_margin_db", "dB"),
+                   ("frequency", "frequency_rad_s", "rad/s")]
+    assert [q.key for q in quantities(Example, ("frequency", "period"))] == ["frequency_rad_s", "period_s"]
+    with pytest.raises(KeyError):
+        quantities(e, ("label",))
+
+
+def test_every_annotated_key_follows_the_rule_or_is_listed():
+    found = {}
+    for cls in _types():
+        for q in quantities(cls):
+            if q.key != rule_key(q.attribute, q.unit):
+                found[(cls.__name__, q.attribute)] = q.key
+    assert found == EXPLICIT
+
+
+def test_every_annotated_unit_is_si_in_the_unit_table_or_a_published_exception():
+    from damper.unit_table import evaluate
+
+    for cls in _types():
+        for q in quantities(cls):
+            if q.unit in NOT_SI or not unit_suffix(q.unit):
+                continue
+            factor, _, _ = evaluate(q.unit)  # raises NotInTable for a unit the table does not know
+            assert factor == 1.0, f"{cls.__name__}.{q.attribute}: {q.unit} is not SI"
+
+
+def _annotated_classes_in(path):
+    """Names of the classes of a module that declare a field with quantity(...) or quantity_property(...)."""
+    with open(path, encoding="utf-8") as fh:
+        tree = ast.parse(fh.read(), path)
+    out = []
+    for node in tree.body:
+        if isinstance(node, ast.ClassDef):
+            calls = [c for c in ast.walk(node) if isinstance(c, ast.Call) and isinstance(c.func, ast.Name)]
+            if any(c.func.id in ("quantity", "quantity_property") for c in calls):
+                out.append(node.name)
+    return out
+
+
+def test_the_page_lists_every_annotated_type_and_is_current():
+    listed = set(TYPES)
+    for base, _, names in os.walk(os.path.join(ROOT, "damper")):
+        for name in names:
+            if name.endswith(".py") and name != "quantities.py":
+                path = os.path.join(base, name)
+                module = os.path.relpath(path, ROOT)[:-3].replace(os.sep, ".")
+                for cls in _annotated_classes_in(path):
+                    assert (module, cls) in listed, f"add ({module!r}, {cls!r}) to damper.quantity_docs.TYPES"
+    with open(os.path.join(ROOT, "docs", "json-keys.md"), encoding="utf-8") as fh:
+        assert fh.read() == page(), "run: python -m damper.quantity_docs > docs/json-keys.md"
+
+
+# ---------------------------------------------------------------------------------------
+# documents
+# ---------------------------------------------------------------------------------------
+def _by_key(obj):
+    return {q.key: q.attribute for q in quantities(obj)}
+
+
+def _check_object(json_obj, obj, index, where):
+    """Every key of `json_obj` that is a metadata key of `obj` holds that field's value at `index`."""
+    seen = []
+    for key, attr in _by_key(obj).items():
+        if key not in json_obj:
+            continue
+        value = getattr(obj, attr)
+        if value is not None and index is not None:
+            value = value[index]
+        expected = None if value is None or not math.isfinite(float(value)) else float(value)
+        assert json_obj[key] == expected, f"{where}.{key} (field {type(obj).__name__}.{attr})"
+        seen.append(key)
+    return seen
+
+
+def _assess(name):
+    from damper.analysis.assess import assess
+    from damper.case import load_case
+    from damper.output.documents.jsonout import assess_document
+
+    case = load_case(os.path.join(ROOT, "cases", f"{name}.yaml"))
+    result = assess(case, np.full(len(case.conditions), 0.1))
+    return case, result, assess_document(case, result)
+
+
+# The keys of the published assess document (docs/theory.md section 8 and damper's JSON
+# since its first version; written here, not read from the code).
+ASSESS_KEYS = {
+    "flight": ["airspeed_m_s", "equivalent_airspeed_m_s", "altitude_m", "mach", "dynamic_pressure_pa", "mass_kg"],
+    "bare.short_period": ["damping_ratio", "natural_frequency_rad_s", "period_s", "time_to_half_s",
+                          "time_to_double_s", "roots"],
+    "closed_loop.short_period": ["damping_ratio", "natural_frequency_rad_s", "period_s", "time_to_half_s",
+                                 "ambiguous"],
+    "closed_loop.equivalent": ["damping_ratio", "natural_frequency_rad_s", "time_delay_s", "gain_1_s",
+                               "inv_t_theta2_1_s", "mismatch", "converged", "large_mismatch", "delay_model"],
+    "closed_loop.handling": ["n_alpha_g_per_rad", "cap_equivalent", "cap_modal", "attitude_phase_crossover_rad_s",
+                             "bandwidth_phase_rad_s", "bandwidth_gain_rad_s", "bandwidth_rad_s", "phase_delay_s"],
+}
+
+
+def _at(doc, path):
+    for part in path.split("."):
+        doc = doc[part]
+    return doc
+
+
+@pytest.mark.parametrize("name", ["utility_single_aft_cg", "survey_uav_loiter_longitudinal"])
+def test_assess_document_keys_are_the_metadata_keys_with_the_fields_values(name):
+    case, result, doc = _assess(name)
+    longitudinal = result.bare_phugoid is not None
+    for i, entry in enumerate(doc["conditions"]):
+        ix = (i,)
+        bi = (i,) + (0,) * (np.ndim(result.bare.damping_ratio) - 1)
+        for path, keys in ASSESS_KEYS.items():
+            extra = ["flight_path_angle_rad"] if (path == "flight" and longitudinal) else []
+            extra += ["phugoid_factor_removed", "plain_form"] if (path == "closed_loop.equivalent" and longitudinal) else []
+            assert list(_at(entry, path)) == keys + extra, path
+        cl = entry["closed_loop"]
+        pairs = [
+            (entry["flight"], case.conditions[i], None, "flight"),
+            (entry["bare"]["short_period"], result.bare, bi, "bare.short_period"),
+            (cl["short_period"], result.modes.short_period, ix, "closed_loop.short_period"),
+            (cl["equivalent"], result.equivalent, ix, "closed_loop.equivalent"),
+            (cl["handling"], result, ix, "closed_loop.handling"),
+            (cl["handling"], result.bandwidth, ix, "closed_loop.handling"),
+            (entry["margins"], result.margins, ix, "margins"),
+        ]
+        if longitudinal:
+            pairs += [
+                (entry["bare"]["phugoid"], result.bare_phugoid, bi, "bare.phugoid"),
+                (cl["phugoid"], result.modes.phugoid, ix, "closed_loop.phugoid"),
+                (cl["short_period_two_state"], result.two_state, ix, "closed_loop.short_period_two_state"),
+                (cl["equivalent"]["plain_form"], result.equivalent_plain, ix, "closed_loop.equivalent.plain_form"),
+            ]
+        for json_obj, obj, index, where in pairs:
+            assert _check_object(json_obj, obj, index, where), f"{where}: no annotated key"
+        margin_keys = [k for k in entry["margins"] if k.endswith(("_db", "_deg", "_rad_s", "_s")) or k == "disk_margin"]
+        assert set(margin_keys) <= set(_by_key(result.margins)), margin_keys
+
+
+def test_case_summary_keys_are_the_metadata_keys_with_the_fields_values():
+    from damper.case import load_case
+    from damper.output.documents.design import case_summary
+
+    case = load_case(os.path.join(ROOT, "cases", "survey_uav_loiter_longitudinal.yaml"))
+    summary = case_summary(case)
+    assert len(_check_object(summary["aircraft"], case.aircraft, None, "aircraft")) == 4
+    assert len(_check_object(summary["loop"], case.loop, None, "loop")) == 5  # authority keys: failures.json only
+    for c, entry in zip(case.conditions, summary["conditions"]):
+        assert len(_check_object(entry, c, None, "conditions[]")) == 9
+        d = _check_object(entry["derivatives"], c.derivatives, None, "derivatives")
+        assert d == [k for k in entry["derivatives"]]  # every derivative key is a field's, in field order
+
+
+# ---------------------------------------------------------------------------------------
+# no key typed by hand
+# ---------------------------------------------------------------------------------------
+def _metadata_keys():
+    """{attribute: {its JSON keys}} over every annotated type."""
+    out = {}
+    for cls in _types():
+        for q in quantities(cls):
+            out.setdefault(q.attribute, set()).add(q.key)
+    return out
+
+
+def hand_written(source, known):
+    """(line, key) of each dict entry ``"key": <expr reading .attr>`` whose key is attr's metadata key."""
+    bad = []
+    for node in ast.walk(ast.parse(source)):
+        if not isinstance(node, ast.Dict):
+            continue
+        for k, v in zip(node.keys, node.values):
+            if not (isinstance(k, ast.Constant) and isinstance(k.value, str)):
+                continue
+            attrs = {a.attr for a in ast.walk(v) if isinstance(a, ast.Attribute)}
+            if any(k.value in known.get(a, ()) for a in attrs):
+                bad.append((k.lineno, k.value))
+    return bad
+
+
+def test_the_check_finds_a_hand_written_key():
+    known = _metadata_keys()
+    old = 'x = {"natural_frequency_rad_s": num(eq.natural_frequency[index]), "name": c.name}\n'
+    assert hand_written(old, known) == [(1, "natural_frequency_rad_s")]
+    assert hand_written('x = {"gain_margin_db": num(w.gain_margin)}\n', known) == [(1, "gain_margin_db")]
+    assert hand_written('x = {**point(eq, index, ("natural_frequency",))}\n', known) == []
+
+
+def test_no_document_module_writes_an_annotated_fields_key_by_hand():
+    known = _metadata_keys()
+    found = []
+    for name in sorted(os.listdir(DOCUMENTS)):
+        if name.endswith(".py"):
+            with open(os.path.join(DOCUMENTS, name), encoding="utf-8") as fh:
+                found += [(name, line, key) for line, key in hand_written(fh.read(), known)]
+    assert found == [], "write these through damper/output/documents/serialize.point"
