@@ -151,9 +151,9 @@ class ResponseSpec:
         True when the case has no ``responses`` section.
     """
 
-    duration: float
-    step: float
-    output_step: float
+    duration: float = quantity("s")
+    step: float = quantity("s")
+    output_step: float = quantity("s")
     inputs: tuple
     default: bool = False
 

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..model.batch import map_arrays
+from ..quantities import quantity
 
 #: Input kinds (case-file words).
 PILOT_KINDS = ("doublet", "step", "pulse")
@@ -54,12 +55,12 @@ class Input:
     """
 
     kind: str
-    amplitude: np.ndarray = 0.0
-    start: np.ndarray = 0.5
-    half_period: np.ndarray = 0.5
-    duration: np.ndarray = 0.5
-    gust_velocity: np.ndarray = 0.0
-    gust_length: np.ndarray = 0.0
+    amplitude: np.ndarray = quantity("rad", default=0.0)
+    start: np.ndarray = quantity("s", default=0.5)
+    half_period: np.ndarray = quantity("s", default=0.5)
+    duration: np.ndarray = quantity("s", default=0.5)
+    gust_velocity: np.ndarray = quantity("m/s", default=0.0)
+    gust_length: np.ndarray = quantity("m", default=0.0)
     name: str = ""
 
     def __post_init__(self):

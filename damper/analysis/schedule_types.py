@@ -31,8 +31,8 @@ class Schedule:
     form: str
     breakpoints: tuple
     gains: np.ndarray
-    k_ref: float | None = None
-    q_ref: float | None = None
+    k_ref: float | None = quantity("s", default=None)
+    q_ref: float | None = quantity("Pa", default=None)
 
     def gain_at(self, values) -> np.ndarray:
         """Scheduled gain (s) at variable values (sequence of arrays, one per variable)."""

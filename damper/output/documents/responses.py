@@ -11,7 +11,7 @@ import math
 
 import numpy as np
 
-from .jsonout import CAUTION, num, provenance
+from .jsonout import CAUTION, provenance
 from .serialize import point
 from .text import fmt, table
 
@@ -83,22 +83,15 @@ def _authority_measures(res, i) -> dict:
 
 
 def _input_json(inp, i) -> dict:
-    def at(x):
-        a = np.asarray(x, dtype=float).reshape(-1)
-        return num(a[i] if a.size > 1 else a[0])
-
-    out = {"name": inp.label, "kind": inp.kind, "start_s": at(inp.start)}
-    if not inp.is_gust:
-        out["amplitude_rad"] = at(inp.amplitude)
-    if inp.kind == "doublet":
-        out["half_period_s"] = at(inp.half_period)
-    if inp.kind == "pulse":
-        out["duration_s"] = at(inp.duration)
-    if inp.is_gust:
-        out["gust_velocity_m_s"] = at(inp.gust_velocity)
-    if inp.kind == "gust_one_minus_cosine":
-        out["gust_length_m"] = at(inp.gust_length)
-    return out
+    """The ``input`` object of one response: the :class:`~damper.analysis.response_inputs.Input`
+    fields its kind uses, in the document's order (values broadcast over the conditions)."""
+    names = ["start"]
+    names += [] if inp.is_gust else ["amplitude"]
+    names += ["half_period"] if inp.kind == "doublet" else []
+    names += ["duration"] if inp.kind == "pulse" else []
+    names += ["gust_velocity"] if inp.is_gust else []
+    names += ["gust_length"] if inp.kind == "gust_one_minus_cosine" else []
+    return {"name": inp.label, "kind": inp.kind, **point(inp, i, names, flat=True)}
 
 
 def response_document(case, result, command=None, files=None) -> dict:
@@ -137,9 +130,7 @@ def response_document(case, result, command=None, files=None) -> dict:
         "notes": list(result.notes),
         "simulation": {
             "method": METHOD,
-            "step_s": spec.step,
-            "duration_s": spec.duration,
-            "output_step_s": spec.output_step,
+            **point(spec, None, ("step", "duration", "output_step")),  # floats: written as before
             "delay_model": DELAY_MODEL,
             "default_inputs": spec.default,
             "bare_airframe": "gain 0 with the same actuator and limits",

@@ -45,8 +45,7 @@ def table_dict(schedule, case) -> dict:
     }
     if schedule.form == "inverse_dynamic_pressure":
         out["law"] = "K = k_ref_s * q_ref_pa / dynamic_pressure"
-        out["k_ref_s"] = float(schedule.k_ref)
-        out["q_ref_pa"] = float(schedule.q_ref)
+        out.update(point(schedule, None, ("k_ref", "q_ref")))  # positive and finite (validated)
     return out
 
 

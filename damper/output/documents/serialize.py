@@ -34,7 +34,8 @@ def point(obj, index=None, names=None, flat=False) -> dict:
         The attributes, in the document's order (default: every annotated field in
         declaration order).
     flat : bool
-        Index each value flattened to one dimension (values of different batch shapes).
+        Index each value flattened to one dimension, a single value standing for every
+        index (values of different batch shapes, or broadcast).
 
     Returns
     -------
@@ -44,8 +45,11 @@ def point(obj, index=None, names=None, flat=False) -> dict:
     out = {}
     for q in quantities(obj, names):
         value = getattr(obj, q.attribute)
-        if value is not None and index is not None:
-            value = np.asarray(value, dtype=float).reshape(-1)[index] if flat else value[index]
+        if value is not None and index is not None and flat:
+            value = np.asarray(value, dtype=float).reshape(-1)
+            value = value[index] if value.size > 1 else value[0]
+        elif value is not None and index is not None:
+            value = value[index]
         out[q.key] = None if value is None else num(value)
     return out
 
