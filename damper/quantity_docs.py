@@ -33,6 +33,7 @@ TYPES = (
     ("damper.analysis.response", "CaseResponses"),
     ("damper.analysis.response_measures", "ResponseMeasures"),
     ("damper.analysis.failure_run", "Saturation"),
+    ("damper.analysis.turbulence", "TurbulenceResult"),
     ("damper.analysis.response_inputs", "Input"),
     ("damper.analysis.schedule_types", "Schedule"),
     ("damper.analysis.schedule_types", "PointSet"),

@@ -76,6 +76,9 @@ EXPLICIT = {
     ("Verification", "smallest_margin_db"): "smallest_gain_margin_db",
     ("WorstCase", "start_slack"): "worst_evaluated_slack",
     ("WorstCase", "damping"): "damping_ratio",
+    # per second, written "_per_s" in the published turbulence contract (issue 22)
+    ("TurbulenceResult", "rate_limit_exceedances_per_s"): "rate_limit_exceedances_per_s",
+    ("TurbulenceResult", "authority_exceedances_per_s"): "authority_exceedances_per_s",
 }
 
 

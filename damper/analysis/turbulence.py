@@ -37,6 +37,7 @@ from ..measures.covariance import crossing_rate, quadratic_form, solve_lyapunov
 from ..model import airframes, dryden
 from ..model.batch import batch_shape, map_arrays
 from ..model.loop import Hardware, Loop, closed_loop_matrix, feedback_sign, plant_state_space
+from ..quantities import quantity
 
 #: The fields of the JSON contract (issue 22), in order.
 CONTRACT_FIELDS = (
@@ -156,17 +157,17 @@ class TurbulenceResult:
         True for the bare airframe.
     """
 
-    gust_rms_m_s: np.ndarray
-    scale_length_m: np.ndarray
-    rms_pitch_rate_rad_s: np.ndarray
-    rms_load_factor_g: np.ndarray
-    rms_angle_of_attack_rad: np.ndarray
-    rms_surface_rad: np.ndarray
-    rms_surface_rate_rad_s: np.ndarray
-    rate_limit_exceedances_per_s: np.ndarray
-    authority_exceedances_per_s: np.ndarray
-    rms_damper_command_rad: np.ndarray
-    rms_damper_command_rate_rad_s: np.ndarray
+    gust_rms_m_s: np.ndarray = quantity("m/s")
+    scale_length_m: np.ndarray = quantity("m")
+    rms_pitch_rate_rad_s: np.ndarray = quantity("rad/s")
+    rms_load_factor_g: np.ndarray = quantity("g")
+    rms_angle_of_attack_rad: np.ndarray = quantity("rad")
+    rms_surface_rad: np.ndarray = quantity("rad")
+    rms_surface_rate_rad_s: np.ndarray = quantity("rad/s")
+    rate_limit_exceedances_per_s: np.ndarray = quantity("1/s", key="rate_limit_exceedances_per_s")
+    authority_exceedances_per_s: np.ndarray = quantity("1/s", key="authority_exceedances_per_s")
+    rms_damper_command_rad: np.ndarray = quantity("rad")
+    rms_damper_command_rate_rad_s: np.ndarray = quantity("rad/s")
     stable: np.ndarray
     reasons: dict = field(default_factory=dict)
     delay_model: str = "no delay"

@@ -49,7 +49,7 @@ def point(obj, index=None, names=None, flat=False) -> dict:
             value = np.asarray(value, dtype=float).reshape(-1)
             value = value[index] if value.size > 1 else value[0]
         elif value is not None and index is not None:
-            value = value[index]
+            value = np.asarray(value)[index]
         out[q.key] = None if value is None else num(value)
     return out
 

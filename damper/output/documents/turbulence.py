@@ -11,12 +11,15 @@ from __future__ import annotations
 import math
 
 from .jsonout import num
+from .serialize import point
 from .text import fmt, table
 
 
 def turbulence_entry(result, index) -> dict:
     """The JSON object of one condition of a :class:`damper.analysis.turbulence.TurbulenceResult`."""
-    record = {k: num(v) for k, v in result.record(index).items()}
+    from ...analysis.turbulence import CONTRACT_FIELDS
+
+    record = point(result, index, CONTRACT_FIELDS)
     return record | {"reasons": result.reasons_at(index, contract_only=True), "delay_model": result.delay_model}
 
 
