@@ -115,6 +115,26 @@ def test_metadata_survives_a_frozen_dataclass_and_a_property():
         quantities(e, ("label",))
 
 
+def test_point_writes_the_named_values_in_the_given_order():
+    from damper.output.documents.serialize import point, series
+
+    @dataclasses.dataclass(frozen=True)
+    class Result:
+        natural_frequency: np.ndarray = quantity("rad/s")
+        time_delay: np.ndarray = quantity("s")
+        limit: float | None = quantity("rad", default=None)
+
+    r = Result(np.array([[1.5, np.nan], [2.0, np.inf]]), np.array([0.1]))
+    assert point(r, (1, 0), ("natural_frequency",)) == {"natural_frequency_rad_s": 2.0}
+    # NaN and infinities are JSON null (docs/theory.md: null = no such value); None stays None
+    assert point(r, (0, 1), ("natural_frequency", "limit")) == {"natural_frequency_rad_s": None, "limit_rad": None}
+    # the order is the caller's, not the declaration's
+    assert list(point(r, 2, ("time_delay", "natural_frequency"), flat=True)) == ["time_delay_s", "natural_frequency_rad_s"]
+    # flat: a single value stands for every index (a value broadcast over the conditions)
+    assert point(r, 2, ("time_delay", "natural_frequency"), flat=True) == {"time_delay_s": 0.1, "natural_frequency_rad_s": 2.0}
+    assert series(r, ("natural_frequency",)) == {"natural_frequency_rad_s": [1.5, None, 2.0, None]}
+
+
 def test_every_annotated_key_follows_the_rule_or_is_listed():
     found = {}
     for cls in _types():
