@@ -19,6 +19,7 @@ TYPES = (
     ("damper.case.model", "Condition"),
     ("damper.case.model", "Aircraft"),
     ("damper.case.model", "LoopSpec"),
+    ("damper.case.failure_spec", "FailureSpec"),
     ("damper.case.failure_spec", "ServoLimits"),
     ("damper.model.airframe", "Derivatives"),
     ("damper.model.longitudinal", "LongitudinalDerivatives"),

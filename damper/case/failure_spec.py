@@ -121,7 +121,7 @@ class FailureSpec:
         Source of each default, by field name.
     """
 
-    recognition_time_s: float = 1.0
+    recognition_time_s: float = quantity("s", default=1.0)
     kinds: tuple = KINDS
     limits: TransientLimits = field(default_factory=TransientLimits)
     passive_level_required: int = 2

@@ -33,7 +33,7 @@ def _settings(run) -> dict:
     spec, servo = run.spec, run.servo
     lim = spec.limits
     return {
-        "recognition_time_s": spec.recognition_time_s,
+        **point(spec, None, ("recognition_time_s",)),  # a float (case and presets): written as before
         "kinds": list(spec.kinds),
         "limits": {"load_factor_g": _band(lim.load_factor_g), "pitch_attitude_rad": _band(lim.pitch_attitude_rad),
                    "angle_of_attack_rad": _band(lim.angle_of_attack_rad)},
