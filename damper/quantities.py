@@ -17,6 +17,7 @@ This module imports nothing from damper: every layer may use it.
 from __future__ import annotations
 
 import dataclasses
+import functools
 
 #: Metadata key of a field's unit, as written in the docs (``"rad/s"``; ``""``: dimensionless).
 UNIT = "damper_unit"
@@ -119,8 +120,13 @@ class Quantity:
     doc: str = ""
 
 
+@functools.lru_cache(maxsize=None)
 def _declared(cls) -> dict:
-    """Every annotated field and property of `cls`, by attribute name, in declaration order."""
+    """Every annotated field and property of `cls`, by attribute name, in declaration order.
+
+    Cached per class (a class's fields do not change; the documents ask once per value written).
+    Callers must not change the dict.
+    """
     out = {}
     for f in dataclasses.fields(cls):
         if UNIT in f.metadata:
@@ -149,6 +155,11 @@ def quantities(obj, names=None) -> tuple:
         A name that is not an annotated field or property of `obj`.
     """
     cls = obj if isinstance(obj, type) else type(obj)
+    return _chosen(cls, None if names is None else tuple(names))
+
+
+@functools.lru_cache(maxsize=4096)
+def _chosen(cls, names) -> tuple:
     declared = _declared(cls)
     if names is None:
         return tuple(declared.values())
