@@ -120,7 +120,7 @@ class ConditionDesign:
     policy: str
     reason: str
     binding: tuple
-    sweep_range: tuple
+    sweep_range: tuple = quantity("s")
 
 
 @dataclass(frozen=True)

@@ -6,7 +6,7 @@ import json
 
 from .jsonout import CAUTION, condition_result, num, provenance
 from .longitudinal import longitudinal_table, speed_derivatives_summary
-from .serialize import point
+from .serialize import point, series
 from .text import fmt, table
 
 
@@ -118,7 +118,7 @@ def condition_entries(case, design) -> list:
                     for lo, hi in d.edges
                 ],
                 "failing_at_chosen_gain": [{"name": n, "slack": num(s)} for n, s in d.binding],
-                "sweep_range_s": [num(d.sweep_range[0]), num(d.sweep_range[1])],
+                **series(d, ("sweep_range",)),
                 "measures": condition_result(case, design.chosen, (i,)),
             }
         )
