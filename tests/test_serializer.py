@@ -282,6 +282,48 @@ def test_case_summary_keys_are_the_metadata_keys_with_the_fields_values():
         assert d == [k for k in entry["derivatives"]]  # every derivative key is a field's, in field order
 
 
+# The keys of a response's measures in responses.json (docs/responses.md; written here).
+RESPONSE_KEYS = ["time_to_half_s", "settling_time_5pct_s", "overshoot_ratio", "peak_pitch_rate_rad_s", "peak_alpha_rad",
+                 "peak_load_factor_g", "peak_surface_rad", "peak_surface_rate_rad_s", "time_at_rate_limit_s",
+                 "time_at_travel_limit_s", "input_end_s"]
+AUTHORITY_KEYS = ["time_at_authority_limit_s", "time_at_authority_rate_limit_s", "peak_damper_demand_rad"]
+
+
+def _check_flat(json_obj, obj, i, where):
+    """As :func:`_check_object`, each value flattened and a single value standing for every condition."""
+    seen = []
+    for key, attr in _by_key(obj).items():
+        if key in json_obj:
+            a = np.asarray(getattr(obj, attr), dtype=float).reshape(-1)
+            value = float(a[i] if a.size > 1 else a[0])
+            assert json_obj[key] == (value if math.isfinite(value) else None), f"{where}.{key}"
+            seen.append(key)
+    return seen
+
+
+@pytest.mark.slow
+def test_responses_document_keys_are_the_metadata_keys_with_the_fields_values():
+    from damper.analysis.response import respond_case
+    from damper.case import load_case
+    from damper.output.documents.responses import response_document
+
+    case = load_case(os.path.join(ROOT, "cases", "light_twin_damper_authority.yaml"))  # authority and limits
+    result = respond_case(case, np.full(len(case.conditions), 0.1))
+    doc = response_document(case, result)
+    assert _check_object(doc["limits"], result, None, "limits") == ["rate_limit_rad_s", "travel_rad"]
+    for i, entry in enumerate(doc["conditions"]):
+        assert list(entry)[:3] == ["name", "gain_s", "airspeed_m_s"]
+        _check_object(entry, result, (i,), "conditions[]")
+        _check_object(entry, case.conditions[i], None, "conditions[]")
+        for res, run in zip(result.responses, entry["responses"]):
+            assert list(run["bare"]) == RESPONSE_KEYS
+            assert list(run["augmented"]) == RESPONSE_KEYS + AUTHORITY_KEYS
+            assert _check_flat(run["bare"], res.bare_measures, i, "bare") == RESPONSE_KEYS
+            assert len(_check_flat(run["augmented"], res.augmented_measures, i, "augmented")) == 14
+            got = _check_flat(run["input"], res.input, i, "input")
+            assert sorted(got) == sorted(k for k in run["input"] if k not in ("name", "kind"))
+
+
 # ---------------------------------------------------------------------------------------
 # no key typed by hand
 # ---------------------------------------------------------------------------------------
