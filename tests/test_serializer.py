@@ -68,6 +68,7 @@ EXPLICIT = {
     ("Assessment", "gains"): "gain_s",  # one gain per point of the batch
     ("Assessment", "n_alpha"): "n_alpha_g_per_rad",
     ("CaseResponses", "gains"): "gain_s",
+    ("FailureRun", "gains"): "gain_s",
     ("ResponseMeasures", "settling_time"): "settling_time_5pct_s",
     ("ResponseMeasures", "overshoot"): "overshoot_ratio",
     ("ResponseMeasures", "time_at_position_limit"): "time_at_travel_limit_s",

@@ -98,7 +98,7 @@ class FailureRun:
     spec: FailureSpec
     servo: ServoLimits
     names: tuple
-    gains: np.ndarray
+    gains: np.ndarray = quantity("s", key="gain_s")
     records: tuple
     met: np.ndarray
     saturation: tuple

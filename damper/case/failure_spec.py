@@ -72,9 +72,9 @@ class TransientLimits:
         Where the values come from.
     """
 
-    load_factor_g: tuple | None = (-0.5, 0.5)
-    pitch_attitude_rad: tuple | None = None
-    angle_of_attack_rad: tuple | None = None
+    load_factor_g: tuple | None = quantity("g", default=(-0.5, 0.5))
+    pitch_attitude_rad: tuple | None = quantity("rad", default=None)
+    angle_of_attack_rad: tuple | None = quantity("rad", default=None)
     source: str = LOAD_FACTOR_SOURCE
 
     def __post_init__(self):

@@ -12,8 +12,8 @@ import math
 
 from ...analysis.failure_verdict import LIMIT_KEYS, LIMIT_WORDS
 from ...analysis.failure_verdict import deg_range as _deg_range
-from .jsonout import CAUTION, num, provenance, with_verdict
-from .serialize import point
+from .jsonout import CAUTION, provenance, with_verdict
+from .serialize import point, series
 from .text import fmt, table
 
 R2D = 180.0 / math.pi
@@ -22,11 +22,9 @@ R2D = 180.0 / math.pi
 #: ``saturation`` row (:class:`~damper.analysis.failure_run.Saturation`) write, in the document's
 #: order (keys and units from the fields' metadata, :mod:`damper.quantities`).
 SERVO = ("authority", "authority_rate_limit", "rate_limit", "travel")
+#: The transient limits' bands (:class:`~damper.case.failure_spec.TransientLimits`), in the order written.
+LIMITS = ("load_factor_g", "pitch_attitude_rad", "angle_of_attack_rad")
 SATURATION = ("time_at_authority_limit_s", "time_at_authority_rate_limit_s", "peak_damper_demand_rad", "duration_s")
-
-
-def _band(b):
-    return None if b is None else [num(b[0]), num(b[1])]
 
 
 def _settings(run) -> dict:
@@ -35,8 +33,7 @@ def _settings(run) -> dict:
     return {
         **point(spec, None, ("recognition_time_s",)),  # a float (case and presets): written as before
         "kinds": list(spec.kinds),
-        "limits": {"load_factor_g": _band(lim.load_factor_g), "pitch_attitude_rad": _band(lim.pitch_attitude_rad),
-                   "angle_of_attack_rad": _band(lim.angle_of_attack_rad)},
+        "limits": series(lim, LIMITS),
         "passive_level_required": spec.passive_level_required,
         "passive_category": spec.passive_category,
         "sources": dict(spec.sources),
@@ -63,8 +60,8 @@ def failures_document(case, run, verdict, command=None, files=()) -> dict:
     (`verdict`: :func:`damper.analysis.failure_verdict.failure_verdict` of `run`, built once
     by the caller).
     """
-    conds = [{"name": n, "gain_s": num(g), "failures": rec, "saturation": _saturation(sat)}
-             for n, g, rec, sat in zip(run.names, run.gains, run.records, run.saturation)]
+    conds = [{"name": n, **point(run, k, ("gains",)), "failures": rec, "saturation": _saturation(sat)}
+             for k, (n, rec, sat) in enumerate(zip(run.names, run.records, run.saturation))]
     return with_verdict({
         "title": case.title,
         "caution": CAUTION,

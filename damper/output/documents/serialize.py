@@ -55,7 +55,8 @@ def point(obj, index=None, names=None, flat=False) -> dict:
 
 
 def series(obj, names=None) -> dict:
-    """``{json key: [number, ...]}``: every element (flattened) of the annotated values `names` of `obj`.
+    """``{json key: [number, ...]}``: every element (flattened) of the annotated values `names` of `obj`
+    (None where a value is None).
 
     Parameters
     ----------
@@ -63,7 +64,11 @@ def series(obj, names=None) -> dict:
     names : sequence of str, optional
         As :func:`point`.
     """
-    return {q.key: [num(x) for x in np.ravel(getattr(obj, q.attribute))] for q in quantities(obj, names)}
+    out = {}
+    for q in quantities(obj, names):
+        value = getattr(obj, q.attribute)
+        out[q.key] = None if value is None else [num(x) for x in np.ravel(value)]
+    return out
 
 
 def keys(obj, names=None) -> tuple:
