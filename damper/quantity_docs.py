@@ -74,10 +74,10 @@ def page() -> str:
     lines = [_HEAD]
     for module, name in TYPES:
         cls = getattr(importlib.import_module(module), name)
-        lines += [f"## `{name}` (`{module}`)", "", "| field | JSON key | unit |", "|---|---|---|"]
+        lines += [f"## `{name}` (`{module}`)", "", "| field | JSON key | unit | note |", "|---|---|---|---|"]
         for q in quantities(cls):
             kept = " (explicit)" if q.key != rule_key(q.attribute, q.unit) else ""
-            lines.append(f"| `{q.attribute}` | `{q.key}`{kept} | {_unit_text(q.unit)} |")
+            lines.append(f"| `{q.attribute}` | `{q.key}`{kept} | {_unit_text(q.unit)} | {q.doc} |")
         lines.append("")
     return "\n".join(lines)
 

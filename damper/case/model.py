@@ -87,8 +87,8 @@ class Condition:
 
     name: str
     airspeed: float = quantity("m/s")
-    altitude: float = quantity("m", key="geopotential_altitude_m")
-    altitude_input: float = quantity("m", key="altitude_m")
+    altitude: float = quantity("m", key="geopotential_altitude_m", doc="geopotential (the atmosphere's)")
+    altitude_input: float = quantity("m", key="altitude_m", doc="as given (geometric or geopotential, per the case)")
     density: float = quantity("kg/m^3")
     speed_of_sound: float = quantity("m/s")
     mach: float = quantity("")
@@ -168,11 +168,11 @@ class LoopSpec:
     sensor: ElementSpec | None = None
     washout: ElementSpec | None = None
     filters: tuple = ()
-    delay: float = quantity("s", key="computation_delay_s", default=0.0)
+    delay: float = quantity("s", key="computation_delay_s", default=0.0, doc="computation delay")
     sample_rate: float | None = quantity("Hz", default=None)
     pade_order: int = 2
-    rate_limit: float | None = quantity("rad/s", key="actuator_rate_limit_rad_s", default=None)
-    travel: float | None = quantity("rad", key="actuator_travel_rad", default=None)
+    rate_limit: float | None = quantity("rad/s", key="actuator_rate_limit_rad_s", default=None, doc="the actuator's")
+    travel: float | None = quantity("rad", key="actuator_travel_rad", default=None, doc="the actuator's, +/-")
     authority: float | None = quantity("rad", default=None)
     authority_rate_limit: float | None = quantity("rad/s", default=None)
 
