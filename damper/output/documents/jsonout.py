@@ -180,7 +180,7 @@ def margins_object(mg, index, stable=None) -> dict:
 
 
 #: The :class:`~damper.measures.margins.Margins` values :func:`margins_object` writes, in order
-#: (``null`` on an unstable loop); their keys are :data:`MARGIN_VALUE_KEYS`.
+#: (``null`` on an unstable loop); each field's name is its key (it ends with its unit).
 MARGIN_VALUES = (
     "gain_margin_db",
     "gain_margin_low_db",
