@@ -109,6 +109,7 @@ def _write_run(args, case, gains, checked, spec, command, out, cluster):
     import time
 
     from ..analysis.pipeline import robustness_stage
+    from ..analysis.robustness_figures import robustness_figure_inputs
     from ..cli import warn_case
     from ..output.files import write_atomic
     from ..output.journal import part
@@ -134,7 +135,8 @@ def _write_run(args, case, gains, checked, spec, command, out, cluster):
             plot_paths = []
             if not args.no_plots:
                 with current().stage("figures"):
-                    plot_paths = robustness_plots(stage.case, stage.result, out)
+                    inputs = robustness_figure_inputs(stage.result)
+                    plot_paths = robustness_plots(stage.case, stage.result, inputs, out)
                 files += sorted(os.path.relpath(p, out) for p in plot_paths)
             doc = with_verdict(robustness_document(stage.case, stage.result, command=command, files=files,
                                                    where=stage.where), stage.verdict)

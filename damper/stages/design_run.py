@@ -115,12 +115,12 @@ class DesignRunWriter:
             self.written += write_schedule(self.out, self.case, event.result.result, command=self.command,
                                            verdict=event.result.verdict)
             if self.plots:  # drawn here while the worker draws the search's figures
-                from ..analysis.envelope_view import envelope_view
+                from ..analysis.schedule_figures import schedule_figure_inputs
                 from ..output.figures.schedule import schedule_plots
 
                 with current().stage("schedule plots"):
-                    view = envelope_view(self.case, event.result.result)
-                    n = len(schedule_plots(self.case, event.result.result, self.out, view))
+                    inputs = schedule_figure_inputs(self.case, event.result.result)
+                    n = len(schedule_plots(self.case, event.result.result, self.out, inputs))
                 self.written.append(f"{n} schedule plot files in plots/")
 
     def _responses_done(self, event) -> None:
@@ -145,10 +145,12 @@ class DesignRunWriter:
     def _robustness_done(self, event) -> None:
         if event.result is None or not self.plots:
             return
+        from ..analysis.robustness_figures import robustness_figure_inputs
         from ..output.figures.robustness import robustness_plot_jobs
 
         rob = event.result
-        rj = robustness_plot_jobs(rob.case, rob.result, self.out, limit=self.max_figures)
+        inputs = robustness_figure_inputs(rob.result, limit=self.max_figures)
+        rj = robustness_plot_jobs(rob.case, rob.result, inputs, self.out)
         # four groups (the result is sent once per group): the worker and this process share them at the end
         step = max(1, -(-len(rj) // 4))
         with part("robustness"):

@@ -9,8 +9,6 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-
 from ...analysis.sample_stats import SLACK_EDGES
 from ...analysis.uncertainty import SHARD_SAMPLES
 from .design import requirements_list
@@ -87,7 +85,7 @@ def _worst_entries(result, i, c) -> list:
             "value": num(w.value),
             "value_note": None if math.isfinite(w.value) else "undefined: unbounded margin (met) or no such mode (failed)",
             "slack": num(w.slack),
-            "met": bool(w.slack >= 0),
+            "met": w.met,
             "source": w.source,
             "index": w.index,
             "worst_evaluated_slack": num(w.start_slack),
@@ -98,7 +96,7 @@ def _worst_entries(result, i, c) -> list:
                 "damping_ratio": num(w.damping),
                 "gain_margin_db": num(w.gain_margin),
                 "phase_margin_deg": num(w.phase_margin),
-                "all_met": bool(np.all(w.slacks >= 0)) if w.slacks is not None else None,
+                "all_met": w.all_met,
             },
         }
         for j, w in enumerate(c.worst)
