@@ -61,12 +61,9 @@ def _check_args(args):
 
 def run(args, argv) -> int:
     _check_args(args)
-    from ..output.style import use_option
+    from ..output.style import case_slug, use_option
 
     use_option(args.figures)  # before anything is drawn (the plot worker inherits it)
-    import os
-    import re
-
     from ..analysis.robustness import uncertainty_spec
     from ..analysis.runners import cluster_client
     from ..case import load_case
@@ -76,10 +73,9 @@ def run(args, argv) -> int:
     case = load_case(args.case)
     spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
     case, gains, checked, source = _study(args, case)
-    stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
     command = " ".join(["damper", *argv])
     with cluster_client(args.cluster) as cluster:  # before the run directory: an unreachable cluster writes nothing
-        stage, elapsed, doc, note = _write_run(args, case, gains, checked, spec, command, args.out or f"robust-{stem}",
+        stage, elapsed, doc, note = _write_run(args, case, gains, checked, spec, command, args.out or f"robust-{case_slug(args.case)}",
                                                cluster)
     case, result, verdict = stage.case, stage.result, stage.verdict
     source = source or f"the schedule {args.schedule} at its {len(stage.gains)} tightest verification points"
