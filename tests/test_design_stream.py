@@ -105,7 +105,7 @@ loop:""")
 def test_robustness_figures_are_limited_to_the_lowest_pass_fractions():
     from types import SimpleNamespace
 
-    from damper.output.figures.robustness import figure_conditions
+    from damper.analysis.robustness_figures import figure_conditions
 
     conds = tuple(SimpleNamespace(fraction_all=f) for f in (0.9, 0.5, 1.0, 0.5, 0.7))
     result = SimpleNamespace(conditions=conds)

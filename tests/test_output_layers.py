@@ -97,3 +97,77 @@ def test_captions_live_with_their_figures_only():
     report = "".join(open(p, encoding="utf-8").read() for p in glob.glob(os.path.join(ROOT, "damper", "output", "report", "*.py")))
     copied = [k.caption for k in kinds if len(k.caption) > 25 and k.caption[:25] in report]
     assert copied == []
+
+
+# ---------------------------------------------------------------------------------
+# output receives results: no interpolation of a schedule, no judging of a slack
+# ---------------------------------------------------------------------------------
+#: Methods of analysis results that compute; output receives what they give
+#: (damper/analysis/schedule_figures.py interpolates the schedule for its figures).
+COMPUTING_METHODS = ("gain_at",)
+
+
+def _names_slack(node) -> bool:
+    """Whether an expression names a slack (a variable, attribute or dict key with 'slack' in it)."""
+    for n in ast.walk(node):
+        name = n.id if isinstance(n, ast.Name) else n.attr if isinstance(n, ast.Attribute) else (
+            n.value if isinstance(n, ast.Constant) and isinstance(n.value, str) else "")
+        if "slack" in name.lower():
+            return True
+    return False
+
+
+def _is_zero(node) -> bool:
+    if isinstance(node, ast.UnaryOp) and isinstance(node.op, (ast.USub, ast.UAdd)):
+        node = node.operand
+    return isinstance(node, ast.Constant) and not isinstance(node.value, bool) and node.value == 0
+
+
+def computing_in_output(top):
+    """(file, line, what) of every call of a computing method and every slack compared with zero under `top`.
+
+    The sign of a normalised slack is the verdict (met or missed): the analysis decides it
+    (``WorstCase.met``, ``SampleSplit``, the documents' ``met`` keys) and output shows it.
+    """
+    bad = []
+    for base, _, names in os.walk(top):
+        for name in sorted(names):
+            if not name.endswith(".py"):
+                continue
+            path = os.path.join(base, name)
+            with open(path, encoding="utf-8") as fh:
+                tree = ast.parse(fh.read(), path)
+            rel = os.path.relpath(path, os.path.dirname(os.path.dirname(top)))
+            for node in ast.walk(tree):
+                if (isinstance(node, ast.Call) and isinstance(node.func, ast.Attribute)
+                        and node.func.attr in COMPUTING_METHODS):
+                    bad.append((rel, node.lineno, f".{node.func.attr}("))
+                elif isinstance(node, ast.Compare):
+                    sides = [node.left, *node.comparators]
+                    if any(_is_zero(s) for s in sides) and any(_names_slack(s) for s in sides if not _is_zero(s)):
+                        bad.append((rel, node.lineno, ast.unparse(node)))
+    return bad
+
+
+def test_output_neither_interpolates_a_schedule_nor_judges_a_slack():
+    """Source: issue 18's definition of done ("damper/output ... calls no analysis function that
+    computes (it receives results)") and DEVELOPERS.md (output computes nothing)."""
+    bad = computing_in_output(os.path.join(ROOT, "damper", "output"))
+    assert bad == [], "\n".join(f"{p}:{line}: {what}" for p, line, what in bad)
+
+
+def test_the_walk_finds_every_computing_call_and_slack_sign(tmp_path):
+    """The check can fail: each planted form is caught on its line, and harmless code is not."""
+    pkg = tmp_path / "damper" / "output"
+    pkg.mkdir(parents=True)
+    (pkg / "bad.py").write_text(
+        "k = result.schedule.gain_at([x])\n"  # 1: interpolation in output
+        "ok = np.all(result.slacks[:, i, :] >= 0, 0)\n"  # 2: judging samples
+        "missed = w.slack < 0\n"  # 3
+        "met = 0.0 <= entry['slack']\n"  # 4: a dict key, zero on the left
+        "neg = worst_slack < -0\n"  # 5: a signed zero
+        "clip = np.nanmin(slack) < -2.0\n"  # allowed: a drawing limit, not the sign
+        "gain = sch.gains[0] >= 0\n"  # allowed: no slack
+        "unbounded = w.slack == np.inf\n"  # allowed: not the sign
+    )
+    assert sorted(line for _, line, _ in computing_in_output(str(pkg))) == [1, 2, 3, 4, 5]  # [derived] the planted lines

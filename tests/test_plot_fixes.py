@@ -19,6 +19,7 @@ import pytest
 from scipy.stats import beta
 
 from damper.analysis.search import search
+from damper.analysis.robustness_figures import sample_split
 from damper.case import load_case
 from damper.analysis.locus import open_loop_poles
 from damper.output import style
@@ -70,10 +71,12 @@ def test_samples_failing_only_an_unseen_requirement_are_told_apart():
     slacks = np.array([[[0.1, 0.2, -0.1, 0.3, 0.2]], [[0.5, 0.5, 0.5, -0.2, 0.5]], [[0.3, -0.4, -0.5, 0.1, 0.2]]])
     r = SimpleNamespace(criteria=tuple(SimpleNamespace(name=n) for n in ("damping_ratio", "gain_margin", "cap")),
                         slacks=slacks)
-    off, names = robustness_plots._fails_off_axes(r, 0)
+    split = sample_split(r, 0)
     # [derived] sample 1 meets both axes' requirements and misses cap; 2 misses damping too; 3 misses gain margin
-    assert off.tolist() == [False, True, False, False, False]
-    assert names == "cap"
+    assert split.misses_off_axes.tolist() == [False, True, False, False, False]
+    assert split.missed_off_axes == ("cap",)
+    # [derived] only samples 0 and 4 have every slack >= 0
+    assert split.meets_all.tolist() == [True, False, False, False, True]
 
 
 def test_response_note_when_the_history_leaves_the_small_perturbation_range():

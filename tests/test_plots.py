@@ -161,6 +161,29 @@ def test_safe_names():
     assert style.safe_name("10kft-cruise-aft") == "10kft-cruise-aft"
 
 
+def test_case_slug_is_the_safe_name_of_the_case_file():
+    """Source: issue 18 ("one file-name rule"): ``damper robust``'s default directory uses style's rule."""
+    assert style.case_slug("cases/Utility Single (v2).yaml") == "utility-single-v2"  # [derived] safe_name's rule
+    assert style.case_slug("/x/utility_single_uncertain.yaml") == "utility_single_uncertain"
+
+
+def test_the_gain_sweep_names_its_edges_by_the_registered_labels(demo, written):
+    """Source: issue 18 ("labels come from the criteria, not from copies"): every edge of every
+    condition is named on its gain sweep by the criterion's registered label, never by its key."""
+    from damper.requirements.registry import KINDS as CRITERIA
+
+    case, design = demo
+    out, _ = written
+    seen = 0
+    for cond, slug in zip(design.conditions, style.plot_slugs(case.names)):
+        text = "".join(ET.parse(str(out / "plots" / f"{slug}-gain-sweep.svg")).getroot().itertext())
+        for e in (e for pair in cond.edges for e in pair if e.binding in CRITERIA):
+            assert CRITERIA[e.binding].label in text, (cond.name, e.binding)
+            seen += 1
+        assert "damping_ratio" not in text and "\ncap\n" not in text
+    assert seen >= 2  # [derived] the demo's sweeps end at damping and CAP edges (its design.json)
+
+
 def test_importing_the_module_does_not_import_matplotlib():
     code = "import sys, damper.output.figures.design; print('matplotlib' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT, check=True)

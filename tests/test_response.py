@@ -18,7 +18,7 @@ from damper.analysis.response import (
     pilot_command,
     respond,
     respond_case,
-    response_spec,
+    resolve_responses,
     simulate,
 )
 from damper.atmosphere import G0
@@ -375,7 +375,7 @@ responses:
 
 def test_default_responses_section():
     case = load_case_text(CASE, "test.yaml")
-    spec = response_spec(case)
+    spec = resolve_responses(case)
     assert spec.default and len(spec.inputs) == 1
     inp = spec.inputs[0]
     assert inp.kind == "doublet" and float(inp.amplitude) == pytest.approx(2 * DEG)  # a pull first
@@ -386,7 +386,7 @@ def test_default_responses_section():
 
 def test_case_responses_and_limits_from_the_case():
     case = load_case_text(CASE + RESPONSES, "test.yaml")
-    spec = response_spec(case)
+    spec = resolve_responses(case)
     assert (spec.duration, spec.step, spec.output_step) == (3.0, 0.002, 0.02)
     assert [x.label for x in spec.inputs] == ["doublet", "gust"]
     res = respond_case(case, [0.2, 0.3], spec)
@@ -410,7 +410,7 @@ def test_case_responses_and_limits_from_the_case():
 def test_bad_responses_section(inputs, message):
     text = CASE + f"responses:\n  duration: 4\n  inputs: {inputs}\n"
     with pytest.raises(CaseError, match=message) as info:
-        response_spec(load_case_text(text, "test.yaml"))
+        resolve_responses(load_case_text(text, "test.yaml"))
     assert "responses.inputs" in str(info.value)
 
 

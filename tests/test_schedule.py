@@ -212,3 +212,24 @@ def test_refinement_stops_when_infeasible_breakpoints_make_no_progress():
     assert r.rounds < 4
     assert "refinement stopped after" in r.message and "no gain meeting every requirement" in r.message
     assert r.history[-1][1] >= 1
+
+
+@pytest.mark.parametrize("variables, message", [
+    ("[altitude, mach]", "a 2-D schedule needs an envelope with aerodynamic tables"),
+    ("[]", "needs at least 1 item"),
+    ("[altitude, mach, airspeed]", "has more than 2 items"),
+])
+def test_a_schedule_over_the_conditions_has_one_variable_or_the_loader_refuses_it(variables, message):
+    """Source: docs/case-file.md (schedule.variables: one variable, or two with an envelope). The
+    schedule over the conditions (damper/analysis/schedule_conditions.py) has no guard of its own:
+    the case layer refuses anything but one variable there, naming the line of the key."""
+    import os
+
+    from damper.errors import CaseError
+
+    path = os.path.join(os.path.dirname(__file__), "cases", "invalid", "schedule_2d_without_envelope.yaml")
+    text = open(path, encoding="utf-8").read()
+    assert "variables: [altitude, mach]" in text.splitlines()[16]  # [derived] line 17 of the file
+    with pytest.raises(CaseError) as err:
+        load_case_text(text.replace("[altitude, mach]", variables), "c.yaml")
+    assert str(err.value).startswith("c.yaml:17: schedule.variables") and message in str(err.value)

@@ -11,7 +11,7 @@ import xml.etree.ElementTree as ET
 import numpy as np
 import pytest
 
-from damper.analysis.envelope_view import envelope_view
+from damper.analysis.schedule_figures import schedule_figure_inputs
 from damper.analysis.schedule import design_schedule
 from damper.case import load_case
 from damper.output.figures.schedule import schedule_plots
@@ -45,7 +45,7 @@ def written(designed, tmp_path_factory):
     out = {}
     for name, (case, result) in designed.items():
         run = tmp_path_factory.mktemp(name)
-        out[name] = (run, schedule_plots(case, result, run, envelope_view(case, result)))
+        out[name] = (run, schedule_plots(case, result, run, schedule_figure_inputs(case, result)))
     return out
 
 
@@ -128,7 +128,7 @@ def test_failures_and_undefined_values_are_drawn(designed, tmp_path):
     feasible = np.zeros_like(np.asarray(result.design.feasible, bool))
     res = dataclasses.replace(result, verification=bad, passed=False,
                               design=dataclasses.replace(result.design, feasible=feasible))
-    paths = schedule_plots(case, res, tmp_path, envelope_view(case, res))
+    paths = schedule_plots(case, res, tmp_path, schedule_figure_inputs(case, res))
     assert len(paths) == 6  # [derived] same six files whatever the verdict
     _, gain_text = _svg_text(paths[1])
     assert "fails a requirement" in gain_text
@@ -144,7 +144,7 @@ def test_failures_and_undefined_values_are_drawn(designed, tmp_path):
 def test_svg_identical_on_rerun(designed, written, tmp_path):
     case, result = designed["regional"]
     _, first = written["regional"]
-    again = schedule_plots(case, result, tmp_path, envelope_view(case, result))
+    again = schedule_plots(case, result, tmp_path, schedule_figure_inputs(case, result))
     # [derived] svg.hashsalt fixed and the date left out: a rerun writes the same bytes
     for a, b in zip(first, again):
         if a.endswith(".svg"):

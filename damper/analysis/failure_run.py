@@ -137,9 +137,9 @@ def _saturation(responses) -> tuple:
 
 def _lower_edge(sub, gains, loop, servo):
     """The window's lower edge of a batch and the damper's saturation in its responses."""
-    from .response import respond_case, response_spec
+    from .response import respond_case, resolve_responses
 
-    rs = response_spec(sub)
+    rs = resolve_responses(sub)
     if servo.authority is not None:
         responses = respond_case(sub, gains, rs, authority=servo.authority,
                                  authority_rate_limit=servo.authority_rate_limit)

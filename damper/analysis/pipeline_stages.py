@@ -149,14 +149,14 @@ def response_batches(case, gains, progress=QUIET):
     ResponseBatch
         In condition order; memory holds one batch's time histories.
     """
-    from .response import respond_case, response_spec
+    from .response import respond_case, resolve_responses
 
     n = len(case.conditions)
     gains = np.broadcast_to(np.asarray(gains, dtype=float), (n,))
     stage = progress.stage("responses", n, "conditions")
     for a, b in batches.condition_batches(n):
         sub = batches.sub_case(case, range(a, b))
-        spec = response_spec(sub)
+        spec = resolve_responses(sub)
         yield ResponseBatch(a, sub, respond_case(sub, gains[a:b], spec), spec)
         stage.update(b)
     stage.finish()

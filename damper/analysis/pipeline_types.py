@@ -18,7 +18,7 @@ from ..verdict import Verdict
 if TYPE_CHECKING:  # the types of the fields, for readers and checkers (not imported at run time)
     from ..case.model import Case
     from .failure_run import FailureRun
-    from .response import CaseResponses, ResponseSpec
+    from .response import CaseResponses, ResolvedResponses
     from .robustness_result import RobustnessResult
     from .schedule_types import ScheduleResult
     from .search import DesignResult, SearchSettings
@@ -316,13 +316,13 @@ class ResponseBatch:
     case : damper.case.model.Case
         The case restricted to the batch's conditions.
     result : damper.analysis.response.CaseResponses
-    spec : damper.analysis.response.ResponseSpec
+    spec : damper.analysis.response.ResolvedResponses
     """
 
     start: int
     case: Case
     result: CaseResponses
-    spec: ResponseSpec
+    spec: ResolvedResponses
 
 
 @dataclass(frozen=True)

@@ -14,7 +14,7 @@ The pieces live in their own modules and are re-exported here:
 * :mod:`damper.analysis.response_measures`: :func:`measure` and :class:`ResponseMeasures`.
 
 This module pairs the augmented and bare runs (:func:`respond`) and reads the case's
-``responses`` section (:func:`response_spec`, :func:`respond_case`).
+``responses`` section (:func:`resolve_responses`, :func:`respond_case`).
 """
 
 from __future__ import annotations
@@ -134,8 +134,15 @@ def respond(loop: Loop, inp: Input, *, duration, step=1e-3, rate_limit=None, tra
 
 
 @dataclass(frozen=True)
-class ResponseSpec:
-    """What to simulate (from the case's ``responses`` section, or the default).
+class ResolvedResponses:
+    """What to simulate at each condition: the case's ``responses`` section resolved, or the default.
+
+    The section as written (its times in SI, defaults that need no airframe) is
+    :class:`damper.case.sections.ResponseSettings`, built by the case layer;
+    :func:`resolve_responses`, the one resolver, turns it into this: every input an
+    :class:`Input` with its defaults filled in, the doublet's half-period from each
+    condition's bare short period (a measure: below the case layer's reach), and each
+    input checked to end before the simulated time (a gust's end depends on the airspeed).
 
     Attributes
     ----------
@@ -184,8 +191,8 @@ def _default_duration(case) -> float:
     return default_duration(getattr(case, "model", "short_period"))
 
 
-def response_spec(case) -> ResponseSpec:
-    """The case's response settings; the default is one pull-first doublet of 2 deg.
+def resolve_responses(case) -> ResolvedResponses:
+    """The case's response settings resolved per condition; the default is one pull-first doublet of 2 deg.
 
     The default doublet starts at 0.5 s with a half-period of half the bare
     short-period period at each condition (:func:`default_half_period`); 10 s (60 s for the
@@ -208,7 +215,7 @@ def response_spec(case) -> ResponseSpec:
     if given is None:
         inp = Input("doublet", amplitude=DEFAULT_DOUBLET_AMPLITUDE, start=DEFAULT_START,
                     half_period=default_half_period(d), name="doublet")
-        return ResponseSpec(_default_duration(case), DEFAULT_STEP, DEFAULT_OUTPUT_STEP, (inp,), default=True)
+        return ResolvedResponses(_default_duration(case), DEFAULT_STEP, DEFAULT_OUTPUT_STEP, (inp,), default=True)
     duration, step, out_step = given.duration_s, given.step_s, given.output_step_s
     inputs = []
     for i, it in enumerate(given.inputs or (InputSettings("doublet"),)):
@@ -231,7 +238,12 @@ def response_spec(case) -> ResponseSpec:
         inputs.append(inp)
     names = [x.name for x in inputs]
     inputs = [replace(x, name=f"{x.name}-{i + 1}") if names.count(x.name) > 1 else x for i, x in enumerate(inputs)]
-    return ResponseSpec(float(duration), float(step), float(out_step), tuple(inputs))
+    return ResolvedResponses(float(duration), float(step), float(out_step), tuple(inputs))
+
+
+#: Former names (the resolved settings were called a spec).
+ResponseSpec = ResolvedResponses
+response_spec = resolve_responses
 
 
 @dataclass(frozen=True)
@@ -240,7 +252,7 @@ class CaseResponses:
 
     Attributes
     ----------
-    spec : ResponseSpec
+    spec : ResolvedResponses
     gains : ndarray
         K, s, shape ``(n_conditions,)`` (or with a gains axis).
     responses : tuple of Response
@@ -254,7 +266,7 @@ class CaseResponses:
         The damper command's own rate limit, rad/s, as used (None: none).
     """
 
-    spec: ResponseSpec
+    spec: ResolvedResponses
     gains: np.ndarray = quantity("s", key="gain_s")
     responses: tuple
     rate_limit: float | None = quantity("rad/s", default=None)
@@ -269,9 +281,9 @@ class CaseResponses:
 FROM_CASE = "case"
 
 
-def respond_case(case, gains, spec: ResponseSpec | None = None, *, authority=FROM_CASE,
+def respond_case(case, gains, spec: ResolvedResponses | None = None, *, authority=FROM_CASE,
                  authority_rate_limit=FROM_CASE) -> CaseResponses:
-    """Simulate every input of `spec` (default :func:`response_spec`) at every condition.
+    """Simulate every input of `spec` (default :func:`resolve_responses`) at every condition.
 
     Parameters
     ----------
@@ -293,7 +305,7 @@ def respond_case(case, gains, spec: ResponseSpec | None = None, *, authority=FRO
         own = getattr(case.loop, "authority_rate_limit", None)
         authority_rate_limit = SAME_AS_ACTUATOR if own is None else own
 
-    spec = spec or response_spec(case)
+    spec = spec or resolve_responses(case)
     loop = build_loop(case, gains)
     shape = batch_shape(loop)
     extra = len(shape) - 1

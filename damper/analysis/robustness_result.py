@@ -62,6 +62,21 @@ class WorstCase:
     gain_margin: float = quantity("dB", default=float("nan"))
     phase_margin: float = quantity("deg", default=float("nan"))
 
+    @property
+    def met(self) -> bool:
+        """Whether `criterion` is met at this point (slack >= 0)."""
+        return bool(self.slack >= 0)
+
+    @property
+    def all_met(self):
+        """Whether every criterion is met at this point (bool; None when `slacks` is not kept)."""
+        return bool(np.all(self.slacks >= 0)) if self.slacks is not None else None
+
+    @property
+    def bounded(self) -> bool:
+        """Whether the slack is finite or -inf (+inf: the criterion cannot be missed here)."""
+        return bool(self.slack != np.inf)
+
 
 @dataclass(frozen=True)
 class ConditionRobustness:

@@ -435,8 +435,8 @@ def design_schedule(case, progress=None) -> ScheduleResult:
 
 def _design_schedule(case, report) -> ScheduleResult:
     s = case.schedule  # its form and variables are checked by the case layer (damper.case.sections)
-    if s is None:
-        raise DamperError(f"{case.file}: the case has no schedule section")
+    if s is None:  # not dead: a case may leave the section out (the pipeline's stage then skips this call),
+        raise DamperError(f"{case.file}: the case has no schedule section")  # but a library caller may not
     variables = tuple(s.variables)
     form = s.form
     env, aero = env_mod.envelope_from_case(case)

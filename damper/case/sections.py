@@ -109,7 +109,12 @@ class InputSettings:
 
 @dataclass(frozen=True)
 class ResponseSettings:
-    """The ``responses:`` section, its times resolved.
+    """The ``responses:`` section as written, its times resolved (SI).
+
+    What needs a condition's airframe (a doublet's default half-period from the bare short
+    period, whether an input ends in time) is resolved by the analysis:
+    :func:`damper.analysis.response.resolve_responses` gives the
+    :class:`~damper.analysis.response.ResolvedResponses` that is simulated.
 
     Attributes
     ----------

@@ -83,6 +83,8 @@ def run(args, argv) -> int:
     from ..output.style import use_option
 
     use_option(args.figures)  # before anything is drawn (the plot worker inherits it)
+    import dataclasses
+
     from ..analysis.pipeline import run_pipeline
     from ..case import load_case
     from ..cli import warn_case
@@ -105,21 +107,20 @@ def run(args, argv) -> int:
         with PlotJobs(enabled=(bool(case.conditions) or rob_planned) and not args.no_plots) as jobs:
             writer = DesignRunWriter(out, case, command, jobs, plots=not args.no_plots, max_figures=args.max_figures)
             result = run_pipeline(case, options(args), on_event=writer, progress=current())
-            writer.finish(result)
+            wrote = writer.finish(result)
         if not args.no_report:
             from ..output.report.build import write_report
             from ..output.runfiles import RunFiles
 
             with part("report"), current().stage("report"):
                 write_report(out, RunFiles.verified(out, run.files()))
-            writer.written.append("report.html")
+            wrote = dataclasses.replace(wrote, written=(*wrote.written, "report.html"))
         run.finish()
-        writer.written.append("manifest.json")
-    _print(args, result, writer, out)
+    _print(args, result, dataclasses.replace(wrote, written=(*wrote.written, "manifest.json")), out)
     return result.verdict.exit_status()
 
 
-def _print(args, result, writer, out) -> None:
+def _print(args, result, wrote, out) -> None:
     """The run on the terminal: what was understood, the tables, the files, the verdict, the caution."""
     from ..cli import CAUTION_SHORT
     from ..output.documents.design import design_table
@@ -129,8 +130,8 @@ def _print(args, result, writer, out) -> None:
     if design is not None:
         from ..output.documents.understood import echo_for, with_level_legend
 
-        print(echo_for(case, writer.design_doc))
-        print(with_level_legend(design_table(writer.design_doc), case))
+        print(echo_for(case, wrote.design_doc))
+        print(with_level_legend(design_table(wrote.design_doc), case))
         if design.figures is not None and not args.no_plots:
             print(f"figures drawn for {len(design.figures)} of {len(design.conditions)} conditions (the infeasible ones "
                   "and those with the least slack; --max-figures N to change)")
@@ -143,9 +144,9 @@ def _print(args, result, writer, out) -> None:
 
         where = "the scheduled gains, at the tightest verification points" if schedule is not None else "the chosen gains"
         print(f"robustness at {where} ({rob.spec.samples} samples, seed {rob.spec.seed}):")
-        print(robustness_table(writer.robustness_doc))
-    if writer.failures_text is not None:
-        print(writer.failures_text)
-    print(f"wrote {', '.join(writer.written)} to {out}")
+        print(robustness_table(wrote.robustness_doc))
+    if wrote.failures_text is not None:
+        print(wrote.failures_text)
+    print(f"wrote {', '.join(wrote.written)} to {out}")
     print("\n".join(result.verdict.lines()))
     print(CAUTION_SHORT)

@@ -61,12 +61,9 @@ def _check_args(args):
 
 def run(args, argv) -> int:
     _check_args(args)
-    from ..output.style import use_option
+    from ..output.style import case_slug, use_option
 
     use_option(args.figures)  # before anything is drawn (the plot worker inherits it)
-    import os
-    import re
-
     from ..analysis.robustness import uncertainty_spec
     from ..analysis.runners import cluster_client
     from ..case import load_case
@@ -76,10 +73,9 @@ def run(args, argv) -> int:
     case = load_case(args.case)
     spec = uncertainty_spec(case, samples=args.samples, seed=args.seed)
     case, gains, checked, source = _study(args, case)
-    stem = re.sub(r"[^A-Za-z0-9._-]+", "-", os.path.splitext(os.path.basename(args.case))[0]) or "case"
     command = " ".join(["damper", *argv])
     with cluster_client(args.cluster) as cluster:  # before the run directory: an unreachable cluster writes nothing
-        stage, elapsed, doc, note = _write_run(args, case, gains, checked, spec, command, args.out or f"robust-{stem}",
+        stage, elapsed, doc, note = _write_run(args, case, gains, checked, spec, command, args.out or f"robust-{case_slug(args.case)}",
                                                cluster)
     case, result, verdict = stage.case, stage.result, stage.verdict
     source = source or f"the schedule {args.schedule} at its {len(stage.gains)} tightest verification points"
@@ -109,6 +105,7 @@ def _write_run(args, case, gains, checked, spec, command, out, cluster):
     import time
 
     from ..analysis.pipeline import robustness_stage
+    from ..analysis.robustness_figures import robustness_figure_inputs
     from ..cli import warn_case
     from ..output.files import write_atomic
     from ..output.journal import part
@@ -134,7 +131,8 @@ def _write_run(args, case, gains, checked, spec, command, out, cluster):
             plot_paths = []
             if not args.no_plots:
                 with current().stage("figures"):
-                    plot_paths = robustness_plots(stage.case, stage.result, out)
+                    inputs = robustness_figure_inputs(stage.result)
+                    plot_paths = robustness_plots(stage.case, stage.result, inputs, out)
                 files += sorted(os.path.relpath(p, out) for p in plot_paths)
             doc = with_verdict(robustness_document(stage.case, stage.result, command=command, files=files,
                                                    where=stage.where), stage.verdict)

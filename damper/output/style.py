@@ -314,6 +314,14 @@ def plot_slugs(names) -> list:
     return out
 
 
+def case_slug(path) -> str:
+    """A file-name fragment naming a case file: its name without the extension, by :func:`safe_name`.
+
+    The default run directory of ``damper robust`` is ``robust-<case_slug>``.
+    """
+    return safe_name(os.path.splitext(os.path.basename(os.fspath(path)))[0])
+
+
 def label_slug(text: str) -> str:
     """A file-name fragment from a label, case kept (letters, digits, '.', '_', '-'; at most 60).
 

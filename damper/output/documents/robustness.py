@@ -9,8 +9,6 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-
 from ...analysis.sample_stats import SLACK_EDGES
 from ...analysis.uncertainty import SHARD_SAMPLES
 from .design import requirements_list
@@ -93,7 +91,7 @@ def _worst_entries(result, i, c) -> list:
             "value": num(w.value),
             "value_note": None if math.isfinite(w.value) else "undefined: unbounded margin (met) or no such mode (failed)",
             **point(w, None, ("slack",)),
-            "met": bool(w.slack >= 0),
+            "met": w.met,
             "source": w.source,
             "index": w.index,
             **point(w, None, ("start_slack",)),
@@ -102,7 +100,7 @@ def _worst_entries(result, i, c) -> list:
             "normalised": [num(x) for x in w.u],
             "there": {
                 **point(w, None, WORST_THERE),
-                "all_met": bool(np.all(w.slacks >= 0)) if w.slacks is not None else None,
+                "all_met": w.all_met,
             },
         }
         for j, w in enumerate(c.worst)

@@ -41,7 +41,10 @@ SUBTITLE_WIDTH = 145  # characters of a gain-sweep subtitle line (8.5 pt across 
 # gain sweep
 # ---------------------------------------------------------------------------------
 def _label(name):
-    return name.replace("_", " ")
+    """A criterion's registered label (:func:`damper.requirements.registry.label`), as the report writes it."""
+    from ...requirements.registry import label
+
+    return label(name)
 
 
 def gain_sweep_plot(case, design, i, stem):

@@ -1,7 +1,9 @@
 """The robustness plots (in the ``--figures`` formats, written atomically).
 
-Nothing here computes a measure: everything comes from a
-:class:`damper.analysis.robustness.RobustnessResult`. matplotlib is imported inside the
+Nothing here computes a measure or judges a slack: everything comes from a
+:class:`damper.analysis.robustness.RobustnessResult` and the
+:class:`damper.analysis.robustness_figures.RobustnessFigureInputs` of it (which conditions get
+figures, which samples meet what). matplotlib is imported inside the
 plotting functions (Agg canvas, no pyplot state).
 
 * ``scatter-<condition>``: damping ratio against the smallest gain margin for every
@@ -72,18 +74,19 @@ def _band(result, name):
     return -np.inf, np.inf
 
 
-def scatter_plot(case, result, i, stem):
-    """Damping ratio against the smallest gain margin at condition `i`; returns the paths."""
-    return _render(_draw_scatter, stem, case, result, i, rc=ROBUSTNESS_RC)
+def scatter_plot(case, result, i, split, stem):
+    """Damping ratio against the smallest gain margin at condition `i` (`split`: its
+    :class:`~damper.analysis.robustness_figures.SampleSplit`); returns the paths."""
+    return _render(_draw_scatter, stem, case, result, i, split, rc=ROBUSTNESS_RC)
 
 
-def _draw_scatter(case, result, i):
+def _draw_scatter(case, result, i, split):
     c = result.conditions[i]
     fig = _figure(6.8, 5.0)
     ax = fig.add_axes([0.10, 0.29, 0.86, 0.64])
     lim = _scatter_limits(result, i)
     _requirement_box(ax, lim)
-    _samples(ax, result, i, lim)
+    _samples(ax, result, i, split, lim)
     _nominal_and_worst(ax, result, i, lim["top"])
     ax.set_xlim(lim["xmin"], lim["xmax"])
     ax.set_ylim(lim["ymin"], lim["ymax"])
@@ -114,7 +117,7 @@ def _scatter_limits(result, i) -> dict:
     finite_z = z[np.isfinite(z)]
     zlo, zhi = _band(result, "damping_ratio")
     glo, _ = _band(result, "gain_margin")
-    marks = [w for w in (_worst(c, "damping_ratio"), _worst(c, "gain_margin")) if w is not None and w.slack != np.inf]
+    marks = [w for w in (_worst(c, "damping_ratio"), _worst(c, "gain_margin")) if w is not None and w.bounded]
     xs = list(finite_z) + [v for v in (zlo, zhi) if np.isfinite(v)] + [w.damping for w in marks if np.isfinite(w.damping)]
     xmin, xmax = (min(xs), max(xs)) if xs else (0.0, 1.5)
     pad = 0.06 * max(xmax - xmin, 0.1)
@@ -144,15 +147,15 @@ def _requirement_box(ax, lim):
     )
 
 
-def _samples(ax, result, i, lim):
+def _samples(ax, result, i, split, lim):
     """Every shown sample, pass and fail told apart by colour and marker; unbounded margins on the top edge."""
     z = result.damping[i]
     gm = result.gain_margin[i]
-    ok = np.all(result.slacks[:, i, :] >= 0, 0)
+    ok = split.meets_all
     top, xmin, xmax, ypad = lim["top"], lim["xmin"], lim["xmax"], lim["ypad"]
     yplot = np.where(np.isfinite(gm), gm, top)
     unb = ~np.isfinite(gm)
-    off, off_names = _fails_off_axes(result, i)
+    off, off_names = split.misses_off_axes, ", ".join(n.replace("_", " ") for n in split.missed_off_axes)
     common = dict(s=9, linewidths=0.6, rasterized=True, zorder=2)
     for mask, colour, marker, label in (
         (ok & ~unb, STYLE["pass"], "o", "sample meets every requirement"),
@@ -186,26 +189,13 @@ def _nominal_and_worst(ax, result, i, top):
                    edgecolors=STYLE["nominal"], linewidths=1.4, zorder=4, label="nominal")
     for w, marker, label in ((_worst(c, "damping_ratio"), "*", "worst damping"),
                              (_worst(c, "gain_margin"), "P", "worst gain margin")):
-        if w is None or w.slack == np.inf:
+        if w is None or not w.bounded:
             continue
-        label = f"{label} ({w.source}{', missed' if w.slack < 0 else ''})"
+        label = f"{label} ({w.source}{'' if w.met else ', missed'})"
         wz, wg = _point_at(result, i, w)
         if wz is not None and np.isfinite(wz):
             ax.scatter([wz], [wg if np.isfinite(wg) else top], marker=marker, s=90, c=STYLE["worst"],
                        edgecolors=STYLE["ink"], linewidths=0.7, zorder=5, label=label)
-
-
-def _fails_off_axes(result, i):
-    """Samples of condition `i` that meet damping and gain margin (the axes) but miss another
-    requirement, and the names of the requirements they miss (from the study's slacks)."""
-    names = [cr.name for cr in result.criteria]
-    sl = result.slacks[:, i, :]
-    on = [j for j, n in enumerate(names) if n in ("damping_ratio", "gain_margin")]
-    rest = [j for j in range(len(names)) if j not in on]
-    on_ok = np.all(sl[on] >= 0, 0) if on else np.ones(sl.shape[1], bool)
-    off = on_ok & (np.any(sl[rest] < 0, 0) if rest else np.zeros(sl.shape[1], bool))
-    missed = [names[j].replace("_", " ") for j in rest if np.any(off & (sl[j] < 0))]
-    return off, ", ".join(missed)
 
 
 def _worst(c, name):
@@ -319,47 +309,35 @@ def _fit_left_labels(fig, ax, plot_width_in=4.62):
     ax.set_position([left_in / width, pos.y0, plot_width_in / width, pos.height])
 
 
-#: Conditions that get their own robustness figures by default.
-FIGURE_CONDITIONS = 48
-
-
-def figure_conditions(result, limit=FIGURE_CONDITIONS) -> tuple:
-    """Conditions with figures: all when at most `limit`, else the `limit` with the lowest pass fraction."""
-    n = len(result.conditions)
-    if n <= limit:
-        return tuple(range(n))
-    order = sorted(range(n), key=lambda i: (result.conditions[i].fraction_all, i))
-    return tuple(sorted(order[:limit]))
-
-
-def robustness_plot_jobs(case, result, out_dir, limit=FIGURE_CONDITIONS) -> list:
+def robustness_plot_jobs(case, result, inputs, out_dir) -> list:
     """The figures of :func:`robustness_plots` as jobs ``(fn, args)``, in file order.
 
-    With more than `limit` conditions, the pass-fraction plot and the per-condition figures
-    show the `limit` conditions with the lowest pass fraction (:func:`figure_conditions`).
+    `inputs` (:func:`damper.analysis.robustness_figures.robustness_figure_inputs`) names the
+    conditions with figures: with more than its limit, the pass-fraction plot and the
+    per-condition figures show those with the lowest pass fraction.
     """
     import dataclasses
     import functools
 
-    shown = figure_conditions(result, limit)
+    shown = inputs.shown
     plots = os.path.join(out_dir, "plots")
     overview = result
     if len(shown) < len(result.conditions):  # the pass-fraction plot: only the conditions shown
         overview = dataclasses.replace(result, conditions=tuple(result.conditions[i] for i in shown))
     draw = pass_fraction_plot if overview is result else functools.partial(pass_fraction_plot, total=len(result.conditions))
     jobs = [(draw, (case, overview, os.path.join(plots, PASS_FRACTION.stem)))]
-    for i in shown:
+    for i, split in zip(shown, inputs.splits):
         c = result.conditions[i]
         slug = f"{i + 1:02d}-{safe_name(c.name)}"
-        jobs.append((scatter_plot, (case, result, i, os.path.join(plots, f"{SCATTER.stem}-{slug}"))))
+        jobs.append((scatter_plot, (case, result, i, split, os.path.join(plots, f"{SCATTER.stem}-{slug}"))))
         if result.axes.names:
             jobs.append((sensitivity_plot, (case, result, i, os.path.join(plots, f"{SENSITIVITY.stem}-{slug}"))))
     return jobs
 
 
-def robustness_plots(case, result, out_dir, limit=FIGURE_CONDITIONS) -> list:
+def robustness_plots(case, result, inputs, out_dir) -> list:
     """Every robustness plot into ``out_dir/plots``; returns the written paths."""
     paths = []
-    for fn, args in robustness_plot_jobs(case, result, out_dir, limit):
+    for fn, args in robustness_plot_jobs(case, result, inputs, out_dir):
         paths += fn(*args)
     return paths

@@ -6,7 +6,7 @@
 
 ``schedule-gain.png`` / ``.svg``
     1-D schedule: the gain K (s) against the schedule variable (breakpoints as markers, the
-    interpolated law drawn densely with :meth:`Schedule.gain_at`, clamping beyond the table
+    interpolated law drawn densely (interpolated by the analysis), clamping beyond the table
     dotted), the verification points on it (marker by configuration, failing points ringed),
     and below it the worst normalised slack at every verification point.
     2-D schedule: a heat map of the bilinearly interpolated gain over (speed variable,
@@ -25,8 +25,9 @@ outline (:func:`damper.analysis.envelope.speed_limits`) and the breakpoints as i
 Contours are interpolated linearly on a triangulation of the verification points (triangles
 outside the envelope dropped); the points carry the computed values.
 
-Nothing here computes a measure: values come from the verification. Drawing-time geometry
-only: the envelope's speed limits and :meth:`Schedule.gain_at` on a dense grid.
+Nothing here computes a measure: values come from the verification, and the gain between the
+breakpoints from :class:`damper.analysis.schedule_figures.ScheduleFigureInputs`. Drawing-time
+geometry only: the envelope's speed limits.
 
 Visual identity: the palette of :mod:`damper.output.style`; colour scales ``cividis``
 (monotone in lightness, readable with the common colour-vision deficiencies and in
@@ -67,7 +68,6 @@ _CONFIG_STYLE = (
     ("P", "#3d3d3d", (0, (3, 1))),
 )
 _FAIL_RING = {"marker": "o", "facecolors": "none", "edgecolors": PALETTE["limit"], "linewidths": 1.4}
-_DENSE = 241
 
 
 def _axis_label(var):
@@ -143,12 +143,12 @@ def _verdict(result):
 # ---------------------------------------------------------------------------------
 # 1. gain against the schedule variable
 # ---------------------------------------------------------------------------------
-def _draw_gain_1d(case, result, env):
+def _draw_gain_1d(case, result, inputs):
     sch = result.schedule
     var = sch.variables[0]
     bp = np.asarray(sch.breakpoints[0], float)
     kb = np.asarray(sch.gains, float).ravel()
-    xd, kd = _dense_law(sch, result.verification, bp)
+    xd, kd = inputs.line.x, inputs.line.gain_s
     fig = _figure(7.6, 6.6)
     gs = fig.add_gridspec(2, 1, height_ratios=(3.0, 2.0), hspace=0.08, left=0.11, right=0.97, top=0.82, bottom=0.17)
     ax = fig.add_subplot(gs[0])
@@ -168,18 +168,6 @@ def _draw_gain_1d(case, result, env):
     fig.legend(handles=handles, loc="lower center", ncol=3, fontsize=7.2, frameon=True, bbox_to_anchor=(0.5, 0.0))
     _title(fig, f"Gain schedule in {DISPLAY[var][0]}: {bp.size} breakpoints", case, _verdict(result))
     return fig
-
-
-def _dense_law(sch, ver, bp):
-    """The schedule variable on a dense grid a little beyond the breakpoints and points (SI), and K there (s)."""
-    xv = np.asarray(ver.points.values[0], float)
-    lo = float(np.nanmin(np.concatenate([bp, xv])))
-    hi = float(np.nanmax(np.concatenate([bp, xv])))
-    span = max(hi - lo, abs(hi) * 0.1, 1e-9)
-    xd = np.linspace(lo - 0.04 * span, hi + 0.04 * span, _DENSE)
-    if sch.variables[0] == "dynamic_pressure":
-        xd = xd[xd > 0]
-    return xd, sch.gain_at([xd])
 
 
 def _law_line(ax, sch, xd, kd, bp, sx):
@@ -296,8 +284,9 @@ def _legend_1d(law_handles, bp_label, conf_handles, any_bad):
     return handles
 
 
-def _draw_gain_2d(case, result, env):
-    d = _grid_2d(result)
+def _draw_gain_2d(case, result, inputs):
+    env = inputs.envelope
+    d = _grid_2d(result, inputs.map)
     fig = _figure(11.6, 5.0)
     gs = fig.add_gridspec(1, 4, width_ratios=(1.0, 0.04, 0.17, 0.85), wspace=0.04, left=0.06, right=0.985, top=0.84,
                           bottom=0.25)
@@ -319,7 +308,7 @@ def _draw_gain_2d(case, result, env):
     ax.set_ylim(d["h_lo"] * hsx, d["h_hi"] * hsx)
     ax.grid(False)
     ax.set_title("gain table over the envelope (node values in s)", fontsize=9)
-    _k_lines(axl, result.schedule, env, d)
+    _k_lines(axl, inputs.map, env, d)
     ax.legend(handles=_legend_2d(outline_handle is not None, infeas.any()), loc="upper center", ncol=2, fontsize=7.2,
               bbox_to_anchor=(0.5, -0.13))
     _title(fig, f"Gain schedule in altitude and {DISPLAY[d['sv']][0]}: {d['hb'].size} x {d['sb'].size} nodes", case,
@@ -327,9 +316,9 @@ def _draw_gain_2d(case, result, env):
     return fig
 
 
-def _grid_2d(result) -> dict:
+def _grid_2d(result, gmap) -> dict:
     """The table's nodes as [altitude, speed variable] arrays, the verification points, the drawn
-    ranges (SI) and the interpolated gain on a dense grid (s)."""
+    ranges (SI) and the interpolated gain on a dense grid (s, from the analysis's `gmap`)."""
     from matplotlib.colors import Normalize
 
     sch = result.schedule
@@ -342,11 +331,9 @@ def _grid_2d(result) -> dict:
          "counts_hs": hs(np.asarray(result.design.points).reshape(G.shape)),
          "feas_hs": hs(np.asarray(result.design.feasible, bool).reshape(G.shape)),
          "hv": np.asarray(ver.points.values[ia], float), "svv": np.asarray(ver.points.values[1 - ia], float)}
-    d["h_lo"], d["h_hi"] = min(d["hb"][0], np.nanmin(d["hv"])), max(d["hb"][-1], np.nanmax(d["hv"]))
-    d["s_lo"], d["s_hi"] = min(d["sb"][0], np.nanmin(d["svv"])), max(d["sb"][-1], np.nanmax(d["svv"]))
-    Hm, Sm = np.meshgrid(np.linspace(d["h_lo"], d["h_hi"], 160), np.linspace(d["s_lo"], d["s_hi"], 200), indexing="ij")
-    vals = [Hm.ravel(), Sm.ravel()] if ia == 0 else [Sm.ravel(), Hm.ravel()]
-    d["Kd"] = sch.gain_at(vals).reshape(Hm.shape)
+    d["h_lo"], d["h_hi"] = gmap.altitude_range_m
+    d["s_lo"], d["s_hi"] = gmap.speed_range
+    d["Kd"] = gmap.gain_s
     kmin = float(min(np.nanmin(d["Kd"]), np.nanmin(G)))
     d["kmax"] = kmax = float(max(np.nanmax(d["Kd"]), np.nanmax(G)))
     d["norm"] = Normalize(vmin=kmin, vmax=kmax if kmax > kmin else kmin + 1e-6)
@@ -413,7 +400,7 @@ def _nodes_2d(ax, d):
     return infeas
 
 
-def _k_lines(axl, sch, env, d):
+def _k_lines(axl, gmap, env, d):
     """Right panel: K against the speed variable, one line per altitude breakpoint (dotted outside the envelope)."""
     from matplotlib import colormaps
     from matplotlib.lines import Line2D
@@ -422,13 +409,12 @@ def _k_lines(axl, sch, env, d):
     cmap = colormaps[COLORMAP]
     styles = ("-", "--", "-.", ":", (0, (5, 1, 1, 1)), (0, (3, 1)))
     markers = ("o", "s", "^", "D", "v", "P", "X", "<", ">", "h")
-    sdense = np.linspace(d["s_lo"], d["s_hi"], _DENSE)
+    sdense = gmap.line_speed
     line_handles = []
     for i, h in enumerate(d["hb"]):
         col = cmap(0.05 + 0.65 * (i / max(d["hb"].size - 1, 1)))  # stop short of the pale end: visible on white
         ls, mk = styles[i % len(styles)], markers[i % len(markers)]
-        v = [np.full(sdense.size, h), sdense] if d["ia"] == 0 else [sdense, np.full(sdense.size, h)]
-        kline = sch.gain_at(v)
+        kline = gmap.line_gain_s[i]
         if env is not None:
             a, b = env.speed_range_in(d["sv"], np.array([h]))
             inside = (sdense >= a[0] * (1 - 1e-9)) & (sdense <= b[0] * (1 + 1e-9))
@@ -472,7 +458,7 @@ def _legend_2d(with_outline, any_infeasible):
 # ---------------------------------------------------------------------------------
 # all of them
 # ---------------------------------------------------------------------------------
-def schedule_plots(case, result, out_dir, envelope=None):
+def schedule_plots(case, result, out_dir, inputs):
     """Write the schedule plots of `result` into ``<out_dir>/plots/``.
 
     Parameters
@@ -481,9 +467,10 @@ def schedule_plots(case, result, out_dir, envelope=None):
     result : damper.analysis.schedule.ScheduleResult
     out_dir : path
         Run directory; the files go to its ``plots`` sub-directory.
-    envelope : EnvelopeView or None
-        :func:`damper.analysis.envelope_view.envelope_view` of `case` and `result` (None: a
-        schedule over the case's conditions, drawn without an envelope).
+    inputs : damper.analysis.schedule_figures.ScheduleFigureInputs
+        :func:`damper.analysis.schedule_figures.schedule_figure_inputs` of `case` and `result`:
+        the envelope (None: a schedule over the case's conditions, drawn without an envelope)
+        and the gain interpolated between the breakpoints.
 
     Returns
     -------
@@ -500,12 +487,12 @@ def schedule_plots(case, result, out_dir, envelope=None):
     one_d = len(result.schedule.variables) == 1
     jobs = (
         (GAIN.stem, _draw_gain_1d if one_d else _draw_gain_2d),
-        (DAMPING_MAP.stem, _draw_damping_map),
-        (MARGIN_MAP.stem, _draw_margin_map),
+        (DAMPING_MAP.stem, lambda c, r, i: _draw_damping_map(c, r, i.envelope)),
+        (MARGIN_MAP.stem, lambda c, r, i: _draw_margin_map(c, r, i.envelope)),
     )
     with matplotlib.rc_context(_RC):
         for stem, draw in jobs:
-            fig = draw(case, result, envelope)
+            fig = draw(case, result, inputs)
             paths += _save(fig, os.path.join(plot_dir, stem))
     return paths
 

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import math
 
-from ...requirements.registry import KINDS as CRITERION_KINDS
+from ...requirements.registry import label as _registry_label
 
 R2D = 180.0 / math.pi
 KT = 0.514444  # m/s per knot (exact: 1852/3600)
@@ -105,8 +105,6 @@ def unit_text(unit):
 # ---------------------------------------------------------------------------------
 # labels
 # ---------------------------------------------------------------------------------
-REQUIREMENT_LABELS = {name: kind.label for name, kind in CRITERION_KINDS.items()}  # the criteria's own labels
-
 BINDING_SHORT = {
     "sweep range": "end of the gain sweep",
 }
@@ -151,7 +149,8 @@ def key_label(key):
 
 
 def requirement_label(name):
-    return REQUIREMENT_LABELS.get(name, str(name).replace("_", " "))
+    """A criterion's registered label; other names in plain words (the one rule, the figures' too)."""
+    return _registry_label(name)
 
 
 def binding_text(binding):

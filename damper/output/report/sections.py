@@ -482,7 +482,7 @@ def _pass_row(c, worst):
     pa = (c.get("pass") or {}).get("all") or {}
     tightest = min(worst, key=_slack_of) if worst else None
     frac = pa.get("fraction")
-    worst_missed = bool(tightest) and _slack_of(tightest) < 0
+    worst_missed = bool(tightest) and tightest.get("met") is False
     ok = frac is not None and frac >= 1.0 and not worst_missed
     row = [
         c.get("name", ""),
