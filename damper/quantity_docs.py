@@ -31,7 +31,7 @@ TYPES = (
     ("damper.analysis.assess", "Assessment"),
     ("damper.analysis.search", "ConditionDesign"),
     ("damper.analysis.search", "Edge"),
-    ("damper.analysis.response", "ResponseSpec"),
+    ("damper.analysis.response", "ResolvedResponses"),
     ("damper.analysis.response", "CaseResponses"),
     ("damper.analysis.response_measures", "ResponseMeasures"),
     ("damper.analysis.failure_run", "Saturation"),
