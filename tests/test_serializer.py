@@ -368,3 +368,25 @@ def test_no_document_module_writes_an_annotated_fields_key_by_hand():
             with open(os.path.join(DOCUMENTS, name), encoding="utf-8") as fh:
                 found += [(name, line, key) for line, key in hand_written(fh.read(), known)]
     assert found == [], "write these through damper/output/documents/serialize.point"
+
+
+def test_the_reports_key_labels_read_back_the_unit_of_every_annotated_key():
+    """The report labels generic tables by key suffix; that must be the documents' own rule.
+
+    Every annotated key whose unit the report knows reads back as that unit; the label is the
+    key without its suffix. The expected unit text is the metadata's unit with ``^2``/``^3`` as
+    superscripts (common practice for display).
+    """
+    from damper.output.report.format import KEY_UNITS, key_label
+
+    checked = 0
+    for cls in _types():
+        for q in quantities(cls):
+            if q.unit not in KEY_UNITS or q.key != rule_key(q.attribute, q.unit):
+                continue
+            label, unit = key_label(q.key)
+            assert unit == q.unit.replace("^2", "\u00b2").replace("^3", "\u00b3"), (cls.__name__, q.key)
+            assert label == q.key[: -len("_" + unit_suffix(q.unit))].replace("_", " ")
+            checked += 1
+    assert checked > 40
+    assert key_label("damping_ratio") == ("damping ratio", "")  # dimensionless: no unit

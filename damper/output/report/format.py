@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import math
 
+from ...quantities import unit_suffix
 from ...requirements.registry import label as _registry_label
 
 R2D = 180.0 / math.pi
@@ -109,31 +110,19 @@ BINDING_SHORT = {
     "sweep range": "end of the gain sweep",
 }
 
-#: Key suffixes that carry a unit, longest first.
-UNIT_SUFFIXES = (
-    ("_rad_s2", "rad/s\u00b2"),
-    ("_rad_s", "rad/s"),
-    ("_deg_s", "deg/s"),
-    ("_m_s2", "m/s\u00b2"),
-    ("_m_s", "m/s"),
-    ("_kg_m2", "kg m\u00b2"),
-    ("_kg_m3", "kg/m\u00b3"),
-    ("_1_s2", "1/s\u00b2"),
-    ("_1_s", "1/s"),
-    ("_pct", "%"),
-    ("_db", "dB"),
-    ("_deg", "deg"),
-    ("_rad", "rad"),
-    ("_kpa", "kPa"),
-    ("_pa", "Pa"),
-    ("_kg", "kg"),
-    ("_hz", "Hz"),
-    ("_m2", "m\u00b2"),
-    ("_ft", "ft"),
-    ("_kt", "kt"),
-    ("_m", "m"),
-    ("_s", "s"),
-    ("_g", "g"),
+#: Units a generic table's keys may carry; the key suffix of each comes from the one rule the
+#: JSON documents are written by (:func:`damper.quantities.unit_suffix`).
+KEY_UNITS = (
+    "rad/s^2", "rad/s", "deg/s", "m/s^2", "m/s", "kg m^2", "kg/m^3", "1/s^2", "1/s", "pct",
+    "dB", "deg", "rad", "kPa", "Pa", "kg", "Hz", "m^2", "ft", "kt", "m", "s", "g",
+)
+
+#: ``(suffix, unit as shown)``, longest suffix first (``_rad_s`` before ``_s``).
+UNIT_SUFFIXES = tuple(
+    sorted(
+        (("_" + unit_suffix(u), "%" if u == "pct" else unit_text(u)) for u in KEY_UNITS),
+        key=lambda pair: -len(pair[0]),
+    )
 )
 
 
