@@ -23,6 +23,8 @@ from __future__ import annotations
 import math
 import os
 
+import textwrap
+
 import numpy as np
 
 from ..documents.text import pct as _pct
@@ -155,12 +157,17 @@ def _samples(ax, result, i, split, lim):
     top, xmin, xmax, ypad = lim["top"], lim["xmin"], lim["xmax"], lim["ypad"]
     yplot = np.where(np.isfinite(gm), gm, top)
     unb = ~np.isfinite(gm)
-    off, off_names = split.misses_off_axes, ", ".join(n.replace("_", " ") for n in split.missed_off_axes)
+    from ...requirements.registry import label as criterion_label
+
+    # The registered labels are long ("control anticipation parameter (CAP)"): wrapped under the
+    # entry so the legend keeps the figure's width.
+    names = textwrap.fill(", ".join(criterion_label(n) for n in split.missed_off_axes), 44)
+    off, off_names = split.misses_off_axes, "\n" + names
     common = dict(s=9, linewidths=0.6, rasterized=True, zorder=2)
     for mask, colour, marker, label in (
         (ok & ~unb, STYLE["pass"], "o", "sample meets every requirement"),
         (~ok & ~off & ~unb, STYLE["fail"], "x", "sample misses damping or gain margin"),
-        (off & ~unb, STYLE["worst"], "s", f"fails a requirement not shown on these axes ({off_names})"),
+        (off & ~unb, STYLE["worst"], "s", f"fails a requirement not shown on these axes:{off_names}"),
         (ok & unb, STYLE["pass"], "^", "meets all; gain margin unbounded (top edge)"),
         (~ok & unb, STYLE["fail"], "v", "misses one; gain margin unbounded (top edge)"),
     ):
