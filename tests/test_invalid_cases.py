@@ -261,3 +261,24 @@ conditions:
     assert case.names == ("low", "high")
     assert case.conditions[1].altitude_input == 6000.0
     assert case.conditions[1].airspeed == 120.0
+
+
+def test_design_refuses_an_envelope_case_without_a_schedule_before_any_output(tmp_path, monkeypatch, capsys):
+    """An envelope case with no schedule: is valid for assess, but gives design nothing to do:
+    one line, exit 2, and no run directory (common practice: refuse rather than write an
+    empty design)."""
+    import re
+
+    text = (ROOT / "cases" / "regional_twinjet_envelope.yaml").read_text(encoding="utf-8")
+    section = re.search(r"^schedule:\n(?:[ #].*\n|\n)*", text, re.M)
+    assert section is not None
+    case = tmp_path / "no_schedule.yaml"
+    case.write_text(text[: section.start()] + text[section.end():], encoding="utf-8")
+    monkeypatch.chdir(tmp_path)
+    assert main(["assess", str(case), "--gain", "0.3", "--json"]) in (0, 3)  # valid input elsewhere
+    capsys.readouterr()
+    code = main(["design", str(case), "--out", str(tmp_path / "run"), "--no-plots"])
+    err = capsys.readouterr().err.splitlines()
+    assert code == 2
+    assert len(err) == 1 and "nothing to design" in err[0] and "schedule:" in err[0]
+    assert not (tmp_path / "run").exists()

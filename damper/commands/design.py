@@ -78,6 +78,23 @@ def options(args):
                            robustness=not args.no_robustness, cluster=args.cluster)
 
 
+def _check_case(case) -> None:
+    """Refuse, before any output, a case that gives the design nothing to do.
+
+    An envelope case without a ``schedule:`` section is valid input for ``assess``, ``sweep``
+    and ``robust --gain`` (they are given their gains), but it names no condition to design at
+    and no breakpoints to design a schedule on.
+    """
+    from ..errors import DamperError
+
+    if not case.conditions and case.schedule is None:
+        raise DamperError(
+            f"{case.file}: nothing to design: the case has an envelope: but no conditions: and no "
+            "schedule: section; add a schedule: section (its breakpoints are where the gains are "
+            "designed, docs/case-file.md), or use damper assess / sweep at gains you give"
+        )
+
+
 def run(args, argv) -> int:
     _check_args(args)
     from ..output.style import use_option
@@ -94,6 +111,7 @@ def run(args, argv) -> int:
     from ..stages.design_run import DesignRunWriter
 
     case = load_case(args.case)
+    _check_case(case)
     from ..analysis.runners import check_cluster
 
     check_cluster(args.cluster)  # an unreachable cluster is an error before any output
