@@ -9,7 +9,9 @@ has not started and draws them itself, so neither side idles at the end.
 
 Every job writes its files atomically and returns their paths; files are the same
 whoever draws them. The worker is started with the ``spawn`` method (safe beside the
-analysis's threads). If the worker cannot start or dies, the jobs are drawn in this
+analysis's threads) as soon as the queue is made, and warms up at once (imports matplotlib
+and the figure modules, draws one small figure in the run's formats), so that its start-up
+runs beside the analysis instead of delaying the first figure. If the worker cannot start or dies, the jobs are drawn in this
 process instead. ``DAMPER_PLOT_WORKERS=0`` in the environment (or ``workers=0``)
 draws everything in this process, in order.
 
@@ -44,6 +46,34 @@ def _worker_start(parent_pid, run, formats=None):
         from .journal import activate
 
         activate(*run)
+
+
+def _warm_up() -> list:
+    """Pay the plot worker's one-off costs before the first job: imports (matplotlib, its SVG and
+    Agg backends, the figure modules) and the font and text caches of one small figure drawn in
+    this process's formats under the house settings. Writes nothing; returns no paths."""
+    import io
+
+    import matplotlib
+
+    import importlib
+
+    from . import style
+
+    for name in ("design", "responses"):  # imported here, off the critical path
+        importlib.import_module(f"{__package__}.figures.{name}")
+
+    with matplotlib.rc_context(style._RC):
+        fig = style.new_figure(2.0, 1.5)
+        ax = fig.add_subplot()
+        ax.plot([1.0, 10.0], [0.0, 1.0], label="0.5")
+        style._log_x(ax)
+        ax.set_xlabel("gain K (s)")
+        ax.legend()
+        fig.suptitle("warm-up")
+        for fmt in style.formats():
+            fig.savefig(io.BytesIO(), format=fmt, dpi=style.DPI)
+    return []
 
 
 def run_jobs(jobs) -> list:
@@ -94,7 +124,9 @@ class PlotJobs:
                     max_workers=n, mp_context=multiprocessing.get_context("spawn"), initializer=_worker_start,
                     initargs=(os.getpid(), None if run is None else run[:2], formats()),
                 )
-            except (OSError, ImportError, NotImplementedError, ValueError):
+                # the pool starts its process at the first submission: start it now, warming up
+                self._pool.submit(_warm_up)
+            except (OSError, ImportError, NotImplementedError, ValueError, RuntimeError):
                 self._pool = None
         self._jobs = []  # [fn, args, future or None, paths or None]
 
