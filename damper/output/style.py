@@ -113,7 +113,9 @@ HISTORY_COLOURS = {
 #: One colour per condition of a failure figure (least slack first).
 CONDITION_COLOURS = ("#8c2d19", "#1d5c8f", "#5d7a1f", "#6b4a8a")
 #: rc settings of the time-history figures: no top and right spines.
-HISTORY_RC = {"axes.titley": 1.0, "font.size": 8.5, "axes.spines.top": False, "axes.spines.right": False, "svg.hashsalt": "damper"}
+#: Text stays text in the SVG (as in the house settings): no glyph outlines to compute and write.
+HISTORY_RC = {"axes.titley": 1.0, "font.size": 8.5, "axes.spines.top": False, "axes.spines.right": False,
+              "svg.hashsalt": "damper", "svg.fonttype": "none"}
 
 
 # ---------------------------------------------------------------------------------
@@ -163,6 +165,42 @@ def _short_log_labels(axis, lo, hi):
         axis.set_minor_formatter(fmt)
     else:
         axis.set_major_formatter(FuncFormatter(_plain_log_label))
+
+
+def align_ylabels_once(axes) -> None:
+    """Put the y labels of `axes` at one place left of the widest tick label among them.
+
+    What :meth:`matplotlib.figure.Figure.align_ylabels` gives, computed once from the tick
+    labels' text widths (the font metrics the SVG backend uses; no drawing) instead of laying
+    out every panel's tick labels again at each panel's draw. Call it after the limits and
+    tick locators are final; the axes must have equal widths (stacked panels).
+    """
+    from matplotlib import cbook, rcParams
+    from matplotlib.font_manager import FontProperties
+    from matplotlib.textpath import TextToPath
+
+    text_to_path, prop = TextToPath(), FontProperties(size=rcParams["ytick.labelsize"])
+    widest = 0.0
+    for ax in axes:
+        lo, hi = sorted(ax.get_ylim())
+        tol = 1e-9 * (hi - lo)
+        locs = [v for v in ax.yaxis.get_majorticklocs() if lo - tol <= v <= hi + tol]
+        for text in ax.yaxis.get_major_formatter().format_ticks(locs):
+            ismath = cbook.is_math_text(text)
+            widest = max(widest, text_to_path.get_text_width_height_descent(text, prop, ismath=ismath)[0])
+    size, pad = rcParams["ytick.major.size"], rcParams["ytick.major.pad"]
+    reach = {"out": size, "inout": 0.5 * size}.get(rcParams["ytick.direction"], 0.0) + pad  # points
+    for ax in axes:
+        width_in = ax.get_position().width * ax.get_figure().get_figwidth()
+        ax.yaxis.set_label_coords(-(reach + widest + ax.yaxis.labelpad) / 72.0 / width_in, 0.5)
+
+
+def _skip_empty_label_layout(fig) -> None:
+    """Axes whose axis label is empty skip its placement (a layout of every tick label per draw)."""
+    for ax in fig.axes:
+        for axis in (ax.xaxis, ax.yaxis):
+            if getattr(axis, "_autolabelpos", False) and not axis.label.get_text():
+                axis.set_label_coords(0.5, 0.5)
 
 
 def _criteria(case, name):
@@ -274,6 +312,7 @@ def new_figure(width, height):
 
 def save_figure(fig, stem, dpi=DPI):
     """Render `fig` in each of :func:`formats` into memory, then write ``stem.png`` / ``stem.svg`` atomically."""
+    _skip_empty_label_layout(fig)
     paths = []
     for fmt in formats():
         buf = io.BytesIO()
