@@ -145,14 +145,21 @@ def _plain_log_label(v, _pos=None):
 
 def _log_x(ax):
     """Log frequency/gain axis with a light minor grid at 2 and 5 (fewer ticks: faster)."""
-    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+    from matplotlib.ticker import FuncFormatter, NullFormatter
 
     ax.set_xscale("log")
     ax.xaxis.set_major_formatter(FuncFormatter(_plain_log_label))
-    ax.xaxis.set_minor_locator(LogLocator(base=10.0, subs=(2.0, 5.0)))
+    _log_minor_2_5(ax.xaxis)
     ax.xaxis.set_minor_formatter(NullFormatter())
     ax.grid(True, which="major")
     ax.grid(True, which="minor", alpha=0.35)
+
+
+def _log_minor_2_5(axis):
+    """Minor ticks of a log axis at 2 and 5 of every decade only (as :func:`_log_x`)."""
+    from matplotlib.ticker import LogLocator
+
+    axis.set_minor_locator(LogLocator(base=10.0, subs=(2.0, 5.0)))
 
 
 def _short_log_labels(axis, lo, hi):
