@@ -73,14 +73,40 @@ def _warm_up() -> list:
         fig.suptitle("warm-up")
         for fmt in style.formats():
             fig.savefig(io.BytesIO(), format=fmt, dpi=style.DPI)
+    del fig, ax
+    import gc
+
+    gc.collect()
+    gc.freeze()  # what lives now (modules, caches) lives to the end: no collection traverses it again
     return []
 
 
+def drawn(fn, *args) -> list:
+    """Run the plot job ``fn(*args)`` with the garbage collector paused and collect its garbage
+    once after it; the written paths.
+
+    A matplotlib figure is a web of reference cycles (tens of thousands of objects): with the
+    collector running, the young ones are traversed again at every collection while the
+    figure is made, and every live object of the process at each full collection. Collected
+    once, after the figure, only its own objects are traversed (the figures' CPU about 0.8x).
+    """
+    import gc
+
+    if not gc.isenabled():  # paused by a caller: it collects
+        return list(fn(*args))
+    gc.disable()
+    try:
+        return list(fn(*args))
+    finally:
+        gc.enable()
+        gc.collect(0)  # everything made while paused is in the youngest generation
+
+
 def run_jobs(jobs) -> list:
-    """Run jobs ``(fn, args)`` in order; every written path, in order."""
+    """Run jobs ``(fn, args)`` in order, each as :func:`drawn`; every written path, in order."""
     paths = []
     for fn, args in jobs:
-        paths += list(fn(*args))
+        paths += drawn(fn, *args)
     return paths
 
 
@@ -142,6 +168,8 @@ class PlotJobs:
         """
         from .journal import active, in_part
 
+        if fn is not run_jobs:  # a group's jobs are each drawn so
+            fn, args = drawn, (fn, *args)
         run = active()
         if run is not None:
             fn, args = in_part, (run[2], fn, *args)
