@@ -240,7 +240,9 @@ class PlotJobs:
                 job[3] = list(fn(*args))  # the worker died: draw it here
             job[2] = None
             tick()
-        self._shutdown()
+        # every job is done: the worker exits on its own while this process goes on (its
+        # interpreter's teardown is no part of the run; the pool's thread joins it at exit)
+        self._shutdown(wait=False)
         if stage is not None:
             stage.finish()
         out = []
@@ -248,9 +250,9 @@ class PlotJobs:
             out += job[3]
         return out
 
-    def _shutdown(self):
+    def _shutdown(self, wait=True):
         if self._pool is not None:
-            self._pool.shutdown(wait=True, cancel_futures=True)
+            self._pool.shutdown(wait=wait, cancel_futures=True)
             self._pool = None
 
     def close(self) -> None:
