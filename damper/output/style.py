@@ -115,7 +115,8 @@ CONDITION_COLOURS = ("#8c2d19", "#1d5c8f", "#5d7a1f", "#6b4a8a")
 #: rc settings of the time-history figures: no top and right spines.
 #: Text stays text in the SVG (as in the house settings): no glyph outlines to compute and write.
 HISTORY_RC = {"axes.titley": 1.0, "font.size": 8.5, "axes.spines.top": False, "axes.spines.right": False,
-              "svg.hashsalt": "damper", "svg.fonttype": "none"}
+              "svg.hashsalt": "damper", "svg.fonttype": "none", "font.family": "sans-serif",
+              "font.sans-serif": ["DejaVu Sans"]}
 
 
 # ---------------------------------------------------------------------------------
