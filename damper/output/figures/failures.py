@@ -71,7 +71,7 @@ def plot_hardovers(stem, curves, bands, title, subtitle=""):
     """
     import matplotlib
 
-    from ..style import new_figure, save_figure
+    from ..style import align_ylabels_once, new_figure, save_figure
 
     with matplotlib.rc_context(HISTORY_RC):
         fig = new_figure(7.5, 9.0)
@@ -93,7 +93,7 @@ def plot_hardovers(stem, curves, bands, title, subtitle=""):
         axes[-1].set_xlabel("time after the failure, s")
         t = curves[0][2].time
         axes[-1].set_xlim(t[0], t[-1])
-        fig.align_ylabels(axes)
+        align_ylabels_once(axes)  # the limits are final here
         fig.suptitle(title, fontsize=10, x=0.02, y=0.985, ha="left")
         if subtitle:
             fig.text(0.02, 0.952, subtitle, fontsize=7.5, ha="left", color=HISTORY_COLOURS["subtitle"])

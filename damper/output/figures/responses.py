@@ -87,7 +87,7 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
     """
     import matplotlib
 
-    from ..style import new_figure, save_figure
+    from ..style import align_ylabels_once, new_figure, save_figure
 
     t = bare.time[::stride]
     note, exceeded = linear_range_note(bare, augmented)
@@ -101,12 +101,12 @@ def plot_response(stem, bare, augmented, *, title, subtitle="", rate_limit=None,
         _response_curves(axes, t, bare, augmented, stride, rate_limit, travel)
         axes[-1].set_xlabel("time, s")
         axes[-1].set_xlim(t[0], t[-1])
-        fig.align_ylabels(axes)
         fig.suptitle(title, fontsize=10, x=0.02, y=0.985, ha="left")
         if subtitle:
             fig.text(0.02, 0.955, subtitle, fontsize=8, ha="left", color=HISTORY_COLOURS["subtitle"])
         if note:
             _linear_range_marks(fig, axes, note, exceeded)
+        align_ylabels_once(axes)  # after the last artist: the limits are final
         written = save_figure(fig, stem)
     return written
 

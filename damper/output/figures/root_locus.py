@@ -16,6 +16,7 @@ from ..style import (
     _delay_text,
     _figure,
     _fmt_band,
+    _log_minor_2_5,
     _render,
     _short_log_labels,
 )
@@ -111,6 +112,7 @@ def _draw_root_locus(case, design, i, open_loop):
     _annotate_chosen(ax_d, design, i, chosen_sp)
     cb = fig.colorbar(sc, cax=cax)
     cb.set_label("gain K (s)")
+    _log_minor_2_5(cax.yaxis)  # minor marks at 2 and 5 of each decade, as the other log axes
     _short_log_labels(cax.yaxis, float(gains.min()), float(gains.max()))
     _colour_bar_marks(cax, cond, float(gains.min()), float(gains.max()))
     fig.legend(handles=_locus_legend(cond, dz, rays), loc="lower center", ncol=3, frameon=False,
