@@ -94,7 +94,7 @@ def shared_run(tmp_path_factory):
     Never write into the returned ``SharedRun.path``: copy it (``run.copy_to(tmp_path / "x")``).
     At the end of the session every run handed out must be unchanged.
     """
-    from .shared_runs import NO_PLOTS, shared_design, snapshot
+    from .shared_runs import NO_PLOTS, case_stem, shared_design, snapshot
 
     base = tmp_path_factory.getbasetemp()
     if os.environ.get("PYTEST_XDIST_WORKER"):
@@ -102,7 +102,7 @@ def shared_run(tmp_path_factory):
     runs, handed = {}, {}
 
     def get(case_name, options=NO_PLOTS):
-        key = (case_name, tuple(options))
+        key = (case_stem(case_name), tuple(options))  # "x" and "x.yaml": one run
         if key not in runs:  # one SharedRun per run and process: its parsed documents are kept
             runs[key] = shared_design(base / "shared-runs", case_name, options)
             handed.setdefault(runs[key].path, snapshot(runs[key].path))

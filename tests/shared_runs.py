@@ -120,9 +120,15 @@ class SharedRun:
         return Path(dest)
 
 
+def case_stem(case_name: str) -> str:
+    """The demo's name without ``.yaml``: ``"x"`` and ``"x.yaml"`` name the same shared run."""
+    return case_path(case_name).stem
+
+
 def _key(case_name: str, options) -> str:
-    digest = hashlib.sha256("\0".join([case_name, *options]).encode()).hexdigest()[:10]
-    return f"{Path(case_name).stem}-{digest}"
+    stem = case_stem(case_name)  # one key whether the caller wrote the name with .yaml or not
+    digest = hashlib.sha256("\0".join([stem, *options]).encode()).hexdigest()[:10]
+    return f"{stem}-{digest}"
 
 
 def shared_design(base: Path, case_name: str, options=NO_PLOTS) -> SharedRun:
@@ -141,7 +147,7 @@ def shared_design(base: Path, case_name: str, options=NO_PLOTS) -> SharedRun:
         if not done.exists():
             shutil.rmtree(where, ignore_errors=True)
             where.mkdir()
-            argv = design_argv(case_name, options)
+            argv = design_argv(case_stem(case_name), options)
             code, out, err = run_main(argv, cwd=where)
             record = {"code": code, "stdout": out, "stderr": err, "argv": argv}
             tmp = where / "done.json.tmp"

@@ -21,7 +21,13 @@ from damper.cli import main
 
 from .conftest import ROOT
 
-distributed = pytest.importorskip("distributed")
+
+
+@pytest.fixture(scope="module", autouse=True)
+def _needs_distributed():
+    """Skip without dask.distributed (imported here, not at collection: it takes about a second
+    to import, which every pytest worker would pay even when it runs none of these tests)."""
+    pytest.importorskip("distributed")
 
 UNCERTAIN = os.path.join(ROOT, "cases", "utility_single_uncertain.yaml")
 
@@ -71,6 +77,8 @@ def small(tmp_path_factory):
 @pytest.fixture(scope="module", params=[1, 3], ids=["1-worker", "3-workers"])
 def cluster(request):
     """An in-process Dask cluster with 1 or 3 single-thread workers."""
+    import distributed
+
     with distributed.LocalCluster(n_workers=request.param, threads_per_worker=1, processes=False,
                                   dashboard_address=None) as lc:
         yield lc
@@ -114,6 +122,8 @@ def test_two_local_processes_give_the_one_process_result(small):
 def test_many_small_blocks_spread_over_the_dask_workers_give_the_inline_result(small, cluster):
     # blocks of 16 loops: the samples, corners and worst-case search cut into many tasks, so
     # several workers really share them and results arrive out of order
+    import distributed
+
     from damper.analysis.robustness import robustness, uncertainty_spec
     from damper.case import load_case
     from damper.output.documents.jsonout import dumps

@@ -36,7 +36,7 @@ def _design(case, out, *extra):
 
 
 @pytest.fixture(scope="module")
-def runs(tmp_path_factory):
+def runs(tmp_path_factory, shared_run):
     d = tmp_path_factory.mktemp("cmp")
     text = open(BASE, encoding="utf-8").read()
     # B: Cm_q of one condition from -8.5 to -5.5 (less natural pitch damping); nothing else changed
@@ -47,8 +47,12 @@ def runs(tmp_path_factory):
     c = text.replace("name: approach-aft", "name: approach-aft-flaps30").replace(
         "  other_mode_damping: {min: 0.30}", "  other_mode_damping: {min: 0.30}\n  gain_margin: {min: 45}")
     (d / "c.yaml").write_text(c, encoding="utf-8")
-    return {"a": _design(BASE, d / "a"), "b": _design(d / "b.yaml", d / "b"), "c": _design(d / "c.yaml", d / "c"),
-            "dir": d}
+    # A: the demo's shared run (tests/shared_runs.py, `design BASE --no-plots`; read only: compare
+    # writes into its own --out): its design.json is the one `_design` would write (the command
+    # line aside; tests/test_run_hashes.py), beside responses and a report that compare does not read
+    a = shared_run("utility_single_aft_cg")
+    assert a.code in (0, 3), a.stderr
+    return {"a": a.path, "b": _design(d / "b.yaml", d / "b"), "c": _design(d / "c.yaml", d / "c"), "dir": d}
 
 
 def _compare(a, b, out, *extra):
@@ -129,8 +133,10 @@ def test_renamed_condition_and_unmet_requirement_are_listed_and_exit_3(runs, tmp
     assert "NOT MET" in text and "only in A (1): approach-aft" in text
 
 
-def test_schedules_compared_on_the_union_of_both_grids(tmp_path):
-    a = _design(UAV, tmp_path / "a")
+def test_schedules_compared_on_the_union_of_both_grids(tmp_path, shared_run):
+    shared = shared_run("survey_uav_altitude")  # design UAV --no-plots (tests/shared_runs.py), read only
+    assert shared.code in (0, 3), shared.stderr
+    a = shared.path
     text = open(UAV, encoding="utf-8").read().replace("  breakpoints: 4\n", "  breakpoints: 3\n")
     (tmp_path / "b.yaml").write_text(text, encoding="utf-8")
     b = _design(tmp_path / "b.yaml", tmp_path / "b")

@@ -35,7 +35,13 @@ def test_batches_cover_every_condition_once():
     assert condition_batches(16, 16) == [(0, 16)]
 
 
-def test_outputs_do_not_depend_on_the_batch_size(tmp_path, monkeypatch, capsys):
+def test_outputs_do_not_depend_on_the_batch_size(tmp_path, monkeypatch, capsys, shared_run):
+    # One batch: the demo's shared run (tests/shared_runs.py, `design DEMO --no-plots`), built with
+    # the default batch size, which holds the demo's 7 conditions in one batch [derived]; its
+    # report is the only thing the --no-report run below leaves out (tests/test_run_hashes.py).
+    whole_run = shared_run("utility_single_aft_cg")
+    assert whole_run.code == 0, whole_run.stderr
+    assert condition_batches(7) == [(0, 7)]
     seen = []
     real = batches.condition_batches
 
@@ -48,11 +54,7 @@ def test_outputs_do_not_depend_on_the_batch_size(tmp_path, monkeypatch, capsys):
     monkeypatch.setattr(batches, "BATCH_CONDITIONS", 3)  # 7 conditions: batches of 3, 3 and 1
     assert main(["design", DEMO, "--out", str(tmp_path / "small"), "--no-plots", "--no-report"]) == 0
     assert 3 in seen, seen
-    seen.clear()
-    monkeypatch.setattr(batches, "BATCH_CONDITIONS", 1000)  # one batch
-    assert main(["design", DEMO, "--out", str(tmp_path / "whole"), "--no-plots", "--no-report"]) == 0
-    assert seen and set(seen) == {1}, seen
-    small, whole = _outputs(tmp_path / "small"), _outputs(tmp_path / "whole")
+    small, whole = _outputs(tmp_path / "small"), _outputs(whole_run.path)
     assert len(small) == 9 and small.keys() == whole.keys()  # design.json, responses.json, 7 CSV files
     for name in small:
         assert small[name] == whole[name], name

@@ -28,20 +28,22 @@ def run(*argv):
 
 
 @pytest.fixture(scope="module")
-def design_run(tmp_path_factory):
-    out = tmp_path_factory.mktemp("gs") / "design"
-    code, _, err = run("design", PER_CONDITION, "--out", out, "--no-plots", "--no-report", "--no-robustness")
-    assert code in (0, 3), err
-    return out
+def design_run(shared_run):
+    """The per-condition demo's shared run (tests/shared_runs.py, `design --no-plots`): the
+    design.json and responses these tests read are those of `design --no-plots --no-report
+    --no-robustness` (tests/test_run_hashes.py); read only (a test that changes it copies it)."""
+    run = shared_run("utility_single_aft_cg")
+    assert run.code in (0, 3), run.stderr
+    return run.path
 
 
 @pytest.fixture(scope="module")
-def schedule_run(tmp_path_factory):
-    out = tmp_path_factory.mktemp("gs") / "schedule"
-    code, _, err = run("design", SCHEDULED, "--out", out, "--no-plots", "--no-report", "--no-robustness",
-                       "--no-responses")
-    assert code in (0, 3), err
-    return out
+def schedule_run(shared_run):
+    """The scheduled demo's shared run (`design --no-plots`): its schedule and gain table are
+    those of `design --no-plots --no-report --no-robustness --no-responses`; read only."""
+    run = shared_run("survey_uav_altitude")
+    assert run.code in (0, 3), run.stderr
+    return run.path
 
 
 def _subset(small, big, path="") -> list:

@@ -356,11 +356,13 @@ def test_perturbed_and_interpolated_airframes_stay_longitudinal(tmp_path):
     assert isinstance(pts.derivatives, LongitudinalDerivatives)
 
 
-def test_demo_case_designs_cleanly(tmp_path):
-    code, out, err = run("design", "cases/survey_uav_loiter_longitudinal.yaml", "--out", str(tmp_path / "run"),
-                         "--no-plots", "--no-responses", "--no-report", "--no-robustness")
+def test_demo_case_designs_cleanly(shared_run):
+    # the demo's shared run (tests/shared_runs.py, `design --no-plots`): its design.json is that of
+    # `design --no-plots --no-responses --no-report --no-robustness` (tests/test_run_hashes.py)
+    shared = shared_run("survey_uav_loiter_longitudinal")
+    code, out, err = shared.code, shared.stdout, shared.stderr
     assert code == 0, out + err
-    doc = json.loads((tmp_path / "run" / "design.json").read_text())
+    doc = shared.json("design.json")
     for c in doc["conditions"]:
         assert c["feasible"]
         m = c["measures"]

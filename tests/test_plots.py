@@ -19,6 +19,8 @@ from damper.output.figures import design as plots
 from damper.output.figures import loop_response as loop_plot
 from damper.output.figures import root_locus as locus_plot
 
+from .shared_runs import REPORT_OPTIONS
+
 
 @pytest.fixture(scope="module", autouse=True)
 def _both_formats(both_formats):
@@ -37,15 +39,21 @@ def demo():
 
 
 @pytest.fixture(scope="module")
-def written(demo, tmp_path_factory):
-    case, design = demo
-    out = tmp_path_factory.mktemp("run")
-    return out, plots.design_plots(case, design, design_figure_inputs(case, design), out)
+def written(shared_run):
+    """The design figures of the demo's shared report run (tests/shared_runs.py, REPORT_OPTIONS:
+    ``--figures svg,png``), drawn by ``design`` through ``design_plots``: these tests used to draw
+    the same 42 figures again; the run's own response figures are left out. Read only."""
+    run = shared_run("utility_single_aft_cg", REPORT_OPTIONS)
+    assert run.code == 0, run.stderr
+    names = sorted(os.listdir(run.path / "plots"))
+    paths = [os.path.join(str(run.path), "plots", n) for n in names
+             if os.path.splitext(n)[0].endswith(tuple("-" + k for k in KINDS))]
+    return run.path, paths, names
 
 
 def test_every_condition_gets_three_plots_in_two_formats(demo, written):
     case, design = demo
-    out, paths = written
+    out, paths, names = written
     expected = {
         os.path.join(str(out), "plots", f"{style.safe_name(c.name)}-{kind}.{ext}")
         for c in design.conditions
@@ -53,17 +61,21 @@ def test_every_condition_gets_three_plots_in_two_formats(demo, written):
         for ext in ("png", "svg")
     }
     assert set(paths) == expected  # [derived] 3 plots x 2 formats per condition
+    # design_plots draws design_plot_jobs: one job per condition and kind, writing these files
+    jobs = plots.design_plot_jobs(case, design, design_figure_inputs(case, design), out)
+    assert len(jobs) == 3 * len(case.conditions)
+    assert {args[-1] + ext for _, args in jobs for ext in (".png", ".svg")} == expected
     assert len(paths) == 6 * len(case.conditions)
     for p in paths:
         assert os.path.getsize(p) > 5000, p  # [derived] an empty figure is already several kB
-    leftovers = [f for f in os.listdir(os.path.join(str(out), "plots")) if f.startswith(".tmp-")]
+    leftovers = [f for f in names if f.startswith(".tmp-")]
     assert leftovers == []  # atomic writes leave no temporary file behind
 
 
 def test_png_files_are_images_of_sensible_size(written):
     import matplotlib.image as mpimg
 
-    _, paths = written
+    _, paths, _ = written
     for p in paths:
         if not p.endswith(".png"):
             continue
@@ -76,7 +88,7 @@ def test_png_files_are_images_of_sensible_size(written):
 
 
 def test_svg_files_parse_as_xml(written):
-    _, paths = written
+    _, paths, _ = written
     for p in paths:
         if p.endswith(".svg"):
             root = ET.parse(p).getroot()

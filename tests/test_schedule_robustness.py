@@ -3,6 +3,7 @@
 Test data are invented (the regional twin-jet demo case with a small uncertainty section).
 """
 
+import functools
 import json
 import os
 
@@ -143,6 +144,16 @@ def test_robust_reads_a_schedule_file_and_studies_its_tightest_points(tmp_path, 
     assert a["joint"] == b["joint"]
 
 
+@functools.lru_cache(maxsize=None)
+def _twinjet_table():
+    """gain-schedule.json of the twinjet's schedule as text: designed once for every
+    parametrisation below (each changes its own parsed copy)."""
+    from damper.output.documents.schedule import table_dict
+
+    case = _twinjet("")
+    return json.dumps(table_dict(design_schedule(case).schedule, case))
+
+
 @pytest.mark.parametrize(
     "change, words",
     [
@@ -155,10 +166,9 @@ def test_robust_reads_a_schedule_file_and_studies_its_tightest_points(tmp_path, 
 )
 def test_schedule_file_errors_name_the_field(tmp_path, change, words):
     from damper.errors import DamperError
-    from damper.output.documents.schedule import schedule_from_table, table_dict
+    from damper.output.documents.schedule import schedule_from_table
 
-    case = _twinjet("")
-    doc = json.loads(json.dumps(table_dict(design_schedule(case).schedule, case)))
+    doc = json.loads(_twinjet_table())
     assert schedule_from_table(doc).gain_at([np.array([4000.0]), np.array([0.5])]).shape == (1,)
     change(doc)
     with pytest.raises(DamperError, match=None) as err:

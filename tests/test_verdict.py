@@ -236,6 +236,12 @@ def test_failing_schedule_exits_3(tmp_path):
     # a damping band (invented) too narrow for one gain per dynamic pressure over the envelope
     text = re.sub(r"damping_ratio: \{min: 0.50, max: 1.30\}.*", "damping_ratio: {min: 0.80, max: 0.84}",
                   _demo("survey_uav_altitude.yaml"))
+    # No refinement rounds (max_breakpoints = breakpoints): the band fails between altitudes at
+    # one dynamic pressure, which more breakpoints in dynamic pressure cannot mend, and what is
+    # checked (exit 3, one verdict item per failing point) does not depend on how many rounds
+    # ran; refinement itself: tests/test_schedule.py.
+    assert text.count("max_breakpoints: 10") == 1
+    text = text.replace("max_breakpoints: 10", "max_breakpoints: 4")
     path = tmp_path / "c.yaml"
     path.write_text(text, encoding="utf-8")
     code, out, _ = run("design", path, "--out", tmp_path / "r", "--no-plots", "--no-responses", "--no-robustness",
