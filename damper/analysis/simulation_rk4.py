@@ -24,7 +24,13 @@ from __future__ import annotations
 
 import numpy as np
 
+from . import simulation_linear as linear
 from . import simulation_parts as sp
+
+#: Advance blocks of steps in which no limit acts by one matrix product
+#: (:mod:`damper.analysis.simulation_linear`): faster, but the results differ from the
+#: step-by-step loop in the last bits, so off (docs/performance.md).
+LINEAR_BLOCKS = False
 
 #: Bytes of the per-chunk gust term ``E alpha_g`` (chunk shortened to stay below).
 CHUNK_BYTES = 32_000_000
@@ -294,6 +300,7 @@ class _Run:
         if lay.u is not None:
             cols["speed"] = na + lay.u
         self.state_records = [(key, self.X.X[:, col]) for key, col in cols.items()]
+        self.state_cols = list(cols.items())
 
 
 def _run_block(run: _Run, rec, inp: _Inputs, b0, b1, n_int, sub):
@@ -359,6 +366,13 @@ def integrate(model: sp.Model, signals, n_int, sub, h, n_out, with_damper=False)
         rec["z"] = np.zeros((n_out, n_b))
     run = _Run(model, h)
     block = _block_length(model)
+    blocks = None
+    if LINEAR_BLOCKS and (with_damper or (model.line is not None and model.line.all_delayed)):
+        steps = linear.steps_for(model, block)
+        if steps:
+            block = steps
+            blocks = linear.Blocks(model, h, block)
+    rested = False  # a block in which a limit acted is followed by one stepped without trying
     taps = None if model.line is None else _Taps(model.line, block)
     eps = 1e-6 * h  # left limit at the end of a step (>> EDGE_TOL)
     for c0 in range(0, n_int + 1, sp.CHUNK):
@@ -368,6 +382,12 @@ def integrate(model: sp.Model, signals, n_int, sub, h, n_out, with_damper=False)
             b1 = min(b0 + block, c0 + len(tk))
             inp = _Inputs(model, taps, sig, c0, b0, b1)
             _record_inputs(rec, inp, b0, b1, sub, with_damper)
+            if blocks is not None and b1 <= n_int and not rested:
+                if linear.advance(blocks, run.X.X, run.state_cols, rec, inp, b0, b1, sub):
+                    continue
+                rested = True
+            else:
+                rested = False
             if not _run_block(run, rec, inp, b0, b1, n_int, sub):
                 break
     return rec
