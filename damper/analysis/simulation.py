@@ -40,6 +40,9 @@ Method
   derivative are kept in a history buffer and read back at ``t - T`` by cubic Hermite
   interpolation (error of order step^4). When the delay is shorter than the step, the
   step is divided so that it is not.
+* The loop over time steps is :func:`damper.analysis.simulation_rk4.integrate` (the
+  arithmetic of :func:`damper.analysis.simulation_parts.integrate`, bit for bit, with
+  fewer numpy calls per step); with a damper authority the latter runs.
 
 The gust is an angle-of-attack disturbance ``alpha_g = w_g / V`` (w_g positive upward):
 the airframe sees ``x' = A x + B delta + A[:, alpha] alpha_g`` (the ``M_alpha_dot
