@@ -108,13 +108,17 @@ def _lag_stage(model: sp.Model):
     mul, sub, mn, mx, ab, ge = np.multiply, np.subtract, np.minimum, np.maximum, np.absolute, np.greater_equal
     no_flags = np.zeros(n_b, bool)
 
+    one_travel = float(trav[0]) if has_trav and bool((trav == trav[0]).all()) else None
+    biggest = np.maximum.reduce
+
     def stage(src, dst, u, eg, full):
         x0 = dlt = src.x0
         dcol, hit = src.col0, False
         if has_trav:  # |x0| >= travel iff the clipped surface is at the stop
             ab(x0, out=absb)
-            ge(absb, trav, out=atb)
-            hit = atb.any()
+            if one_travel is None or full:
+                ge(absb, trav, out=atb)
+            hit = atb.any() if one_travel is None else biggest(absb) >= one_travel  # (NaN: neither)
             if hit:
                 dlt = mn(mx(x0, lo), trav)
                 dcol = dlt[:, None]
