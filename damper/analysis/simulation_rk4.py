@@ -141,8 +141,67 @@ def _lag_stage(model: sp.Model):
     return stage
 
 
+def _any_at(limit):
+    """``f(absolute_values)``: whether any member is at or beyond `limit` (one reduction
+    when the limit is the same for every member; NaN counts as neither)."""
+    if bool((limit == limit[0]).all()):
+        one, biggest = float(limit[0]), np.maximum.reduce
+        return lambda a: biggest(a) >= one
+    return lambda a: bool((a >= limit).any())
+
+
+def _second_stage(model: sp.Model):
+    """The stage derivative of a second-order actuator (the signature of :func:`_lag_stage`):
+    the formulas of :func:`simulation_parts._actuator_rates`, a limit's branch taken only
+    when a member reaches that limit."""
+    sv, n_b = model.servo, model.n_b
+    w2, zw2, R, neg_R, trav, lo = sv.w2, sv.zw2, sv.R, -sv.R, sv.trav, -sv.trav
+    r_flag = sv.R * (1.0 - 1e-12)
+    has_rate, has_trav = sv.has_rate, sv.has_trav
+    rates = _linear_rates(model)
+    t1, t2, absx, absv = np.empty(n_b), np.empty(n_b), np.empty(n_b), np.empty(n_b)
+    mul, sub, mn, mx, ab, where = np.multiply, np.subtract, np.minimum, np.maximum, np.absolute, np.where
+    at_trav = _any_at(trav) if has_trav else None
+    at_rate = _any_at(R) if has_rate else None
+
+    def stage(src, dst, u, eg, full):
+        x0 = dlt = src.x0
+        vel = src.k1
+        dcol, hit = src.col0, False
+        if has_trav:
+            ab(x0, out=absx)
+            hit = at_trav(absx)
+            if hit:
+                dlt = mn(mx(x0, lo), trav)
+                dcol = dlt[:, None]
+        rate, acc = dst.x0, dst.k1
+        ab(vel, out=absv)
+        if has_rate:
+            mx(vel, neg_R, out=rate)
+            mn(rate, R, out=rate)
+        else:
+            rate[...] = vel
+        flags = None
+        if full:
+            flags = (absv >= r_flag, absx >= trav if has_trav else np.zeros(n_b, bool))
+        if hit:
+            rate[...] = where(((dlt >= trav) & (rate > 0)) | ((dlt <= lo) & (rate < 0)), 0.0, rate)
+        sub(u, dlt, out=t1)
+        mul(w2, t1, out=t1)
+        mul(zw2, rate, out=t2)
+        sub(t1, t2, out=acc)
+        if has_rate and at_rate(absv):
+            acc[...] = where((absv >= R) & (acc * vel > 0), 0.0, acc)
+        if hit:
+            acc[...] = where(((dlt >= trav) & (acc > 0)) | ((dlt <= lo) & (acc < 0)), 0.0, acc)
+        rates(src, dcol, eg, dst.xp)
+        return dlt, rate, flags
+
+    return stage
+
+
 def _other_stage(model: sp.Model):
-    """The stage derivative of an ideal or second-order actuator (the same signature as
+    """The stage derivative of an ideal actuator (the same signature as
     :func:`_lag_stage`), with :func:`simulation_parts._actuator_rates`."""
     sv = model.servo
     rates = _linear_rates(model)
@@ -296,7 +355,7 @@ class _Run:
         self.XS = _Views(np.empty((n_b, nx)), na)
         self.K = [_Views(np.empty((n_b, nx)), na) for _ in range(4)]
         self.T = np.empty((n_b, nx))
-        self.stage = _lag_stage(model) if model.servo.kind == "lag" else _other_stage(model)
+        self.stage = {"lag": _lag_stage, "second": _second_stage}.get(model.servo.kind, _other_stage)(model)
         self.feed = _feeder(model)
         self.push = None if model.line is None else _pusher(model)
         lay = model.lin.layout
