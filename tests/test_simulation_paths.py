@@ -56,13 +56,18 @@ def hostile():
         ("ideal, travel, delay", Loop(d, Hardware(delay=Delay(np.asarray(0.03), 2)), K), DOUBLET,
          dict(duration=1.5, travel=1 * DEG)),
         ("gust", Loop(d, lag_delay, K), Input("gust_one_minus_cosine", gust_velocity=10.0, gust_length=60.0, start=0.1),
-         dict(duration=1.5, rate_limit=0.2)),
+         dict(duration=1.5, rate_limit=0.05)),
         ("four-state airframe", Loop(textbook_longitudinal(), lag_delay, np.array([0.0, 0.1, 0.3])), DOUBLET,
          dict(duration=2.0, rate_limit=0.2, travel=3 * DEG)),
+        ("limits per member", Loop(d, lag_delay, K), DOUBLET,
+         dict(duration=1.5, rate_limit=np.array([0.1, 0.3, np.inf]), travel=np.array([2.0, np.inf, 1.0]) * DEG)),
+        ("second order, limits per member", Loop(d, Hardware(actuator=SecondOrderLag(40.0, 0.6), delay=Delay(
+            np.asarray(0.02), 3)), K), DOUBLET,
+         dict(duration=1.5, rate_limit=np.array([0.1, np.inf, 0.2]), travel=np.array([np.inf, 2.0, 1.0]) * DEG)),
         ("failed damper", Loop(d, Hardware(actuator=Lag(0.05)), K), NO_INPUT,
-         dict(duration=1.0, rate_limit=0.3, travel=3 * DEG, failed_command=hardover)),
+         dict(duration=1.0, rate_limit=0.1, travel=1.5 * DEG, failed_command=hardover)),
         ("failed damper, delay", Loop(d, Hardware(actuator=SecondOrderLag(40.0, 0.6), delay=Delay(np.asarray(0.02), 3)),
-                                      K), NO_INPUT, dict(duration=1.0, rate_limit=0.3, failed_command=hardover)),
+                                      K), NO_INPUT, dict(duration=1.0, rate_limit=0.1, travel=1.5 * DEG, failed_command=hardover)),
     ]
 
 
