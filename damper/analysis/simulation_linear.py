@@ -155,9 +155,30 @@ def _valid(blocks: Blocks, Z, inp, count):
 
 
 def advance(blocks: Blocks, X, state_cols, rec, inp, b0, b1, sub) -> bool:
-    """Steps ``b0 .. b1-1`` as one product when no limit acts: updates the state `X` (N,
-    n_x) in place, the records (every `sub`-th step; those of the inputs are written by
-    the caller) and the delay line. Returns False (nothing changed) when a limit acts."""
+    """Steps ``b0 .. b1-1`` as one product when no limit acts.
+
+    Parameters
+    ----------
+    blocks : Blocks
+    X : ndarray, shape (N, n_x)
+        State at step b0 (actuator rad, rad/s; airframe, filters and theta in their units,
+        docs/theory.md); updated in place to the state at step b1.
+    state_cols : list of (str, int)
+        Record name and state column of the recorded states.
+    rec : dict of ndarray
+        Records, shape ``(n_out, N)``; every `sub`-th step's state, surface (rad) and rate
+        (rad/s) are written (the inputs' records by the caller).
+    inp : damper.analysis.simulation_rk4._Inputs
+        The block's inputs (rad).
+    b0, b1, sub : int
+        First step, one past the last, steps per record sample.
+
+    Returns
+    -------
+    bool
+        False, with nothing changed, when a limit acts in the block (or an input is not
+        finite); the caller then steps it.
+    """
     model, nx, row, count = blocks.model, blocks.nx, blocks.row, b1 - b0
     n_b, sv = model.n_b, model.servo
     if count > blocks.steps or inp.u is None or not np.isfinite(inp.u).all():

@@ -417,9 +417,33 @@ def _run_block(run: _Run, rec, inp: _Inputs, b0, b1, n_int, sub):
 
 
 def integrate(model: sp.Model, signals, n_int, sub, h, n_out, with_damper=False):
-    """RK4 over ``n_int`` steps of `h` (s), recording every `sub`-th step: the records of
-    :func:`damper.analysis.simulation_parts.integrate`, bit for bit (module notes);
-    `model` without an authority (:func:`supported`)."""
+    """RK4 over ``n_int`` steps, recording every `sub`-th step (module notes).
+
+    Parameters
+    ----------
+    model : Model
+        Without an authority (:func:`supported`); N members.
+    signals : callable
+        ``signals(t)`` for times t (s, shape (m,)): pilot command at the actuator input
+        (rad), gust angle (rad) and a failed damper's command (rad) or None, each of shape
+        ``(m, N)``.
+    n_int : int
+        Steps.
+    sub : int
+        Steps per record sample.
+    h : float
+        Step, s.
+    n_out : int
+        Record samples.
+    with_damper : bool
+        Record the damper command ``z`` (a failed damper).
+
+    Returns
+    -------
+    dict of ndarray
+        The records of :func:`damper.analysis.simulation_parts.integrate`, bit for bit
+        (with :data:`LINEAR_BLOCKS` to rounding), time-major, shape ``(n_out, N)``.
+    """
     n_b = model.n_b
     rec = {k: np.zeros((n_out, n_b)) for k in sp.RECORDS}
     rec.update({k: np.zeros((n_out, n_b), bool) for k in sp.FLAGS})
