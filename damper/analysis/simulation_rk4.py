@@ -97,6 +97,15 @@ def _linear_rates(model: sp.Model):
     return rates
 
 
+def _any_at(limit):
+    """``f(absolute_values)``: whether any member is at or beyond `limit` (one reduction
+    when the limit is the same for every member; NaN counts as neither)."""
+    if bool((limit == limit[0]).all()):
+        one, biggest = float(limit[0]), np.maximum.reduce
+        return lambda a: biggest(a) >= one
+    return lambda a: bool((a >= limit).any())
+
+
 def _lag_stage(model: sp.Model):
     """The stage derivative of a first-order actuator: ``f(src, dst, u, eg, full)`` writes
     the derivatives into `dst` and returns the surface (rad) and, when `full`, the flags."""
@@ -104,21 +113,16 @@ def _lag_stage(model: sp.Model):
     bw, R, neg_R, trav, lo = sv.bw, sv.R, -sv.R, sv.trav, -sv.trav
     has_rate, has_trav = sv.has_rate, sv.has_trav
     rates = _linear_rates(model)
-    t1, rc, absb, atb = np.empty(n_b), np.empty(n_b), np.empty(n_b), np.empty(n_b, bool)
-    mul, sub, mn, mx, ab, ge = np.multiply, np.subtract, np.minimum, np.maximum, np.absolute, np.greater_equal
-    no_flags = np.zeros(n_b, bool)
-
-    one_travel = float(trav[0]) if has_trav and bool((trav == trav[0]).all()) else None
-    biggest = np.maximum.reduce
+    t1, rc, absx = np.empty(n_b), np.empty(n_b), np.empty(n_b)
+    mul, sub, mn, mx, ab = np.multiply, np.subtract, np.minimum, np.maximum, np.absolute
+    at_trav = _any_at(trav) if has_trav else None
 
     def stage(src, dst, u, eg, full):
         x0 = dlt = src.x0
         dcol, hit = src.col0, False
         if has_trav:  # |x0| >= travel iff the clipped surface is at the stop
-            ab(x0, out=absb)
-            if one_travel is None or full:
-                ge(absb, trav, out=atb)
-            hit = atb.any() if one_travel is None else biggest(absb) >= one_travel  # (NaN: neither)
+            ab(x0, out=absx)
+            hit = at_trav(absx)
             if hit:
                 dlt = mn(mx(x0, lo), trav)
                 dcol = dlt[:, None]
@@ -134,20 +138,11 @@ def _lag_stage(model: sp.Model):
             k0[...] = np.where(((dlt >= trav) & (k0 > 0)) | ((dlt <= lo) & (k0 < 0)), 0.0, k0)
         flags = None
         if full:
-            flags = (ab(rc) > R, atb.copy() if has_trav else no_flags.copy())
+            flags = (ab(rc) > R, absx >= trav if has_trav else np.zeros(n_b, bool))
         rates(src, dcol, eg, dst.xp)
         return dlt, k0, flags
 
     return stage
-
-
-def _any_at(limit):
-    """``f(absolute_values)``: whether any member is at or beyond `limit` (one reduction
-    when the limit is the same for every member; NaN counts as neither)."""
-    if bool((limit == limit[0]).all()):
-        one, biggest = float(limit[0]), np.maximum.reduce
-        return lambda a: biggest(a) >= one
-    return lambda a: bool((a >= limit).any())
 
 
 def _second_stage(model: sp.Model):
