@@ -1,7 +1,9 @@
 """The parts of the time simulation: linear plant, actuator, damper limits, delay line, RK4.
 
 :func:`damper.analysis.simulation.simulate` assembles a :class:`Model` from these parts and
-calls :func:`integrate`. Every array is over the flattened batch (N members); the Python
+calls :func:`damper.analysis.simulation_rk4.integrate`, or with a damper authority
+:func:`integrate` here (the reference loop: the streamlined one gives its records bit for
+bit). Every array is over the flattened batch (N members); the Python
 loop runs over time steps only. Definitions and the method are in the docstring of
 :mod:`damper.analysis.simulation` and in docs/responses.md.
 """
@@ -140,6 +142,8 @@ class DelayLine:
 
     Row = slot of ``width = 2 N`` values ``[y (N), y' (N)]``; ``taps[c]`` are the flat
     indices and cubic Hermite weights reading at ``t_k + c h - T`` (c = 0, 0.5, 1).
+    ``block``: the number of consecutive steps whose reads use only samples stored
+    before the first of them starts (1 when a delay is within rounding of the step).
     """
 
     buf: np.ndarray
@@ -151,6 +155,7 @@ class DelayLine:
     CA: np.ndarray
     CB: np.ndarray
     CE: np.ndarray
+    block: int = 1
 
 
 def delay_line(tdel, h, lin: Linear) -> DelayLine | None:
@@ -163,7 +168,7 @@ def delay_line(tdel, h, lin: Linear) -> DelayLine | None:
     length = int(np.ceil(float(tdel.max()) / h)) + 4
     width = 2 * n_b
     lag_steps = np.where(delayed, tdel / h, 1.0)
-    taps = {}
+    taps, newest = {}, -length
     for c in (0.0, 0.5, 1.0):
         # read at t_k + c h - T = t_(k+j) + s h with j <= -1 (stored samples only)
         p = c - lag_steps
@@ -172,6 +177,7 @@ def delay_line(tdel, h, lin: Linear) -> DelayLine | None:
         late = j >= 0  # only when T is within rounding of h: use the latest sample
         j = np.where(late, -1.0, j).astype(np.int64)
         s = np.where(late, 1.0, s)
+        newest = max(newest, int(j[delayed].max()) + 1)  # undelayed members read nothing
         s2, s3 = s * s, s * s * s
         weights = np.stack([2 * s3 - 3 * s2 + 1, (s3 - 2 * s2 + s) * h, 3 * s2 - 2 * s3, (s3 - s2) * h])
         base = np.concatenate([j * width + rows, j * width + n_b + rows, (j + 1) * width + rows,
@@ -179,7 +185,7 @@ def delay_line(tdel, h, lin: Linear) -> DelayLine | None:
         taps[c] = (base % (length * width), weights)
     CA = np.einsum("ni,nij->nj", lin.Cv, lin.A)
     return DelayLine(np.zeros(length * width), taps, width, length, delayed, bool(delayed.all()),
-                     CA, np.sum(lin.Cv * lin.Bv, -1), np.sum(lin.Cv * lin.Ev, -1))
+                     CA, np.sum(lin.Cv * lin.Bv, -1), np.sum(lin.Cv * lin.Ev, -1), 1 - newest)
 
 
 def read(line: DelayLine, k, c):
