@@ -217,6 +217,31 @@ def _phase(fl, wt, nph, dph):
     return gain_phase(fl) + nph.sum(0) - dph.sum(0) - wt * fl.delay
 
 
+def _leads(part: FactoredLoop, whole: FactoredLoop) -> bool:
+    """Whether ``part``'s factors are the leading factors of ``whole``'s, loop for loop."""
+    fn, fd = part.num.shape[1], part.den.shape[1]
+    return (part.size == whole.size and fn <= whole.num.shape[1] and fd <= whole.den.shape[1]
+            and np.array_equal(whole.num[:, :fn], part.num) and np.array_equal(whole.den[:, :fd], part.den))
+
+
+def evaluate_both(fl: FactoredLoop, part: FactoredLoop, w):
+    """``evaluate(fl, w)`` and ``evaluate(part, w)``, bit for bit.
+
+    When ``part``'s factors lead ``fl``'s (the pilot's forward path and the loop: the
+    airframe's and the actuator's factors come first in both), each factor is evaluated
+    once: a factor's value does not depend on the others, and the sums and products over
+    the leading rows run in the same order as over ``part``'s own.
+    """
+    if not _leads(part, fl):
+        return evaluate(fl, w), evaluate(part, w)
+    wt = np.ascontiguousarray(np.asarray(w, dtype=float).T)
+    nph, dph, nsq, dsq = factor_values(fl, wt)
+    fn, fd = part.num.shape[1], part.den.shape[1]
+    whole = (_logmag(fl, nsq, dsq).T, _phase(fl, wt, nph, dph).T)
+    lead = (_logmag(part, nsq[:fn], dsq[:fd]).T, _phase(part, wt, nph[:fn], dph[:fd]).T)
+    return whole, lead
+
+
 def evaluate_logmag(fl: FactoredLoop, w):
     """``ln |L(jw)|`` alone, shape (M, K): the first result of :func:`evaluate`, bit for bit,
     without the phases (no arctangent)."""
