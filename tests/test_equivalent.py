@@ -340,7 +340,7 @@ def delayed_light_pairs(seed, count):
 def test_single_start_with_fallback_equals_the_six_start_fit(rule):
     # The default fit iterates the data-derived start alone and falls back to all six
     # starts only where that fit does not converge (short of a first-order drift) or leaves
-    # a mismatch above FALLBACK_MISMATCH (BASIN_MISMATCH with starts="basin"). On a stored
+    # a mismatch above BASIN_MISMATCH (FALLBACK_MISMATCH with starts="fallback"). On a stored
     # set of systems that includes the difficult ones (delays to 0.3 s making the
     # wrapped-phase cost multi-modal, washouts far inside the band, extra lags, unstable
     # pairs, and exact LOES with delays to 0.5 s and light or negative damping, where six

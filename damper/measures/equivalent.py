@@ -120,7 +120,8 @@ class EquivalentFit:
         test before ``max_iterations``.
     fallback : numpy.ndarray
         bool; True where all the starts were iterated (the data-derived start alone did not
-        converge or left a mismatch above :data:`FALLBACK_MISMATCH`).
+        converge or left a mismatch above the bound of the ``starts`` rule:
+        :data:`BASIN_MISMATCH` by default).
     """
 
     damping_ratio: np.ndarray
@@ -159,11 +160,11 @@ def fit_frequencies(n: int = 30, low: float = 0.1, high: float = 10.0) -> np.nda
 #: A single-start fit whose mismatch J is above this is repeated from every start (the data-
 #: derived start found a poor basin); dimensionless, as J.
 FALLBACK_MISMATCH = 20.0
-#: The bound of ``starts="basin"``: a converged single-start fit is repeated from every start
-#: only above this mismatch (dimensionless, as J). On every stored set of systems (the
-#: robustness study's, the engine benchmark's, the tests' and 3,000 difficult invented ones)
-#: six starts lowered a converged single-start mismatch only where it was above 165; below,
-#: they found the same minimum (docs/performance.md).
+#: The bound of ``starts="basin"`` (the default): a converged single-start fit is repeated
+#: from every start only above this mismatch (dimensionless, as J). On every set of systems
+#: examined (the robustness study's, the engine benchmark's, the tests' and 3,000 difficult
+#: invented ones: docs/performance.md) six starts lowered a converged single-start mismatch
+#: only where it was above 165; below, they found the same minimum.
 BASIN_MISMATCH = 100.0
 #: Mismatch bound above which a converged single-start fit falls back, per ``starts`` rule.
 _BOUND = {"fallback": FALLBACK_MISMATCH, "basin": BASIN_MISMATCH}
@@ -257,7 +258,7 @@ def fit_equivalent_system(
     free_zero: bool = False,
     max_iterations: int = 60,
     log_response: bool = False,
-    starts: str = "fallback",
+    starts: str = "basin",
 ) -> EquivalentFit:
     """Fit the pitch-rate LOES to a batch of high-order frequency responses.
 
@@ -282,13 +283,14 @@ def fit_equivalent_system(
     log_response : bool, optional
         ``response`` is already the natural log of the response,
         ``ln|H| + j arg H`` (any branch of the phase). Default False.
-    starts : {"fallback", "basin", "all"}, optional
-        ``"fallback"`` (default): the data-derived start alone, and all six starts only for
-        a system whose single fit does not converge or leaves a mismatch above
-        :data:`FALLBACK_MISMATCH`; ``"basin"``: the same with the bound
-        :data:`BASIN_MISMATCH` (fewer repeats; not the default, because a system whose six
-        starts reach the same minimum as the single start can differ from it in the last
-        bits); ``"all"``: six starts for every system.
+    starts : {"basin", "fallback", "all"}, optional
+        ``"basin"`` (default): the data-derived start alone, and all six starts only for a
+        system whose single fit does not converge (short of a first-order drift) or leaves
+        a mismatch above :data:`BASIN_MISMATCH`; ``"fallback"``: the same with the tighter
+        bound :data:`FALLBACK_MISMATCH` (the rule before; more repeats, which found no
+        lower minimum on any stored set, but where six starts reach the same minimum as
+        the single start they can differ from it in the last bits); ``"all"``: six starts
+        for every system.
 
     Returns
     -------
