@@ -431,21 +431,17 @@ def disk_peak(fl: FactoredLoop, iv: Intervals) -> np.ndarray:
         iv = split(fl, iv.select(open_), np.full(int(open_.sum()), 4))
         _keep_best(best, best_w, best_h, iv.row, disk_ratio(iv.lb, iv.pb), iv.wb, iv.wb / iv.wa)
     rows = np.nonzero((best_w > 0) & np.isfinite(best))[0]
-    if rows.size:
-        half = np.log(np.minimum(best_h[rows], 1e6))  # a cell each side of the best sample
+    half = np.log(np.minimum(best_h[rows], 1e6))  # a cell each side of the best sample
+    x0 = np.log(best_w[rows])
+    for _ in range(PEAK_SHIFTS if rows.size else 0):  # a peak at the bracket's edge: move the bracket there
+        # (only those loops search again: every loop's search is its own, so the rest would repeat theirs)
         sub = fl.take(rows)
-
-        def ratio(x):
-            return disk_ratio(*_at(sub, np.exp(x)))
-
-        x0 = np.log(best_w[rows])
-        for _ in range(PEAK_SHIFTS):  # a peak at the bracket's edge: move the bracket there
-            x_star, peak = golden_max(ratio, x0 - half, x0 + half, steps=PEAK_STEPS)
-            best[rows] = np.fmax(best[rows], peak)
-            edge = np.abs(x_star - x0) > 0.99 * half
-            if not np.any(edge):
-                break
-            x0 = np.where(edge, x_star, x0)
+        x_star, peak = golden_max(lambda x: disk_ratio(*_at(sub, np.exp(x))), x0 - half, x0 + half, steps=PEAK_STEPS)
+        best[rows] = np.fmax(best[rows], peak)
+        edge = np.abs(x_star - x0) > 0.99 * half
+        if not np.any(edge):
+            break
+        rows, half, x0 = rows[edge], half[edge], x_star[edge]
     return best
 
 
