@@ -291,11 +291,9 @@ def fit_equivalent_system(
     starts : {"basin", "fallback", "all"}, optional
         None: :data:`DEFAULT_STARTS` (``"basin"``). ``"basin"``: the data-derived start
         alone, and all six starts only for a system whose single fit does not converge
-        (short of a first-order drift) or leaves a mismatch above :data:`BASIN_MISMATCH`; ``"fallback"``: the same with the tighter
-        bound :data:`FALLBACK_MISMATCH` (the rule before; more repeats, which found no
-        lower minimum on any stored set, but where six starts reach the same minimum as
-        the single start they can differ from it in the last bits); ``"all"``: six starts
-        for every system.
+        (short of a first-order drift) or leaves a mismatch above :data:`BASIN_MISMATCH`;
+        ``"fallback"``: the bound :data:`FALLBACK_MISMATCH` (the rule before: more repeats,
+        which found no lower minimum on any set examined); ``"all"``: six starts for all.
 
     Returns
     -------

@@ -266,10 +266,8 @@ def main(quick=False):
     print(f"equivalent-system fit, 2000 systems: batched {t_batch:.2f} s; per-system least_squares (extrapolated "
           f"from 100) x 6 starts {t_six:.1f} s (ratio {t_six / t_batch:.0f}), x 1 start with analytic Jacobian "
           f"{t_one:.1f} s (ratio {t_one / t_batch:.0f})")
-    study_fit = bench_equivalent_study()
-    n_fit = 100 * 20
     print("equivalent-system fit on the robustness study's 2000 loops (medians of 5, interleaved): " + "; ".join(
-        f"starts={rule!r} {t / n_fit * 1e6:.0f} us/system (fallback on {fb})" for rule, (t, fb) in study_fit.items()))
+        f"starts={rule!r} {t / 2000 * 1e6:.0f} us/system (fallback on {fb})" for rule, (t, fb) in bench_equivalent_study().items()))
     samples = 2000 if quick else 10_000
     # threads against local processes (2 workers each), interleaved, median of 3 pairs
     runs = {"threads": [], "processes": []}
@@ -290,12 +288,7 @@ def main(quick=False):
     summary["assess_first_answer_s"] = _median_of(9, first)
     print(f"damper design on the demo (figures, responses, report): {summary['design_demo_s']:.2f} s; damper assess "
           f"--gain 0.1: {summary['assess_first_answer_s']:.3f} s (wall, medians)")
-    help_times = []
-    for _ in range(5):
-        t = time.perf_counter()
-        subprocess.run([sys.executable, "-m", "damper", "--help"], capture_output=True, check=True, cwd=ROOT)
-        help_times.append(time.perf_counter() - t)
-    print(f"damper --help: {float(np.median(help_times)):.3f} s (median of 5)")
+    print(f"damper --help: {_median_of(5, [sys.executable, '-m', 'damper', '--help']):.3f} s (median of 5)")
     import tempfile
 
     with tempfile.TemporaryDirectory() as tmp:
