@@ -8,7 +8,8 @@ import pytest
 from damper.model.airframe import Derivatives
 from damper.model.elements import Delay, Lag, LeadLag, Washout
 from damper.model.loop import Hardware, Loop
-from damper.model.rational import evaluate, evaluate_both, evaluate_logmag, evaluate_phase, factored_forward, factored_loop
+from damper.model.rational import (evaluate, evaluate_both, evaluate_logmag, evaluate_phase, factored_forward,
+                                   factored_loop)
 
 
 def _loops(n=200, seed=3):

@@ -39,7 +39,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..model.rational import FactoredLoop, at_zero, crossing_polynomial, evaluate, evaluate_logmag, evaluate_phase, factored_loop
+from ..model.rational import (FactoredLoop, at_zero, crossing_polynomial, evaluate, evaluate_logmag, evaluate_phase,
+                              factored_loop)
 from .freqset import W_ZERO, Intervals, bounded_intervals, concat, intervals_between, split
 from .refine import golden_max, illinois
 
@@ -315,8 +316,9 @@ def phase_crossings(fl: FactoredLoop, iv: Intervals, w_low, w_high) -> Crossings
     def fn(x, act):
         return _phase_at(fl.take(row[act]), np.exp(x)) - level[act]
 
-    f_lo = _phase_at(fl.take(row), lo) - level
-    f_hi = _phase_at(fl.take(row), hi) - level
+    sub = fl.take(row)
+    f_lo = _phase_at(sub, lo) - level
+    f_hi = _phase_at(sub, hi) - level
     x = illinois(fn, np.log(lo), np.log(hi), f_lo, f_hi) if row.size else np.log(lo)
     w = np.exp(x)
     gm = -_DB * _logmag_at(fl, row, w)
