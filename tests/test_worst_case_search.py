@@ -63,3 +63,26 @@ def test_search_with_each_point_once_equals_evaluating_every_point(monkeypatch):
     # the search asked for some points more than once, and evaluated each once
     asked, done = (sum(x) for x in zip(*searched))
     assert 0 < done < asked
+
+
+def test_each_point_once_gives_every_point_its_own_measures():
+    # Points repeated within a call and across calls, at both conditions: each answer is the
+    # direct evaluation of that point at that condition (Source: _evaluate_flat on every point).
+    from damper.analysis.runners import Study
+    from damper.analysis.uncertainty import resolve_axes, uncertainty_spec
+
+    case = _small(CASE)
+    spec = uncertainty_spec(case)
+    gains = np.array([0.15, 0.08])
+    run = rob._runner(Study(case, resolve_axes(case, spec, gains), gains, spec), 1, False, None)
+    rng = np.random.default_rng(4)
+    pts = rng.uniform(-1, 1, (5, 4))[[0, 1, 2, 0, 1, 3, 4, 2]]
+    cidx = np.array([0, 0, 1, 0, 1, 1, 0, 1])
+    cache = {}
+    first = rob._evaluate_unique(run, cidx[:5], pts[:5], 64, cache)
+    second = rob._evaluate_unique(run, cidx, pts, 64, cache)
+    direct = rob._evaluate_flat(run, cidx, pts, 64)
+    assert np.array_equal(first[0], direct["slacks"][:, :5], equal_nan=True)
+    assert np.array_equal(second[0], direct["slacks"], equal_nan=True)
+    assert np.array_equal(second[1], direct["values"], equal_nan=True)
+    assert len(cache) == len({(c, p.tobytes()) for c, p in zip(cidx, pts)})
