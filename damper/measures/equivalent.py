@@ -171,7 +171,7 @@ _BOUND = {"fallback": FALLBACK_MISMATCH, "basin": BASIN_MISMATCH}
 #: The start rule when the caller names none (the switch between the rules): ``"basin"``
 #: leaves every demo run's documents byte-identical to ``"fallback"``; elsewhere a system that
 #: ``"fallback"`` repeated and whose six starts reached the single start's minimum can differ
-#: in the last bits (up to 2.2e-8 in a damping ratio on the engine benchmark's study).
+#: in the last bits (up to 4.6e-8 in a damping ratio on the engine benchmark's 10,000 x 20 study).
 DEFAULT_STARTS = "basin"
 
 
