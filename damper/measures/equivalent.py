@@ -164,7 +164,7 @@ FALLBACK_MISMATCH = 20.0
 #: from every start only above this mismatch (dimensionless, as J). On every set of systems
 #: examined (the robustness study's, the engine benchmark's, the tests' and 3,000 difficult
 #: invented ones: docs/performance.md) six starts lowered a converged single-start mismatch
-#: only where it was above 165; below, they found the same minimum.
+#: only where it was above 136; below, they found the same minimum.
 BASIN_MISMATCH = 100.0
 #: Mismatch bound above which a converged single-start fit falls back, per ``starts`` rule.
 _BOUND = {"fallback": FALLBACK_MISMATCH, "basin": BASIN_MISMATCH}
