@@ -205,6 +205,28 @@ def _tracks(axes, spec, extremes, corners_u, targets):
     return tracks
 
 
+def _evaluate_unique(run, cidx, pts, chunk, cache):
+    """Slacks and values, shape (criteria, M), of the points ``pts`` (M, p) at conditions ``cidx`` (M,).
+
+    Each (condition, point) is evaluated once per search: ``cache`` keeps what earlier calls
+    evaluated, and a point asked for twice (two searches from one sample, or a step back
+    onto a point already visited) is evaluated once. A loop's measures depend on its own
+    data alone (bit for bit, whatever batch it is evaluated in), so the results are those
+    of evaluating every point.
+    """
+    keys = [(int(i), row.tobytes()) for i, row in zip(cidx, pts)]
+    new = {}
+    for k, key in enumerate(keys):
+        if key not in cache and key not in new:
+            new[key] = k
+    if new:
+        sel = np.fromiter(new.values(), dtype=int, count=len(new))
+        res = _evaluate_flat(run, cidx[sel], pts[sel], chunk)
+        for n, key in enumerate(new):
+            cache[key] = (res["slacks"][:, n], res["values"][:, n])
+    return (np.stack([cache[key][0] for key in keys], axis=1), np.stack([cache[key][1] for key in keys], axis=1))
+
+
 def _refine(run, tracks, progress):
     """Compass search for the worst slack of each (condition, target criterion) from `tracks`.
 
@@ -226,6 +248,7 @@ def _refine(run, tracks, progress):
     live = np.ones(len(tracks), bool)
     evals = np.zeros(len(tracks), int)
     pa = len(active)
+    cache = {}  # (condition, point bytes) -> (slacks, values): each point evaluated once
     for it in range(spec.refine_iterations):
         idx = np.flatnonzero(live)
         if idx.size == 0:
@@ -243,10 +266,10 @@ def _refine(run, tracks, progress):
             break
         track = idx[tt]
         pts = cand[tt, jj]
-        res = _evaluate_flat(run, t_i[track], pts, spec.chunk)
-        np.add.at(evals, track, 1)
-        s_all = res["slacks"][t_c[track], np.arange(track.size)]
-        v_all = res["values"][t_c[track], np.arange(track.size)]
+        slacks, values = _evaluate_unique(run, t_i[track], pts, spec.chunk, cache)
+        np.add.at(evals, track, 1)  # the search's own count: every point it asked for
+        s_all = slacks[t_c[track], np.arange(track.size)]
+        v_all = values[t_c[track], np.arange(track.size)]
         order = np.lexsort((s_all, track))
         first = np.unique(track[order], return_index=True)[1]
         best = order[first]

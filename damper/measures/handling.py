@@ -145,14 +145,13 @@ def pilot_log_response(loop: Loop, w):
     ndarray of complex, shape (N, K)
         ``ln|q/c| + j arg(q/c)``, the phase on a continuous branch.
     """
-    from ..model.rational import evaluate, factored_forward, factored_loop
+    from ..model.rational import evaluate_both, factored_forward, factored_loop
 
     fwd, _ = factored_forward(loop)
     fl, _ = factored_loop(loop)
     w = np.asarray(w, dtype=float)
     grid = np.ascontiguousarray(np.broadcast_to(w, (fl.size, w.shape[-1])))
-    f_mag, f_arg = evaluate(fwd, grid)
-    l_mag, l_arg = evaluate(fl, grid)
+    (l_mag, l_arg), (f_mag, f_arg) = evaluate_both(fl, fwd, grid)
     with np.errstate(over="ignore", invalid="ignore"):
         rho = np.exp(np.minimum(l_mag, 700.0))
         re = 1.0 + rho * np.cos(l_arg)

@@ -39,9 +39,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..model.rational import FactoredLoop, at_zero, crossing_polynomial, evaluate, factored_loop
+from ..model.rational import (FactoredLoop, at_zero, crossing_polynomial, evaluate, evaluate_logmag, evaluate_phase,
+                              factored_loop)
 from ..quantities import quantity
-from .freqset import W_ZERO, Intervals, bounded_intervals, concat, intervals_between, split
+from .freqset import Intervals, bounded_intervals, concat, intervals_between, split
 from .refine import golden_max, illinois
 
 DEFAULT_GRID = np.logspace(-3.0, 3.0, 31)  # rad/s: the coarse part (5 points per decade, as a case's default)
@@ -137,15 +138,21 @@ class Crossings:
 # ----------------------------------------------------------------------------------
 
 
-def _logmag_phase(fl: FactoredLoop, rows, w):
-    """Exact ``ln|L|`` and ``arg L`` (rad, continuous, delay included) at one ``w`` per entry."""
-    return _at(fl.take(rows), w)
-
-
 def _at(sub: FactoredLoop, w):
     """Exact ``ln|L|`` and ``arg L`` of each loop of ``sub`` at its own ``w`` (shape (M,))."""
     logmag, phase = evaluate(sub, np.asarray(w, dtype=float)[:, None])
     return logmag[:, 0], phase[:, 0]
+
+
+def _logmag_at(fl: FactoredLoop, rows, w):
+    """Exact ``ln|L|`` of loops ``rows`` of ``fl``, one ``w`` (rad/s) per entry: ``_at(fl.take(rows), w)[0]``
+    bit for bit, without the phases."""
+    return evaluate_logmag(fl.take(rows), np.asarray(w, dtype=float)[:, None])[:, 0]
+
+
+def _phase_at(sub: FactoredLoop, w):
+    """``_at(sub, w)[1]``, bit for bit, without the magnitudes."""
+    return evaluate_phase(sub, np.asarray(w, dtype=float)[:, None])[:, 0]
 
 
 def _dedupe(row, w, *values, rtol=1e-9):
@@ -198,21 +205,21 @@ def gain_crossings(fl: FactoredLoop) -> Crossings:
     valid = np.isfinite(test)
     r_all = np.broadcast_to(np.arange(n)[:, None], test.shape)
     f = np.full(test.shape, np.nan)
-    f[valid] = _logmag_phase(fl, r_all[valid], test[valid])[0]
+    f[valid] = _logmag_at(fl, r_all[valid], test[valid])
     pos = f >= 0
     change = valid[:, :-1] & valid[:, 1:] & (pos[:, :-1] != pos[:, 1:])
     rr, jj = np.nonzero(change)
     lo, hi = np.log(test[rr, jj]), np.log(test[rr, jj + 1])
 
     def fn(x, act):
-        return _logmag_phase(fl, rr[act], np.exp(x))[0]
+        return _logmag_at(fl, rr[act], np.exp(x))
 
     x = illinois(fn, lo, hi, f[rr, jj], f[rr, jj + 1]) if rr.size else lo
     # touches: a candidate where |L| reaches 1 without changing side
     tr, tj = np.nonzero(valid & (np.abs(f) <= TOUCH_NEPERS))
     row = np.concatenate([rr, tr])
     w = np.concatenate([np.exp(x), test[tr, tj]])
-    _, phase = _logmag_phase(fl, row, w)
+    phase = _phase_at(fl.take(row), w)
     pm = np.rad2deg(np.mod(phase + 2.0 * np.pi, 2.0 * np.pi) - np.pi)
     row, w, pm = _dedupe(row, w, pm)
     return Crossings(row, w, pm)
@@ -282,7 +289,7 @@ def _window_brackets(fl, row, lo, hi, level):
     sub = fl.take(iv.row)
 
     def closeness(x):
-        return toward * (_at(sub, np.exp(x))[1] - lev)
+        return toward * (_phase_at(sub, np.exp(x)) - lev)
 
     x_star, f_star = golden_max(closeness, np.log(iv.wa), np.log(iv.wb), steps=TOUCH_STEPS)
     hit = f_star >= 0
@@ -308,13 +315,14 @@ def phase_crossings(fl: FactoredLoop, iv: Intervals, w_low, w_high) -> Crossings
     row, lo, hi, level = _window_brackets(fl, row[ok], lo[ok], hi[ok], level[ok])
 
     def fn(x, act):
-        return _logmag_phase(fl, row[act], np.exp(x))[1] - level[act]
+        return _phase_at(fl.take(row[act]), np.exp(x)) - level[act]
 
-    f_lo = _logmag_phase(fl, row, lo)[1] - level
-    f_hi = _logmag_phase(fl, row, hi)[1] - level
+    sub = fl.take(row)
+    f_lo = _phase_at(sub, lo) - level
+    f_hi = _phase_at(sub, hi) - level
     x = illinois(fn, np.log(lo), np.log(hi), f_lo, f_hi) if row.size else np.log(lo)
     w = np.exp(x)
-    gm = -_DB * _logmag_phase(fl, row, w)[0]
+    gm = -_DB * _logmag_at(fl, row, w)
     real = np.isfinite(gm)  # a phase jump through a zero or pole on the axis is no crossing
     row, w, gm = row[real], w[real], gm[real]
     # zero frequency: L(0) real and negative
@@ -426,21 +434,17 @@ def disk_peak(fl: FactoredLoop, iv: Intervals) -> np.ndarray:
         iv = split(fl, iv.select(open_), np.full(int(open_.sum()), 4))
         _keep_best(best, best_w, best_h, iv.row, disk_ratio(iv.lb, iv.pb), iv.wb, iv.wb / iv.wa)
     rows = np.nonzero((best_w > 0) & np.isfinite(best))[0]
-    if rows.size:
-        half = np.log(np.minimum(best_h[rows], 1e6))  # a cell each side of the best sample
+    half = np.log(np.minimum(best_h[rows], 1e6))  # a cell each side of the best sample
+    x0 = np.log(best_w[rows])
+    for _ in range(PEAK_SHIFTS if rows.size else 0):  # a peak at the bracket's edge: move the bracket there
+        # (only those loops search again: every loop's search is its own, so the rest would repeat theirs)
         sub = fl.take(rows)
-
-        def ratio(x):
-            return disk_ratio(*_at(sub, np.exp(x)))
-
-        x0 = np.log(best_w[rows])
-        for _ in range(PEAK_SHIFTS):  # a peak at the bracket's edge: move the bracket there
-            x_star, peak = golden_max(ratio, x0 - half, x0 + half, steps=PEAK_STEPS)
-            best[rows] = np.fmax(best[rows], peak)
-            edge = np.abs(x_star - x0) > 0.99 * half
-            if not np.any(edge):
-                break
-            x0 = np.where(edge, x_star, x0)
+        x_star, peak = golden_max(lambda x: disk_ratio(*_at(sub, np.exp(x))), x0 - half, x0 + half, steps=PEAK_STEPS)
+        best[rows] = np.fmax(best[rows], peak)
+        edge = np.abs(x_star - x0) > 0.99 * half
+        if not np.any(edge):
+            break
+        rows, half, x0 = rows[edge], half[edge], x_star[edge]
     return best
 
 

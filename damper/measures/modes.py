@@ -218,8 +218,8 @@ def _pick_pair(lam, share, is_real):
 def _participation(A):
     """Eigenvalues and participation factors ``p[..., k, i] = |v_ki w_ik|`` normalised per mode."""
     lam, V = np.linalg.eig(A)
-    lam = lam.astype(complex)
-    V = V.astype(complex)
+    lam = lam.astype(complex, copy=False)  # no copy where eig returned complex (a complex mode in the batch)
+    V = V.astype(complex, copy=False)
     with np.errstate(all="ignore"):
         W = np.linalg.inv(V)
     p = np.abs(V * np.swapaxes(W, -1, -2))  # p[..., k, i]

@@ -164,12 +164,16 @@ def factor_values(fl: FactoredLoop, w):
     ww = w * w
     out = []
     for coef in (fl.num, fl.den):
-        c0, c1, c2 = coef[0][:, None, :], coef[1][:, None, :], coef[2][:, None, :]
-        re = c0 - c2 * ww
-        im = c1 * w
+        re, im = _factor_parts(coef, w, ww)
         out.append((np.arctan2(im, re), re * re + im * im))
     (num_phase, num_sq), (den_phase, den_sq) = out
     return num_phase, den_phase, num_sq, den_sq
+
+
+def _factor_parts(coef, w, ww):
+    """Real and imaginary parts of every factor at ``jw`` (``w`` (K, M), ``ww = w * w``): (F, K, M) each."""
+    c0, c1, c2 = coef[0][:, None, :], coef[1][:, None, :], coef[2][:, None, :]
+    return c0 - c2 * ww, c1 * w
 
 
 def gain_phase(fl: FactoredLoop) -> np.ndarray:
@@ -199,10 +203,64 @@ def evaluate(fl: FactoredLoop, w):
     """
     wt = np.ascontiguousarray(np.asarray(w, dtype=float).T)
     nph, dph, nsq, dsq = factor_values(fl, wt)
+    return _logmag(fl, nsq, dsq).T, _phase(fl, wt, nph, dph).T
+
+
+def _logmag(fl, nsq, dsq):
+    """``ln |L|`` from the factors' squared magnitudes (K, M)."""
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        logmag = log_gain(fl) + 0.5 * np.log(nsq.prod(0) / dsq.prod(0))
-    phase = gain_phase(fl) + nph.sum(0) - dph.sum(0) - wt * fl.delay
-    return logmag.T, phase.T
+        return log_gain(fl) + 0.5 * np.log(nsq.prod(0) / dsq.prod(0))
+
+
+def _phase(fl, wt, nph, dph):
+    """``arg L`` (rad, delay included) from the factors' phases (K, M)."""
+    return gain_phase(fl) + nph.sum(0) - dph.sum(0) - wt * fl.delay
+
+
+def _leads(part: FactoredLoop, whole: FactoredLoop) -> bool:
+    """Whether ``part``'s factors are the leading factors of ``whole``'s, loop for loop."""
+    fn, fd = part.num.shape[1], part.den.shape[1]
+    return (part.size == whole.size and fn <= whole.num.shape[1] and fd <= whole.den.shape[1]
+            and np.array_equal(whole.num[:, :fn], part.num) and np.array_equal(whole.den[:, :fd], part.den))
+
+
+def evaluate_both(fl: FactoredLoop, part: FactoredLoop, w):
+    """``evaluate(fl, w)`` and ``evaluate(part, w)``, bit for bit.
+
+    When ``part``'s factors lead ``fl``'s (the pilot's forward path and the loop: the
+    airframe's and the actuator's factors come first in both), each factor is evaluated
+    once: a factor's value does not depend on the others, and the sums and products over
+    the leading rows run in the same order as over ``part``'s own.
+    """
+    if not _leads(part, fl):
+        return evaluate(fl, w), evaluate(part, w)
+    wt = np.ascontiguousarray(np.asarray(w, dtype=float).T)
+    nph, dph, nsq, dsq = factor_values(fl, wt)
+    fn, fd = part.num.shape[1], part.den.shape[1]
+    whole = (_logmag(fl, nsq, dsq).T, _phase(fl, wt, nph, dph).T)
+    lead = (_logmag(part, nsq[:fn], dsq[:fd]).T, _phase(part, wt, nph[:fn], dph[:fd]).T)
+    return whole, lead
+
+
+def evaluate_logmag(fl: FactoredLoop, w):
+    """``ln |L(jw)|`` alone, shape (M, K): the first result of :func:`evaluate`, bit for bit,
+    without the phases (no arctangent)."""
+    wt = np.ascontiguousarray(np.asarray(w, dtype=float).T)
+    ww = wt * wt
+    sq = []
+    for coef in (fl.num, fl.den):
+        re, im = _factor_parts(coef, wt, ww)
+        sq.append(re * re + im * im)
+    return _logmag(fl, *sq).T
+
+
+def evaluate_phase(fl: FactoredLoop, w):
+    """``arg L(jw)`` alone (rad, delay included), shape (M, K): the second result of
+    :func:`evaluate`, bit for bit, without the magnitudes."""
+    wt = np.ascontiguousarray(np.asarray(w, dtype=float).T)
+    ww = wt * wt
+    ph = [np.arctan2(im, re) for re, im in (_factor_parts(coef, wt, ww) for coef in (fl.num, fl.den))]
+    return _phase(fl, wt, *ph).T
 
 
 def response(fl: FactoredLoop, w):

@@ -153,6 +153,7 @@ def bench_equivalent(n):
     z = inverse_t_theta2(flat.airframe)
     t_batch, fit = timed(lambda: fit_equivalent_system(w, log_h, z, log_response=True))
     t_six, fit6 = timed(lambda: fit_equivalent_system(w, log_h, z, log_response=True, starts="all"))
+    t_j20, fit_j20 = timed(lambda: fit_equivalent_system(w, log_h, z, log_response=True, starts="fallback"))
     H = np.exp(log_h)
     m = min(n, 100)
     s = 1j * w
@@ -190,9 +191,40 @@ def bench_equivalent(n):
     print(f"  (scipy with six starts found a lower cost than the batched fit on {worse} of {m} systems; "
           f"the batched fit fell back to six starts on {int(np.sum(fit.fallback))} of {n})")
     same = np.allclose(fit.mismatch, fit6.mismatch, rtol=1e-6, atol=1e-9)
-    print(f"  batched single start with fallback {t_batch:.2f} s, all six starts {t_six:.2f} s "
-          f"(ratio {t_six / t_batch:.2f}; mismatches {'equal' if same else 'differ'} to 1e-6)")
+    print(f"  batched single start with fallback (default rule, above J = 100) {t_batch:.2f} s, all six starts "
+          f"{t_six:.2f} s (ratio {t_six / t_batch:.2f}; mismatches {'equal' if same else 'differ'} to 1e-6)")
+    same_j20 = np.allclose(fit_j20.mismatch, fit6.mismatch, rtol=1e-6, atol=1e-9)
+    print(f"  starts='fallback' (the rule before, above J = 20): {t_j20:.2f} s, fell back on {int(np.sum(fit_j20.fallback))} "
+          f"of {n} (ratio to six starts {t_six / t_j20:.2f}; mismatches {'equal' if same_j20 else 'differ'} to 1e-6)")
     return t_batch, t_six_scipy, t_one_scipy, t_six / t_batch
+
+
+def bench_equivalent_study(samples=100, n_conditions=20, repeat=5):
+    """The fit on the robustness study's own loops (:func:`bench_robustness`'s case, `samples`
+    per condition): each start rule, interleaved, medians. Returns {rule: (s, fallbacks)}."""
+    sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+    from bench_cluster import study_case
+
+    from damper.analysis.uncertainty import resolve_axes, sample_rows, sampled_loop, uncertainty_spec
+    from damper.measures.equivalent import fit_equivalent_system, fit_frequencies
+    from damper.measures.handling import pilot_log_response
+    from damper.model.airframe import inverse_t_theta2
+    from damper.model.batch import flatten
+
+    case = study_case(n_conditions, samples)
+    spec = uncertainty_spec(case)
+    gains = np.full(n_conditions, 0.15)
+    axes = resolve_axes(case, spec, gains)
+    u = sample_rows(axes, spec.seed, 0, samples)
+    flat, _ = flatten(sampled_loop(case, axes, gains, np.arange(n_conditions)[:, None], u[None, :, :]))
+    w = fit_frequencies()
+    log_h, z = pilot_log_response(flat, w), inverse_t_theta2(flat.airframe)
+    times = {rule: [] for rule in ("fallback", "basin", "all")}
+    for _ in range(repeat):
+        for rule in times:
+            t, fit = timed(lambda: fit_equivalent_system(w, log_h, z, log_response=True, starts=rule))
+            times[rule].append((t, int(np.sum(fit.fallback))))
+    return {rule: (float(np.median([t for t, _ in v])), v[0][1]) for rule, v in times.items()}
 
 
 def bench_robustness(samples=10_000, n_conditions=20, processes=None, workers=None):
@@ -234,6 +266,8 @@ def main(quick=False):
     print(f"equivalent-system fit, 2000 systems: batched {t_batch:.2f} s; per-system least_squares (extrapolated "
           f"from 100) x 6 starts {t_six:.1f} s (ratio {t_six / t_batch:.0f}), x 1 start with analytic Jacobian "
           f"{t_one:.1f} s (ratio {t_one / t_batch:.0f})")
+    print("equivalent-system fit on the robustness study's 2000 loops (medians of 5, interleaved): " + "; ".join(
+        f"starts={rule!r} {t / 2000 * 1e6:.0f} us/system (fallback on {fb})" for rule, (t, fb) in bench_equivalent_study().items()))
     samples = 2000 if quick else 10_000
     # threads against local processes (2 workers each), interleaved, median of 3 pairs
     runs = {"threads": [], "processes": []}
@@ -254,12 +288,7 @@ def main(quick=False):
     summary["assess_first_answer_s"] = _median_of(9, first)
     print(f"damper design on the demo (figures, responses, report): {summary['design_demo_s']:.2f} s; damper assess "
           f"--gain 0.1: {summary['assess_first_answer_s']:.3f} s (wall, medians)")
-    help_times = []
-    for _ in range(5):
-        t = time.perf_counter()
-        subprocess.run([sys.executable, "-m", "damper", "--help"], capture_output=True, check=True, cwd=ROOT)
-        help_times.append(time.perf_counter() - t)
-    print(f"damper --help: {float(np.median(help_times)):.3f} s (median of 5)")
+    print(f"damper --help: {_median_of(5, [sys.executable, '-m', 'damper', '--help']):.3f} s (median of 5)")
     import tempfile
 
     with tempfile.TemporaryDirectory() as tmp:
