@@ -120,7 +120,7 @@ def test_two_local_processes_give_the_one_process_result(small):
 
 
 def test_many_small_blocks_spread_over_the_dask_workers_give_the_inline_result(small, cluster):
-    # blocks of 16 loops: the samples, corners and worst-case search cut into many tasks, so
+    # blocks of 8 loops: the samples, corners and worst-case search cut into many tasks, so
     # several workers really share them and results arrive out of order
     import distributed
 
@@ -130,7 +130,7 @@ def test_many_small_blocks_spread_over_the_dask_workers_give_the_inline_result(s
     from damper.output.documents.robustness import robustness_document
 
     case = load_case(small[0])
-    spec = uncertainty_spec(case, chunk=16, refine_iterations=6)
+    spec = uncertainty_spec(case, chunk=8, refine_iterations=6)
     local = robustness(case, 0.25, spec, workers=1)
     with distributed.Client(cluster, set_as_default=False) as client, \
             distributed.get_task_stream(client=client) as stream:

@@ -185,7 +185,7 @@ def test_the_gain_sweep_names_its_edges_by_the_registered_labels(demo, written):
     from damper.requirements.registry import KINDS as CRITERIA
 
     case, design = demo
-    out, _ = written
+    out, _, _ = written
     seen = 0
     for cond, slug in zip(design.conditions, style.plot_slugs(case.names)):
         text = "".join(ET.parse(str(out / "plots" / f"{slug}-gain-sweep.svg")).getroot().itertext())
