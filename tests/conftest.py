@@ -186,6 +186,14 @@ SLOW = (
     "test_verdict.py::test_assess_verdict_items_carry_the_oracle_damping",
     "test_verdict.py::test_failing_",
     "test_verdict.py::test_infeasible_design_exits_3",
+    # 0.4-0.9 s of CPU each (measured with --durations on a quiet machine)
+    "test_simulation_paths.py",  # both simulation loops on thirteen hostile loops, bit for bit
+    "test_figure_ticks.py",  # figures drawn with and without the tick and label changes
+    "test_worst_case_search.py",  # worst-case searches with and without the point cache
+    "test_turbulence.py::test_long_seeded_simulation_agrees_within_its_statistical_error",
+    "test_house.py::test_no_function_over_80_lines",  # the three walk every module's syntax tree
+    "test_house.py::test_nothing_outside_the_case_layer_reads_the_validated_values",
+    "test_case_sections.py::test_no_module_outside_the_case_layer_reads_a_raw_case",
 )
 
 
