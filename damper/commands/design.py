@@ -89,9 +89,9 @@ def _check_case(case) -> None:
 
     if not case.conditions and case.schedule is None:
         raise DamperError(
-            f"{case.file}: nothing to design: the case has an envelope: but no conditions: and no "
-            "schedule: section; add a schedule: section (its breakpoints are where the gains are "
-            "designed, docs/case-file.md), or use damper assess / sweep at gains you give"
+            f"{case.file}: nothing to design: the case gives an envelope but no schedule: section "
+            "(its breakpoints are where the gains are designed); add one (docs/case-file.md), or "
+            "use damper assess / sweep at gains you give"
         )
 
 
