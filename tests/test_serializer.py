@@ -63,7 +63,6 @@ EXPLICIT = {
     ("LoopSpec", "travel"): "actuator_travel_rad",
     ("ServoLimits", "rate_limit"): "actuator_rate_limit_rad_s",
     ("ServoLimits", "travel"): "actuator_travel_rad",
-    ("EquivalentFit", "gain"): "gain_1_s",  # unit 1/s^2: the published key predates it
     ("AttitudeBandwidth", "phase_crossover"): "attitude_phase_crossover_rad_s",
     ("Assessment", "gains"): "gain_s",  # one gain per point of the batch
     ("Assessment", "n_alpha"): "n_alpha_g_per_rad",
@@ -222,7 +221,7 @@ ASSESS_KEYS = {
                           "time_to_double_s", "roots"],
     "closed_loop.short_period": ["damping_ratio", "natural_frequency_rad_s", "period_s", "time_to_half_s",
                                  "ambiguous"],
-    "closed_loop.equivalent": ["damping_ratio", "natural_frequency_rad_s", "time_delay_s", "gain_1_s",
+    "closed_loop.equivalent": ["damping_ratio", "natural_frequency_rad_s", "time_delay_s", "gain_1_s2",
                                "inv_t_theta2_1_s", "mismatch", "converged", "large_mismatch", "delay_model"],
     "closed_loop.handling": ["n_alpha_g_per_rad", "cap_equivalent", "cap_modal", "attitude_phase_crossover_rad_s",
                              "bandwidth_phase_rad_s", "bandwidth_gain_rad_s", "bandwidth_rad_s", "phase_delay_s"],
@@ -390,3 +389,23 @@ def test_the_reports_key_labels_read_back_the_unit_of_every_annotated_key():
             checked += 1
     assert checked > 40
     assert key_label("damping_ratio") == ("damping ratio", "")  # dimensionless: no unit
+
+
+def test_the_reports_equivalent_system_rows_show_the_fields_own_keys_and_units():
+    """The report's equivalent-system table reads each value by the field's JSON key and shows
+    the field's unit: a hand-written unit once showed the gain K of the LOES form in 1/s, while
+    K multiplies ``(s + 1/T_theta2)`` over a second-order denominator, so for q (rad/s) per rad
+    of command K is in 1/s^2 ([derived] from the form, docs/theory.md)."""
+    from damper.measures.equivalent import EquivalentFit
+    from damper.output.report.conditions import EQUIVALENT_ROWS, _equivalent_rows
+
+    by_key = {q.key: q for q in quantities(EquivalentFit)}
+    eq = {key: 1.25 for _, key, _ in EQUIVALENT_ROWS} | {"converged": True}
+    rows = _equivalent_rows(eq)
+    assert len(rows) == len(EQUIVALENT_ROWS) + 1
+    for (label, key, _), (shown, unit, value) in zip(EQUIVALENT_ROWS, rows):
+        assert key in by_key, key
+        assert shown == label and value == "1.25"
+        want = by_key[key].unit.replace("^2", "\u00b2") or "\u2013"
+        assert unit == want, (key, unit, want)
+    assert dict((r[0], r[1]) for r in rows)["gain Kq"] == "1/s\u00b2"

@@ -129,10 +129,7 @@ class EquivalentFit:
     damping_ratio: np.ndarray = quantity("")
     natural_frequency: np.ndarray = quantity("rad/s")
     time_delay: np.ndarray = quantity("s")
-    # the documents' key predates the unit written above; kept so they stay byte-identical
-    gain: np.ndarray = quantity(
-        "1/s^2", key="gain_1_s", doc="the key's 1_s predates the unit: 1/s^2 for q per rad of command"
-    )
+    gain: np.ndarray = quantity("1/s^2", doc="q (rad/s) per rad of command, times s; K of the LOES form")
     inv_t_theta2: np.ndarray = quantity("1/s")
     mismatch: np.ndarray = quantity("")
     converged: np.ndarray

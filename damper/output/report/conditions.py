@@ -12,7 +12,7 @@ from ...requirements.criteria import KINDS
 from ..documents.longitudinal import longitudinal_rows
 from ..figures.design import KINDS as DESIGN_FIGURES
 from ..runfiles import image_uri as _image
-from .format import FT, KT, R2D, DASH, _status, band_text, binding_text, complex_text, f, fixed, pct, requirement_label, roots_text, scaled, unit_text
+from .format import key_label, FT, KT, R2D, DASH, _status, band_text, binding_text, complex_text, f, fixed, pct, requirement_label, roots_text, scaled, unit_text
 
 
 def _criterion_rows(m) -> list:
@@ -55,18 +55,24 @@ def _short_period_rows(bare, sp, eq) -> list:
     return rows
 
 
+#: The equivalent system's rows: label, JSON key, significant digits. The unit shown is
+#: the one the key names (key_label: the key rule of damper.quantities, one for documents
+#: and report).
+EQUIVALENT_ROWS = (
+    ("damping ratio \u03b6e", "damping_ratio", 3),
+    ("frequency \u03c9e", "natural_frequency_rad_s", 4),
+    ("equivalent time delay \u03c4e", "time_delay_s", 3),
+    ("zero 1/T\u03b82", "inv_t_theta2_1_s", 4),
+    ("gain Kq", "gain_1_s2", 4),
+    ("mismatch J", "mismatch", 3),
+)
+
+
 def _equivalent_rows(eq):
     if not eq:
         return None
-    return [
-        ("damping ratio \u03b6e", "\u2013", f(eq.get("damping_ratio"), 3)),
-        ("frequency \u03c9e", "rad/s", f(eq.get("natural_frequency_rad_s"))),
-        ("equivalent time delay \u03c4e", "s", f(eq.get("time_delay_s"), 3)),
-        ("zero 1/T\u03b82", "1/s", f(eq.get("inv_t_theta2_1_s"))),
-        ("gain Kq", "1/s", f(eq.get("gain_1_s"))),
-        ("mismatch J", "\u2013", f(eq.get("mismatch"), 3)),
-        ("fit converged", "", "yes" if eq.get("converged") else "NO"),
-    ]
+    rows = [(label, key_label(key)[1] or "\u2013", f(eq.get(key), digits)) for label, key, digits in EQUIVALENT_ROWS]
+    return rows + [("fit converged", "", "yes" if eq.get("converged") else "NO")]
 
 
 def _handling_rows(hq) -> list:
