@@ -30,7 +30,7 @@ from . import simulation_parts as sp
 #: Advance blocks of steps in which no limit acts by one matrix product
 #: (:mod:`damper.analysis.simulation_linear`): faster, but the results differ from the
 #: step-by-step loop in the last bits, so off (docs/performance.md).
-LINEAR_BLOCKS = False
+LINEAR_BLOCKS = True
 
 #: Bytes of the per-chunk gust term ``E alpha_g`` (chunk shortened to stay below).
 CHUNK_BYTES = 32_000_000
@@ -249,6 +249,16 @@ def _pusher(model: sp.Model):
     return push
 
 
+def _linear_blocks(model: sp.Model, h, with_damper):
+    """The :class:`simulation_linear.Blocks` of `model`, or None when no member can be
+    advanced by them (:data:`LINEAR_BLOCKS` off, an authority, a batch above
+    ``simulation_parts.MATMUL_BATCH`` runs, no member with its block inputs known)."""
+    if not LINEAR_BLOCKS or model.auth is not None or model.n_b > sp.MATMUL_BATCH:
+        return None
+    members = linear.eligible(model, h, with_damper)
+    return linear.Blocks(model, h, members) if members.any() else None
+
+
 def _block_length(model: sp.Model) -> int:
     """Steps per block: within the delay line's look-ahead, the chunk and the memory bound."""
     n = model.lin.A.shape[-1]
@@ -448,28 +458,30 @@ def integrate(model: sp.Model, signals, n_int, sub, h, n_out, with_damper=False)
         rec["z"] = np.zeros((n_out, n_b))
     run = _Run(model, h)
     block = _block_length(model)
-    blocks = None
-    if LINEAR_BLOCKS and (with_damper or (model.line is not None and model.line.all_delayed)):
-        steps = linear.steps_for(model, block)
-        if steps:
-            block = steps
-            blocks = linear.Blocks(model, h, block)
-    rested = False  # a block in which a limit acted is followed by one stepped without trying
-    taps = None if model.line is None else _Taps(model.line, block)
+    blocks = _linear_blocks(model, h, with_damper)
+    taps = None if model.line is None else _Taps(model.line, max(block, linear.STEPS))
     eps = 1e-6 * h  # left limit at the end of a step (>> EDGE_TOL)
+    outer = block if blocks is None else linear.STEPS
     for c0 in range(0, n_int + 1, sp.CHUNK):
         tk = np.arange(c0, min(c0 + sp.CHUNK, n_int + 1)) * h
         sig = (signals(tk), signals(tk + 0.5 * h), signals(tk + h - eps))
-        for b0 in range(c0, c0 + len(tk), block):
-            b1 = min(b0 + block, c0 + len(tk))
-            inp = _Inputs(model, taps, sig, c0, b0, b1)
-            _record_inputs(rec, inp, b0, b1, sub, with_damper)
-            if blocks is not None and b1 <= n_int and not rested:
-                if linear.advance(blocks, run.X.X, run.state_cols, rec, inp, b0, b1, sub):
+        for b0 in range(c0, c0 + len(tk), outer):
+            b1 = min(b0 + outer, c0 + len(tk))
+            tried = None
+            if blocks is not None and b1 <= n_int:
+                inp = _Inputs(model, taps, sig, c0, b0, b1)
+                tried = linear.attempt(blocks, run.X.X, inp, b0, b1)
+                if tried[1].all():
+                    _record_inputs(rec, inp, b0, b1, sub, with_damper)
+                    linear.write(blocks, tried[0], run.X.X, run.state_cols, rec, inp, b0, b1, sub, slice(None))
                     continue
-                rested = True
-            else:
-                rested = False
-            if not _run_block(run, rec, inp, b0, b1, n_int, sub):
-                break
+            for s0 in range(b0, b1, block):  # step by step (every member)
+                s1 = min(s0 + block, b1)
+                sinp = _Inputs(model, taps, sig, c0, s0, s1)
+                _record_inputs(rec, sinp, s0, s1, sub, with_damper)
+                if not _run_block(run, rec, sinp, s0, s1, n_int, sub):
+                    return rec
+            if tried is not None and tried[1].any():  # then the product's members
+                linear.write(blocks, tried[0], run.X.X, run.state_cols, rec, inp, b0, b1, sub,
+                             np.flatnonzero(tried[1]))
     return rec
