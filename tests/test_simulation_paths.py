@@ -243,6 +243,25 @@ def test_linear_blocks_agree_with_the_step_loop(name, loop, inp, kw, linear_bloc
     assert (linear_blocks[True] > 0) == eligible  # the blocks ran where they apply
 
 
+@pytest.mark.parametrize("name,loop,inp,kw,acting", AUTHORITY, ids=[c[0] for c in AUTHORITY])
+def test_linear_blocks_with_an_authority_agree_with_the_step_loop(name, loop, inp, kw, acting, linear_blocks):
+    # every run delayed: the damper's limited command is known before the block, so a
+    # block is linear whatever the authority does; otherwise the blocks do not run
+    step = simulate(loop, inp, **kw)
+    linear_blocks[True] = linear_blocks[False] = 0
+    fast = simulate(loop, inp, **kw)
+    for key, value in series(step).items():
+        if value.dtype == bool:
+            np.testing.assert_array_equal(getattr(fast, key), value, err_msg=key)
+        else:  # tolerance as in test_linear_blocks_agree_with_the_step_loop (common practice)
+            scale = max(np.max(np.abs(value)), 1e-300)
+            assert np.max(np.abs(getattr(fast, key) - value)) <= 1e-11 * scale, key
+    if step.damper_demand_peak is not None:
+        np.testing.assert_allclose(fast.damper_demand_peak, step.damper_demand_peak, rtol=1e-11, atol=0)
+    eligible = not any(w in name for w in ("mixed", "within the step", "no delay"))
+    assert (linear_blocks[True] > 0) == eligible
+
+
 def test_linear_blocks_match_scipy_with_an_exact_delay(linear_blocks):
     # Oracle: scipy.signal.lsim (zero-order hold) of the closed loop with an order-8 Pade
     # delay, as tests/test_response.py::test_delay_matches_high_order_pade; tolerance 1e-6

@@ -271,7 +271,7 @@ class _Inputs:
     delay). When known before the block: the damper's command ``z`` (rad, shape
     ``(count, 3, N)``), ``u_end`` (count, N) the actuator input after each step's end
     (it differs from ``u`` at ``t_k + h`` only where the damper's rate limiter starts or
-    stops slewing there) and ``arl`` (count, N) whether that rate limiter slews at each
+    stops slewing there: ``end_differs``) and ``arl`` (count, N) whether that rate limiter slews at each
     step's start (None: nowhere, or not known)."""
 
     def __init__(self, model: sp.Model, taps, sig, c0, b0, b1, damper=None, steps=0):
@@ -283,6 +283,7 @@ class _Inputs:
         self.y = None if line is None else _reads(line, b0, b1 - b0, taps)
         self.ceg = None if line is None else line.CE * self.g[:, 2]
         self.ud = self.u = self.u_end = self.z = self.arl = None
+        self.end_differs = False
         if self.y is not None and line.all_delayed:
             self.ud = model.lin.kfb * self.y
         if self.c is not None:
@@ -292,7 +293,7 @@ class _Inputs:
             self.z, self.arl, z_end = damper.block_commands(self.ud, steps)
             self.u = self.r + self.z
             if self.arl is not None and model.servo.kind == "ideal":
-                self.u_end = self.r[:, 2] + z_end
+                self.u_end, self.end_differs = self.r[:, 2] + z_end, True
         elif self.ud is not None:
             self.u = self.r + self.ud
         if self.u is not None and self.u_end is None:
@@ -487,7 +488,8 @@ def integrate(model: sp.Model, signals, n_int, sub, h, n_out, with_damper=False)
         rec["arl"] = np.zeros((n_out, n_b), bool)
     block = _block_length(model)
     blocks = None
-    if LINEAR_BLOCKS and (with_damper or (model.line is not None and model.line.all_delayed)):
+    failed = with_damper and model.auth is None  # a failed damper's command: u known
+    if LINEAR_BLOCKS and (failed or (model.line is not None and model.line.all_delayed)):
         steps = linear.steps_for(model, block)
         if steps:
             block = steps
