@@ -40,6 +40,15 @@ SLOTS = 6
 class Damper:
     """The damper's limits and its rate limiter's state during one run (N members).
 
+    Parameters
+    ----------
+    model : damper.analysis.simulation_parts.Model
+        With an authority (``model.auth``: A, rad; R_a, rad/s).
+    h : float
+        Integration step, s.
+    block : int
+        Most steps per block of the step loop.
+
     Attributes
     ----------
     moving : bool
@@ -70,7 +79,8 @@ class Damper:
         self.value = np.zeros(n_b)
         self.ramps = None
         self.peak = np.zeros(n_b)
-        self.UD = np.zeros((block, SLOTS, n_b))
+        stepped = model.line is None or not model.line.all_delayed  # demands from the state
+        self.UD = np.zeros((block, SLOTS, n_b)) if stepped else None  # the stages' demands, rad
         self.S = np.empty((4, n_b))
         self.z1 = None
 
@@ -207,7 +217,8 @@ class Damper:
 
     def record(self, rec, i, j):
         """The damper's records at record sample i (step j of the block, state-dependent)."""
-        rec["z"][i] = self.z1
+        if "z" in rec:
+            rec["z"][i] = self.z1
         rec["al"][i] = np.abs(self.UD[j, 0]) > self.a
         if self.has_rate:
             rec["arl"][i] = self.dirnz

@@ -314,7 +314,7 @@ def _record_inputs(rec, inp: _Inputs, b0, b1, sub, auth):
         rec["u"][idx] = inp.u[sel, 0]
     if inp.ud is not None:
         rec["ud"][idx] = inp.ud[sel, 0]
-    if inp.z is not None:
+    if inp.z is not None and "z" in rec:
         rec["z"][idx] = inp.z[sel, 0]
     if auth is not None and inp.ud is not None:
         rec["al"][idx] = np.abs(inp.ud[sel, 0]) > auth.limit
