@@ -3,7 +3,8 @@
 * The streamlined RK4 loop (damper.analysis.simulation_rk4) must give the records of the
   reference loop (damper.analysis.simulation_parts.integrate, the loop every earlier
   result was computed with) bit for bit: same operations, same order (Source: the
-  reference loop itself, run in the same process).
+  reference loop itself, run in the same process), with and without the damper's
+  authority and its own rate limit (simulation_authority), on the authority demo's loops too.
 * The optional linear blocks (damper.analysis.simulation_linear, off by default) agree
   with the step-by-step loop to rounding, and with scipy's linear simulation as closely
   as the step-by-step loop does.
