@@ -271,8 +271,10 @@ class _Inputs:
     delay). When known before the block: the damper's command ``z`` (rad, shape
     ``(count, 3, N)``), ``u_end`` (count, N) the actuator input after each step's end
     (it differs from ``u`` at ``t_k + h`` only where the damper's rate limiter starts or
-    stops slewing there: ``end_differs``) and ``arl`` (count, N) whether that rate limiter slews at each
-    step's start (None: nowhere, or not known)."""
+    stops slewing there: ``end_differs``) and ``arl`` (count, N) whether that rate
+    limiter slews at each step's start (None: nowhere, or not known). `damper`: the
+    run's :class:`simulation_authority.Damper` (None without an authority); `steps`: the
+    block's steps that are integrated (the record's last step is only recorded)."""
 
     def __init__(self, model: sp.Model, taps, sig, c0, b0, b1, damper=None, steps=0):
         rows = slice(b0 - c0, b1 - c0)
