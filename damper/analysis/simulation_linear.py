@@ -3,7 +3,8 @@
 Between the actuator's limits the simulated loop is linear: with the actuator input ``u``
 (rad) and the gust angle ``alpha_g`` (rad) known at the stage times of a block of steps
 (:class:`damper.analysis.simulation_rk4._Inputs`: the delayed measurement is read from the
-history, or a failed damper's command is prescribed), the classical RK4 step is an affine
+history, and with it the damper's command after its authority and own rate limit, or a
+failed damper's command is prescribed), the classical RK4 step is an affine
 map of the state, and so is a block of steps. This module builds, once per simulation,
 the matrix that gives from the state at a block's start (and the block's inputs) the
 state at each step's start, the quantities the limits act on at every stage (actuator
@@ -169,7 +170,9 @@ def advance(blocks: Blocks, X, state_cols, rec, inp, b0, b1, sub) -> bool:
         Records, shape ``(n_out, N)``; every `sub`-th step's state, surface (rad) and rate
         (rad/s) are written (the inputs' records by the caller).
     inp : damper.analysis.simulation_rk4._Inputs
-        The block's inputs (rad).
+        The block's inputs (rad): the actuator input known before the block (a failed
+        damper's command, or every run delayed; with an authority, the damper's limited
+        command is part of it).
     b0, b1, sub : int
         First step, one past the last, steps per record sample.
 
@@ -181,8 +184,8 @@ def advance(blocks: Blocks, X, state_cols, rec, inp, b0, b1, sub) -> bool:
     """
     model, nx, row, count = blocks.model, blocks.nx, blocks.row, b1 - b0
     n_b, sv = model.n_b, model.servo
-    if count > blocks.steps or inp.u is None or not np.isfinite(inp.u).all():
-        return False
+    if count > blocks.steps or inp.u is None or inp.end_differs or not np.isfinite(inp.u).all():
+        return False  # (end_differs: an ideal actuator's surface at a step's end is not u)
     v = np.empty((n_b, nx + N_IN * count, 1))
     v[:, :nx, 0] = X
     w = np.stack([inp.u[:, 0], inp.g[:, 0], inp.u[:, 1], inp.g[:, 1], inp.u[:, 2], inp.g[:, 2]], -1)
