@@ -187,7 +187,7 @@ SLOW = (
     "test_verdict.py::test_failing_",
     "test_verdict.py::test_infeasible_design_exits_3",
     # 0.4-0.9 s of CPU each (measured with --durations on a quiet machine)
-    "test_simulation_paths.py",  # both simulation loops on thirteen hostile loops, bit for bit
+    "test_simulation_paths.py",  # both simulation loops on 26 hostile loops and a demo's, bit for bit
     "test_figure_ticks.py",  # figures drawn with and without the tick and label changes
     "test_worst_case_search.py",  # worst-case searches with and without the point cache
     "test_turbulence.py::test_long_seeded_simulation_agrees_within_its_statistical_error",

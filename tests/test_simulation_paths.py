@@ -3,11 +3,12 @@
 * The streamlined RK4 loop (damper.analysis.simulation_rk4) must give the records of the
   reference loop (damper.analysis.simulation_parts.integrate, the loop every earlier
   result was computed with) bit for bit: same operations, same order (Source: the
-  reference loop itself, run in the same process).
+  reference loop itself, run in the same process), with and without the damper's
+  authority and its own rate limit (simulation_authority), on the authority demo's loops too.
 * The linear blocks (damper.analysis.simulation_linear, on by default) agree with the
   step-by-step loop to rounding, and with scipy's linear simulation as closely as the
-  step-by-step loop does; a member's results do not depend on the other members of its
-  batch (each member alone gives the same bits).
+  step-by-step loop does; a run's results do not depend on the other runs of its batch
+  (bit for bit, batches of one size).
 
 All airframe numbers are invented.
 """
@@ -91,6 +92,116 @@ def test_streamlined_loop_equals_the_reference_bit_for_bit(name, loop, inp, kw, 
     assert fast.substeps == ref.substeps
 
 
+def authority_loops():
+    """Loops with the damper's own limits (name, loop, input, keywords of simulate, which of
+    the authority limit and its rate limit must act): each actuator kind, with and without
+    delay (every member delayed: the block's commands are known before it; no delay or
+    mixed delays: they depend on the state), limits per member, a batch in which only some
+    members saturate, a failed damper (its command is not limited)."""
+    d = invented()
+    lag_delay = Hardware(actuator=Lag(0.05), washout=Washout(1.0), delay=Delay(np.asarray(0.02), 3))
+    second = Hardware(actuator=SecondOrderLag(45.0, 0.7), sensor=Lag(0.01), washout=Washout(1.5),
+                      filters=(LeadLag(0.05, 0.02),), delay=Delay(np.asarray(0.015), 3))
+    small = Input("doublet", amplitude=1 * DEG, start=0.2, half_period=0.4)
+    medium = Input("doublet", amplitude=2 * DEG, start=0.2, half_period=0.4)
+    gust = Input("gust_one_minus_cosine", gust_velocity=10.0, gust_length=60.0, start=0.1)
+    hardover = hardover_command(np.full(3, 2 * DEG), np.full(3, 0.2), np.ones(3))
+    both = dict(authority=0.5 * DEG, authority_rate_limit=3 * DEG)
+    return [
+        ("authority, lag, delay", Loop(d, lag_delay, K), DOUBLET,
+         dict(duration=1.5, rate_limit=0.3, travel=3 * DEG, authority=0.5 * DEG), (True, False)),
+        ("authority rate limit, lag, no delay", Loop(d, Hardware(actuator=Lag(0.05), washout=Washout(1.0)), K),
+         DOUBLET, dict(duration=1.5, rate_limit=0.3, authority=np.inf, authority_rate_limit=3 * DEG), (False, True)),
+        ("both, second order, filters, delay", Loop(d, second, K), DOUBLET,
+         dict(duration=1.5, rate_limit=0.3, travel=3 * DEG, **both), (True, True)),
+        ("both, second order, no delay", Loop(d, Hardware(actuator=SecondOrderLag(40.0, 0.6)), K), DOUBLET,
+         dict(duration=1.5, rate_limit=0.2, travel=2 * DEG, **both), (True, True)),
+        ("ideal, authority rate limit, delay", Loop(d, Hardware(washout=Washout(1.0), delay=Delay(np.asarray(0.0173),
+                                                                                               2)), K), small,
+         dict(duration=1.5, authority=np.inf, authority_rate_limit=10 * DEG), (False, True)),
+        ("ideal, both, mixed delays", Loop(d, Hardware(washout=Washout(1.0), delay=Delay(np.array([0.03, 0.0, 0.01]),
+                                                                                          2)), K), medium,
+         dict(duration=1.5, travel=1 * DEG, authority=0.4 * DEG, authority_rate_limit=10 * DEG), (True, True)),
+        ("ideal, both, no delay", Loop(d, Hardware(), K), DOUBLET, dict(duration=1.0, travel=3 * DEG, **both),
+         (True, True)),
+        ("lag, limits per member, mixed delays",
+         Loop(d, Hardware(actuator=Lag(0.04), delay=Delay(np.array([0.02, 0.0, 0.0173]), 3)), K), DOUBLET,
+         dict(duration=1.5, rate_limit=0.2, authority=np.array([0.3, 5.0, 0.8]) * DEG,
+              authority_rate_limit=np.array([2.0, np.inf, 5.0]) * DEG), (True, True)),
+        ("delay within the step", Loop(d, Hardware(actuator=Lag(0.04), delay=Delay(np.asarray(0.0004), 3)), K),
+         DOUBLET, dict(duration=0.6, rate_limit=0.2, **both), (True, True)),
+        ("four-state airframe", Loop(textbook_longitudinal(), lag_delay, np.array([0.0, 0.1, 0.3])), DOUBLET,
+         dict(duration=2.0, rate_limit=0.2, travel=3 * DEG, authority=0.3 * DEG, authority_rate_limit=2 * DEG),
+         (True, True)),
+        ("gust", Loop(d, lag_delay, K), gust, dict(duration=1.5, rate_limit=0.3, **both), (True, True)),
+        ("batch, some saturate", Loop(d, lag_delay, np.linspace(0.02, 0.4, 6)[:, None]), small,
+         dict(duration=1.5, rate_limit=0.3, authority=0.3 * DEG, authority_rate_limit=6 * DEG), (True, True)),
+        ("failed damper, authority given", Loop(d, lag_delay, K), NO_INPUT,
+         dict(duration=1.0, rate_limit=0.1, travel=1.5 * DEG, failed_command=hardover, **both), (False, False)),
+    ]
+
+
+AUTHORITY = authority_loops()
+
+
+def assert_same_bits(fast, ref):
+    """Every record of two histories equal (np.array_equal), bit for bit (signed zeros)."""
+    for key, value in series(ref).items():
+        assert np.array_equal(getattr(fast, key), value) and getattr(fast, key).tobytes() == value.tobytes(), key
+    if ref.damper_demand_peak is None:
+        assert fast.damper_demand_peak is None
+    else:
+        assert fast.damper_demand_peak.tobytes() == ref.damper_demand_peak.tobytes(), "damper_demand_peak"
+    assert fast.substeps == ref.substeps
+
+
+@pytest.mark.parametrize("name,loop,inp,kw,acting", AUTHORITY, ids=[c[0] for c in AUTHORITY])
+def test_streamlined_loop_with_an_authority_equals_the_reference_bit_for_bit(name, loop, inp, kw, acting,
+                                                                               monkeypatch):
+    import damper.analysis.simulation_parts as sp
+
+    monkeypatch.setattr(rk4, "LINEAR_BLOCKS", False)  # the step-by-step loop
+    reference = sp.integrate
+    monkeypatch.setattr(sp, "integrate", None)  # the streamlined loop runs every one of them
+    fast = simulate(loop, inp, **kw)
+    monkeypatch.setattr(sp, "integrate", reference)
+    monkeypatch.setattr(rk4, "supported", lambda model: False)  # the reference loop
+    ref = simulate(loop, inp, **kw)
+    assert_same_bits(fast, ref)
+    # the limits the case is about act (the comparison is not between idle limiters)
+    assert (bool(ref.authority_limited.any()), bool(ref.authority_rate_limited.any())) == acting
+    if name.startswith("batch"):  # some members saturate, others do not
+        hit = ref.authority_limited.any(-1)
+        assert hit.any() and not hit.all()
+
+
+def test_the_demo_cases_own_loops_with_an_authority_bit_for_bit(monkeypatch):
+    # the authority demo's three conditions at three gains each, its own actuator, delay,
+    # authority and damper rate limit, its two inputs and a larger doublet that saturates
+    import os
+    from dataclasses import replace
+
+    from damper.analysis.response import respond_case, resolve_responses
+    from damper.case.load import load_case
+
+    case = load_case(os.path.join(os.path.dirname(os.path.dirname(__file__)), "cases",
+                                  "light_twin_damper_authority.yaml"))
+    spec = resolve_responses(case)
+    spec = replace(spec, duration=3.0, inputs=spec.inputs + (Input("doublet", amplitude=3 * DEG, start=0.5,
+                                                                  half_period=0.5),))
+    gains = np.array([0.05, 0.15, 0.3]) * np.ones((3, 1))
+    monkeypatch.setattr(rk4, "LINEAR_BLOCKS", False)  # the step-by-step loop
+    fast = respond_case(case, gains, spec)
+    monkeypatch.setattr(rk4, "supported", lambda model: False)
+    ref = respond_case(case, gains, spec)
+    assert fast.authority is not None
+    for f, r in zip(fast.responses, ref.responses):
+        assert_same_bits(f.augmented, r.augmented)
+        assert_same_bits(f.bare, r.bare)
+    assert ref.responses[-1].augmented.authority_limited.any()
+    assert ref.responses[-1].augmented.authority_rate_limited.any()
+
+
 def test_the_delay_lines_block_reads_only_stored_samples():
     # [derived] a read at t_k + c h - T (c <= 1) uses the samples at and below
     # floor(k + c - T/h) + 1; steps k0 .. k0 + b - 1 read only samples up to k0 when
@@ -171,6 +282,24 @@ def test_a_members_results_do_not_depend_on_the_other_members(name, loop, inp, k
             other = simulate(other_loop, inp, **other_kw)
             for key, value in series(batch).items():
                 assert getattr(other, key)[1].tobytes() == value[i].tobytes(), (i, j, key)
+
+
+@pytest.mark.parametrize("name,loop,inp,kw,acting", AUTHORITY, ids=[c[0] for c in AUTHORITY])
+def test_linear_blocks_with_an_authority_agree_with_the_step_loop(name, loop, inp, kw, acting, linear_blocks):
+    # every run delayed: the damper's limited command is known before the block, so a
+    # block is linear whatever the authority does; otherwise the blocks do not run
+    step = _stepped(loop, inp, kw)
+    fast = simulate(loop, inp, **kw)
+    for key, value in series(step).items():
+        if value.dtype == bool:
+            np.testing.assert_array_equal(getattr(fast, key), value, err_msg=key)
+        else:  # tolerance as in test_linear_blocks_agree_with_the_step_loop (common practice)
+            scale = max(np.max(np.abs(value)), 1e-300)
+            assert np.max(np.abs(getattr(fast, key) - value)) <= 1e-11 * scale, key
+    if step.damper_demand_peak is not None:
+        np.testing.assert_allclose(fast.damper_demand_peak, step.damper_demand_peak, rtol=1e-11, atol=0)
+    eligible = not any(w in name for w in ("mixed", "within the step", "no delay"))
+    assert (linear_blocks[True] > 0) == eligible
 
 
 def test_linear_blocks_match_scipy_with_an_exact_delay(linear_blocks):

@@ -42,7 +42,8 @@ Method
   step is divided so that it is not.
 * The loop over time steps is :func:`damper.analysis.simulation_rk4.integrate` (the
   arithmetic of :func:`damper.analysis.simulation_parts.integrate`, bit for bit, with
-  fewer numpy calls per step); with a damper authority the latter runs.
+  fewer numpy calls per step; the damper's authority and rate limiter in
+  :mod:`damper.analysis.simulation_authority`).
 
 The gust is an angle-of-attack disturbance ``alpha_g = w_g / V`` (w_g positive upward):
 the airframe sees ``x' = A x + B delta + A[:, alpha] alpha_g`` (the ``M_alpha_dot

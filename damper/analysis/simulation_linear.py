@@ -3,7 +3,8 @@
 Between the actuator's limits the simulated loop is linear: with the actuator input ``u``
 (rad) and the gust angle ``alpha_g`` (rad) known at the stage times of a block of steps
 (:class:`damper.analysis.simulation_rk4._Inputs`: the delayed measurement is read from the
-history, or a failed damper's command is prescribed), the classical RK4 step is an affine
+history, and with it the damper's command after its authority and own rate limit, or a
+failed damper's command is prescribed), the classical RK4 step is an affine
 map of the state, and so is a block of steps. This module builds, once per simulation,
 the matrix that gives from the state at a block's start (and the block's inputs) the
 state at each step's start, the quantities the limits act on at every stage (actuator
@@ -15,9 +16,12 @@ Each member (run of the batch) is judged on its own: a member whose block inputs
 none of whose stages a limit is reached takes the product's result; the others are
 integrated step by step (:func:`damper.analysis.simulation_rk4._run_block`), exactly as
 without this module. The blocks are :data:`STEPS` long and aligned on the step grid
-whatever the batch, so a member's results depend on its own data alone (as the
-step-by-step loop's do, for batches of up to ``simulation_parts.MATMUL_BATCH`` runs; larger
-batches are stepped throughout).
+whatever the batch, so which runs share a batch does not change a run's results (for a
+batch of a given size: as in the step-by-step loop, numpy's batched products can round a
+batch of another size differently in the last bit). Batches above
+``simulation_parts.MATMUL_BATCH`` runs are stepped throughout; with a damper authority the
+blocks are used only when every run of the batch has its block inputs (its limited
+command is computed once per block for the whole batch).
 
 The product sums in another order than the step-by-step loop, so results agree with it
 to rounding (docs/responses.md gives the measured differences), not bit for bit; the
@@ -194,7 +198,9 @@ def attempt(blocks: Blocks, X, inp, b0, b1):
         State at step b0 (actuator rad, rad/s; airframe, filters and theta in their units,
         docs/theory.md); not changed.
     inp : damper.analysis.simulation_rk4._Inputs
-        The block's inputs (rad).
+        The block's inputs (rad): the actuator input is known before the block for a
+        failed damper's command, or for a delayed run (with an authority, the damper's
+        limited command is part of it).
     b0, b1 : int
         First step, one past the last.
 
@@ -215,6 +221,10 @@ def attempt(blocks: Blocks, X, inp, b0, b1):
     w = np.stack([u[:, 0], inp.g[:, 0], u[:, 1], inp.g[:, 1], u[:, 2], inp.g[:, 2]], -1)
     v[:, nx:, 0] = w.transpose(1, 0, 2).reshape(n_b, -1)
     Z = (blocks.big[:, :(count + 1) * row, :nx + N_IN * count] @ v).reshape(n_b, count + 1, row)
+    if model.servo.kind == "ideal" and getattr(inp, "end_differs", False):
+        # an ideal actuator's surface at a step's end is not u where the damper's rate
+        # limiter starts or stops slewing there: those runs are stepped
+        ok &= ~(inp.u_end != inp.u[:, 2]).any(axis=0)
     inp_u = inp if inp.u is not None else _WithInput(inp, u)
     return Z, ok & _valid(blocks, Z, inp_u, count)
 

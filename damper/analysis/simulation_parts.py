@@ -1,9 +1,9 @@
 """The parts of the time simulation: linear plant, actuator, damper limits, delay line, RK4.
 
 :func:`damper.analysis.simulation.simulate` assembles a :class:`Model` from these parts and
-calls :func:`damper.analysis.simulation_rk4.integrate`, or with a damper authority
-:func:`integrate` here (the reference loop: the streamlined one gives its records bit for
-bit). Every array is over the flattened batch (N members); the Python
+calls :func:`damper.analysis.simulation_rk4.integrate`; :func:`integrate` here is the
+reference loop (the streamlined one gives its records bit for bit, tests/
+test_simulation_paths.py). Every array is over the flattened batch (N members); the Python
 loop runs over time steps only. Definitions and the method are in the docstring of
 :mod:`damper.analysis.simulation` and in docs/responses.md.
 """

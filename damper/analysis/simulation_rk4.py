@@ -8,7 +8,8 @@ order. What changes is the number of Python-level numpy calls per step:
   and gust (per chunk of steps, as before), the gust's term ``E alpha_g`` (1/s per state),
   the delayed measurement read from the history for a block of steps (a block is at most
   as long as the shortest delay, so every sample it reads is already stored), and from it
-  the damper's demand ``u_d`` (rad) and the actuator input ``u`` (rad);
+  the damper's demand ``u_d`` (rad), its command after its own limits and the actuator
+  input ``u`` (rad);
 * the state, the stage state and the four stage derivatives live in buffers allocated
   once, updated in place (``out=``), with their views (actuator columns, plant block)
   taken once;
@@ -16,14 +17,17 @@ order. What changes is the number of Python-level numpy calls per step:
   value inside the limits returns it unchanged);
 * the records of the state are copied once per step, those of the inputs once per block.
 
-Used whenever the damper has no authority of its own (its rate limiter is sequential
-state); with an authority :func:`damper.analysis.simulation_parts.integrate` runs.
+The damper's authority and its own rate limiter (sequential state) are
+:mod:`damper.analysis.simulation_authority`'s: with every member's measurement delayed the
+commands of a block are computed before it, otherwise at each stage from the state. Every
+model runs here (:func:`supported`); the reference loop is kept for the tests.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
+from . import simulation_authority as authority
 from . import simulation_linear as linear
 from . import simulation_parts as sp
 
@@ -37,8 +41,9 @@ CHUNK_BYTES = 32_000_000
 
 
 def supported(model: sp.Model) -> bool:
-    """Whether :func:`integrate` handles `model` (no authority of the damper's own)."""
-    return model.auth is None
+    """Whether :func:`integrate` handles `model`: every model (with or without an authority
+    of the damper's own, :mod:`damper.analysis.simulation_authority`)."""
+    return True
 
 
 def _reads(line: sp.DelayLine, k0, count, weights):
@@ -249,14 +254,36 @@ def _pusher(model: sp.Model):
     return push
 
 
-def _linear_blocks(model: sp.Model, h, with_damper):
-    """The :class:`simulation_linear.Blocks` of `model`, or None when no member can be
-    advanced by them (:data:`LINEAR_BLOCKS` off, an authority, a batch above
-    ``simulation_parts.MATMUL_BATCH`` runs, no member with its block inputs known)."""
-    if not LINEAR_BLOCKS or model.auth is not None or model.n_b > sp.MATMUL_BATCH:
+def _linear_blocks(model: sp.Model, h, with_damper, block):
+    """The :class:`simulation_linear.Blocks` of `model`, or None when no run can be
+    advanced by them: :data:`LINEAR_BLOCKS` off, a batch above
+    ``simulation_parts.MATMUL_BATCH`` runs, no run with its block inputs known. With an
+    authority every run must have them (its damper's limited command, sequential state, is
+    then computed once per block for every run: :class:`simulation_authority.Damper`)."""
+    if not LINEAR_BLOCKS or model.n_b > sp.MATMUL_BATCH:
         return None
-    members = linear.eligible(model, h, with_damper)
+    members = linear.eligible(model, h, with_damper and model.auth is None)
+    if model.auth is not None and (block < linear.STEPS or not members.all()):
+        return None
     return linear.Blocks(model, h, members) if members.any() else None
+
+
+def _step_block(run: _Run, rec, inp: _Inputs, source, b0, b1, block, n_int, sub) -> bool:
+    """Steps ``b0 .. b1-1`` step by step for every run, in pieces of at most `block` steps
+    (the delay line's look-ahead); `inp` serves when the block is one piece, else each
+    piece's inputs are read from `source` ``(taps, signals, chunk start)``. False after the
+    record's last step."""
+    model, damper = run.model, run.damper
+    pieces = [(b0, b1, inp)] if b1 - b0 <= block else [
+        (s0, min(s0 + block, b1), _Inputs(model, *source, s0, min(s0 + block, b1))) for s0 in range(b0, b1, block)]
+    for s0, s1, part in pieces:  # several pieces only without an authority (_linear_blocks)
+        _record_inputs(rec, part, s0, s1, sub, model.auth)
+        more = _run_block(run, rec, part, s0, s1, n_int, sub)
+        if damper is not None:
+            damper.peak_stepped(s1 - s0)
+        if not more:
+            return False
+    return True
 
 
 def _block_length(model: sp.Model) -> int:
@@ -273,9 +300,15 @@ class _Inputs:
     ``eg = E_v g`` (shape ``(count, 3, N, n)``, 1/s), delayed measurement ``y`` (None
     without delay) and, when they do not depend on the state, damper demand ``ud`` and
     actuator input ``u`` (rad; else None); ``ceg = C E_v g`` at ``t_k + h`` (None without
-    delay)."""
+    delay). When known before the block: the damper's command ``z`` (rad, shape
+    ``(count, 3, N)``), ``u_end`` (count, N) the actuator input after each step's end
+    (it differs from ``u`` at ``t_k + h`` only where the damper's rate limiter starts or
+    stops slewing there: ``end_differs``) and ``arl`` (count, N) whether that rate
+    limiter slews at each step's start (None: nowhere, or not known). `damper`: the
+    run's :class:`simulation_authority.Damper` (None without an authority); `steps`: the
+    block's steps that are integrated (the record's last step is only recorded)."""
 
-    def __init__(self, model: sp.Model, taps, sig, c0, b0, b1):
+    def __init__(self, model: sp.Model, taps, sig, c0, b0, b1, damper=None, steps=0):
         rows = slice(b0 - c0, b1 - c0)
         self.r, self.g, self.c = (None if sig[0][i] is None else np.stack([s[i][rows] for s in sig], 1)
                                   for i in range(3))
@@ -283,17 +316,27 @@ class _Inputs:
         line = model.line
         self.y = None if line is None else _reads(line, b0, b1 - b0, taps)
         self.ceg = None if line is None else line.CE * self.g[:, 2]
-        self.ud = self.u = None
+        self.ud = self.u = self.u_end = self.z = self.arl = None
+        self.end_differs = False
         if self.y is not None and line.all_delayed:
             self.ud = model.lin.kfb * self.y
         if self.c is not None:
+            self.z = self.c
             self.u = self.r + self.c
+        elif self.ud is not None and damper is not None:
+            self.z, self.arl, z_end = damper.block_commands(self.ud, steps)
+            self.u = self.r + self.z
+            if self.arl is not None and model.servo.kind == "ideal":
+                self.u_end, self.end_differs = self.r[:, 2] + z_end, True
         elif self.ud is not None:
             self.u = self.r + self.ud
+        if self.u is not None and self.u_end is None:
+            self.u_end = self.u[:, 2]
 
 
-def _record_inputs(rec, inp: _Inputs, b0, b1, sub, with_damper):
-    """The records of the inputs known before the block (every `sub`-th step)."""
+def _record_inputs(rec, inp: _Inputs, b0, b1, sub, auth):
+    """The records of the inputs known before the block (every `sub`-th step; `auth` the
+    damper's :class:`simulation_parts.Authority` or None)."""
     ks = np.arange(b0, b1)
     sel = ks % sub == 0
     if not sel.any():
@@ -305,19 +348,23 @@ def _record_inputs(rec, inp: _Inputs, b0, b1, sub, with_damper):
         rec["u"][idx] = inp.u[sel, 0]
     if inp.ud is not None:
         rec["ud"][idx] = inp.ud[sel, 0]
-    if with_damper:
-        rec["z"][idx] = inp.c[sel, 0]
+    if inp.z is not None and "z" in rec:
+        rec["z"][idx] = inp.z[sel, 0]
+    if auth is not None and inp.ud is not None:
+        rec["al"][idx] = np.abs(inp.ud[sel, 0]) > auth.limit
+    if inp.arl is not None:
+        rec["arl"][idx] = inp.arl[sel]
 
 
 def _feeder(model: sp.Model):
-    """``f(src, inp, j, s)``: the damper demand ``u_d`` and actuator input ``u`` (rad) of
+    """``f(src, inp, j, s, slot)``: the damper demand ``u_d`` and actuator input ``u`` (rad) of
     step j of a block at stage time s (0, 1, 2) from the state's measurement, as
     :func:`simulation_parts.measured` and :func:`simulation_parts.damper_command` (no
     authority); ``u`` is None when it is known before the step."""
     Cv, kfb, einsum, where = model.lin.Cv, model.lin.kfb, np.einsum, np.where
     line = model.line
 
-    def feed(src, inp, j, s):
+    def feed(src, inp, j, s, slot):  # slot (the stage, 0-3) for an authority's feed
         y = einsum("ni,ni->n", Cv, src.xp)
         if line is not None:
             y = where(line.delayed, inp.y[j, s], y)
@@ -329,7 +376,7 @@ def _feeder(model: sp.Model):
     return feed
 
 
-def _surface_at_end(model: sp.Model, inp: _Inputs, j):
+def _surface_at_end(model: sp.Model, inp: _Inputs, j, damper=None):
     """The surface an ideal actuator gives at the step's end (rad): its input clipped to
     the travel (:func:`simulation_parts._push`), or a function of the new measurement."""
     sv = model.servo
@@ -338,7 +385,9 @@ def _surface_at_end(model: sp.Model, inp: _Inputs, j):
         return np.minimum(np.maximum(u, -sv.trav), sv.trav) if sv.has_trav else u
 
     if inp.u is not None:
-        return clip(inp.u[j, 2])
+        return clip(inp.u_end[j])
+    if damper is not None:
+        return damper.end_surface(inp, j)
     lin, delayed = model.lin, model.line.delayed
 
     def from_measurement(yk):
@@ -350,9 +399,11 @@ def _surface_at_end(model: sp.Model, inp: _Inputs, j):
 
 class _Run:
     """The buffers of one simulation: state ``X``, stage state ``XS``, stage derivatives
-    ``K`` (each a :class:`_Views`), a scratch array and the stage, feed and push functions."""
+    ``K`` (each a :class:`_Views`), a scratch array and the stage, feed and push functions;
+    with an authority whose demand depends on the state, its feed, the rate limiter's
+    update after each step (None without a rate limit) and its records."""
 
-    def __init__(self, model: sp.Model, h):
+    def __init__(self, model: sp.Model, h, damper=None):
         n_b, na = model.n_b, model.servo.na
         nx = na + model.lin.A.shape[-1]
         self.model, self.h = model, h
@@ -362,6 +413,10 @@ class _Run:
         self.T = np.empty((n_b, nx))
         self.stage = {"lag": _lag_stage, "second": _second_stage}.get(model.servo.kind, _other_stage)(model)
         self.feed = _feeder(model)
+        self.damper = self.after = self.damper_record = None
+        if damper is not None and not (model.line is not None and model.line.all_delayed):
+            self.damper, self.feed, self.damper_record = damper, damper.feeder(), damper.record
+            self.after = damper.after_step if damper.has_rate else None
         self.push = None if model.line is None else _pusher(model)
         lay = model.lin.layout
         cols = {"alpha": na + lay.alpha, "q": na + lay.q, "theta": nx - 1}
@@ -380,11 +435,12 @@ def _run_block(run: _Run, rec, inp: _Inputs, b0, b1, n_int, sub):
     half, sixth = 0.5 * h, h / 6.0
     add, mul = np.add, np.multiply
     known, state_records, ideal = inp.u is not None, run.state_records, model.servo.kind == "ideal"
+    after, damper_record = run.after, run.damper_record
     U, EG = inp.u, inp.eg
     for k in range(b0, b1):
         j = k - b0
         recording = k % sub == 0
-        u, ud = (U[j, 0], None) if known else feed(X, inp, j, 0)
+        u, ud = (U[j, 0], None) if known else feed(X, inp, j, 0, 0)
         dlt, rate, flags = stage(X, K1, u, EG[j, 0], recording)
         if recording:
             i = k // sub
@@ -397,18 +453,20 @@ def _run_block(run: _Run, rec, inp: _Inputs, b0, b1, n_int, sub):
             if not known:
                 rec["u"][i] = u
             if inp.ud is None:
-                rec["ud"][i] = ud if ud is not None else feed(X, inp, j, 0)[1]
+                rec["ud"][i] = ud if ud is not None else feed(X, inp, j, 0, 0)[1]
+            if damper_record is not None:
+                damper_record(rec, i, j)
         if k == n_int:
             return False
         mul(K1.X, half, out=T)
         add(X.X, T, out=XS.X)
-        stage(XS, K2, U[j, 1] if known else feed(XS, inp, j, 1)[0], EG[j, 1], False)
+        stage(XS, K2, U[j, 1] if known else feed(XS, inp, j, 1, 1)[0], EG[j, 1], False)
         mul(K2.X, half, out=T)
         add(X.X, T, out=XS.X)
-        stage(XS, K3, U[j, 1] if known else feed(XS, inp, j, 1)[0], EG[j, 1], False)
+        stage(XS, K3, U[j, 1] if known else feed(XS, inp, j, 1, 2)[0], EG[j, 1], False)
         mul(K3.X, h, out=T)
         add(X.X, T, out=XS.X)
-        stage(XS, K4, U[j, 2] if known else feed(XS, inp, j, 2)[0], EG[j, 2], False)
+        stage(XS, K4, U[j, 2] if known else feed(XS, inp, j, 2, 3)[0], EG[j, 2], False)
         add(K2.X, K3.X, out=T)
         mul(T, 2.0, out=T)
         add(K1.X, T, out=T)
@@ -416,8 +474,10 @@ def _run_block(run: _Run, rec, inp: _Inputs, b0, b1, n_int, sub):
         mul(T, sixth, out=T)
         add(X.X, T, out=X.X)
         _project(model, X)
+        if after is not None:
+            after(j, X, inp)
         if push is not None:
-            push(k, X, _surface_at_end(model, inp, j) if ideal else X.x0, inp.ceg[j])
+            push(k, X, _surface_at_end(model, inp, j, run.damper) if ideal else X.x0, inp.ceg[j])
     return True
 
 
@@ -427,7 +487,7 @@ def integrate(model: sp.Model, signals, n_int, sub, h, n_out, with_damper=False)
     Parameters
     ----------
     model : Model
-        Without an authority (:func:`supported`); N members.
+        N members, with or without an authority of the damper's own.
     signals : callable
         ``signals(t)`` for times t (s, shape (m,)): pilot command at the actuator input
         (rad), gust angle (rad) and a failed damper's command (rad) or None, each of shape
@@ -441,13 +501,14 @@ def integrate(model: sp.Model, signals, n_int, sub, h, n_out, with_damper=False)
     n_out : int
         Record samples.
     with_damper : bool
-        Record the damper command ``z`` (a failed damper).
+        Record the damper command ``z`` (an authority or a failed damper).
 
     Returns
     -------
     dict of ndarray
         The records of :func:`damper.analysis.simulation_parts.integrate`, bit for bit
-        (with :data:`LINEAR_BLOCKS` to rounding), time-major, shape ``(n_out, N)``.
+        (with :data:`LINEAR_BLOCKS` to rounding), time-major, shape ``(n_out, N)``; with
+        an authority also ``ud_peak`` (N,): the largest |damper demand|, rad.
     """
     n_b = model.n_b
     rec = {k: np.zeros((n_out, n_b)) for k in sp.RECORDS}
@@ -456,9 +517,13 @@ def integrate(model: sp.Model, signals, n_int, sub, h, n_out, with_damper=False)
         rec["speed"] = np.zeros((n_out, n_b))
     if with_damper:
         rec["z"] = np.zeros((n_out, n_b))
-    run = _Run(model, h)
+    if model.auth is not None:
+        rec["al"] = np.zeros((n_out, n_b), bool)
+        rec["arl"] = np.zeros((n_out, n_b), bool)
     block = _block_length(model)
-    blocks = _linear_blocks(model, h, with_damper)
+    blocks = _linear_blocks(model, h, with_damper, block)
+    damper = None if model.auth is None else authority.Damper(model, h, block)
+    run = _Run(model, h, damper)
     taps = None if model.line is None else _Taps(model.line, max(block, linear.STEPS))
     eps = 1e-6 * h  # left limit at the end of a step (>> EDGE_TOL)
     outer = block if blocks is None else linear.STEPS
@@ -467,21 +532,21 @@ def integrate(model: sp.Model, signals, n_int, sub, h, n_out, with_damper=False)
         sig = (signals(tk), signals(tk + 0.5 * h), signals(tk + h - eps))
         for b0 in range(c0, c0 + len(tk), outer):
             b1 = min(b0 + outer, c0 + len(tk))
+            inp = _Inputs(model, taps, sig, c0, b0, b1, damper, min(b1, n_int) - b0)
             tried = None
             if blocks is not None and b1 <= n_int:
-                inp = _Inputs(model, taps, sig, c0, b0, b1)
                 tried = linear.attempt(blocks, run.X.X, inp, b0, b1)
                 if tried[1].all():
-                    _record_inputs(rec, inp, b0, b1, sub, with_damper)
+                    _record_inputs(rec, inp, b0, b1, sub, model.auth)
                     linear.write(blocks, tried[0], run.X.X, run.state_cols, rec, inp, b0, b1, sub, slice(None))
                     continue
-            for s0 in range(b0, b1, block):  # step by step (every member)
-                s1 = min(s0 + block, b1)
-                sinp = _Inputs(model, taps, sig, c0, s0, s1)
-                _record_inputs(rec, sinp, s0, s1, sub, with_damper)
-                if not _run_block(run, rec, sinp, s0, s1, n_int, sub):
-                    return rec
-            if tried is not None and tried[1].any():  # then the product's members
+            if not _step_block(run, rec, inp, (taps, sig, c0), b0, b1, block, n_int, sub):
+                if damper is not None:
+                    rec["ud_peak"] = damper.peak
+                return rec
+            if tried is not None and tried[1].any():  # then the product's runs
                 linear.write(blocks, tried[0], run.X.X, run.state_cols, rec, inp, b0, b1, sub,
                              np.flatnonzero(tried[1]))
+    if damper is not None:
+        rec["ud_peak"] = damper.peak
     return rec
