@@ -143,7 +143,9 @@ class DelayLine:
     Row = slot of ``width = 2 N`` values ``[y (N), y' (N)]``; ``taps[c]`` are the flat
     indices and cubic Hermite weights reading at ``t_k + c h - T`` (c = 0, 0.5, 1).
     ``block``: the number of consecutive steps whose reads use only samples stored
-    before the first of them starts (1 when a delay is within rounding of the step).
+    before the first of them starts (1 when a delay is within rounding of the step);
+    ``ahead``: the same count for each member alone, shape (N,) (``block`` is its least
+    value over the delayed members).
     """
 
     buf: np.ndarray
@@ -156,6 +158,7 @@ class DelayLine:
     CB: np.ndarray
     CE: np.ndarray
     block: int = 1
+    ahead: np.ndarray | None = None
 
 
 def delay_line(tdel, h, lin: Linear) -> DelayLine | None:
@@ -168,7 +171,7 @@ def delay_line(tdel, h, lin: Linear) -> DelayLine | None:
     length = int(np.ceil(float(tdel.max()) / h)) + 4
     width = 2 * n_b
     lag_steps = np.where(delayed, tdel / h, 1.0)
-    taps, newest = {}, -length
+    taps, newest, last = {}, -length, np.full(n_b, -length, dtype=np.int64)
     for c in (0.0, 0.5, 1.0):
         # read at t_k + c h - T = t_(k+j) + s h with j <= -1 (stored samples only)
         p = c - lag_steps
@@ -178,6 +181,7 @@ def delay_line(tdel, h, lin: Linear) -> DelayLine | None:
         j = np.where(late, -1.0, j).astype(np.int64)
         s = np.where(late, 1.0, s)
         newest = max(newest, int(j[delayed].max()) + 1)  # undelayed members read nothing
+        last = np.maximum(last, j)
         s2, s3 = s * s, s * s * s
         weights = np.stack([2 * s3 - 3 * s2 + 1, (s3 - 2 * s2 + s) * h, 3 * s2 - 2 * s3, (s3 - s2) * h])
         base = np.concatenate([j * width + rows, j * width + n_b + rows, (j + 1) * width + rows,
@@ -185,7 +189,8 @@ def delay_line(tdel, h, lin: Linear) -> DelayLine | None:
         taps[c] = (base % (length * width), weights)
     CA = np.einsum("ni,nij->nj", lin.Cv, lin.A)
     return DelayLine(np.zeros(length * width), taps, width, length, delayed, bool(delayed.all()),
-                     CA, np.sum(lin.Cv * lin.Bv, -1), np.sum(lin.Cv * lin.Ev, -1), 1 - newest)
+                     CA, np.sum(lin.Cv * lin.Bv, -1), np.sum(lin.Cv * lin.Ev, -1), 1 - newest,
+                     np.where(delayed, -last, 0))
 
 
 def read(line: DelayLine, k, c):

@@ -34,7 +34,7 @@ from . import simulation_parts as sp
 #: Advance blocks of steps in which no limit acts by one matrix product
 #: (:mod:`damper.analysis.simulation_linear`): faster, but the results differ from the
 #: step-by-step loop in the last bits, so off (docs/performance.md).
-LINEAR_BLOCKS = False
+LINEAR_BLOCKS = True
 
 #: Bytes of the per-chunk gust term ``E alpha_g`` (chunk shortened to stay below).
 CHUNK_BYTES = 32_000_000
@@ -252,6 +252,38 @@ def _pusher(model: sp.Model):
         add(dy, ceg, out=dy)
 
     return push
+
+
+def _linear_blocks(model: sp.Model, h, with_damper, block):
+    """The :class:`simulation_linear.Blocks` of `model`, or None when no run can be
+    advanced by them: :data:`LINEAR_BLOCKS` off, a batch above
+    ``simulation_parts.MATMUL_BATCH`` runs, no run with its block inputs known. With an
+    authority every run must have them (its damper's limited command, sequential state, is
+    then computed once per block for every run: :class:`simulation_authority.Damper`)."""
+    if not LINEAR_BLOCKS or model.n_b > sp.MATMUL_BATCH:
+        return None
+    members = linear.eligible(model, h, with_damper and model.auth is None)
+    if model.auth is not None and (block < linear.STEPS or not members.all()):
+        return None
+    return linear.Blocks(model, h, members) if members.any() else None
+
+
+def _step_block(run: _Run, rec, inp: _Inputs, source, b0, b1, block, n_int, sub) -> bool:
+    """Steps ``b0 .. b1-1`` step by step for every run, in pieces of at most `block` steps
+    (the delay line's look-ahead); `inp` serves when the block is one piece, else each
+    piece's inputs are read from `source` ``(taps, signals, chunk start)``. False after the
+    record's last step."""
+    model, damper = run.model, run.damper
+    pieces = [(b0, b1, inp)] if b1 - b0 <= block else [
+        (s0, min(s0 + block, b1), _Inputs(model, *source, s0, min(s0 + block, b1))) for s0 in range(b0, b1, block)]
+    for s0, s1, part in pieces:  # several pieces only without an authority (_linear_blocks)
+        _record_inputs(rec, part, s0, s1, sub, model.auth)
+        more = _run_block(run, rec, part, s0, s1, n_int, sub)
+        if damper is not None:
+            damper.peak_stepped(s1 - s0)
+        if not more:
+            return False
+    return True
 
 
 def _block_length(model: sp.Model) -> int:
@@ -489,36 +521,32 @@ def integrate(model: sp.Model, signals, n_int, sub, h, n_out, with_damper=False)
         rec["al"] = np.zeros((n_out, n_b), bool)
         rec["arl"] = np.zeros((n_out, n_b), bool)
     block = _block_length(model)
-    blocks = None
-    failed = with_damper and model.auth is None  # a failed damper's command: u known
-    if LINEAR_BLOCKS and (failed or (model.line is not None and model.line.all_delayed)):
-        steps = linear.steps_for(model, block)
-        if steps:
-            block = steps
-            blocks = linear.Blocks(model, h, block)
+    blocks = _linear_blocks(model, h, with_damper, block)
     damper = None if model.auth is None else authority.Damper(model, h, block)
     run = _Run(model, h, damper)
-    rested = False  # a block in which a limit acted is followed by one stepped without trying
-    taps = None if model.line is None else _Taps(model.line, block)
+    taps = None if model.line is None else _Taps(model.line, max(block, linear.STEPS))
     eps = 1e-6 * h  # left limit at the end of a step (>> EDGE_TOL)
+    outer = block if blocks is None else linear.STEPS
     for c0 in range(0, n_int + 1, sp.CHUNK):
         tk = np.arange(c0, min(c0 + sp.CHUNK, n_int + 1)) * h
         sig = (signals(tk), signals(tk + 0.5 * h), signals(tk + h - eps))
-        for b0 in range(c0, c0 + len(tk), block):
-            b1 = min(b0 + block, c0 + len(tk))
+        for b0 in range(c0, c0 + len(tk), outer):
+            b1 = min(b0 + outer, c0 + len(tk))
             inp = _Inputs(model, taps, sig, c0, b0, b1, damper, min(b1, n_int) - b0)
-            _record_inputs(rec, inp, b0, b1, sub, model.auth)
-            if blocks is not None and b1 <= n_int and not rested:
-                if linear.advance(blocks, run.X.X, run.state_cols, rec, inp, b0, b1, sub):
+            tried = None
+            if blocks is not None and b1 <= n_int:
+                tried = linear.attempt(blocks, run.X.X, inp, b0, b1)
+                if tried[1].all():
+                    _record_inputs(rec, inp, b0, b1, sub, model.auth)
+                    linear.write(blocks, tried[0], run.X.X, run.state_cols, rec, inp, b0, b1, sub, slice(None))
                     continue
-                rested = True
-            else:
-                rested = False
-            more = _run_block(run, rec, inp, b0, b1, n_int, sub)
-            if run.damper is not None:
-                damper.peak_stepped(b1 - b0)
-            if not more:
-                break
+            if not _step_block(run, rec, inp, (taps, sig, c0), b0, b1, block, n_int, sub):
+                if damper is not None:
+                    rec["ud_peak"] = damper.peak
+                return rec
+            if tried is not None and tried[1].any():  # then the product's runs
+                linear.write(blocks, tried[0], run.X.X, run.state_cols, rec, inp, b0, b1, sub,
+                             np.flatnonzero(tried[1]))
     if damper is not None:
         rec["ud_peak"] = damper.peak
     return rec
