@@ -95,6 +95,10 @@ def test_design_writes_a_report_with_every_section_and_condition(demo_run, capsy
     for c in doc["conditions"]:
         assert f"K = {c['chosen_gain_s']:.4g} s" in text
     assert "limited above by" in text and "short-period damping ratio" in text
+    # the equivalent system's gain K is shown with the value and unit its JSON key carries:
+    # q (rad/s) per rad over (s + 1/T_theta2) / (s^2 + ...) makes K 1/s^2 ([derived])
+    eq = doc["conditions"][0]["measures"]["closed_loop"]["equivalent"]
+    assert f"gain Kq (1/s\u00b2) {eq['gain_1_s2']:.4g}" in text
     assert text.count("slack") >= 7 and "\u2714 met" in text
     # every plot inlined
     assert html.count('src="data:image/') == 4 * len(DEMO_CONDITIONS)  # 3 design plots + 1 response
