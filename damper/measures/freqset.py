@@ -129,7 +129,10 @@ class Intervals:
     m_hi: np.ndarray
 
     def select(self, keep) -> "Intervals":
-        return Intervals(*(getattr(self, n)[keep] for n in _FIELDS))
+        """The intervals where ``keep`` (bool) holds, or at ``keep`` (integer indices), in that order."""
+        keep = np.asarray(keep)
+        idx = np.flatnonzero(keep) if keep.dtype == bool else keep
+        return Intervals(*(getattr(self, n).take(idx) for n in _FIELDS))
 
     def renumbered(self, kept) -> "Intervals":
         """The same intervals with ``row`` counted among the loops where ``kept`` (bool) holds."""
