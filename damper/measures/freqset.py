@@ -280,8 +280,29 @@ def bounded_intervals(fl: FactoredLoop, coarse) -> Intervals:
         if not np.any(bad):
             break
         parts = np.where(bad, np.minimum(np.ceil(wig / PHASE_STEP), 64), 1).astype(int)
-        iv = _merge(iv.select(~bad), split(fl, iv.select(bad), parts[bad]))
+        iv = _replaced(iv, bad, parts, split(fl, iv.select(bad), parts[bad]))
     return iv
+
+
+def _replaced(iv: Intervals, bad, parts, pieces: Intervals) -> Intervals:
+    """``_merge(iv.select(~bad), pieces)``, where ``pieces`` holds ``parts[k]`` pieces of each
+    interval ``k`` where ``bad`` holds, in order: each such interval is replaced by its
+    pieces in place (no sort). That is the merge's order whenever the result is strictly
+    ascending by loop, then frequency (a unique order); otherwise the merge itself is done.
+    """
+    count = np.where(bad, parts, 1)
+    first = np.cumsum(count) - count  # position of each interval's first piece
+    source = np.empty(int(count.sum()), dtype=np.intp)
+    n_kept = int(np.count_nonzero(~bad))
+    source[first[~bad]] = np.arange(n_kept)
+    nb = count[bad]
+    start = np.repeat(first[bad] - (np.cumsum(nb) - nb), nb)  # position minus the piece's own index
+    source[start + np.arange(nb.sum())] = n_kept + np.arange(nb.sum())
+    out = concat([iv.select(~bad), pieces]).select(source)
+    r, wa = out.row, out.wa
+    if np.all((r[1:] > r[:-1]) | ((r[1:] == r[:-1]) & (wa[1:] > wa[:-1]))):
+        return out
+    return _merge(iv.select(~bad), pieces)
 
 
 def concat(parts) -> Intervals:
