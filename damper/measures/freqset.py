@@ -256,15 +256,24 @@ def base_intervals(fl: FactoredLoop, coarse) -> Intervals:
     return intervals_between(fl, np.arange(n), np.where(np.isfinite(w), w, 1.0), keep)
 
 
-def split(fl: FactoredLoop, iv: Intervals, parts) -> Intervals:
-    """Split interval ``k`` into ``parts[k]`` (>= 1) geometric pieces, in order."""
+def split(fl: FactoredLoop, iv: Intervals, parts, where=None) -> Intervals:
+    """Split interval ``k`` into ``parts[k]`` (>= 1) geometric pieces, in order.
+
+    With ``where`` (bool, one per interval of ``iv``), only the intervals where it holds are
+    split (``parts`` then has one entry per such interval): ``split(fl, iv.select(where),
+    parts)`` without gathering the fields the pieces do not use.
+    """
+    row, wa, wb = iv.row, iv.wa, iv.wb
+    if where is not None:
+        idx = np.flatnonzero(where)
+        row, wa, wb = row.take(idx), wa.take(idx), wb.take(idx)
     parts = np.asarray(parts, dtype=int)
     p_max = int(parts.max()) if parts.size else 1
     j = np.arange(p_max + 1)[:, None]  # (p_max + 1, 1): cut number
-    w = iv.wa * (iv.wb / iv.wa) ** np.minimum(j / parts, 1.0)
-    w = np.where(j >= parts, iv.wb, w)
-    w[0] = iv.wa
-    return intervals_between(fl, iv.row, w, j[:-1] < parts)
+    w = wa * (wb / wa) ** np.minimum(j / parts, 1.0)
+    w = np.where(j >= parts, wb, w)
+    w[0] = wa
+    return intervals_between(fl, row, w, j[:-1] < parts)
 
 
 def bounded_intervals(fl: FactoredLoop, coarse) -> Intervals:
@@ -280,7 +289,7 @@ def bounded_intervals(fl: FactoredLoop, coarse) -> Intervals:
         if not np.any(bad):
             break
         parts = np.where(bad, np.minimum(np.ceil(wig / PHASE_STEP), 64), 1).astype(int)
-        iv = _replaced(iv, bad, parts, split(fl, iv.select(bad), parts[bad]))
+        iv = _replaced(iv, bad, parts, split(fl, iv, parts[bad], where=bad))
     return iv
 
 

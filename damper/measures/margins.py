@@ -268,7 +268,7 @@ def _window_brackets(fl, row, lo, hi, level):
         tangent.append((iv.select(reach & ~go), lev[reach & ~go]))
         if not np.any(go):
             break
-        iv, lev = split(fl, iv.select(go), np.full(int(go.sum()), 2)), np.repeat(lev[go], 2)
+        iv, lev = split(fl, iv, np.full(int(go.sum()), 2), where=go), np.repeat(lev[go], 2)
     iv = concat([t[0] for t in tangent])
     lev = np.concatenate([t[1] for t in tangent])
     toward = np.where(iv.pa - lev >= 0, -1.0, 1.0)
@@ -418,7 +418,7 @@ def disk_peak(fl: FactoredLoop, iv: Intervals) -> np.ndarray:
         open_ &= ~tiny
         if not np.any(open_):
             break
-        iv = split(fl, iv.select(open_), np.full(int(open_.sum()), 4))
+        iv = split(fl, iv, np.full(int(open_.sum()), 4), where=open_)
         _keep_best(best, best_w, best_h, iv.row, disk_ratio(iv.lb, iv.pb), iv.wb, iv.wb / iv.wa)
     rows = np.nonzero((best_w > 0) & np.isfinite(best))[0]
     half = np.log(np.minimum(best_h[rows], 1e6))  # a cell each side of the best sample
