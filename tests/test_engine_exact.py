@@ -141,3 +141,27 @@ def test_split_intervals_in_place_equal_the_sorted_merge():
     same = placed.row[1:] == placed.row[:-1]
     assert np.all(placed.wa[1:][same] >= placed.wa[:-1][same])
     assert np.any(same & (placed.wa[1:] == placed.wa[:-1]))
+
+
+def test_disk_ratio_is_its_two_branch_formula_bit_for_bit():
+    from damper.measures.margins import disk_ratio
+
+    rng = np.random.default_rng(4)
+    logmag = np.concatenate([rng.normal(0, 3, 5000), [0.0, 800.0, -800.0, np.inf, -np.inf, np.nan]])
+    phase = np.concatenate([rng.uniform(-10, 10, 5000), [np.pi, 1.0, 2.0, 0.5, 0.5, 0.5]])
+    # Source: |S - T|^2 = |1 - L|^2 / |1 + L|^2 with |1 -+ L|^2 = 1 -+ 2|L|cos(arg L) + |L|^2,
+    # divided by |L|^2 where |L| > 1 (the docstring's formula, written out in its order)
+    inv = np.exp(-np.abs(np.clip(logmag, -700.0, 700.0)))
+    two_c = 2.0 * np.cos(phase) * inv
+    sq = inv * inv
+    big = logmag > 0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        num = np.where(big, sq - two_c + 1.0, 1.0 - two_c + sq)
+        den = np.where(big, sq + two_c + 1.0, 1.0 + two_c + sq)
+        ref = np.sqrt(np.maximum(num, 0.0) / den)
+    ref = np.where(np.isfinite(ref), ref, np.inf)
+    assert np.array_equal(disk_ratio(logmag, phase), ref)
+    lm, ph = logmag[:100], phase[:100]
+    with np.errstate(over="ignore"):
+        L = np.exp(lm + 1j * ph)
+        np.testing.assert_allclose(disk_ratio(lm, ph), np.abs(1 - L) / np.abs(1 + L), rtol=1e-9)

@@ -338,9 +338,13 @@ def disk_ratio(logmag, phase):
     inv = np.exp(-np.abs(np.clip(logmag, -700.0, 700.0)))  # |L| or 1/|L|, both <= 1
     two_c = 2.0 * np.cos(phase) * inv
     sq = inv * inv
+    # (first - 2c) + last and (first + 2c) + last: first |L|^-2 scaled square, or 1
+    first, last = np.where(big, sq, 1.0), np.where(big, 1.0, sq)
     with np.errstate(divide="ignore", invalid="ignore"):
-        num = np.where(big, sq - two_c + 1.0, 1.0 - two_c + sq)
-        den = np.where(big, sq + two_c + 1.0, 1.0 + two_c + sq)
+        num = first - two_c
+        num += last
+        den = first + two_c
+        den += last
         ratio = np.sqrt(np.maximum(num, 0.0) / den)
     return np.where(np.isfinite(ratio), ratio, np.inf)
 
