@@ -1,12 +1,13 @@
 """The C heap of a process that evaluates a robustness study's blocks.
 
 A block's assessment makes and frees arrays of megabytes many times over (the margins'
-intervals, the fit's iterations). With glibc's default settings the heap's top is given
-back to the system after each large free and taken again at the next allocation, so every
-block pays page faults on memory it has just released: about a tenth of a study's CPU, as
-system time. Keeping :data:`HEAP_PAD` bytes at the heap's top (glibc's ``M_TOP_PAD``)
-lets the next arrays reuse those pages. Nothing computed changes (the same operations on
-the same values); the process keeps up to that much more memory.
+intervals, the fit's iterations). With glibc's default settings such arrays are mapped
+from the system and given back when freed (or the heap's top is trimmed), so every block
+pays page faults on memory it has just released: about a tenth of a study's CPU, as
+system time. Keeping :data:`HEAP_PAD` bytes at the heap's top when it grows and when it is
+trimmed (glibc's ``M_TOP_PAD``) lets the next arrays be carved from those pages again.
+Nothing computed changes (the same operations on the same values); the process keeps up
+to that much more memory.
 
 Set once per process, from the first block it evaluates (worker processes included), on
 Linux with glibc; elsewhere, or with :data:`HEAP_PAD` 0, the allocator is left alone.
