@@ -490,7 +490,7 @@ def _margins_flat(fl: FactoredLoop, coarse, stable):
     live = (fl.gain != 0) & np.isfinite(fl.gain)
     ok = live if stable is None else live & stable  # an unstable closed loop has no margins
     sub = np.nonzero(live)[0]
-    part = fl.take(sub)
+    part = fl if sub.size == n else fl.take(sub)  # every loop live (the usual case): no copy
     peak = np.full(n, np.nan)
     if sub.size:
         gc = gain_crossings(part)
@@ -498,7 +498,10 @@ def _margins_flat(fl: FactoredLoop, coarse, stable):
         pc = phase_crossings(part, iv, coarse[0], coarse[-1])
         keep = ok[sub]
         if np.any(keep):
-            peak[sub[keep]] = disk_peak(part.take(np.nonzero(keep)[0]), iv.select(keep[iv.row]).renumbered(keep))
+            if np.all(keep):  # every loop (the usual case): the same loops and intervals, nothing gathered
+                peak[sub] = disk_peak(part, iv)
+            else:
+                peak[sub[keep]] = disk_peak(part.take(np.nonzero(keep)[0]), iv.select(keep[iv.row]).renumbered(keep))
     else:
         gc = pc = Crossings(np.zeros(0, int), np.zeros(0), np.zeros(0))
     g_row, g_w, pm = sub[gc.row], gc.w, gc.value
