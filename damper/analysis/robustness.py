@@ -48,6 +48,7 @@ import numpy as np
 from ..requirements.criteria import Criterion, measure_values
 from .assess import assess_loop
 from .runners import Study, in_order, runner
+from .robustness_heap import keep_heap
 from .robustness_result import ConditionRobustness, RobustnessResult, WorstCase
 from .sample_stats import SLACK_EDGES, SampleSummary, average_ranks, clopper_pearson, spearman
 from .uncertainty import (
@@ -112,6 +113,7 @@ def evaluate_points(case, axes: Axes, gains, cidx, u) -> dict:
 
 def _points_task(study, cidx, u):
     """Task: :func:`evaluate_points` of flat points of `study`."""
+    keep_heap()
     return evaluate_points(study.case, study.axes, study.gains, cidx, u)
 
 
@@ -139,6 +141,7 @@ def _block_task(study, start, count, offset, limit, keep, rows=None):
     start + count - 1``, regenerated from the seed. `offset` is added to the indices
     (corners come after the samples); the first `limit` points are the subsample.
     """
+    keep_heap()
     n = len(study.case.conditions)
     u = sample_rows(study.axes, study.spec.seed, start, count) if rows is None else rows
     res = evaluate_points(study.case, study.axes, study.gains, np.arange(n)[:, None], u[None, :, :])
@@ -349,6 +352,7 @@ def robustness(case, gains, spec: UncertaintySpec | None = None, *, progress=Non
     g = np.full(n, float(g)) if g.ndim == 0 else g.reshape(n)
     axes = resolve_axes(case, spec, g)
     crit = tuple(case.requirements.criteria)
+    keep_heap()
     nominal = evaluate_points(case, axes, g, np.arange(n), None)
     run = _runner(Study(case, axes, g, spec), workers, processes, cluster)
     finished = False

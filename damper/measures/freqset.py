@@ -29,7 +29,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..model.rational import FactoredLoop, factor_values, gain_phase, log_gain
+from ..model.rational import FactoredLoop, gain_phase, log_gain
 
 #: Largest wiggle of the phase allowed within an interval, rad (10 deg): where both the
 #: rise and the fall exceed it, the interval is split.
@@ -129,7 +129,10 @@ class Intervals:
     m_hi: np.ndarray
 
     def select(self, keep) -> "Intervals":
-        return Intervals(*(getattr(self, n)[keep] for n in _FIELDS))
+        """The intervals where ``keep`` (bool) holds, or at ``keep`` (integer indices), in that order."""
+        keep = np.asarray(keep)
+        idx = np.flatnonzero(keep) if keep.dtype == bool else keep
+        return Intervals(*(getattr(self, n).take(idx) for n in _FIELDS))
 
     def renumbered(self, kept) -> "Intervals":
         """The same intervals with ``row`` counted among the loops where ``kept`` (bool) holds."""
@@ -152,6 +155,45 @@ class Intervals:
         return np.minimum(self.th_hi - theta_a, theta_a - self.th_lo + (self.wb - self.wa) * t)
 
 
+def _accumulate(coef, sign, w, ww, acc, buf):
+    """Add (``sign`` +1) or subtract (-1) every factor of ``coef`` (3, F, M) at ``w`` (K, M)
+    into the accumulators ``acc`` = (phase, th_lo, th_hi, |.|^2 product, m_lo, m_hi).
+
+    Each factor's ``c0 - c2 w^2``, ``c1 w``, its phase and squared magnitude are the
+    operations of :func:`damper.model.rational.factor_values`, element for element, in
+    buffers reused from factor to factor; the accumulations run in factor order.
+    """
+    phase, th_lo, th_hi, prod, m_lo, m_hi = acc
+    re, im, ph, lo, hi = buf
+    for i in range(coef.shape[1]):
+        np.multiply(coef[2, i], ww, out=re)
+        np.subtract(coef[0, i], re, out=re)
+        np.multiply(coef[1, i], w, out=im)
+        np.arctan2(im, re, out=ph)
+        np.multiply(re, re, out=re)
+        np.multiply(im, im, out=im)
+        sq = np.add(re, im, out=re)
+        np.minimum(ph[:-1], ph[1:], out=lo)
+        np.maximum(ph[:-1], ph[1:], out=hi)
+        if sign > 0:
+            phase += ph
+            th_lo += lo
+            th_hi += hi
+        else:
+            phase -= ph
+            th_lo -= hi
+            th_hi -= lo
+        prod *= sq
+        np.minimum(sq[:-1], sq[1:], out=lo)
+        np.maximum(sq[:-1], sq[1:], out=hi)
+        if sign > 0:
+            m_lo *= lo
+            m_hi *= hi
+        else:
+            m_lo /= hi
+            m_hi /= lo
+
+
 def intervals_between(fl: FactoredLoop, rows, w, keep) -> Intervals:
     """Intervals between consecutive frequencies ``w[k], w[k + 1]`` where ``keep[k]`` holds.
 
@@ -164,47 +206,40 @@ def intervals_between(fl: FactoredLoop, rows, w, keep) -> Intervals:
         Ascending frequencies of each column, rad/s.
     keep : ndarray of bool, shape (K - 1, M)
 
-    Everything is computed on this layout (slices, no gathers; the loop axis last) and
-    flattened at the end in loop order.
+    Everything is computed on this layout (slices, no gathers; the loop axis last), one
+    factor at a time in reused buffers, and gathered at the end in loop order.
     """
     f = fl.take(rows)
-    nph, dph, nsq, dsq = factor_values(f, w)
-    phase = gain_phase(f) - w * f.delay  # exact arg L at every frequency
-    th_lo = np.broadcast_to(gain_phase(f), (w.shape[0] - 1, rows.size)).copy()
+    w = np.ascontiguousarray(w, dtype=float)
+    k, m = w.shape
+    ww = w * w
+    g_p = gain_phase(f)
+    phase = g_p - w * f.delay  # exact arg L at every frequency
+    th_lo = np.empty((k - 1, m))
+    th_lo[...] = g_p
     th_hi = th_lo.copy()
     num = np.ones_like(w)  # |N|^2 and |D|^2 at every frequency
     den = np.ones_like(w)
     m_lo = np.ones_like(th_lo)  # bounds of |N|^2 / |D|^2 on every interval
     m_hi = np.ones_like(th_lo)
+    buf = (np.empty_like(w), np.empty_like(w), np.empty_like(w), np.empty_like(th_lo), np.empty_like(th_lo))
     with np.errstate(divide="ignore", invalid="ignore", over="ignore", under="ignore"):
-        for ph, sq in zip(nph, nsq):  # numerator factors add
-            phase += ph
-            th_lo += np.minimum(ph[:-1], ph[1:])
-            th_hi += np.maximum(ph[:-1], ph[1:])
-            num *= sq
-            m_lo *= np.minimum(sq[:-1], sq[1:])
-            m_hi *= np.maximum(sq[:-1], sq[1:])
-        for ph, sq in zip(dph, dsq):  # denominator factors subtract
-            phase -= ph
-            th_lo -= np.maximum(ph[:-1], ph[1:])
-            th_hi -= np.minimum(ph[:-1], ph[1:])
-            den *= sq
-            m_lo /= np.maximum(sq[:-1], sq[1:])
-            m_hi /= np.minimum(sq[:-1], sq[1:])
+        _accumulate(f.num, 1, w, ww, (phase, th_lo, th_hi, num, m_lo, m_hi), buf)  # numerator factors add
+        _accumulate(f.den, -1, w, ww, (phase, th_lo, th_hi, den, m_lo, m_hi), buf)  # denominator factors subtract
         g_m = log_gain(f)
         lm = g_m + 0.5 * np.log(num / den)
         m_lo = g_m + 0.5 * np.log(m_lo)
         m_hi = g_m + 0.5 * np.log(m_hi)
-    sel = keep.T  # loop-major order
+    # loop-major order: (loop, k) pairs where keep holds, as flat indices into the (K, M) and (K - 1, M) arrays
+    col, kk = np.nonzero(np.asarray(keep).T)
+    ia = kk * m + col  # interval start in (K, M); its end is one row on; in (K - 1, M) the same index
 
-    def a(x):  # values at the interval starts
-        return x[:-1].T[sel]
+    def at(x, i):
+        return x.reshape(-1).take(i)
 
-    def b(x):  # values at the interval ends
-        return x[1:].T[sel]
-
-    r = np.broadcast_to(rows[:, None], sel.shape)[sel]
-    return Intervals(r, a(w), b(w), a(lm), b(lm), a(phase), b(phase), th_lo.T[sel], th_hi.T[sel], m_lo.T[sel], m_hi.T[sel])
+    ib = ia + m
+    return Intervals(rows[col], at(w, ia), at(w, ib), at(lm, ia), at(lm, ib), at(phase, ia), at(phase, ib),
+                     at(th_lo, ia), at(th_hi, ia), at(m_lo, ia), at(m_hi, ia))
 
 
 def base_intervals(fl: FactoredLoop, coarse) -> Intervals:
@@ -221,15 +256,24 @@ def base_intervals(fl: FactoredLoop, coarse) -> Intervals:
     return intervals_between(fl, np.arange(n), np.where(np.isfinite(w), w, 1.0), keep)
 
 
-def split(fl: FactoredLoop, iv: Intervals, parts) -> Intervals:
-    """Split interval ``k`` into ``parts[k]`` (>= 1) geometric pieces, in order."""
+def split(fl: FactoredLoop, iv: Intervals, parts, where=None) -> Intervals:
+    """Split interval ``k`` into ``parts[k]`` (>= 1) geometric pieces, in order.
+
+    With ``where`` (bool, one per interval of ``iv``), only the intervals where it holds are
+    split (``parts`` then has one entry per such interval): ``split(fl, iv.select(where),
+    parts)`` without gathering the fields the pieces do not use.
+    """
+    row, wa, wb = iv.row, iv.wa, iv.wb
+    if where is not None:
+        idx = np.flatnonzero(where)
+        row, wa, wb = row.take(idx), wa.take(idx), wb.take(idx)
     parts = np.asarray(parts, dtype=int)
     p_max = int(parts.max()) if parts.size else 1
     j = np.arange(p_max + 1)[:, None]  # (p_max + 1, 1): cut number
-    w = iv.wa * (iv.wb / iv.wa) ** np.minimum(j / parts, 1.0)
-    w = np.where(j >= parts, iv.wb, w)
-    w[0] = iv.wa
-    return intervals_between(fl, iv.row, w, j[:-1] < parts)
+    w = wa * (wb / wa) ** np.minimum(j / parts, 1.0)
+    w = np.where(j >= parts, wb, w)
+    w[0] = wa
+    return intervals_between(fl, row, w, j[:-1] < parts)
 
 
 def bounded_intervals(fl: FactoredLoop, coarse) -> Intervals:
@@ -245,8 +289,29 @@ def bounded_intervals(fl: FactoredLoop, coarse) -> Intervals:
         if not np.any(bad):
             break
         parts = np.where(bad, np.minimum(np.ceil(wig / PHASE_STEP), 64), 1).astype(int)
-        iv = _merge(iv.select(~bad), split(fl, iv.select(bad), parts[bad]))
+        iv = _replaced(iv, bad, parts, split(fl, iv, parts[bad], where=bad))
     return iv
+
+
+def _replaced(iv: Intervals, bad, parts, pieces: Intervals) -> Intervals:
+    """``_merge(iv.select(~bad), pieces)``, where ``pieces`` holds ``parts[k]`` pieces of each
+    interval ``k`` where ``bad`` holds, in order: each such interval is replaced by its
+    pieces in place (no sort). That is the merge's order whenever the result is strictly
+    ascending by loop, then frequency (a unique order); otherwise the merge itself is done.
+    """
+    count = np.where(bad, parts, 1)
+    first = np.cumsum(count) - count  # position of each interval's first piece
+    source = np.empty(int(count.sum()), dtype=np.intp)
+    n_kept = int(np.count_nonzero(~bad))
+    source[first[~bad]] = np.arange(n_kept)
+    nb = count[bad]
+    start = np.repeat(first[bad] - (np.cumsum(nb) - nb), nb)  # position minus the piece's own index
+    source[start + np.arange(nb.sum())] = n_kept + np.arange(nb.sum())
+    out = concat([iv.select(~bad), pieces]).select(source)
+    r, wa = out.row, out.wa
+    if np.all((r[1:] > r[:-1]) | ((r[1:] == r[:-1]) & (wa[1:] > wa[:-1]))):
+        return out
+    return _merge(iv.select(~bad), pieces)
 
 
 def concat(parts) -> Intervals:

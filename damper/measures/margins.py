@@ -39,9 +39,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..model.rational import (FactoredLoop, at_zero, crossing_polynomial, evaluate, evaluate_logmag, evaluate_phase,
-                              factored_loop)
+from ..model.rational import FactoredLoop, at_zero, crossing_polynomial, factored_loop
 from ..quantities import quantity
+from . import points
 from .freqset import Intervals, bounded_intervals, concat, intervals_between, split
 from .refine import golden_max, illinois
 
@@ -134,25 +134,8 @@ class Crossings:
 
 
 # ----------------------------------------------------------------------------------
-# exact values at points
+# crossings
 # ----------------------------------------------------------------------------------
-
-
-def _at(sub: FactoredLoop, w):
-    """Exact ``ln|L|`` and ``arg L`` of each loop of ``sub`` at its own ``w`` (shape (M,))."""
-    logmag, phase = evaluate(sub, np.asarray(w, dtype=float)[:, None])
-    return logmag[:, 0], phase[:, 0]
-
-
-def _logmag_at(fl: FactoredLoop, rows, w):
-    """Exact ``ln|L|`` of loops ``rows`` of ``fl``, one ``w`` (rad/s) per entry: ``_at(fl.take(rows), w)[0]``
-    bit for bit, without the phases."""
-    return evaluate_logmag(fl.take(rows), np.asarray(w, dtype=float)[:, None])[:, 0]
-
-
-def _phase_at(sub: FactoredLoop, w):
-    """``_at(sub, w)[1]``, bit for bit, without the magnitudes."""
-    return evaluate_phase(sub, np.asarray(w, dtype=float)[:, None])[:, 0]
 
 
 def _dedupe(row, w, *values, rtol=1e-9):
@@ -205,21 +188,24 @@ def gain_crossings(fl: FactoredLoop) -> Crossings:
     valid = np.isfinite(test)
     r_all = np.broadcast_to(np.arange(n)[:, None], test.shape)
     f = np.full(test.shape, np.nan)
-    f[valid] = _logmag_at(fl, r_all[valid], test[valid])
+    pl = points.prepared(fl)  # every evaluation below: exact values at one frequency per entry
+    f[valid] = points.logmag(pl.take(r_all[valid]), test[valid])
     pos = f >= 0
     change = valid[:, :-1] & valid[:, 1:] & (pos[:, :-1] != pos[:, 1:])
     rr, jj = np.nonzero(change)
     lo, hi = np.log(test[rr, jj]), np.log(test[rr, jj + 1])
 
+    at_rr = pl.take(rr)
+
     def fn(x, act):
-        return _logmag_at(fl, rr[act], np.exp(x))
+        return points.logmag(at_rr.take(act), np.exp(x))
 
     x = illinois(fn, lo, hi, f[rr, jj], f[rr, jj + 1]) if rr.size else lo
     # touches: a candidate where |L| reaches 1 without changing side
     tr, tj = np.nonzero(valid & (np.abs(f) <= TOUCH_NEPERS))
     row = np.concatenate([rr, tr])
     w = np.concatenate([np.exp(x), test[tr, tj]])
-    phase = _phase_at(fl.take(row), w)
+    phase = points.phase(pl.take(row), w)
     pm = np.rad2deg(np.mod(phase + 2.0 * np.pi, 2.0 * np.pi) - np.pi)
     row, w, pm = _dedupe(row, w, pm)
     return Crossings(row, w, pm)
@@ -282,14 +268,14 @@ def _window_brackets(fl, row, lo, hi, level):
         tangent.append((iv.select(reach & ~go), lev[reach & ~go]))
         if not np.any(go):
             break
-        iv, lev = split(fl, iv.select(go), np.full(int(go.sum()), 2)), np.repeat(lev[go], 2)
+        iv, lev = split(fl, iv, np.full(int(go.sum()), 2), where=go), np.repeat(lev[go], 2)
     iv = concat([t[0] for t in tangent])
     lev = np.concatenate([t[1] for t in tangent])
     toward = np.where(iv.pa - lev >= 0, -1.0, 1.0)
-    sub = fl.take(iv.row)
+    sub = points.prepared(fl).take(iv.row)
 
     def closeness(x):
-        return toward * (_phase_at(sub, np.exp(x)) - lev)
+        return toward * (points.phase(sub, np.exp(x)) - lev)
 
     x_star, f_star = golden_max(closeness, np.log(iv.wa), np.log(iv.wb), steps=TOUCH_STEPS)
     hit = f_star >= 0
@@ -314,15 +300,16 @@ def phase_crossings(fl: FactoredLoop, iv: Intervals, w_low, w_high) -> Crossings
     ok = lo < hi
     row, lo, hi, level = _window_brackets(fl, row[ok], lo[ok], hi[ok], level[ok])
 
-    def fn(x, act):
-        return _phase_at(fl.take(row[act]), np.exp(x)) - level[act]
+    sub = points.prepared(fl).take(row)
 
-    sub = fl.take(row)
-    f_lo = _phase_at(sub, lo) - level
-    f_hi = _phase_at(sub, hi) - level
+    def fn(x, act):
+        return points.phase(sub.take(act), np.exp(x)) - level[act]
+
+    f_lo = points.phase(sub, lo) - level
+    f_hi = points.phase(sub, hi) - level
     x = illinois(fn, np.log(lo), np.log(hi), f_lo, f_hi) if row.size else np.log(lo)
     w = np.exp(x)
-    gm = -_DB * _logmag_at(fl, row, w)
+    gm = -_DB * points.logmag(sub, w)
     real = np.isfinite(gm)  # a phase jump through a zero or pole on the axis is no crossing
     row, w, gm = row[real], w[real], gm[real]
     # zero frequency: L(0) real and negative
@@ -351,9 +338,13 @@ def disk_ratio(logmag, phase):
     inv = np.exp(-np.abs(np.clip(logmag, -700.0, 700.0)))  # |L| or 1/|L|, both <= 1
     two_c = 2.0 * np.cos(phase) * inv
     sq = inv * inv
+    # (first - 2c) + last and (first + 2c) + last: first |L|^-2 scaled square, or 1
+    first, last = np.where(big, sq, 1.0), np.where(big, 1.0, sq)
     with np.errstate(divide="ignore", invalid="ignore"):
-        num = np.where(big, sq - two_c + 1.0, 1.0 - two_c + sq)
-        den = np.where(big, sq + two_c + 1.0, 1.0 + two_c + sq)
+        num = first - two_c
+        num += last
+        den = first + two_c
+        den += last
         ratio = np.sqrt(np.maximum(num, 0.0) / den)
     return np.where(np.isfinite(ratio), ratio, np.inf)
 
@@ -431,15 +422,17 @@ def disk_peak(fl: FactoredLoop, iv: Intervals) -> np.ndarray:
         open_ &= ~tiny
         if not np.any(open_):
             break
-        iv = split(fl, iv.select(open_), np.full(int(open_.sum()), 4))
+        iv = split(fl, iv, np.full(int(open_.sum()), 4), where=open_)
         _keep_best(best, best_w, best_h, iv.row, disk_ratio(iv.lb, iv.pb), iv.wb, iv.wb / iv.wa)
     rows = np.nonzero((best_w > 0) & np.isfinite(best))[0]
     half = np.log(np.minimum(best_h[rows], 1e6))  # a cell each side of the best sample
     x0 = np.log(best_w[rows])
+    pl = points.prepared(fl)
     for _ in range(PEAK_SHIFTS if rows.size else 0):  # a peak at the bracket's edge: move the bracket there
         # (only those loops search again: every loop's search is its own, so the rest would repeat theirs)
-        sub = fl.take(rows)
-        x_star, peak = golden_max(lambda x: disk_ratio(*_at(sub, np.exp(x))), x0 - half, x0 + half, steps=PEAK_STEPS)
+        sub = pl.take(rows)
+        x_star, peak = golden_max(lambda x: disk_ratio(*points.logmag_phase(sub, np.exp(x))), x0 - half, x0 + half,
+                                  steps=PEAK_STEPS)
         best[rows] = np.fmax(best[rows], peak)
         edge = np.abs(x_star - x0) > 0.99 * half
         if not np.any(edge):
@@ -497,7 +490,7 @@ def _margins_flat(fl: FactoredLoop, coarse, stable):
     live = (fl.gain != 0) & np.isfinite(fl.gain)
     ok = live if stable is None else live & stable  # an unstable closed loop has no margins
     sub = np.nonzero(live)[0]
-    part = fl.take(sub)
+    part = fl if sub.size == n else fl.take(sub)  # every loop live (the usual case): no copy
     peak = np.full(n, np.nan)
     if sub.size:
         gc = gain_crossings(part)
@@ -505,7 +498,10 @@ def _margins_flat(fl: FactoredLoop, coarse, stable):
         pc = phase_crossings(part, iv, coarse[0], coarse[-1])
         keep = ok[sub]
         if np.any(keep):
-            peak[sub[keep]] = disk_peak(part.take(np.nonzero(keep)[0]), iv.select(keep[iv.row]).renumbered(keep))
+            if np.all(keep):  # every loop (the usual case): the same loops and intervals, nothing gathered
+                peak[sub] = disk_peak(part, iv)
+            else:
+                peak[sub[keep]] = disk_peak(part.take(np.nonzero(keep)[0]), iv.select(keep[iv.row]).renumbered(keep))
     else:
         gc = pc = Crossings(np.zeros(0, int), np.zeros(0), np.zeros(0))
     g_row, g_w, pm = sub[gc.row], gc.w, gc.value
