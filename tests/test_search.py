@@ -29,12 +29,28 @@ def _case(requirements):
 
 
 def _oracle_damping(case, gains):
-    """Damping of the complex short-period pair from python-control's closed-loop poles."""
-    loop = build_loop(case, np.asarray(gains)[None, :])
+    """Damping of the complex short-period pair from the closed-loop poles of python-control's loop.
+
+    The loop ``L = sign(M_delta) K P`` exported by python-control at K = 1 s gives (A, B, C, D);
+    at a gain K it is (A, B, K C, K D) (``to_control``'s docstring), and unity negative feedback
+    closes it to ``A - B K C / (1 + K D)`` (the state-space feedback formula, common practice):
+    the poles of all gains in one batched ``numpy.linalg.eigvals``. ``control.feedback(...).poles()``
+    on the exported loop, one loop at a time, was the oracle; it still runs at every 100th gain
+    and must agree.
+    """
+    gains = np.asarray(gains, dtype=float)
+    ss = to_control(build_loop(case, np.ones((1, 1))), (0, 0), "loop")
+    A, B, C, D = (np.asarray(m, dtype=float) for m in (ss.A, ss.B, ss.C, ss.D))
+    assert B.shape[1] == C.shape[0] == 1  # one input, one output
+    k = gains[:, None, None]
+    poles = np.linalg.eigvals(A - k * (B @ C) / (1.0 + k * D[0, 0]))
+    loop = build_loop(case, gains[None, :])
+    for j in range(0, len(gains), 100):
+        theirs = control.feedback(to_control(loop, (0, j), "loop"), 1).poles()
+        np.testing.assert_allclose(np.sort_complex(poles[j]), np.sort_complex(theirs), rtol=1e-9, atol=1e-12)
     out = []
-    for j in range(len(gains)):
-        poles = control.feedback(to_control(loop, (0, j), "loop"), 1).poles()
-        pair = poles[np.abs(poles.imag) > 1e-9]
+    for p in poles:
+        pair = p[np.abs(p.imag) > 1e-9]
         out.append(-pair[0].real / abs(pair[0]) if pair.size else np.nan)
     return np.array(out)
 
