@@ -6,9 +6,9 @@ standard gravity, nautical mile) are those of NIST SP 811 (from memory)."""
 
 from __future__ import annotations
 
+import functools
 import math
 
-import pint
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
@@ -16,11 +16,17 @@ from hypothesis import strategies as st
 from damper.unit_table import UNITS, evaluate
 from damper.units import _dims, _table_dims, parse_quantity
 
-UREG = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+@functools.lru_cache(maxsize=None)
+def ureg():
+    """pint's registry, built once by the first test that needs it (not at collection: importing
+    pint and building it took about 0.6 s of CPU, which every pytest worker paid)."""
+    import pint
+
+    return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
 
 
 def pint_parse(text):
-    q = UREG.Quantity(text)
+    q = ureg().Quantity(text)
     b = q.to_base_units()
     return float(b.magnitude), _dims(b.dimensionality), tuple(n for n, _ in q.unit_items())
 
@@ -33,7 +39,7 @@ def test_every_entry_is_pints_unit(name):
     assert _table_dims(exps) == dims
     assert names == pint_names
     angle = UNITS[name][2]
-    assert angle == ("radian" in str(UREG.get_root_units(pint_names[0])[1]))
+    assert angle == ("radian" in str(ureg().get_root_units(pint_names[0])[1]))
 
 
 NAMES = sorted(UNITS)
