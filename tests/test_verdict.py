@@ -161,7 +161,7 @@ def _check_part_records(name, doc):
 
 
 @pytest.mark.parametrize("case", DEMOS, ids=[os.path.basename(c) for c in DEMOS])
-def test_exit_status_terminal_json_and_report_agree(case, tmp_path, shared_run):
+def test_exit_status_terminal_json_and_report_agree(case, tmp_path, shared_run, report_page):
     shared = shared_run(os.path.basename(case))  # design --no-plots (tests/shared_runs.py), read only
     out_dir, code, out, err = shared.path, shared.code, shared.stdout, shared.stderr
     assert code in (0, 3), err
@@ -192,22 +192,41 @@ def test_exit_status_terminal_json_and_report_agree(case, tmp_path, shared_run):
     report = (out_dir / "report.html").read_text(encoding="utf-8")
     empty = [m.start() for m in re.finditer(r"<tbody>\s*</tbody>", report)]
     assert not empty, [report[max(0, k - 300):k] for k in empty]  # no table without a row (envelope cases too)
-    _look_at_report(out_dir / "report.html", tmp_path, total.met)
+    _look_at_report(report_page, out_dir / "report.html", tmp_path, total.met)
 
 
-def _look_at_report(path, tmp_path, met):
-    """Open the report in headless Chromium: no console error, the verdict box in the first
-    screen, the screenshot not blank (tests/test_report.py has the browser client)."""
-    from .test_report import Page, _non_blank, console_errors, require_chromium
+@pytest.fixture(scope="module")
+def report_page(tmp_path_factory):
+    """``report_page()``: one headless Chromium page (tests/test_report.py has the browser client)
+    for every demo's report, started by the first test that gets that far (without Chromium that
+    test's other checks still run before it skips); each report is opened by navigating to it,
+    in the page's own browser context. A browser per report started Chromium six times (about
+    0.5 s of CPU each)."""
+    from .test_report import Page, require_chromium
 
-    page = Page(require_chromium(), str(tmp_path / "profile"), width=1280, height=900)
-    try:
-        events = page.open(path.resolve().as_uri())
-        top = page.evaluate("document.querySelector('.run-verdict').getBoundingClientRect().top")
-        head = page.evaluate("document.querySelector('.run-verdict .verdict-head').textContent")
-        shot = page.screenshot(str(tmp_path / "report.png"))
-    finally:
+    pages = []
+
+    def get():
+        if not pages:
+            pages.append(Page(require_chromium(), str(tmp_path_factory.mktemp("chromium") / "profile"),
+                              width=1280, height=900))
+        return pages[0]
+
+    yield get
+    for page in pages:
         page.close()
+
+
+def _look_at_report(get_page, path, tmp_path, met):
+    """Open the report in headless Chromium: no console error, the verdict box in the first
+    screen, the screenshot not blank."""
+    from .test_report import _non_blank, console_errors
+
+    page = get_page()
+    events = page.open(path.resolve().as_uri())
+    top = page.evaluate("document.querySelector('.run-verdict').getBoundingClientRect().top")
+    head = page.evaluate("document.querySelector('.run-verdict .verdict-head').textContent")
+    shot = page.screenshot(str(tmp_path / "report.png"))
     assert console_errors(events) == []
     assert 0 < top < 900, top  # the verdict is on the first screen
     assert ("Every requirement judged in this run is met." in head) is met, head
