@@ -97,18 +97,28 @@ def test_cluster_run_is_byte_identical_to_the_local_run(small, cluster):
     assert f"on the Dask cluster at {cluster.scheduler_address}" in stdout
 
 
-def test_design_runs_its_robustness_stage_on_the_cluster(small, cluster):
+def _design_robustness(case, out, *extra):
+    """robustness.json (without its command line) of ``damper design`` run in this process."""
+    with redirect_stdout(io.StringIO()), redirect_stderr(io.StringIO()):
+        code = main(["design", case, "--no-plots", "--no-report", "--no-responses", "--quiet", "--out", str(out),
+                     *extra])
+    assert code in (0, 3)
+    return _without_command(out / "robustness.json")
+
+
+@pytest.fixture(scope="module")
+def design_local(small):
+    """The local design run's robustness.json: the reference of both cluster sizes (it was
+    designed once per cluster, the same command on the same case)."""
     case, tmp, _ = small
-    docs = []
-    for name, extra in ((f"design-local-{len(cluster.workers)}", []),
-                        (f"design-dask-{len(cluster.workers)}", ["--cluster", cluster.scheduler_address])):
-        out = tmp / name
-        with redirect_stdout(io.StringIO()), redirect_stderr(io.StringIO()):
-            code = main(["design", case, "--no-plots", "--no-report", "--no-responses", "--quiet", "--out", str(out),
-                         *extra])
-        assert code in (0, 3)
-        docs.append(_without_command(out / "robustness.json"))
-    assert docs[0] == docs[1]
+    return _design_robustness(case, tmp / "design-local")
+
+
+def test_design_runs_its_robustness_stage_on_the_cluster(small, cluster, design_local):
+    case, tmp, _ = small
+    remote = _design_robustness(case, tmp / f"design-dask-{len(cluster.workers)}", "--cluster",
+                                cluster.scheduler_address)
+    assert remote == design_local
 
 
 def test_two_local_processes_give_the_one_process_result(small):
