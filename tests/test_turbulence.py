@@ -108,8 +108,9 @@ def _responses(d, hw, gain, w):
     A, B, E, names, nz_row = _airframe(d)
     n = A.shape[0]
     M = s[:, None, None] * np.eye(n) - A
-    xd = np.linalg.solve(M, np.broadcast_to(B[:, None], (w.size, n, 1)))[..., 0]  # per surface
-    xg = np.linalg.solve(M, np.broadcast_to(E[:, None], (w.size, n, 1)))[..., 0]  # per w_g
+    # per surface and per w_g: one solve with both right-hand sides (one LU factorisation per frequency)
+    x2 = np.linalg.solve(M, np.broadcast_to(np.stack([B, E], axis=1), (w.size, n, 2)))
+    xd, xg = x2[..., 0], x2[..., 1]
     iq, ia = names.index("q"), names.index("alpha")
     feedback = np.ones_like(s)
     for e in (hw.sensor, hw.washout, *hw.filters, hw.delay):
