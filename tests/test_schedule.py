@@ -1,5 +1,7 @@
 """Gain schedule: interpolation, the inverse-q law, verification between breakpoints, exports."""
 
+import functools
+
 import numpy as np
 import pytest
 
@@ -67,13 +69,21 @@ def test_inverse_dynamic_pressure_law_fit():
     np.testing.assert_allclose(s.gain_at([np.array([4000.0])]), [0.1])
 
 
+@functools.lru_cache(maxsize=None)
+def _sparse(max_breakpoints):
+    """(case, design_schedule(case)) of SPARSE with ``max_breakpoints``: designed once per process
+    for the tests below that read the same schedule (read only: the results are frozen)."""
+    case = load_case_text(SPARSE.replace("MAXBP", str(max_breakpoints)), "sparse.yaml")
+    return case, design_schedule(case)
+
+
 def test_too_sparse_schedule_is_caught_and_repaired():
-    fixed = design_schedule(load_case_text(SPARSE.replace("MAXBP", "0"), "sparse.yaml"))
+    fixed = _sparse(0)[1]
     assert not fixed.passed
     between = fixed.verification.points.kind == "between"
     assert np.any(~fixed.verification.passed & between)  # the failures lie between breakpoints
     assert "breakpoints are off" in fixed.message
-    repaired = design_schedule(load_case_text(SPARSE.replace("MAXBP", "9"), "sparse.yaml"))
+    repaired = _sparse(9)[1]
     assert repaired.passed, repaired.message
     assert len(repaired.schedule.breakpoints[0]) > 2
     assert repaired.rounds > 1 and repaired.history[-1][1] == 0
@@ -117,8 +127,9 @@ def test_cg_shift_changes_cm_alpha_by_cl_alpha_times_shift():
 
 
 def test_exports_round_trip_and_are_byte_identical(tmp_path):
-    case = load_case_text(SPARSE.replace("MAXBP", "9"), "sparse.yaml")
-    r1 = design_schedule(case)
+    # r1 may be test_too_sparse_schedule_is_caught_and_repaired's schedule (designed once per
+    # process); r2 is designed again here from the same case: the two must write the same bytes
+    case, r1 = _sparse(9)
     r2 = design_schedule(case)
     (bp,), gains = schedule_out.read_csv(schedule_out.to_csv(r1.schedule, case))
     np.testing.assert_array_equal(bp, r1.schedule.breakpoints[0])
@@ -195,7 +206,7 @@ def test_verification_points_are_distinct():
     # The envelope corners are regular-grid points too, and dense points can land on the
     # grid: each (altitude, airspeed, configuration) is verified and counted once, the
     # corners keeping their kind [common practice: a count of checks counts distinct checks].
-    r = design_schedule(load_case_text(SPARSE.replace("MAXBP", "0"), "sparse.yaml"))
+    r = _sparse(0)[1]
     p = r.verification.points
     keys = set(zip(np.round(p.altitude, 6), np.round(p.airspeed, 6), p.configuration))
     assert len(keys) == p.altitude.size
