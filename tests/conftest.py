@@ -91,10 +91,13 @@ def shared_run(tmp_path_factory):
     """``shared_run(case_name, options=("--no-plots",))``: a design run of a demo case built
     once per test run (tests/shared_runs.py) and read by every test that asks for it.
 
+    ``shared_run.text(name, text, options=())``: the case ``text`` designed by the real executable
+    in a subprocess (tests/test_progress.py reads its standard error).
+
     Never write into the returned ``SharedRun.path``: copy it (``run.copy_to(tmp_path / "x")``).
     At the end of the session every run handed out must be unchanged.
     """
-    from .shared_runs import NO_PLOTS, case_stem, shared_design, snapshot
+    from .shared_runs import NO_PLOTS, case_stem, shared_design, shared_process_design, snapshot
 
     base = tmp_path_factory.getbasetemp()
     if os.environ.get("PYTEST_XDIST_WORKER"):
@@ -108,6 +111,15 @@ def shared_run(tmp_path_factory):
             handed.setdefault(runs[key].path, snapshot(runs[key].path))
         return runs[key]
 
+    def get_text(name, text, options=()):
+        """The case ``text`` designed by ``python -m damper`` in a subprocess (shared_process_design)."""
+        key = ("text", name, text, tuple(options))
+        if key not in runs:
+            runs[key] = shared_process_design(base / "shared-runs", name, text, options)
+            handed.setdefault(runs[key].path, snapshot(runs[key].path))
+        return runs[key]
+
+    get.text = get_text
     yield get
     changed = [str(p) for p, snap in handed.items() if snapshot(p) != snap]
     assert not changed, f"a test wrote into a shared run (copy it instead): {changed}"

@@ -28,6 +28,8 @@ import io
 import json
 import os
 import shutil
+import subprocess
+import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -150,6 +152,43 @@ def shared_design(base: Path, case_name: str, options=NO_PLOTS) -> SharedRun:
             argv = design_argv(case_stem(case_name), options)
             code, out, err = run_main(argv, cwd=where)
             record = {"code": code, "stdout": out, "stderr": err, "argv": argv}
+            tmp = where / "done.json.tmp"
+            tmp.write_text(json.dumps(record), encoding="utf-8")
+            os.replace(tmp, done)
+        record = json.loads(done.read_text(encoding="utf-8"))
+    return SharedRun(where / RUN_NAME, record["code"], record["stdout"], record["stderr"], tuple(record["argv"]))
+
+
+def _with_root_on_path() -> dict:
+    """The environment with this checkout first on PYTHONPATH (the subprocess runs elsewhere)."""
+    old = os.environ.get("PYTHONPATH")
+    return {**os.environ, "PYTHONPATH": str(ROOT) + (os.pathsep + old if old else "")}
+
+
+def shared_process_design(base: Path, name: str, text: str, options=()) -> SharedRun:
+    """The shared run of the case ``text`` (written to ``<name>.yaml``) designed by the real
+    executable: ``python -m damper design <name>.yaml --out run <options>`` in a subprocess, its
+    standard error a pipe. tests/test_progress.py reads its stage log; tests/test_run_directory.py
+    reads (or copies) the run directory of the same command that it used to run in process.
+
+    Built by the first caller (any process) and read by the others, like :func:`shared_design`.
+    """
+    options = tuple(options)
+    digest = hashlib.sha256("\0".join([text, *options]).encode()).hexdigest()[:10]
+    key = f"text-{name}-{digest}"
+    where = Path(base) / key
+    done = where / "done.json"
+    Path(base).mkdir(parents=True, exist_ok=True)
+    with open(Path(base) / (key + ".lock"), "w") as lock:
+        fcntl.flock(lock, fcntl.LOCK_EX)
+        if not done.exists():
+            shutil.rmtree(where, ignore_errors=True)
+            where.mkdir()
+            (where / f"{name}.yaml").write_text(text, encoding="utf-8")
+            argv = ["design", f"{name}.yaml", "--out", RUN_NAME, *options]
+            proc = subprocess.run([sys.executable, "-m", "damper", *argv], cwd=where, capture_output=True,
+                                  text=True, timeout=600, env=_with_root_on_path())
+            record = {"code": proc.returncode, "stdout": proc.stdout, "stderr": proc.stderr, "argv": argv}
             tmp = where / "done.json.tmp"
             tmp.write_text(json.dumps(record), encoding="utf-8")
             os.replace(tmp, done)

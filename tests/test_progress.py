@@ -24,11 +24,13 @@ def _stage_lines(err):
         ("damper: warning:", "damper: error:", "damper: note:"))]
 
 
-def test_design_logs_every_stage_on_a_pipe_and_nothing_with_quiet(tmp_path):
+def test_design_logs_every_stage_on_a_pipe_and_nothing_with_quiet(tmp_path, shared_run):
     case = tmp_path / "one.yaml"
     case.write_text(ONE, encoding="utf-8")
-    proc = _run("design", str(case), "--out", str(tmp_path / "run"))
-    assert proc.returncode == 0, proc.stderr
+    # `python -m damper design one.yaml --out run` in a subprocess, standard error a pipe: the run
+    # that tests/test_run_directory.py reads too (tests/shared_runs.py, shared_process_design)
+    proc = shared_run.text("one", ONE)
+    assert proc.code == 0, proc.stderr
     lines = _stage_lines(proc.stderr)
     # a start and an end line per stage, in the order the stages run
     assert lines[:2] == ["damper: search 0/1 conditions", lines[1]] and lines[1].startswith("damper: search 1/1 conditions (")

@@ -68,11 +68,15 @@ def one_case(tmp_path_factory):
 
 
 @pytest.fixture(scope="module")
-def one_run(tmp_path_factory, one_case):
-    """A full design run (plots, responses, report) of the one-condition case; copy it to change it."""
-    out = tmp_path_factory.mktemp("runs") / "one"
-    assert main(["design", one_case, "--out", str(out)]) == 0
-    return out
+def one_run(shared_run):
+    """A full design run (plots, responses, report) of the one-condition case; copy it to change it.
+
+    The shared run of ``python -m damper design one.yaml --out run`` (tests/shared_runs.py, the
+    same text as ``one_case``), whose standard error tests/test_progress.py reads: the same
+    command was run here in this process and there in a subprocess. Read only."""
+    run = shared_run.text("one", ONE)
+    assert run.code == 0, run.stderr
+    return run.path
 
 
 def _copy(run, tmp_path):
