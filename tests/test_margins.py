@@ -6,7 +6,6 @@ import pytest
 
 from damper.analysis.assess import assess_loop
 from damper.measures.margins import loop_margins
-from damper.measures.modes import closed_loop_modes
 from damper.model.airframe import Derivatives
 from damper.model.batch import map_arrays
 from damper.model.elements import Delay, Lag, SecondOrderLag, Washout
