@@ -5,7 +5,6 @@ import os
 import subprocess
 import sys
 
-
 from damper.cli import main
 
 from .conftest import ROOT
