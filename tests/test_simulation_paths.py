@@ -33,6 +33,16 @@ K = np.array([0.3, 0.2, 0.15])
 NO_INPUT = Input("step", amplitude=0.0, start=0.0)
 
 
+def _mixed_signs(d):
+    """The invented airframes with the elevator's moment and lift reversed on the first and
+    last members (a positive M_delta: trailing-edge down pitches nose up, as on a canard;
+    the damper's command carries sign(M_delta), docs/theory.md s.1)."""
+    from dataclasses import replace
+
+    flip = np.array([-1.0, 1.0, -1.0])
+    return replace(d, M_delta=np.asarray(d.M_delta) * flip, Z_delta=np.asarray(d.Z_delta) * flip)
+
+
 def hostile():
     """Loops whose limits act (rate, travel), with delays long, short (substeps) and mixed,
     each actuator kind, filters, washout, a gust, the four-state airframe and failed
@@ -66,6 +76,8 @@ def hostile():
         ("second order, limits per member", Loop(d, Hardware(actuator=SecondOrderLag(40.0, 0.6), delay=Delay(
             np.asarray(0.02), 3)), K), DOUBLET,
          dict(duration=1.5, rate_limit=np.array([0.1, np.inf, 0.2]), travel=np.array([np.inf, 2.0, 1.0]) * DEG)),
+        ("positive M_delta, mixed signs", Loop(_mixed_signs(d), lag_delay, K), DOUBLET,
+         dict(duration=1.5, rate_limit=0.15, travel=np.array([2.0, np.inf, 1.5]) * DEG)),
         ("failed damper", Loop(d, Hardware(actuator=Lag(0.05)), K), NO_INPUT,
          dict(duration=1.0, rate_limit=0.1, travel=1.5 * DEG, failed_command=hardover)),
         ("failed damper, delay", Loop(d, Hardware(actuator=SecondOrderLag(40.0, 0.6), delay=Delay(np.asarray(0.02), 3)),
