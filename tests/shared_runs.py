@@ -133,14 +133,10 @@ def _key(case_name: str, options) -> str:
     return f"{stem}-{digest}"
 
 
-def shared_design(base: Path, case_name: str, options=NO_PLOTS) -> SharedRun:
-    """The shared run of ``damper design cases/<case_name>.yaml --out run <options>`` under ``base``.
-
-    Built by the first caller (any process) and read by the others; ``base`` is a directory
-    common to every pytest-xdist worker of the test run.
-    """
-    options = tuple(options)
-    key = _key(case_name, options)
+def _built_once(base: Path, key: str, build) -> SharedRun:
+    """The run ``<base>/<key>``: built by ``build(where)`` (which returns the record: exit
+    code, stdout, stderr, argv) in the first caller of any process, under a lock file; read
+    from its ``done.json`` by every later caller."""
     where = Path(base) / key
     done = where / "done.json"
     Path(base).mkdir(parents=True, exist_ok=True)
@@ -149,14 +145,27 @@ def shared_design(base: Path, case_name: str, options=NO_PLOTS) -> SharedRun:
         if not done.exists():
             shutil.rmtree(where, ignore_errors=True)
             where.mkdir()
-            argv = design_argv(case_stem(case_name), options)
-            code, out, err = run_main(argv, cwd=where)
-            record = {"code": code, "stdout": out, "stderr": err, "argv": argv}
             tmp = where / "done.json.tmp"
-            tmp.write_text(json.dumps(record), encoding="utf-8")
+            tmp.write_text(json.dumps(build(where)), encoding="utf-8")
             os.replace(tmp, done)
         record = json.loads(done.read_text(encoding="utf-8"))
     return SharedRun(where / RUN_NAME, record["code"], record["stdout"], record["stderr"], tuple(record["argv"]))
+
+
+def shared_design(base: Path, case_name: str, options=NO_PLOTS) -> SharedRun:
+    """The shared run of ``damper design cases/<case_name>.yaml --out run <options>`` under ``base``.
+
+    Built by the first caller (any process) and read by the others; ``base`` is a directory
+    common to every pytest-xdist worker of the test run.
+    """
+    options = tuple(options)
+
+    def build(where):
+        argv = design_argv(case_stem(case_name), options)
+        code, out, err = run_main(argv, cwd=where)
+        return {"code": code, "stdout": out, "stderr": err, "argv": argv}
+
+    return _built_once(base, _key(case_name, options), build)
 
 
 def _with_root_on_path() -> dict:
@@ -175,22 +184,12 @@ def shared_process_design(base: Path, name: str, text: str, options=()) -> Share
     """
     options = tuple(options)
     digest = hashlib.sha256("\0".join([text, *options]).encode()).hexdigest()[:10]
-    key = f"text-{name}-{digest}"
-    where = Path(base) / key
-    done = where / "done.json"
-    Path(base).mkdir(parents=True, exist_ok=True)
-    with open(Path(base) / (key + ".lock"), "w") as lock:
-        fcntl.flock(lock, fcntl.LOCK_EX)
-        if not done.exists():
-            shutil.rmtree(where, ignore_errors=True)
-            where.mkdir()
-            (where / f"{name}.yaml").write_text(text, encoding="utf-8")
-            argv = ["design", f"{name}.yaml", "--out", RUN_NAME, *options]
-            proc = subprocess.run([sys.executable, "-m", "damper", *argv], cwd=where, capture_output=True,
-                                  text=True, timeout=600, env=_with_root_on_path())
-            record = {"code": proc.returncode, "stdout": proc.stdout, "stderr": proc.stderr, "argv": argv}
-            tmp = where / "done.json.tmp"
-            tmp.write_text(json.dumps(record), encoding="utf-8")
-            os.replace(tmp, done)
-        record = json.loads(done.read_text(encoding="utf-8"))
-    return SharedRun(where / RUN_NAME, record["code"], record["stdout"], record["stderr"], tuple(record["argv"]))
+
+    def build(where):
+        (where / f"{name}.yaml").write_text(text, encoding="utf-8")
+        argv = ["design", f"{name}.yaml", "--out", RUN_NAME, *options]
+        proc = subprocess.run([sys.executable, "-m", "damper", *argv], cwd=where, capture_output=True,
+                              text=True, timeout=600, env=_with_root_on_path())
+        return {"code": proc.returncode, "stdout": proc.stdout, "stderr": proc.stderr, "argv": argv}
+
+    return _built_once(base, f"text-{name}-{digest}", build)
