@@ -1,7 +1,10 @@
 """A process evaluating robustness blocks keeps its heap's top (damper.analysis.robustness_heap):
 arrays of megabytes made and freed again and again reuse the same pages instead of being
 faulted in afresh each time. Counted as the process's minor page faults (getrusage), in
-fresh processes, with the setting and without it."""
+fresh processes, with the setting and without it. The child turns transparent huge pages off
+for itself (prctl PR_SET_THP_DISABLE) and runs without malloc tunables, so that the count is
+that of 4 KB pages on any host; where huge pages are always on, the setting is not applied
+(tested below)."""
 
 import os
 import platform
@@ -13,7 +16,8 @@ import pytest
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
 _CHURN = """
-import resource, sys
+import ctypes, resource, sys
+ctypes.CDLL(None).prctl(41, 1, 0, 0, 0)  # PR_SET_THP_DISABLE: this process uses 4 KB pages
 import numpy as np
 from damper.analysis import robustness_heap as H
 H.HEAP_PAD = int(sys.argv[1])
@@ -27,9 +31,14 @@ print(resource.getrusage(resource.RUSAGE_SELF).ru_minflt - f0)
 """
 
 
+def _env():
+    env = {k: v for k, v in os.environ.items() if not k.startswith(("GLIBC_TUNABLES", "MALLOC_"))}
+    return {**env, "PYTHONPATH": ROOT}
+
+
 def _faults(pad):
     out = subprocess.run([sys.executable, "-c", _CHURN, str(pad)], cwd=ROOT, capture_output=True, text=True,
-                         check=True, env={**os.environ, "PYTHONPATH": ROOT})
+                         check=True, env=_env())
     return int(out.stdout.split()[-1])
 
 
@@ -42,3 +51,39 @@ def test_kept_heap_top_reuses_freed_pages():
     without, with_pad = _faults(0), _faults(64 << 20)
     assert without > 100_000
     assert with_pad < without / 10
+
+
+_LINUX_GLIBC = pytest.mark.skipif(not sys.platform.startswith("linux") or platform.libc_ver()[0] != "glibc",
+                                  reason="prctl and the huge-page setting are Linux's")
+
+
+@pytest.mark.parametrize("text, expected", [
+    ("[always] madvise never\n", True),
+    ("always [madvise] never\n", False),
+    ("always madvise [never]\n", False),
+])
+@_LINUX_GLIBC
+def test_huge_pages_always_reads_the_bracketed_mode(tmp_path, text, expected):
+    # Source: the Linux kernel's admin guide, "Transparent Hugepage Support": the file
+    # /sys/kernel/mm/transparent_hugepage/enabled shows the chosen mode in brackets.
+    # Run in a fresh process so that no earlier test's prctl state matters.
+    setting = tmp_path / "enabled"
+    setting.write_text(text)
+    code = f"from damper.analysis.robustness_heap import huge_pages_always as h; print(h({str(setting)!r}))"
+    out = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, check=True,
+                         env=_env())
+    assert out.stdout.split()[-1] == str(expected)
+
+
+@_LINUX_GLIBC
+def test_huge_pages_turned_off_by_the_process_or_unreadable_setting(tmp_path):
+    # Source: Linux prctl(2), PR_SET_THP_DISABLE / PR_GET_THP_DISABLE: a process may turn
+    # transparent huge pages off for itself whatever the system-wide mode.
+    setting = tmp_path / "enabled"
+    setting.write_text("[always] madvise never\n")
+    code = ("import ctypes; ctypes.CDLL(None).prctl(41, 1, 0, 0, 0)\n"
+            "from damper.analysis.robustness_heap import huge_pages_always as h\n"
+            f"print(h({str(setting)!r}), h({str(tmp_path / 'missing')!r}))")
+    out = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, check=True,
+                         env=_env())
+    assert out.stdout.split()[-2:] == ["False", "False"]
