@@ -459,3 +459,36 @@ def test_respond_into_a_design_run_rebuilds_its_report(tmp_path, capsys):
     bare = tmp_path / "bare"
     assert main(["respond", str(path), "--gain", "0.123", "--out", str(bare), "--no-plots"]) == 0
     assert not (bare / "report.html").exists()
+
+
+def test_response_csv_fields_follow_the_documented_format():
+    # [derived] docs/responses.md ("Outputs per condition"): numbers to 9 significant digits (Python's own ".9g"
+    # format is the oracle, value by value), flags as 1/0, non-finite values as empty fields.
+    from types import SimpleNamespace
+
+    from damper.output.documents.responses import CSV_SERIES, response_csv
+
+    rng = np.random.default_rng(3)
+    n = 6
+    values = np.array([0.0, -0.0, np.nan, np.inf, 1.0 / 3.0, -2.5e-12])
+
+    def history(shift):
+        h = {name: values * (1 + shift) + rng.normal(size=n) * (name == "alpha") for name, _ in CSV_SERIES}
+        h["rate_limited"] = np.array([True, False, True, False, False, True])
+        h["position_limited"] = np.array([False] * n)
+        return SimpleNamespace(time=np.arange(n) * 0.01, pilot=values, gust_alpha=-values, **h)
+
+    bare, aug = history(0.0), history(1.0)
+    text = response_csv(bare, aug, stride=2)
+    lines = text.splitlines()
+    cols = [bare.time, aug.pilot, aug.gust_alpha] + [getattr(h, name) for h in (bare, aug) for name, _ in CSV_SERIES]
+
+    def field(v):
+        if isinstance(v, (bool, np.bool_)):
+            return "1" if v else "0"
+        return format(float(v), ".9g") if math.isfinite(v) else ""
+
+    expected = [",".join(field(c[i]) for c in cols) for i in range(0, n, 2)]
+    assert lines[1:] == expected and text.endswith("\n")
+    assert lines[0].split(",")[:3] == ["time_s", "pilot_command_rad", "gust_alpha_rad"]
+    assert ",,"  in lines[2] and lines[1].split(",")[1] == "0" and "-0" in lines[1].split(",")

@@ -41,19 +41,17 @@ def response_csv(bare, augmented, stride=1) -> str:
         for name, head in CSV_SERIES:
             cols.append((f"{prefix}_{head}", getattr(h, name)))
     lines = [",".join(c[0] for c in cols)]
-    data = [np.asarray(c[1])[::stride] for c in cols]
-    for row in zip(*data):
-        lines.append(",".join(_csv_value(v) for v in row))
+    lines.extend(",".join(row) for row in zip(*(_csv_column(np.asarray(c[1])[::stride]) for c in cols)))
     return "\n".join(lines) + "\n"
 
 
-def _csv_value(v) -> str:
-    if isinstance(v, (bool, np.bool_)):
-        return "1" if v else "0"
-    v = float(v)
-    if not math.isfinite(v):
-        return ""
-    return f"{v:.9g}"
+def _csv_column(values: np.ndarray) -> list:
+    """The CSV text of every value of one column (formatted a column at a time): flags as 1/0,
+    numbers to 9 significant digits, non-finite numbers as empty fields."""
+    if values.dtype == np.bool_:
+        return np.where(values, "1", "0").tolist()
+    numbers = values.astype(float)
+    return [f"{v:.9g}" if ok else "" for v, ok in zip(numbers.tolist(), np.isfinite(numbers).tolist())]
 
 
 # ---------------------------------------------------------------------------
