@@ -32,6 +32,7 @@ import numpy as np
 
 from ..case.sections import ScheduleSettings
 from ..errors import DamperError
+from ..measures.refine import golden_bracket
 from ..model.airframe import Derivatives
 from ..model.loop import Loop
 from . import envelope as env_mod
@@ -121,18 +122,7 @@ def design_gains(case, pts: PointSet, group, n_groups):
         np.minimum.at(out, group, r)
         return out
 
-    ratio = (np.sqrt(5.0) - 1.0) / 2.0
-    c = b - ratio * (b - a)
-    e = a + ratio * (b - a)
-    fc, fe = f(c), f(e)
-    for _ in range(16):
-        left = fc > fe
-        b = np.where(left, e, b)
-        a = np.where(left, a, c)
-        nc = b - ratio * (b - a)
-        ne = a + ratio * (b - a)
-        fx = f(np.where(left, nc, ne))
-        c, e, fc, fe = (np.where(left, nc, e), np.where(left, c, ne), np.where(left, fx, fe), np.where(left, fc, fx))
+    a, b = golden_bracket(f, a, b, steps=16)[:2]
     x = 0.5 * (a + b)
     fx = f(x)
     grid_best = gw[np.arange(n_groups), best]

@@ -23,6 +23,7 @@ import numpy as np
 
 from ..case.model import Case
 from ..measures.modes import bare_short_period
+from ..measures.refine import golden_bracket
 from ..model.batch import map_arrays
 from ..model.loop import Loop
 from ..quantities import quantity
@@ -304,30 +305,14 @@ def _intervals(i, ok_i, gains_i, r, j, edge_gain, ok_a, binding_idx, names):
 
 
 def _golden_max_slack(case, rows, a, b, steps=30):
-    """Maximise the worst slack over log-gain in [a, b] per row (vectorised golden section)."""
-    g = (np.sqrt(5.0) - 1.0) / 2.0
-    c = b - g * (b - a)
-    d = a + g * (b - a)
+    """Maximise the worst slack over log-gain in [a, b] per row (vectorised golden section): the
+    gain at the middle of the final bracket, s."""
 
     def f(x):
         return evaluate_points(case, rows, 10.0**x).criteria.worst_slack
 
-    fc, fd = f(c), f(d)
-    for _ in range(steps):
-        left = fc > fd
-        b = np.where(left, d, b)
-        a = np.where(left, a, c)
-        nc = b - g * (b - a)
-        nd = a + g * (b - a)
-        fx = f(np.where(left, nc, nd))
-        c, d, fc, fd = (
-            np.where(left, nc, d),
-            np.where(left, c, nd),
-            np.where(left, fx, fd),
-            np.where(left, fc, fx),
-        )
-    x = 0.5 * (a + b)
-    return 10.0**x
+    a, b = golden_bracket(f, a, b, steps)[:2]
+    return 10.0 ** (0.5 * (a + b))
 
 
 def _choose(case, settings, designs, gains, sweep, worst):

@@ -68,19 +68,24 @@ def illinois(fn, lo, hi, f_lo, f_hi):
     return np.where(np.abs(fa) < np.abs(fb), a, b)
 
 
-def golden_max(fn, lo, hi, steps=GOLDEN_STEPS):
-    """Golden-section search for the maximum of ``fn`` on each ``[lo, hi]``.
+def golden_bracket(fn, lo, hi, steps=GOLDEN_STEPS):
+    """Golden-section search for the maximum of ``fn`` on each ``[lo, hi]``: the final bracket.
 
     Parameters
     ----------
     fn : callable
-        ``fn(x)`` -> values, ``x`` of shape (M,).
+        ``fn(x)`` -> values, ``x`` of shape (M,); called ``steps + 2`` times.
     lo, hi : ndarray, shape (M,)
+        The brackets (in the units of ``x``).
+    steps : int
+        Golden-section steps: each shrinks every bracket by 0.618.
 
     Returns
     -------
-    x, f : ndarray, shape (M,)
-        The best point found and its value (the best of the final bracket's points).
+    a, b : ndarray, shape (M,)
+        The final bracket.
+    c, d, fc, fd : ndarray, shape (M,)
+        Its two inner points and their values.
     """
     r = (np.sqrt(5.0) - 1.0) / 2.0
     a, b = np.array(lo, dtype=float), np.array(hi, dtype=float)
@@ -98,5 +103,23 @@ def golden_max(fn, lo, hi, steps=GOLDEN_STEPS):
         f_new = fn(np.where(keep_left, new_c, new_d))
         fc, fd = np.where(keep_left, f_new, fd), np.where(keep_left, fc, f_new)
         c, d = c_next, d_next
+    return a, b, c, d, fc, fd
+
+
+def golden_max(fn, lo, hi, steps=GOLDEN_STEPS):
+    """Golden-section search for the maximum of ``fn`` on each ``[lo, hi]`` (:func:`golden_bracket`).
+
+    Parameters
+    ----------
+    fn : callable
+        ``fn(x)`` -> values, ``x`` of shape (M,).
+    lo, hi : ndarray, shape (M,)
+
+    Returns
+    -------
+    x, f : ndarray, shape (M,)
+        The best point found and its value (the best of the final bracket's points).
+    """
+    _, _, c, d, fc, fd = golden_bracket(fn, lo, hi, steps)
     better = fc >= fd
     return np.where(better, c, d), np.where(better, fc, fd)
