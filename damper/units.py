@@ -45,28 +45,10 @@ DIMENSIONS = {
     "angular_acceleration": "rad/s**2",
 }
 
-#: Documented SI unit of each dimension, for messages and docs.
-SI_UNIT_TEXT = {
-    "dimensionless": "1 (rad where an angle)",
-    "length": "m",
-    "time": "s",
-    "speed": "m/s",
-    "frequency": "1/s",
-    "frequency2": "1/s^2",
-    "mass": "kg",
-    "area": "m^2",
-    "inertia": "kg*m^2",
-    "acceleration": "m/s^2",
-    "force": "N",
-    "force_time": "N*s",
-    "moment": "N*m",
-    "moment_time": "N*m*s",
-    "force_per_speed": "N*s/m",
-    "per_length_time": "1/(m*s)",
-    "pressure": "Pa",
-    "angular_rate": "rad/s",
-    "angular_acceleration": "rad/s^2",
-}
+#: Documented SI unit of each dimension, for messages and docs: :data:`DIMENSIONS` written
+#: with ``^`` for powers.
+SI_UNIT_TEXT = {dim: unit.replace("**", "^") for dim, unit in DIMENSIONS.items()}
+SI_UNIT_TEXT["dimensionless"] = "1 (rad where an angle)"
 
 _SAFE_UNIT_TEXT = re.compile(r"^[\w\s.*/()+\-^%]*$")
 

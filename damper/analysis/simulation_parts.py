@@ -401,6 +401,24 @@ def _record(rec, i, model, X, aux, r, g):
         rec["arl"][i] = arl
 
 
+def new_records(model: Model, n_out: int, with_damper: bool) -> dict:
+    """The zeroed records of a simulation of `model`, time-major, shape ``(n_out, N)``: every
+    :data:`RECORDS` series and :data:`FLAGS` flag; ``speed`` with a speed state; ``z`` (the
+    damper's command, rad) `with_damper`; ``al`` and ``arl`` (at the authority, at its rate
+    limit) with an authority."""
+    n_b = model.n_b
+    rec = {k: np.zeros((n_out, n_b)) for k in RECORDS}
+    rec.update({k: np.zeros((n_out, n_b), bool) for k in FLAGS})
+    if model.lin.layout.u is not None:
+        rec["speed"] = np.zeros((n_out, n_b))
+    if with_damper:
+        rec["z"] = np.zeros((n_out, n_b))
+    if model.auth is not None:
+        rec["al"] = np.zeros((n_out, n_b), bool)
+        rec["arl"] = np.zeros((n_out, n_b), bool)
+    return rec
+
+
 def integrate(model: Model, signals, n_int, sub, h, n_out, with_damper=False):
     """RK4 over ``n_int`` steps of `h` (s), recording every `sub`-th step.
 
@@ -411,15 +429,7 @@ def integrate(model: Model, signals, n_int, sub, h, n_out, with_damper=False):
     with an authority ``ud_peak`` (N,): the largest |damper demand| at any evaluation.
     """
     n_b, na = model.n_b, model.servo.na
-    rec = {k: np.zeros((n_out, n_b)) for k in RECORDS}
-    rec.update({k: np.zeros((n_out, n_b), bool) for k in FLAGS})
-    if model.lin.layout.u is not None:
-        rec["speed"] = np.zeros((n_out, n_b))
-    if with_damper:
-        rec["z"] = np.zeros((n_out, n_b))
-    if model.auth is not None:
-        rec["al"] = np.zeros((n_out, n_b), bool)
-        rec["arl"] = np.zeros((n_out, n_b), bool)
+    rec = new_records(model, n_out, with_damper)
     X = np.zeros((n_b, na + model.lin.A.shape[-1]))
     line = model.line
     slew = Slew(np.zeros(n_b), np.zeros(n_b)) if model.auth is not None and model.auth.has_rate else None

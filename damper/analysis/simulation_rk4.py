@@ -510,16 +510,7 @@ def integrate(model: sp.Model, signals, n_int, sub, h, n_out, with_damper=False)
         (with :data:`LINEAR_BLOCKS` to rounding), time-major, shape ``(n_out, N)``; with
         an authority also ``ud_peak`` (N,): the largest |damper demand|, rad.
     """
-    n_b = model.n_b
-    rec = {k: np.zeros((n_out, n_b)) for k in sp.RECORDS}
-    rec.update({k: np.zeros((n_out, n_b), bool) for k in sp.FLAGS})
-    if model.lin.layout.u is not None:
-        rec["speed"] = np.zeros((n_out, n_b))
-    if with_damper:
-        rec["z"] = np.zeros((n_out, n_b))
-    if model.auth is not None:
-        rec["al"] = np.zeros((n_out, n_b), bool)
-        rec["arl"] = np.zeros((n_out, n_b), bool)
+    rec = sp.new_records(model, n_out, with_damper)
     block = _block_length(model)
     blocks = _linear_blocks(model, h, with_damper, block)
     damper = None if model.auth is None else authority.Damper(model, h, block)
