@@ -22,6 +22,7 @@ TYPES = (
     ("damper.case.failure_spec", "TransientLimits"),
     ("damper.case.failure_spec", "FailureSpec"),
     ("damper.case.failure_spec", "ServoLimits"),
+    ("damper.model.airframe", "ShortPeriodFields"),
     ("damper.model.airframe", "Derivatives"),
     ("damper.model.longitudinal", "LongitudinalDerivatives"),
     ("damper.measures.modes", "SecondOrderMode"),

@@ -298,3 +298,18 @@ def test_a_short_period_airframe_has_no_phugoid():
     # the short period of the closed form (2x2) equals the eigen-analysis of the same matrix
     assert m.short_period.damping_ratio == pytest.approx(bare_short_period(TEXTBOOK_GA).damping_ratio, rel=1e-12)
     assert m.short_period.natural_frequency == pytest.approx(bare_short_period(TEXTBOOK_GA).natural_frequency, rel=1e-12)
+
+
+def test_the_two_derivative_sets_share_fields_but_not_type():
+    # [derived] the short-period and longitudinal models are chosen by the derivative set's
+    # type (damper.model.airframes): a four-state set must never pass as a short-period one,
+    # while its first eight fields are the short-period ones, in order and with their units.
+    import dataclasses
+
+    from damper.model.airframe import Derivatives
+    from damper.model.longitudinal import LongitudinalDerivatives
+
+    lon = textbook_longitudinal()
+    assert isinstance(lon, LongitudinalDerivatives) and not isinstance(lon, Derivatives)
+    short, four = dataclasses.fields(Derivatives), dataclasses.fields(LongitudinalDerivatives)
+    assert [(f.name, f.metadata) for f in four[:8]] == [(f.name, f.metadata) for f in short]

@@ -22,7 +22,24 @@ from ..quantities import quantity
 
 
 @dataclass(frozen=True)
-class Derivatives:
+class ShortPeriodFields:
+    """The eight dimensional short-period derivatives shared by :class:`Derivatives` and
+    :class:`damper.model.longitudinal.LongitudinalDerivatives` (fields only: neither type is
+    the other, so code that dispatches on the type keeps them apart). Attributes as
+    :class:`Derivatives`."""
+
+    airspeed: np.ndarray = quantity("m/s")
+    Z_alpha: np.ndarray = quantity("m/s^2")
+    Z_q: np.ndarray = quantity("m/s")
+    Z_delta: np.ndarray = quantity("m/s^2")
+    M_alpha: np.ndarray = quantity("1/s^2")
+    M_alpha_dot: np.ndarray = quantity("1/s")
+    M_q: np.ndarray = quantity("1/s")
+    M_delta: np.ndarray = quantity("1/s^2")
+
+
+@dataclass(frozen=True)
+class Derivatives(ShortPeriodFields):
     """Dimensional short-period derivatives (arrays with batch axes, SI, per radian).
 
     Attributes
@@ -44,15 +61,6 @@ class Derivatives:
     M_delta : ndarray
         1/s^2 (rad/s^2 per rad of elevator).
     """
-
-    airspeed: np.ndarray = quantity("m/s")
-    Z_alpha: np.ndarray = quantity("m/s^2")
-    Z_q: np.ndarray = quantity("m/s")
-    Z_delta: np.ndarray = quantity("m/s^2")
-    M_alpha: np.ndarray = quantity("1/s^2")
-    M_alpha_dot: np.ndarray = quantity("1/s")
-    M_q: np.ndarray = quantity("1/s")
-    M_delta: np.ndarray = quantity("1/s^2")
 
 
 def nose_up_surface(d: Derivatives):

@@ -35,7 +35,7 @@ from . import airframe as af
 
 
 @dataclass(frozen=True)
-class LongitudinalDerivatives:
+class LongitudinalDerivatives(af.ShortPeriodFields):
     """Dimensional longitudinal derivatives (arrays with batch axes, SI, per radian).
 
     The first eight fields are those of :class:`damper.model.airframe.Derivatives`,
@@ -66,14 +66,6 @@ class LongitudinalDerivatives:
         reduce the model to the short period in a check).
     """
 
-    airspeed: np.ndarray = quantity("m/s")
-    Z_alpha: np.ndarray = quantity("m/s^2")
-    Z_q: np.ndarray = quantity("m/s")
-    Z_delta: np.ndarray = quantity("m/s^2")
-    M_alpha: np.ndarray = quantity("1/s^2")
-    M_alpha_dot: np.ndarray = quantity("1/s")
-    M_q: np.ndarray = quantity("1/s")
-    M_delta: np.ndarray = quantity("1/s^2")
     X_u: np.ndarray = quantity("1/s")
     X_alpha: np.ndarray = quantity("m/s^2")
     Z_u: np.ndarray = quantity("1/s")
