@@ -49,6 +49,38 @@ def random_derivatives(rng, n, unstable_fraction=0.0):
     return d
 
 
+LB = 4.4482216152605  # N (force pound), by definition
+SLUG = 14.593902937  # kg (one lbf s^2/ft), by definition
+
+
+def textbook_ga_inputs() -> dict:
+    """The textbook general-aviation example's inputs to ``from_coefficients``, SI.
+
+    Source: Nelson, Flight Stability and Automatic Control, 2nd ed., ch. 4 general-aviation
+    example inputs (read in secondary public copies, shared/references.md s.3): sea level,
+    u0 = 176 ft/s, W = 2750 lb, S = 184 ft^2, c = 5.7 ft, Iy = 3000 slug ft^2 and the
+    coefficients below.
+    """
+    from damper.atmosphere import RHO0
+
+    v = 176 * FT
+    return dict(
+        dynamic_pressure=0.5 * RHO0 * v * v,
+        airspeed=v,
+        mass=2750 * LB / 9.80665,
+        pitch_inertia=3000 * SLUG * FT**2,
+        wing_area=184 * FT**2,
+        mean_chord=5.7 * FT,
+        CL_alpha=4.44,
+        CD=0.05,
+        CL_delta=0.355,
+        Cm_alpha=-0.683,
+        Cm_alpha_dot=-4.36,
+        Cm_q=-9.96,
+        Cm_delta=-0.923,
+    )
+
+
 #: Speed derivatives of the textbook general-aviation example (Nelson, Flight Stability
 #: and Automatic Control, 2nd ed., chapter 4, dimensional derivatives, from memory):
 #: X_u = -0.045 1/s, X_w = 0.036 1/s (so X_alpha = u0 X_w), Z_u = -0.369 1/s, M_u = 0.

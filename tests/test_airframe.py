@@ -3,37 +3,15 @@
 import numpy as np
 import pytest
 
-from damper.atmosphere import RHO0
 from damper.measures.modes import bare_short_period
 from damper.model.airframe import Derivatives, from_coefficients, inverse_t_theta2, state_matrices
 
-from .conftest import FT, TEXTBOOK_GA
-
-LB = 4.4482216152605  # N (force pound)
-SLUG = 14.593902937  # kg
+from .conftest import FT, TEXTBOOK_GA, textbook_ga_inputs
 
 
 def textbook_from_coefficients():
-    # Source: Nelson, 2nd ed., ch. 4 general-aviation example inputs (read in secondary
-    # public copies, shared/references.md s.3): sea level, u0 = 176 ft/s, W = 2750 lb,
-    # S = 184 ft^2, c = 5.7 ft, Iy = 3000 slug ft^2 and the coefficients below.
-    v = 176 * FT
-    q = 0.5 * RHO0 * v * v
-    return from_coefficients(
-        dynamic_pressure=q,
-        airspeed=v,
-        mass=2750 * LB / 9.80665,
-        pitch_inertia=3000 * SLUG * FT**2,
-        wing_area=184 * FT**2,
-        mean_chord=5.7 * FT,
-        CL_alpha=4.44,
-        CD=0.05,
-        CL_delta=0.355,
-        Cm_alpha=-0.683,
-        Cm_alpha_dot=-4.36,
-        Cm_q=-9.96,
-        Cm_delta=-0.923,
-    )
+    # Source: Nelson, 2nd ed., ch. 4 general-aviation example inputs (conftest.textbook_ga_inputs).
+    return from_coefficients(**textbook_ga_inputs())
 
 
 def test_textbook_derivatives_from_coefficients():

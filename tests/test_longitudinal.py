@@ -26,10 +26,8 @@ from damper.model.longitudinal import (
     with_speed_terms,
 )
 
-from .conftest import FT, TEXTBOOK_GA, random_derivatives, random_longitudinal, textbook_longitudinal
+from .conftest import TEXTBOOK_GA, random_derivatives, random_longitudinal, textbook_ga_inputs, textbook_longitudinal
 
-LB = 4.4482216152605  # N (force pound)
-SLUG = 14.593902937  # kg
 
 
 def _equations(d, x, delta):
@@ -135,26 +133,11 @@ def test_textbook_general_aviation_example_four_state_roots():
 
 
 def _textbook_coefficients(**extra):
-    # Source: Nelson, 2nd ed., ch. 4 general-aviation example inputs (read in secondary
-    # public copies, shared/references.md s.3); speed terms from memory: CD_alpha = 0.33,
-    # CL_u = CD_u = Cm_u = CT_u = 0 (low speed, thrust effects neglected in the book).
-    v = 176 * FT
-    return from_coefficients(
-        dynamic_pressure=0.5 * RHO0 * v * v,
-        airspeed=v,
-        mass=2750 * LB / G0,
-        pitch_inertia=3000 * SLUG * FT**2,
-        wing_area=184 * FT**2,
-        mean_chord=5.7 * FT,
-        CL_alpha=4.44,
-        CD=0.05,
-        CL_delta=0.355,
-        Cm_alpha=-0.683,
-        Cm_alpha_dot=-4.36,
-        Cm_q=-9.96,
-        Cm_delta=-0.923,
-        **{**dict(CL_u=0.0, CD_u=0.0, Cm_u=0.0, CT_u=0.0, CD_alpha=0.33), **extra},
-    )
+    # Source: Nelson, 2nd ed., ch. 4 general-aviation example inputs (conftest.textbook_ga_inputs);
+    # speed terms from memory: CD_alpha = 0.33, CL_u = CD_u = Cm_u = CT_u = 0 (low speed,
+    # thrust effects neglected in the book).
+    return from_coefficients(**textbook_ga_inputs(), **{**dict(CL_u=0.0, CD_u=0.0, Cm_u=0.0, CT_u=0.0, CD_alpha=0.33),
+                                                         **extra})
 
 
 def test_textbook_speed_derivatives_from_coefficients():
