@@ -138,6 +138,13 @@ def _blocks(obj, files, title="", depth=0):
     return blocks, figures
 
 
+def part_view(headline, blocks, figures, doc) -> dict:
+    """The template's view of one part's section: its headline, tables, figures and the
+    document's own warnings (no error)."""
+    return {"error": None, "headline": headline, "blocks": blocks, "figures": figures,
+            "warnings": [str(w) for w in doc.get("warnings") or []]}
+
+
 def _generic_view(doc, files, plot_prefix):
     if doc is None:
         return None
@@ -160,13 +167,7 @@ def _generic_view(doc, files, plot_prefix):
                         else {"cls": "fail", "symbol": "\u2718", "text": "FAILED"},
                         "message": message if isinstance(message, str) else _cell(message)}
             break
-    return {
-        "error": None,
-        "headline": headline,
-        "blocks": blocks,
-        "figures": figures,
-        "warnings": [str(w) for w in doc.get("warnings") or []],
-    }
+    return part_view(headline, blocks, figures, doc)
 
 
 # --- dedicated views of the schedule and robustness documents --------------------
@@ -294,14 +295,9 @@ def _schedule_view(doc, files):
     blocks += _breakpoint_blocks(doc)
     blocks += _verification_blocks(doc, variables)
     figures = _plot_dir_figures(files, ("schedule",), {k.stem: k.caption for k in SCHEDULE_FIGURES})
-    return {
-        "error": None,
-        "headline": _part_headline(doc, "schedule") or (_headline(bool(doc.get("passed")), doc.get("message"))
-                                                          if isinstance(doc.get("passed"), bool) else None),
-        "blocks": blocks,
-        "figures": figures,
-        "warnings": [str(w) for w in doc.get("warnings") or []],
-    }
+    headline = _part_headline(doc, "schedule") or (_headline(bool(doc.get("passed")), doc.get("message"))
+                                                     if isinstance(doc.get("passed"), bool) else None)
+    return part_view(headline, blocks, figures, doc)
 
 
 def _gain_table_blocks(variables, gains) -> list:
@@ -426,13 +422,7 @@ def _robustness_view(doc, files):
     figures = _files_figures(files, doc.get("files") or [], family_captions(ROBUSTNESS_FIGURES))
     if not figures:
         figures = _plot_dir_figures(files, ("pass-fraction", "scatter-", "sensitivity-", "robust"))
-    return {
-        "error": None,
-        "headline": headline,
-        "blocks": blocks,
-        "figures": figures,
-        "warnings": [str(w) for w in doc.get("warnings") or []],
-    }
+    return part_view(headline, blocks, figures, doc)
 
 
 def _method_block(m):
