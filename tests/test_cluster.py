@@ -129,19 +129,28 @@ def test_two_local_processes_give_the_one_process_result(small):
     assert _without_command(out / "robustness.json") == reference
 
 
-def test_many_small_blocks_spread_over_the_dask_workers_give_the_inline_result(small, cluster):
+@pytest.fixture(scope="module")
+def inline_blocks(small):
+    """(case, spec, study) of the small case in blocks of 8 loops, run in this process with one
+    worker: the reference of both cluster sizes (it was run once per cluster, the same study)."""
+    from damper.analysis.robustness import robustness, uncertainty_spec
+    from damper.case import load_case
+
+    case = load_case(small[0])
+    spec = uncertainty_spec(case, chunk=8, refine_iterations=6)
+    return case, spec, robustness(case, 0.25, spec, workers=1)
+
+
+def test_many_small_blocks_spread_over_the_dask_workers_give_the_inline_result(inline_blocks, cluster):
     # blocks of 8 loops: the samples, corners and worst-case search cut into many tasks, so
     # several workers really share them and results arrive out of order
     import distributed
 
-    from damper.analysis.robustness import robustness, uncertainty_spec
-    from damper.case import load_case
+    from damper.analysis.robustness import robustness
     from damper.output.documents.jsonout import dumps
     from damper.output.documents.robustness import robustness_document
 
-    case = load_case(small[0])
-    spec = uncertainty_spec(case, chunk=8, refine_iterations=6)
-    local = robustness(case, 0.25, spec, workers=1)
+    case, spec, local = inline_blocks
     with distributed.Client(cluster, set_as_default=False) as client, \
             distributed.get_task_stream(client=client) as stream:
         remote = robustness(case, 0.25, spec, cluster=client)

@@ -81,7 +81,7 @@ def _design(tmp_path, text, name, *extra):
 def _rhs(d, delta):
     """The airframe (alpha, q, theta) driven by the surface delta(t, x), rad."""
     def f(t, x):
-        alpha, q, _ = x
+        alpha, q, _ = x.tolist()  # Python floats: the same IEEE double arithmetic, without numpy's scalar overhead
         dl = delta(t, x)
         alpha_dot = (d["Z_alpha"] * alpha + (d["V"] + d["Z_q"]) * q + d["Z_delta"] * dl) / d["V"]
         return [alpha_dot, d["M_alpha"] * alpha + d["M_alpha_dot"] * alpha_dot + d["M_q"] * q + d["M_delta"] * dl, q]

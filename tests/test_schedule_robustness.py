@@ -49,6 +49,35 @@ def _twinjet(extra):
     return load_case_text(_twinjet_text(extra), "twinjet.yaml")
 
 
+@functools.lru_cache(maxsize=None)
+def _designed(extra):
+    """(case, design_schedule(case)) of the demo with the uncertainty section `extra`, designed
+    once per process for every test below that reads it (none changes it)."""
+    case = _twinjet(extra)
+    return case, design_schedule(case)
+
+
+@pytest.fixture(scope="module")
+def uncertain_run(tmp_path_factory):
+    """``design twinjet.yaml --out run --no-plots --no-responses`` of the demo with the study
+    section UNCERTAIN: built once per test run (tests/shared_runs.py: under a lock, in the
+    directory common to the pytest-xdist workers) and read by the two tests that designed the
+    same case with the same options each on its own. Read only."""
+    from .shared_runs import _built_once, run_main
+
+    base = tmp_path_factory.getbasetemp()
+    if os.environ.get("PYTEST_XDIST_WORKER"):
+        base = base.parent  # common to every worker of this test run
+
+    def build(where):
+        (where / "twinjet.yaml").write_text(_twinjet_text(UNCERTAIN), encoding="utf-8")
+        argv = ["design", "twinjet.yaml", "--out", "run", "--no-plots", "--no-responses"]
+        code, out, err = run_main(argv, cwd=where)
+        return {"code": code, "stdout": out, "stderr": err, "argv": argv}
+
+    return _built_once(base / "shared-runs", "twinjet-schedule-robustness", build)
+
+
 def test_tightest_points_take_each_configuration_first_then_the_least_slack():
     # [derived] order by slack (ties by index), one least-slack point per configuration
     # first, repeated labels skipped
@@ -81,12 +110,8 @@ def test_study_points_carry_the_verification_gain_and_derivatives():
     assert np.ptp(r.slacks.min(axis=0), axis=1).max() == 0.0
 
 
-def test_design_runs_the_study_on_a_schedule_case(tmp_path, capsys):
-    path = tmp_path / "twinjet.yaml"
-    path.write_text(_twinjet_text(UNCERTAIN), encoding="utf-8")
-    out = tmp_path / "run"
-    rc = main(["design", str(path), "--out", str(out), "--no-plots", "--no-responses"])
-    text = capsys.readouterr().out
+def test_design_runs_the_study_on_a_schedule_case(uncertain_run):
+    out, rc, text = uncertain_run.path, uncertain_run.code, uncertain_run.stdout
     assert rc in (0, 3)  # 0 met, 3 not met: the verdict (docs/verdict.md) is checked in tests/test_verdict.py
     assert "robustness at the scheduled gains, at the tightest verification points" in text
     doc = json.loads((out / "robustness.json").read_text())
@@ -128,12 +153,11 @@ uncertainty:
     assert r.values.shape[1] == 5
 
 
-def test_robust_reads_a_schedule_file_and_studies_its_tightest_points(tmp_path, capsys):
+def test_robust_reads_a_schedule_file_and_studies_its_tightest_points(tmp_path, capsys, uncertain_run):
     # the same study from the written gain-schedule.json as from the design run itself
-    path = tmp_path / "twinjet.yaml"
-    path.write_text(_twinjet_text(UNCERTAIN), encoding="utf-8")
-    design = tmp_path / "design"
-    assert main(["design", str(path), "--out", str(design), "--no-plots", "--no-responses"]) in (0, 3)  # 0 met, 3 not met: the verdict (docs/verdict.md) is checked in tests/test_verdict.py
+    path = uncertain_run.path.parent / "twinjet.yaml"
+    design = uncertain_run.path  # read only: robust writes into its own --out
+    assert uncertain_run.code in (0, 3)  # 0 met, 3 not met: the verdict (docs/verdict.md) is checked in tests/test_verdict.py
     out = tmp_path / "robust"
     assert main(["robust", str(path), "--schedule", str(design), "--out", str(out), "--no-plots", "--quiet"]) in (0, 3)
     assert "tightest verification points" in capsys.readouterr().out
@@ -147,11 +171,14 @@ def test_robust_reads_a_schedule_file_and_studies_its_tightest_points(tmp_path, 
 @functools.lru_cache(maxsize=None)
 def _twinjet_table():
     """gain-schedule.json of the twinjet's schedule as text: designed once for every
-    parametrisation below (each changes its own parsed copy)."""
+    parametrisation below (each changes its own parsed copy). The schedule of the case with
+    the study section UNCERTAIN (read by test_pass_fraction_plot_fits_long_condition_names too):
+    the same variables, breakpoints and gains as without the section (only the recorded input
+    hash differs, which no parametrisation changes or reads)."""
     from damper.output.documents.schedule import table_dict
 
-    case = _twinjet("")
-    return json.dumps(table_dict(design_schedule(case).schedule, case))
+    case, designed = _designed(UNCERTAIN)
+    return json.dumps(table_dict(designed.schedule, case))
 
 
 @pytest.mark.parametrize(
@@ -227,8 +254,8 @@ def test_pass_fraction_plot_fits_long_condition_names(tmp_path):
     from damper.output.style import DPI
     from damper.output.figures.robustness import _draw_pass
 
-    case = _twinjet(UNCERTAIN)
-    study, gains, _ = schedule_study_case(case, design_schedule(case), 4)
+    case, designed = _designed(UNCERTAIN)
+    study, gains, _ = schedule_study_case(case, designed, 4)
     r = robustness(study, gains, uncertainty_spec(study), refine=False)
     fig = _draw_pass(study, r)
     fig.set_dpi(DPI)

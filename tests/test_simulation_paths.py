@@ -13,6 +13,7 @@
 All airframe numbers are invented.
 """
 
+import contextlib
 import math
 
 import numpy as np
@@ -93,12 +94,67 @@ def series(h):
     return {k: getattr(h, k) for k in h.SERIES if getattr(h, k) is not None}
 
 
+@contextlib.contextmanager
+def _set(obj, name, value):
+    """``obj.name = value`` for the block's duration (restored afterwards)."""
+    before = getattr(obj, name)
+    setattr(obj, name, value)
+    try:
+        yield
+    finally:
+        setattr(obj, name, before)
+
+
+_RUNS = {}
+
+
+def _run(table, name, how):
+    """The simulation of case `name` of `table` (``"hostile"``: :data:`CASES`; ``"authority"``:
+    :data:`AUTHORITY`) by the loop `how`, computed once per process and read by every test that
+    compares it (results are only read):
+
+    * ``"reference"``: simulation_parts.integrate (rk4.supported off);
+    * ``"step"``: the streamlined step-by-step loop (linear blocks off); on the authority loops
+      with simulation_parts.integrate removed, so that no member falls back to the reference;
+    * ``"blocks"``: the linear blocks on: (history, {True: blocks advanced by them, False:
+      blocks left to the step loop}) as the ``linear_blocks`` fixture counts them.
+    """
+    key = (table, name, how)
+    if key not in _RUNS:
+        _, loop, inp, kw = next(c for c in (CASES if table == "hostile" else AUTHORITY) if c[0] == name)[:4]
+        _RUNS[key] = _simulated(loop, inp, kw, how, table == "authority")
+    return _RUNS[key]
+
+
+def _simulated(loop, inp, kw, how, no_fallback):
+    import damper.analysis.simulation_parts as sp
+
+    if how == "reference":
+        with _set(rk4, "LINEAR_BLOCKS", False), _set(rk4, "supported", lambda model: False):
+            return simulate(loop, inp, **kw)
+    if how == "step":
+        with _set(rk4, "LINEAR_BLOCKS", False), _set(sp, "integrate", None if no_fallback else sp.integrate):
+            return simulate(loop, inp, **kw)
+    counts = {True: 0, False: 0}
+    with _set(rk4, "LINEAR_BLOCKS", True), _set(linear, "attempt", _counting(linear.attempt, counts)):
+        return simulate(loop, inp, **kw), counts
+
+
+def _counting(attempt, counts):
+    """`attempt` that adds the members' blocks it advanced (True) and left (False) to `counts`."""
+    def counting(*args):
+        Z, ok = attempt(*args)
+        counts[True] += int(ok.sum())
+        counts[False] += int((~ok).sum())
+        return Z, ok
+
+    return counting
+
+
 @pytest.mark.parametrize("name,loop,inp,kw", CASES, ids=IDS)
-def test_streamlined_loop_equals_the_reference_bit_for_bit(name, loop, inp, kw, monkeypatch):
-    monkeypatch.setattr(rk4, "LINEAR_BLOCKS", False)  # the step-by-step loop
-    fast = simulate(loop, inp, **kw)
-    monkeypatch.setattr(rk4, "supported", lambda model: False)  # the reference loop
-    ref = simulate(loop, inp, **kw)
+def test_streamlined_loop_equals_the_reference_bit_for_bit(name, loop, inp, kw):
+    fast = _run("hostile", name, "step")  # the step-by-step loop
+    ref = _run("hostile", name, "reference")  # the reference loop
     for key, value in series(ref).items():
         assert getattr(fast, key).tobytes() == value.tobytes(), key  # bits, signed zeros included
     assert fast.substeps == ref.substeps
@@ -168,17 +224,9 @@ def assert_same_bits(fast, ref):
 
 
 @pytest.mark.parametrize("name,loop,inp,kw,acting", AUTHORITY, ids=[c[0] for c in AUTHORITY])
-def test_streamlined_loop_with_an_authority_equals_the_reference_bit_for_bit(name, loop, inp, kw, acting,
-                                                                               monkeypatch):
-    import damper.analysis.simulation_parts as sp
-
-    monkeypatch.setattr(rk4, "LINEAR_BLOCKS", False)  # the step-by-step loop
-    reference = sp.integrate
-    monkeypatch.setattr(sp, "integrate", None)  # the streamlined loop runs every one of them
-    fast = simulate(loop, inp, **kw)
-    monkeypatch.setattr(sp, "integrate", reference)
-    monkeypatch.setattr(rk4, "supported", lambda model: False)  # the reference loop
-    ref = simulate(loop, inp, **kw)
+def test_streamlined_loop_with_an_authority_equals_the_reference_bit_for_bit(name, loop, inp, kw, acting):
+    fast = _run("authority", name, "step")  # the streamlined loop runs every one of them
+    ref = _run("authority", name, "reference")  # the reference loop
     assert_same_bits(fast, ref)
     # the limits the case is about act (the comparison is not between idle limiters)
     assert (bool(ref.authority_limited.any()), bool(ref.authority_rate_limited.any())) == acting
@@ -232,32 +280,15 @@ def linear_blocks(monkeypatch):
     """The linear blocks switched on; counts the members' blocks they advanced (True) and
     left to the step-by-step loop (False)."""
     counts = {True: 0, False: 0}
-    attempt = linear.attempt
-
-    def counting(*args):
-        Z, ok = attempt(*args)
-        counts[True] += int(ok.sum())
-        counts[False] += int((~ok).sum())
-        return Z, ok
-
     monkeypatch.setattr(rk4, "LINEAR_BLOCKS", True)
-    monkeypatch.setattr(linear, "attempt", counting)
+    monkeypatch.setattr(linear, "attempt", _counting(linear.attempt, counts))
     return counts
 
 
-def _stepped(loop, inp, kw):
-    before = rk4.LINEAR_BLOCKS
-    rk4.LINEAR_BLOCKS = False
-    try:
-        return simulate(loop, inp, **kw)
-    finally:
-        rk4.LINEAR_BLOCKS = before
-
-
 @pytest.mark.parametrize("name,loop,inp,kw", CASES, ids=IDS)
-def test_linear_blocks_agree_with_the_step_loop(name, loop, inp, kw, linear_blocks):
-    step = _stepped(loop, inp, kw)
-    fast = simulate(loop, inp, **kw)
+def test_linear_blocks_agree_with_the_step_loop(name, loop, inp, kw):
+    step = _run("hostile", name, "step")
+    fast, blocks = _run("hostile", name, "blocks")
     for key, value in series(step).items():
         if value.dtype == bool:
             np.testing.assert_array_equal(getattr(fast, key), value, err_msg=key)
@@ -267,7 +298,7 @@ def test_linear_blocks_agree_with_the_step_loop(name, loop, inp, kw, linear_bloc
             scale = max(np.max(np.abs(value)), 1e-300)
             assert np.max(np.abs(getattr(fast, key) - value)) <= 1e-11 * scale, key
     eligible = "within the step" not in name  # a delay of a step or less: no block inputs
-    assert (linear_blocks[True] > 0) == eligible  # the blocks ran where they apply
+    assert (blocks[True] > 0) == eligible  # the blocks ran where they apply
 
 
 def _members(loop, kw, rows):
@@ -289,7 +320,7 @@ def test_a_members_results_do_not_depend_on_the_other_members(name, loop, inp, k
     # size, in which the other members reach a limit or not, with delays of their own)
     # (each run beside copies of the next one: a batch in which which runs reach a limit,
     # and which delays are shortest, differ from the case's own batch)
-    batch = simulate(loop, inp, **kw)
+    batch, _ = _run("hostile", name, "blocks")
     for i in range(3):
         j = (i + 1) % 3
         other_loop, other_kw = _members(loop, kw, [j, i, j])
@@ -299,11 +330,11 @@ def test_a_members_results_do_not_depend_on_the_other_members(name, loop, inp, k
 
 
 @pytest.mark.parametrize("name,loop,inp,kw,acting", AUTHORITY, ids=[c[0] for c in AUTHORITY])
-def test_linear_blocks_with_an_authority_agree_with_the_step_loop(name, loop, inp, kw, acting, linear_blocks):
+def test_linear_blocks_with_an_authority_agree_with_the_step_loop(name, loop, inp, kw, acting):
     # every run delayed: the damper's limited command is known before the block, so a
     # block is linear whatever the authority does; otherwise the blocks do not run
-    step = _stepped(loop, inp, kw)
-    fast = simulate(loop, inp, **kw)
+    step = _run("authority", name, "step")
+    fast, blocks = _run("authority", name, "blocks")
     for key, value in series(step).items():
         if value.dtype == bool:
             np.testing.assert_array_equal(getattr(fast, key), value, err_msg=key)
@@ -313,7 +344,7 @@ def test_linear_blocks_with_an_authority_agree_with_the_step_loop(name, loop, in
     if step.damper_demand_peak is not None:
         np.testing.assert_allclose(fast.damper_demand_peak, step.damper_demand_peak, rtol=1e-11, atol=0)
     eligible = not any(w in name for w in ("mixed", "within the step", "no delay"))
-    assert (linear_blocks[True] > 0) == eligible
+    assert (blocks[True] > 0) == eligible
 
 
 def test_linear_blocks_match_scipy_with_an_exact_delay(linear_blocks):
