@@ -79,10 +79,12 @@ def test_a_run_compared_with_itself_has_zero_deltas_and_nothing_worse(runs, tmp_
     for r in doc["runs"]:
         assert r["input_sha256"] == manifest["input_sha256"]
         assert r["documents"]["design.json"] == listed["design.json"]
-    # overlay plots, and a self-contained report
-    assert len(doc["figures"]) == 7 and all((tmp_path / "self" / f["png"]).exists() for f in doc["figures"])
+    # overlay plots in the default format only (SVG, as --figures), and a self-contained report
+    assert len(doc["figures"]) == 7 and all((tmp_path / "self" / f["svg"]).exists() for f in doc["figures"])
+    assert not any("png" in f for f in doc["figures"])
+    assert {os.path.splitext(n)[1] for n in os.listdir(tmp_path / "self" / "plots")} == {".svg"}
     page = (tmp_path / "self" / "compare.html").read_text()
-    assert page.count("data:image/png;base64,") == 7
+    assert page.count("data:image/svg+xml;base64,") == 7 and "data:image/png" not in page
     assert not re.search(r"""(src|href)=["']?(https?:|//)""", page) and "<script" not in page
 
 
@@ -149,8 +151,12 @@ def test_schedules_compared_on_the_union_of_both_grids(tmp_path, shared_run):
         assert r["worse"] == [] and r["kind"] == "schedule point"
         # Source: the run's own schedule verification (schedule.json) at the same point
         assert r["a"]["chosen_gain_s"] == rows[r["name"]]["gain_s"]
-    code, _, err, doc = _compare(a, b, tmp_path / "ab", "--no-plots")
+    code, _, err, doc = _compare(a, b, tmp_path / "ab", "--figures", "png")
     assert code in (0, 3), err
+    # --figures png: the one overlay (both schedules; schedule points get none) as PNG alone, embedded
+    assert [set(f) for f in doc["figures"]] == [{"png", "caption"}]
+    assert os.listdir(tmp_path / "ab" / "plots") == [os.path.basename(doc["figures"][0]["png"])]
+    assert (tmp_path / "ab" / "compare.html").read_text().count("data:image/png;base64,") == 1
     rows_b = {r["label"]: r for r in json.loads((b / "schedule.json").read_text())["verification"]["rows"]}
     names = {r["name"] for r in doc["conditions"]}
     assert names == set(rows) | set(rows_b) and len(names) > len(rows)  # the union of both grids

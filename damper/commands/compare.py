@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import os
 
+from ..output.options import add_figures_option
+
 NAME = "compare"
 #: Conditions that get an overlay plot (the first in the table's order: worst first).
 MAX_OVERLAYS = 12
@@ -25,6 +27,7 @@ def register(sub) -> str:
     p.add_argument("--case-b", metavar="FILE", help="RUN_B's case file (default: the path its design.json records)")
     p.add_argument("--force", action="store_true", help="replace an earlier comparison in DIR")
     p.add_argument("--no-plots", action="store_true", help="skip the overlay plots")
+    add_figures_option(p)
     return NAME
 
 
@@ -127,7 +130,7 @@ def run(args, argv) -> int:
     from ..errors import DamperError
     from ..output.style import use_option
 
-    use_option("png,svg")  # the report embeds the PNGs; the SVGs are for documents
+    use_option(args.figures)  # before anything is drawn
     if any(os.path.realpath(args.out) == os.path.realpath(r) for r in (args.run_a, args.run_b)):
         raise DamperError(f"--out {args.out}: is one of the compared runs; give the comparison its own directory")
     sides = [_read_run(args.run_a, "A"), _read_run(args.run_b, "B")]
@@ -177,7 +180,7 @@ def run(args, argv) -> int:
 
 
 def _plots(root, rows, cases, evaluated):
-    """Overlay plots: the first matched conditions (worst first) and both schedules; [{png, caption}]."""
+    """Overlay plots: the first matched conditions (worst first) and both schedules; [{svg and/or png, caption}]."""
     import numpy as np
 
     from ..analysis.compare_points import condition_sweep, sweep_gains
@@ -194,7 +197,7 @@ def _plots(root, rows, cases, evaluated):
         stem = os.path.join(root, "plots", f"overlay-{slug}")
         overlay_sweep_plot(stem, f"{r['name']}: run A and run B against the gain", sweeps[0], sweeps[1],
                            (r["a"]["chosen_gain_s"], r["b"]["chosen_gain_s"]), band)
-        figures.append({"png": os.path.relpath(stem + ".png", root), "svg": os.path.relpath(stem + ".svg", root),
+        figures.append({**_written(root, stem),
                         "caption": f"{r['name']}: damping ratio, gain margin and phase margin against K; run A solid, "
                         "run B dashed; dotted: chosen gains" + (f"; worse in B: {', '.join(r['worse'])}" if r["worse"] else "")})
     if evaluated[0] is not None and evaluated[1] is not None:
@@ -209,10 +212,17 @@ def _plots(root, rows, cases, evaluated):
                                   (evaluated[0].gains[ia], evaluated[1].gains[ib]),
                                   (evaluated[0].result.criteria.worst_slack[ia],
                                    evaluated[1].result.criteria.worst_slack[ib]))
-            figures.insert(0, {"png": os.path.relpath(stem + ".png", root), "svg": os.path.relpath(stem + ".svg", root),
+            figures.insert(0, {**_written(root, stem),
                                "caption": f"Scheduled gain and worst requirement slack at {len(common)} points against "
                                "dynamic pressure; run A circles, run B squares; below 0: a requirement missed"})
     return figures
+
+
+def _written(root, stem) -> dict:
+    """The figure `stem`'s file in each format written (``--figures``), relative to `root`."""
+    from ..output.style import formats
+
+    return {fmt: os.path.relpath(f"{stem}.{fmt}", root) for fmt in formats()}
 
 
 def _band(case):

@@ -1,17 +1,17 @@
 """The self-contained HTML comparison report of ``damper compare`` (templates/compare.html.j2).
 
 Everything shown is read from the ``compare.json`` document (built once by
-:mod:`damper.output.documents.compare`); plots are embedded as PNG data URIs. Autoescape is on:
+:mod:`damper.output.documents.compare`); plots are embedded as data URIs (SVG where written, else PNG). Autoescape is on:
 condition names and paths from the user are escaped.
 """
 
 from __future__ import annotations
 
-import base64
 import os
 
 from ..documents.compare import PASS_FRACTION
 from ..documents.text import fmt
+from ..runfiles import _data_uri
 
 #: Most points the report's table lists (compare.json has them all).
 MAX_ROWS = 400
@@ -36,9 +36,10 @@ HEADS = ["point", "kind", "K A (s)", "K B (s)", "delta K", "zeta A", "zeta B", "
 
 
 def _figure(root, fg):
-    with open(os.path.join(root, fg["png"]), "rb") as fh:
-        data = base64.b64encode(fh.read()).decode("ascii")
-    return {"src": "data:image/png;base64," + data, "caption": fg["caption"]}
+    """The figure `fg` of compare.json embedded as a data URI: its SVG where written, else its PNG."""
+    name = fg.get("svg") or fg["png"]
+    with open(os.path.join(root, name), "rb") as fh:
+        return {"src": _data_uri(name, fh.read()), "caption": fg["caption"]}
 
 
 def build_compare_report(doc, root, version) -> str:
