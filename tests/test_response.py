@@ -491,4 +491,4 @@ def test_response_csv_fields_follow_the_documented_format():
     expected = [",".join(field(c[i]) for c in cols) for i in range(0, n, 2)]
     assert lines[1:] == expected and text.endswith("\n")
     assert lines[0].split(",")[:3] == ["time_s", "pilot_command_rad", "gust_alpha_rad"]
-    assert ",,"  in lines[2] and lines[1].split(",")[1] == "0" and "-0" in lines[1].split(",")
+    assert ",," in lines[2] and lines[1].split(",")[1] == "0" and "-0" in lines[1].split(",")
