@@ -184,3 +184,16 @@ def test_a_case_naming_only_this_band_gets_every_measure_it_needs(kind):
     assert (a.bandwidth is not None) == kind.needs_bandwidth
     assert [c.name for c in a.criteria.criteria] == ["stability", kind.name]
     assert a.criteria.values.shape == (2, len(case.conditions))
+    # the criteria's scope (the gain search, schedules, robustness samples) leaves out the
+    # disk-margin search unless the criterion says it needs it, and the longitudinal extras;
+    # what it computes is the full assessment's, bit for bit (a criterion reading the disk
+    # margin without saying so would read None here and fail)
+    c = assess_loop(build_loop(case, 0.1), requirements=req, with_bandwidth=False, scope="criteria")
+    assert (c.margins.disk_margin is not None) == kind.needs_disk_margin
+    assert c.two_state is None and c.equivalent_plain is None and a.two_state is not None
+    np.testing.assert_array_equal(c.criteria.values, a.criteria.values)
+    np.testing.assert_array_equal(c.criteria.slacks, a.criteria.slacks)
+    for name in ("gain_margin_db", "phase_margin_deg", "delay_margin_s", "phase_crossings_rad_s"):
+        np.testing.assert_array_equal(getattr(c.margins, name), getattr(a.margins, name))
+    np.testing.assert_array_equal(c.equivalent.damping_ratio, a.equivalent.damping_ratio)
+    np.testing.assert_array_equal(c.modes.eigenvalues, a.modes.eigenvalues)

@@ -123,13 +123,41 @@ def build_loop(case: Case, gains) -> Loop:
     return Loop(d, case.loop.hardware(), g)
 
 
-def assess_loop(loop: Loop, w=None, requirements: Requirements | None = None, with_bandwidth=False) -> Assessment:
-    """Every measure of a batch of loops (any batch shape ``S``)."""
+#: What :func:`assess_loop` computes: every measure, or what the criteria need.
+SCOPES = ("all", "criteria")
+
+
+def assess_loop(loop: Loop, w=None, requirements: Requirements | None = None, with_bandwidth=False,
+                scope="all") -> Assessment:
+    """Every measure of a batch of loops (any batch shape ``S``).
+
+    Parameters
+    ----------
+    loop : Loop
+    w : ndarray, optional
+        Coarse frequency grid of the margins, rad/s.
+    requirements : Requirements, optional
+        Evaluated when given.
+    with_bandwidth : bool
+        Compute the pitch-attitude bandwidth even when no criterion needs it.
+    scope : {"all", "criteria"}
+        ``"criteria"``: what the requirements' criteria and levels read, and the modes,
+        margins and fits the search's figures draw, for the many evaluations whose only
+        use is a verdict (the gain search, schedule design, robustness samples): the
+        disk-margin peak is searched only when a criterion needs it (else the margins' disk
+        fields are None), and a longitudinal loop's extras (two-state short period, plain
+        equivalent fit, bare phugoid) are left out (None). Every measure computed is the
+        same, bit for bit, in either scope.
+    """
+    if scope not in SCOPES:
+        raise ValueError(f"scope must be one of {SCOPES}, not {scope!r}")
+    everything = scope == "all"
     A, _, layout = closed_loop_matrix(loop)
     shape = batch_shape(loop)
     A = np.broadcast_to(A, shape + A.shape[-2:])
     modes = closed_loop_modes(A, layout.alpha, layout.q, layout.u, layout.theta)
-    margins = loop_margins(loop, stable=modes.stable, w=w)
+    disk = everything or (requirements is not None and requirements.needs_disk_margin)
+    margins = loop_margins(loop, stable=modes.stable, w=w, disk=disk)
     free_zero = bool(requirements.free_zero) if requirements is not None else False
     # a longitudinal loop: the closed-loop phugoid's known factor is taken out before the
     # short-period form is fitted (docs/theory.md section 8); the plain form's fit is kept too
@@ -149,7 +177,7 @@ def assess_loop(loop: Loop, w=None, requirements: Requirements | None = None, wi
         inv_t_theta2=np.broadcast_to(airframes.inverse_t_theta2(loop.airframe), shape),
         layout=layout,
         pade_order=None if delay is None else int(delay.pade_order),
-        **_longitudinal_measures(loop, modes, free_zero),
+        **(_longitudinal_measures(loop, modes, free_zero) if everything else {}),
     )
     if requirements is None:
         return result

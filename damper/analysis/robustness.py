@@ -98,7 +98,7 @@ def evaluate_points(case, axes: Axes, gains, cidx, u) -> dict:
     """Assess sampled loops; arrays of the batch shape (criteria first for values/slacks)."""
     loop = sampled_loop(case, axes, gains, cidx, u)
     req = case.requirements
-    a = assess_loop(loop, w=case.settings.grid(), requirements=req)
+    a = assess_loop(loop, w=case.settings.grid(), requirements=req, scope="criteria")
     shape = a.criteria.values.shape[1:]
     return {
         "values": a.criteria.values,

@@ -53,8 +53,9 @@ from .schedule_types import BreakpointDesign, PointSet, Schedule, ScheduleResult
 
 
 def _evaluate(case, d: Derivatives, gains):
+    """The criteria at `gains` (s): every use here is a verdict or a slack (scope "criteria")."""
     loop = Loop(d, case.loop.hardware(), np.asarray(gains, float))
-    return assess_loop(loop, w=case.settings.grid(), requirements=case.requirements)
+    return assess_loop(loop, w=case.settings.grid(), requirements=case.requirements, scope="criteria")
 
 
 def _take(d: Derivatives, idx):

@@ -134,7 +134,9 @@ class DesignResult:
     sweep_gains : ndarray, shape (n_conditions, points)
         s.
     sweep : Assessment
-        Measures over the sweep (batch shape (n_conditions, points)).
+        Measures over the sweep (batch shape (n_conditions, points)), in the criteria's
+        scope (:func:`damper.analysis.assess.assess_loop`): no disk margin unless a criterion
+        needs it, no longitudinal extras.
     chosen : Assessment
         Measures at the chosen gains (batch shape (n_conditions,)).
     """
@@ -165,9 +167,10 @@ def _points_loop(case: Case, rows, gains) -> Loop:
     return Loop(d, case.loop.hardware(), np.asarray(gains, dtype=float))
 
 
-def evaluate_points(case: Case, rows, gains) -> Assessment:
-    """Assess arbitrary (condition row, gain) points, batched."""
-    return assess_loop(_points_loop(case, rows, gains), w=case.settings.grid(), requirements=case.requirements)
+def evaluate_points(case: Case, rows, gains, scope="all") -> Assessment:
+    """Assess arbitrary (condition row, gain) points, batched (`scope` as :func:`assess_loop`)."""
+    return assess_loop(_points_loop(case, rows, gains), w=case.settings.grid(), requirements=case.requirements,
+                       scope=scope)
 
 
 def _names(case):
@@ -180,14 +183,14 @@ def search(case: Case, settings: SearchSettings | None = None) -> DesignResult:
     n = len(case.conditions)
     gains = _sweep_gains(case, settings)  # (n, points), s
     rows = np.repeat(np.arange(n)[:, None], settings.points, 1)
-    sweep = evaluate_points(case, rows, gains)
+    sweep = evaluate_points(case, rows, gains, "criteria")
     ok = sweep.criteria.all_met  # (n, points)
     worst = sweep.criteria.worst_slack
     names = _names(case)
     r, j, ok_a, edge_gain, binding_idx = _edges(case, ok, gains)
 
     # --- the bare airframe (K = 0): does the first feasible interval reach down to it? ------
-    bare = evaluate_points(case, np.arange(n), np.zeros(n))
+    bare = evaluate_points(case, np.arange(n), np.zeros(n), "criteria")
     bare_ok = bare.criteria.all_met & ok[:, 0]
 
     designs = []
@@ -247,7 +250,7 @@ def _edges(case, ok, gains):
         if r.size == 0:
             break
         mid = 0.5 * (a + b)
-        res = evaluate_points(case, r, 10.0**mid)
+        res = evaluate_points(case, r, 10.0**mid, "criteria")
         m_ok = res.criteria.all_met
         same = m_ok == ok_a
         a = np.where(same, mid, a)
@@ -257,7 +260,7 @@ def _edges(case, ok, gains):
     edge_gain = np.where(ok_a, 10.0**a, 10.0**b)  # the feasible side of each bracket
     outside = np.where(ok_a, 10.0**b, 10.0**a)
     binding_idx = (
-        evaluate_points(case, r, outside).criteria.binding() if r.size else np.zeros(0, int)
+        evaluate_points(case, r, outside, "criteria").criteria.binding() if r.size else np.zeros(0, int)
     )
     return r, j, ok_a, edge_gain, binding_idx
 
@@ -309,7 +312,7 @@ def _golden_max_slack(case, rows, a, b, steps=30):
     gain at the middle of the final bracket, s."""
 
     def f(x):
-        return evaluate_points(case, rows, 10.0**x).criteria.worst_slack
+        return evaluate_points(case, rows, 10.0**x, "criteria").criteria.worst_slack
 
     a, b = golden_bracket(f, a, b, steps)[:2]
     return 10.0 ** (0.5 * (a + b))

@@ -95,11 +95,12 @@ class Margins:
         Frequency of the phase crossing that sets ``gain_margin_low_db``, rad/s.
     delay_margin_s : ndarray
         s (NaN: no gain crossing, or the closed loop is unstable).
-    disk_margin : ndarray
-        Symmetric disk margin alpha (NaN: no loop, or the closed loop is unstable).
-    disk_gain_margin_db : ndarray
+    disk_margin : ndarray or None
+        Symmetric disk margin alpha (NaN: no loop, or the closed loop is unstable; None: not
+        searched, ``loop_margins(..., disk=False)``).
+    disk_gain_margin_db : ndarray or None
         Gain variation tolerated by the disk, ``20 log10((1 + a/2)/(1 - a/2))`` dB (NaN for a >= 2).
-    disk_phase_margin_deg : ndarray
+    disk_phase_margin_deg : ndarray or None
         Phase variation tolerated by the disk, ``2 atan(a/2)`` deg.
     gain_crossings_rad_s, phase_margins_deg : ndarray, shape (..., m)
         Every gain crossing (ascending) and its phase margin, NaN-padded.
@@ -484,8 +485,10 @@ _SCALARS = (
 _CROSSINGS = ("gain_crossings_rad_s", "phase_margins_deg", "phase_crossings_rad_s", "gain_margins_db")
 
 
-def _margins_flat(fl: FactoredLoop, coarse, stable):
-    """Margins of a flat batch: (dict of scalar arrays, dict of NaN-padded crossing arrays)."""
+def _margins_flat(fl: FactoredLoop, coarse, stable, disk=True):
+    """Margins of a flat batch: (dict of scalar arrays, dict of NaN-padded crossing arrays).
+
+    With ``disk`` False the disk-margin peak is not searched (its fields stay NaN here)."""
     n = fl.size
     live = (fl.gain != 0) & np.isfinite(fl.gain)
     ok = live if stable is None else live & stable  # an unstable closed loop has no margins
@@ -496,7 +499,7 @@ def _margins_flat(fl: FactoredLoop, coarse, stable):
         gc = gain_crossings(part)
         iv = bounded_intervals(part, coarse)
         pc = phase_crossings(part, iv, coarse[0], coarse[-1])
-        keep = ok[sub]
+        keep = ok[sub] & disk
         if np.any(keep):
             if np.all(keep):  # every loop (the usual case): the same loops and intervals, nothing gathered
                 peak[sub] = disk_peak(part, iv)
@@ -528,7 +531,7 @@ def _margins_flat(fl: FactoredLoop, coarse, stable):
     return out, pads
 
 
-def loop_margins(loop, stable=None, w=None, chunk=_CHUNK) -> Margins:
+def loop_margins(loop, stable=None, w=None, chunk=_CHUNK, disk=True) -> Margins:
     """Margins of every loop in the batch.
 
     Parameters
@@ -544,6 +547,9 @@ def loop_margins(loop, stable=None, w=None, chunk=_CHUNK) -> Margins:
         :data:`DEFAULT_GRID`.
     chunk : int
         Loops evaluated together (bounds memory; results do not depend on it).
+    disk : bool
+        Search the disk-margin peak (the costliest margin). False: the three disk fields
+        are None, every other field is the same, bit for bit.
 
     Returns
     -------
@@ -556,7 +562,7 @@ def loop_margins(loop, stable=None, w=None, chunk=_CHUNK) -> Margins:
     scalars, ragged = [], []
     for start in range(0, n, chunk):
         sl = np.arange(start, min(n, start + chunk))
-        s, r = _margins_flat(fl_all.take(sl), coarse, None if st is None else st[sl])
+        s, r = _margins_flat(fl_all.take(sl), coarse, None if st is None else st[sl], disk)
         scalars.append(s)
         ragged.append(r)
     fields = {name: np.concatenate([c[name] for c in scalars]).reshape(shape) for name in _SCALARS}
@@ -564,4 +570,6 @@ def loop_margins(loop, stable=None, w=None, chunk=_CHUNK) -> Margins:
     for name in _CROSSINGS:
         parts = [np.pad(r[name], ((0, 0), (0, m - r[name].shape[1])), constant_values=np.nan) for r in ragged]
         fields[name] = np.concatenate(parts).reshape(shape + (m,))
+    if not disk:
+        fields.update(disk_margin=None, disk_gain_margin_db=None, disk_phase_margin_deg=None)
     return Margins(**fields)

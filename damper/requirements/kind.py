@@ -60,6 +60,9 @@ class CriterionKind:
         Needs the four-state longitudinal model (the phugoid).
     needs_bandwidth : bool
         Its measure is the pitch-attitude bandwidth's (computed only when a criterion needs it).
+    needs_disk_margin : bool
+        Its measure is the symmetric disk margin's (an assessment of the criteria alone,
+        ``scope="criteria"``, searches the disk-margin peak only when a criterion needs it).
     """
 
     name: str
@@ -76,6 +79,7 @@ class CriterionKind:
     level: int = 0
     longitudinal_only: bool = False
     needs_bandwidth: bool = False
+    needs_disk_margin: bool = False
 
     def measure_for(self, damping_measure: str) -> str:
         """The measure variant of this criterion when the case's damping measure is `damping_measure`."""

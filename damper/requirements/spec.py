@@ -45,6 +45,10 @@ class Requirements:
     def needs_bandwidth(self) -> bool:
         return any(c.kind.needs_bandwidth for c in self.criteria)
 
+    @property
+    def needs_disk_margin(self) -> bool:
+        return any(c.kind.needs_disk_margin for c in self.criteria)
+
 
 def _measure_for(name, damping_measure):
     return registry.KINDS[name].measure_for(damping_measure)

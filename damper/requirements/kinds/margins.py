@@ -48,4 +48,5 @@ DELAY_MARGIN = CriterionKind(
 DISK_MARGIN = CriterionKind(
     "disk_margin", "disk margin", "-", 0.1, False, _disk_margin,
     doc="symmetric disk margin alpha", band_kind="number", preset_source=NO_PRESET, needs_stability=True,
+    needs_disk_margin=True,
 )
