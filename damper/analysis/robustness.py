@@ -376,7 +376,8 @@ def robustness(case, gains, spec: UncertaintySpec | None = None, *, progress=Non
         run.close(finished)
     worst = _worst_cases(case, axes, g, spec, crit, nominal, extremes, corners_u, refined)
     u_shown = sample_rows(axes, spec.seed, 0, samples.shown)
-    conditions = tuple(_condition(case, axes, g, spec, crit, i, nominal, samples, corners, worst[i], u_shown)
+    u_ranks = average_ranks(u_shown.T)  # the same samples' ranks at every condition
+    conditions = tuple(_condition(case, axes, g, spec, crit, i, nominal, samples, corners, worst[i], u_shown, u_ranks)
                        for i in range(n))
     j_lo, j_hi = clopper_pearson(samples.joint, spec.samples, spec.confidence)
     return RobustnessResult(
@@ -429,15 +430,16 @@ def _worst_cases(case, axes, g, spec, crit, nominal, extremes, corners_u, refine
     return out
 
 
-def _condition(case, axes, g, spec, crit, i, nominal, samples, corners, worst, u_shown) -> ConditionRobustness:
-    """The :class:`ConditionRobustness` of condition `i` from the reductions."""
+def _condition(case, axes, g, spec, crit, i, nominal, samples, corners, worst, u_shown, u_ranks) -> ConditionRobustness:
+    """The :class:`ConditionRobustness` of condition `i` from the reductions (`u_ranks`: the
+    shown samples' ranks per axis, ``average_ranks(u_shown.T)``)."""
     p, N = len(axes.names), spec.samples
     passed = samples.passed[:, i]
     lo, hi = clopper_pearson(passed, N, spec.confidence)
     lo_all, hi_all = clopper_pearson(samples.passed_all[i], N, spec.confidence)
     if p and samples.shown > 1:
         sl = samples.shown_slacks[:, i, :]
-        rho = spearman(u_shown.T, np.concatenate([sl, np.min(sl, 0)[None, :]], 0))
+        rho = spearman(u_shown.T, np.concatenate([sl, np.min(sl, 0)[None, :]], 0), x_ranks=u_ranks)
         rho[axes.half[:, i] == 0, :] = np.nan
     else:
         rho = np.full((p, len(crit) + 1), np.nan)

@@ -75,13 +75,14 @@ def average_ranks(a):
     return np.where(np.isnan(a).any(-1, keepdims=True), np.nan, ranks)
 
 
-def spearman(x, y):
+def spearman(x, y, x_ranks=None):
     """Spearman rank correlation of every row of `x` (p, N) with every row of `y` (q, N).
 
     Average ranks for ties (:func:`average_ranks`); infinite values rank as the
-    extremes. Constant rows give NaN. Returns shape (p, q).
+    extremes. Constant rows give NaN. Returns shape (p, q). ``x_ranks``: the ranks of `x`
+    when the caller has them already (``average_ranks(x)``; the same `x` against several `y`).
     """
-    rx = average_ranks(x)
+    rx = average_ranks(x) if x_ranks is None else x_ranks
     ry = average_ranks(y)
     rx = rx - rx.mean(-1, keepdims=True)
     ry = ry - ry.mean(-1, keepdims=True)
