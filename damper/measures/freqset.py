@@ -242,9 +242,17 @@ def intervals_between(fl: FactoredLoop, rows, w, keep) -> Intervals:
                      at(th_lo, ia), at(th_hi, ia), at(m_lo, ia), at(m_hi, ia))
 
 
-def base_intervals(fl: FactoredLoop, coarse) -> Intervals:
-    """Intervals between consecutive points of the coarse grid, every factor's points and
-    :data:`W_ZERO`."""
+def base_frequencies(fl: FactoredLoop, coarse):
+    """The points of :func:`base_intervals`: the coarse grid, every factor's points and
+    :data:`W_ZERO`, ascending per loop.
+
+    Returns
+    -------
+    w : ndarray, shape (K, N)
+        Frequencies of each loop (column), rad/s; 1.0 where a loop has fewer than K points.
+    keep : ndarray of bool, shape (K - 1, N)
+        Where ``w[k], w[k + 1]`` is an interval (both real points, strictly ascending).
+    """
     n = fl.size
     parts = [np.broadcast_to(np.asarray(coarse, dtype=float), (n, len(coarse))), np.full((n, 1), W_ZERO)]
     for coef in (fl.num, fl.den):
@@ -253,7 +261,13 @@ def base_intervals(fl: FactoredLoop, coarse) -> Intervals:
     w = np.sort(np.concatenate(parts, -1), -1)  # NaN last
     w = np.ascontiguousarray(w[:, : int(np.isfinite(w).sum(1).max())].T)  # (K, N)
     keep = np.isfinite(w[1:]) & (w[1:] > w[:-1])
-    return intervals_between(fl, np.arange(n), np.where(np.isfinite(w), w, 1.0), keep)
+    return np.where(np.isfinite(w), w, 1.0), keep
+
+
+def base_intervals(fl: FactoredLoop, coarse) -> Intervals:
+    """Intervals between consecutive points of :func:`base_frequencies`."""
+    w, keep = base_frequencies(fl, coarse)
+    return intervals_between(fl, np.arange(fl.size), w, keep)
 
 
 def split(fl: FactoredLoop, iv: Intervals, parts, where=None) -> Intervals:

@@ -117,31 +117,29 @@ def arctan2_ns():
 
 def main():
     from bench_cluster import study_case
-    from damper.analysis.robustness import uncertainty_spec, resolve_axes
+
+    from damper.analysis.robustness import resolve_axes, uncertainty_spec
     from damper.analysis.uncertainty import sample_rows, sampled_loop
-    case = study_case(20, 2000); spec = uncertainty_spec(case)
-    g = np.full(20, 0.15); axes = resolve_axes(case, spec, g)
+
+    # 51 samples of the robustness benchmark's study at its 20 conditions: 1,020 loops
+    case = study_case(20, 2000)
+    g = np.full(20, 0.15)
+    axes = resolve_axes(case, uncertainty_spec(case), g)
     u = sample_rows(axes, 1, 0, 51)
-    loop = sampled_loop(case, axes, g, np.arange(20)[:, None], u[None, :, :])
-    fl, _ = factored_loop(loop)
-    fl = fl.take(np.arange(1020))
-    coarse = case.settings.grid()
-    # the base frequencies of every loop, as base_intervals builds them
+    fl, _ = factored_loop(sampled_loop(case, axes, g, np.arange(20)[:, None], u[None, :, :]))
     n = fl.size
-    parts = [np.broadcast_to(coarse, (n, len(coarse))), np.full((n, 1), freqset.W_ZERO)]
-    for coef in (fl.num, fl.den):
-        parts.append(freqset.factor_points(coef).reshape(n, -1))
-    w = np.sort(np.concatenate(parts, -1), -1)
-    w = np.ascontiguousarray(w[:, : int(np.isfinite(w).sum(1).max())].T)
-    w = np.where(np.isfinite(w), w, 1.0)
-    a = numpy_way(fl, w); b = compiled_way(fl, w)
+    w, _ = freqset.base_frequencies(fl, case.settings.grid())  # the points base_intervals evaluates
+    a = numpy_way(fl, w)
+    b = compiled_way(fl, w)
     same = all(np.array_equal(x, y, equal_nan=True) for x, y in zip(a, b))
     worst = max(float(np.nanmax(np.abs(x - y) / np.maximum(np.abs(x), 1e-300))) for x, y in zip(a, b))
     print("K x M =", w.shape, "bit for bit:", same, "largest relative difference:", worst)
     tn, tc = [], []
-    for _ in range(7):
-        t = time.perf_counter(); numpy_way(fl, w); tn.append(time.perf_counter() - t)
-        t = time.perf_counter(); compiled_way(fl, w); tc.append(time.perf_counter() - t)
+    for _ in range(7):  # interleaved, medians
+        for fn, times in ((numpy_way, tn), (compiled_way, tc)):
+            t = time.perf_counter()
+            fn(fl, w)
+            times.append(time.perf_counter() - t)
     print(f"numpy {np.median(tn)/n*1e6:.2f} us/loop, compiled {np.median(tc)/n*1e6:.2f} us/loop, "
           f"compiled/numpy {np.median(tc)/np.median(tn):.2f}")
     a_np, a_nb = arctan2_ns()
